@@ -1,0 +1,3 @@
+from gapforge.cli import main
+
+main()

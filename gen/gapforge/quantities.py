@@ -1,0 +1,214 @@
+"""Engineering notation in and out, exact inside.
+
+`parse_quantity("6.25ns", "s")` gives `Fraction(1, 160000000)`: decimal text becomes an exact
+fraction, so no float rounding can move a code across a boundary. Floats appear only when a
+value is formatted for display or handed to statistics.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from fractions import Fraction
+
+from gapforge.errors import GapforgeError
+
+# SI prefixes accepted on input. 'M' is mega and 'm' is milli; 'meg' is accepted for mega too.
+PREFIXES: dict[str, Fraction] = {
+    "f": Fraction(1, 10**15),
+    "p": Fraction(1, 10**12),
+    "n": Fraction(1, 10**9),
+    "u": Fraction(1, 10**6),
+    "\u00b5": Fraction(1, 10**6),
+    "\u03bc": Fraction(1, 10**6),
+    "m": Fraction(1, 10**3),
+    "": Fraction(1),
+    "k": Fraction(10**3),
+    "K": Fraction(10**3),
+    "meg": Fraction(10**6),
+    "M": Fraction(10**6),
+    "G": Fraction(10**9),
+    "T": Fraction(10**12),
+}
+
+# Unit spellings accepted for each kind of quantity (lower-cased forms are compared).
+UNITS: dict[str, tuple[str, ...]] = {
+    "s": ("s",),
+    "Hz": ("hz",),
+    "ohm": ("ohm", "ohms", "\u03c9", "\u2126", "r"),
+    "F": ("f",),
+    "V": ("v",),
+    "A": ("a",),
+    "W": ("w",),
+    "C": ("c",),
+    "": (),
+}
+
+_NUMBER = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$")
+
+_OUT_PREFIXES = [
+    (-15, "f"),
+    (-12, "p"),
+    (-9, "n"),
+    (-6, "u"),
+    (-3, "m"),
+    (0, ""),
+    (3, "k"),
+    (6, "M"),
+    (9, "G"),
+    (12, "T"),
+]
+
+
+def _split_suffix(suffix: str, unit: str) -> Fraction | None:
+    """The multiplier meant by a suffix such as 'ns', 'MHz', 'k', 'p', or None if not understood."""
+    if suffix in PREFIXES:
+        return PREFIXES[suffix]
+    spellings = UNITS.get(unit, ())
+    low = suffix.lower()
+    for spelling in sorted(spellings, key=len, reverse=True):
+        if low.endswith(spelling):
+            head = suffix[: len(suffix) - len(spelling)]
+            if head in PREFIXES:
+                return PREFIXES[head]
+            if head.lower() == "meg":
+                return PREFIXES["meg"]
+    if suffix.lower() == "meg":
+        return PREFIXES["meg"]
+    return None
+
+
+def parse_quantity(
+    text: object,
+    unit: str,
+    where: str,
+    *,
+    allow_zero: bool = False,
+    allow_negative: bool = False,
+) -> Fraction:
+    """Parse engineering notation exactly: '160MHz', '160e6', '6.25ns', '4.7k', '100p'.
+
+    `unit` names the kind ('s', 'Hz', 'ohm', 'F', 'V', 'A', 'W', 'C' for coulomb,
+    '' for a plain number). Numbers in TOML files (int or float) are accepted too; a float is taken
+    by its shortest decimal text, which is what the user wrote.
+    """
+    if isinstance(text, bool):
+        raise GapforgeError(f"expected a quantity in {unit or 'plain numbers'}, got {text!r}", where)
+    if isinstance(text, int):
+        value = Fraction(text)
+    elif isinstance(text, float):
+        if not math.isfinite(text):
+            raise GapforgeError(f"{text!r} is not a finite number", where)
+        value = Fraction(repr(text))
+    elif isinstance(text, str):
+        value = _parse_text(text, unit, where)
+    else:
+        raise GapforgeError(f"expected a quantity in {unit or 'plain numbers'}, got {text!r}", where)
+    if value < 0 and not allow_negative:
+        raise GapforgeError(f"{text!r} must not be negative", where)
+    if value == 0 and not allow_zero:
+        raise GapforgeError(f"{text!r} must be greater than zero", where)
+    return value
+
+
+def _parse_text(text: str, unit: str, where: str) -> Fraction:
+    stripped = text.strip()
+    low = stripped.lower()
+    if low.lstrip("+-") in ("nan", "inf", "infinity"):
+        raise GapforgeError(f"{text!r} is not a finite number", where)
+    match = _NUMBER.match(stripped)
+    if not match:
+        raise GapforgeError(f"{text!r} is not a number with an optional unit", where)
+    number, suffix = match.groups()
+    multiplier = _split_suffix(suffix, unit)
+    if multiplier is None:
+        expected = f"{unit}" if unit else "no unit"
+        raise GapforgeError(
+            f"unknown unit {suffix!r} in {text!r} (expected an SI prefix and {expected})", where
+        )
+    return Fraction(number) * multiplier
+
+
+def parse_tolerance(text: object, where: str, *, limit: Fraction = Fraction(1)) -> Fraction:
+    """A relative tolerance: '50ppm', '2%', '0.02'. Returns a fraction of one (0.02 for 2 %)."""
+    if isinstance(text, bool):
+        raise GapforgeError(f"expected a tolerance such as '50ppm' or '2%', got {text!r}", where)
+    if isinstance(text, int | float):
+        value = parse_quantity(text, "", where, allow_zero=True)
+    elif isinstance(text, str):
+        s = text.strip()
+        low = s.lower()
+        if low.endswith("ppm"):
+            value = parse_quantity(s[:-3], "", where, allow_zero=True) / 10**6
+        elif low.endswith("ppb"):
+            value = parse_quantity(s[:-3], "", where, allow_zero=True) / 10**9
+        elif s.endswith("%"):
+            value = parse_quantity(s[:-1], "", where, allow_zero=True) / 100
+        else:
+            value = parse_quantity(s, "", where, allow_zero=True)
+    else:
+        raise GapforgeError(f"expected a tolerance such as '50ppm' or '2%', got {text!r}", where)
+    if value >= limit:
+        raise GapforgeError(
+            f"tolerance {text!r} must be below {format_tolerance(limit)}", where
+        )
+    return value
+
+
+def format_tolerance(value: Fraction | float) -> str:
+    v = Fraction(value) if not isinstance(value, Fraction) else value
+    if v == 0:
+        return "0"
+    if v < Fraction(1, 1000):
+        return f"{_trim(float(v * 10**6), 4)} ppm"
+    return f"{_trim(float(v * 100), 4)} %"
+
+
+def _trim(x: float, digits: int) -> str:
+    text = f"{x:.{digits}g}"
+    if "e" in text:
+        text = f"{x:.{digits}f}".rstrip("0").rstrip(".")
+    return text
+
+
+def format_quantity(value: Fraction | float | int, unit: str, digits: int = 5) -> str:
+    """Engineering notation for display: 6.25e-9 -> '6.25 ns'. Never used for a safety limit."""
+    x = float(value)
+    if not math.isfinite(x):
+        return f"{x} {unit}".strip()
+    if x == 0:
+        return f"0 {unit}".strip()
+    exp3 = int(math.floor(math.log10(abs(x)) / 3) * 3)
+    exp3 = max(-15, min(12, exp3))
+    scaled = x / 10.0**exp3
+    # rounding may push 999.995 to 1000: step the prefix up
+    if abs(float(f"{scaled:.{digits}g}")) >= 1000 and exp3 < 12:
+        exp3 += 3
+        scaled = x / 10.0**exp3
+    prefix = dict(_OUT_PREFIXES)[exp3]
+    return f"{_trim(scaled, digits)} {prefix}{unit}".strip()
+
+
+def fraction_json(value: Fraction) -> float:
+    """A seconds value as a JSON number (display only; exact values stay in Fractions)."""
+    return float(value)
+
+
+def ceil_fraction(value: Fraction) -> int:
+    return -((-value.numerator) // value.denominator)
+
+
+def floor_fraction(value: Fraction) -> int:
+    return value.numerator // value.denominator
+
+
+def picoseconds_floor(seconds: Fraction) -> int:
+    return floor_fraction(seconds * 10**12)
+
+
+def picoseconds_ceil(seconds: Fraction) -> int:
+    return ceil_fraction(seconds * 10**12)
+
+
+def picoseconds_nearest(seconds: Fraction) -> int:
+    return floor_fraction(seconds * 10**12 + Fraction(1, 2))

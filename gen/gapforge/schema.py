@@ -1,0 +1,211 @@
+"""Reading TOML files against explicit sets of allowed keys.
+
+Layout files and design files are read through `Reader`: each section lists its allowed keys,
+unknown keys get a "did you mean" hint, every problem is collected with its key path, and
+`Reader.finish()` raises one `GapforgeError` naming the file, the first problem's key path, and
+how many more there are. tomllib reports line numbers only for syntax errors; those are passed on.
+"""
+
+from __future__ import annotations
+
+import difflib
+import tomllib
+from collections.abc import Iterator
+from fractions import Fraction
+from pathlib import Path
+from typing import Any
+
+from gapforge.errors import GapforgeError
+from gapforge.quantities import parse_quantity, parse_tolerance
+
+
+def load_toml(path: Path) -> tuple[dict[str, Any], bytes]:
+    """The parsed table and the raw bytes (for provenance hashes) of a TOML file."""
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise GapforgeError("file not found", str(path)) from None
+    except IsADirectoryError:
+        raise GapforgeError("is a directory, expected a TOML file", str(path)) from None
+    except OSError as exc:
+        raise GapforgeError(f"cannot read: {exc.strerror}", str(path)) from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise GapforgeError(f"not UTF-8 text (byte {exc.start})", str(path)) from None
+    try:
+        return tomllib.loads(text), raw
+    except tomllib.TOMLDecodeError as exc:
+        raise GapforgeError(f"TOML syntax error: {exc}", str(path)) from None
+
+
+class Reader:
+    """Collects problems found while reading one file."""
+
+    def __init__(self, source: str) -> None:
+        self.source = source
+        self.problems: list[tuple[str, str]] = []
+
+    def problem(self, path: str, message: str) -> None:
+        self.problems.append((path, message))
+
+    def finish(self) -> None:
+        if not self.problems:
+            return
+        path, message = self.problems[0]
+        more = len(self.problems) - 1
+        tail = f" (and {more} more problem{'s' if more > 1 else ''})" if more else ""
+        where = f"{self.source}: {path}" if path else self.source
+        raise GapforgeError(message + tail, where)
+
+    def table(self, data: Any, path: str) -> Table:
+        if not isinstance(data, dict):
+            self.problem(path, f"expected a table, got {type(data).__name__}")
+            data = {}
+        return Table(self, data, path)
+
+
+_MISSING = object()
+
+
+class Table:
+    """One TOML table with its key path; typed getters record problems instead of raising."""
+
+    def __init__(self, reader: Reader, data: dict[str, Any], path: str) -> None:
+        self.reader = reader
+        self.data = data
+        self.path = path
+
+    def key_path(self, key: str) -> str:
+        return f"{self.path}.{key}" if self.path else key
+
+    def check_keys(self, allowed: set[str] | frozenset[str], required: set[str] | None = None) -> None:
+        for key in sorted(self.data):
+            if key not in allowed:
+                hint = difflib.get_close_matches(key, sorted(allowed), n=1)
+                suggestion = f"; did you mean '{hint[0]}'?" if hint else ""
+                choices = ", ".join(sorted(allowed))
+                self.reader.problem(
+                    self.key_path(key), f"unknown key{suggestion} (expected one of: {choices})"
+                )
+        for key in sorted(required or ()):
+            if key not in self.data:
+                self.reader.problem(self.key_path(key), "required key is missing")
+
+    def has(self, key: str) -> bool:
+        return key in self.data
+
+    def raw(self, key: str, default: Any = _MISSING) -> Any:
+        return self.data.get(key, None if default is _MISSING else default)
+
+    def sub(self, key: str, required: bool = False) -> Table | None:
+        if key not in self.data:
+            if required:
+                self.reader.problem(self.key_path(key), "required section is missing")
+            return None
+        return self.reader.table(self.data[key], self.key_path(key))
+
+    def subs(self, key: str) -> Iterator[Table]:
+        value = self.data.get(key, [])
+        if isinstance(value, dict):
+            value = [value]
+        if not isinstance(value, list):
+            self.reader.problem(self.key_path(key), "expected an array of tables")
+            return
+        for i, item in enumerate(value):
+            yield self.reader.table(item, f"{self.key_path(key)}[{i}]")
+
+    def string(self, key: str, default: str | None = None, choices: tuple[str, ...] = ()) -> str:
+        value = self.data.get(key, _MISSING)
+        if value is _MISSING:
+            if default is None:
+                self.reader.problem(self.key_path(key), "required key is missing")
+                return ""
+            return default
+        if not isinstance(value, str):
+            self.reader.problem(self.key_path(key), f"expected a string, got {value!r}")
+            return default or ""
+        if choices and value not in choices:
+            hint = difflib.get_close_matches(value, choices, n=1)
+            suggestion = f"; did you mean '{hint[0]}'?" if hint else ""
+            self.reader.problem(
+                self.key_path(key),
+                f"{value!r} is not one of {', '.join(choices)}{suggestion}",
+            )
+            return default or choices[0]
+        return value
+
+    def integer(
+        self, key: str, default: int | None = None, lo: int | None = None, hi: int | None = None
+    ) -> int:
+        value = self.data.get(key, _MISSING)
+        if value is _MISSING:
+            if default is None:
+                self.reader.problem(self.key_path(key), "required key is missing")
+                return lo if lo is not None else 0
+            return default
+        if isinstance(value, bool) or not isinstance(value, int):
+            self.reader.problem(self.key_path(key), f"expected an integer, got {value!r}")
+            return default if default is not None else (lo or 0)
+        if (lo is not None and value < lo) or (hi is not None and value > hi):
+            span = f"{lo if lo is not None else '-inf'}..{hi if hi is not None else 'inf'}"
+            self.reader.problem(self.key_path(key), f"{value} is outside {span}")
+            return default if default is not None else (lo or 0)
+        return value
+
+    def boolean(self, key: str, default: bool) -> bool:
+        value = self.data.get(key, default)
+        if not isinstance(value, bool):
+            self.reader.problem(self.key_path(key), f"expected true or false, got {value!r}")
+            return default
+        return value
+
+    def quantity(
+        self,
+        key: str,
+        unit: str,
+        default: Fraction | None = None,
+        *,
+        required: bool = True,
+        allow_zero: bool = False,
+        allow_negative: bool = False,
+    ) -> Fraction | None:
+        value = self.data.get(key, _MISSING)
+        if value is _MISSING:
+            if default is None and required:
+                self.reader.problem(self.key_path(key), "required key is missing")
+            return default
+        try:
+            return parse_quantity(
+                value, unit, self.key_path(key), allow_zero=allow_zero, allow_negative=allow_negative
+            )
+        except GapforgeError as exc:
+            self.reader.problem(self.key_path(key), exc.message)
+            return default
+
+    def tolerance(self, key: str, default: Fraction | None = None) -> Fraction:
+        value = self.data.get(key, _MISSING)
+        if value is _MISSING:
+            if default is None:
+                self.reader.problem(self.key_path(key), "required key is missing")
+                return Fraction(0)
+            return default
+        try:
+            return parse_tolerance(value, self.key_path(key))
+        except GapforgeError as exc:
+            self.reader.problem(self.key_path(key), exc.message)
+            return default if default is not None else Fraction(0)
+
+    def int_list(self, key: str, default: list[int] | None = None) -> list[int]:
+        value = self.data.get(key, _MISSING)
+        if value is _MISSING:
+            if default is None:
+                self.reader.problem(self.key_path(key), "required key is missing")
+                return []
+            return default
+        if not isinstance(value, list) or not all(
+            isinstance(v, int) and not isinstance(v, bool) for v in value
+        ):
+            self.reader.problem(self.key_path(key), f"expected a list of integers, got {value!r}")
+            return default or []
+        return list(value)
