@@ -1,0 +1,337 @@
+"""`gapforge window`: the power stage's dead-time window, its breakdown and its costs.
+
+The stage options are defined once here (`stage_options`) and shared with `gapforge sweep`.
+Option values go through the same reader as a design file's [stage] table, so both are checked
+by one piece of code; a problem is reported against the option that caused it.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable
+from fractions import Fraction
+from pathlib import Path
+from typing import Any, TypeVar
+
+import click
+
+from gapforge.errors import GapforgeError
+from gapforge.quantities import format_quantity, parse_quantity, picoseconds_ceil
+from gapforge.schema import Reader, load_toml
+from gapforge.stage import (
+    EDGES,
+    KINDS,
+    Costs,
+    StageSpec,
+    Term,
+    Window,
+    judge,
+    read_stage,
+    stage_costs,
+    stage_window,
+)
+
+CAUTION = (
+    "CAUTION: a wrong dead time destroys hardware. gapforge is a design aid: verify every dead "
+    "time on the bench at reduced voltage with current limiting before full power; local codes "
+    "and licensed practice prevail."
+)
+MIN_FORMULA = (
+    "minimum (common practice, no single published source): margin x (td_off,max + t_fall,max "
+    "- td_on,min + driver delay max - min + mismatch + isolator skew + timer skew), rounded up "
+    "to 1 ps"
+)
+MAX_FORMULA = (
+    "maximum (common practice): (loss budget - recovery loss) / (Vsd x (|I to_high| + "
+    "|I to_low|) x fsw), never beyond half a period, rounded down to 1 ps"
+)
+
+# option name (click parameter) -> [stage] key
+OPTION_KEYS: dict[str, str] = {
+    "td_off": "td_off",
+    "t_fall": "t_fall",
+    "td_on": "td_on",
+    "t_rise": "t_rise",
+    "prop_delay": "prop_delay",
+    "mismatch": "mismatch",
+    "isolator_skew": "isolator_skew",
+    "timer_skew": "timer_skew",
+    "margin": "margin",
+    "kind": "kind",
+    "vsd": "vsd",
+    "gate_off": "gate_off",
+    "current": "current",
+    "current_to_high": "current_to_high",
+    "current_to_low": "current_to_low",
+    "fsw": "fsw",
+    "loss_budget": "loss_budget",
+    "qrr": "qrr",
+    "bus_voltage": "bus_voltage",
+}
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+def stage_options(func: F) -> F:
+    """The power-stage options, shared by `window` and `sweep`."""
+    options = [
+        click.option("--design", type=click.Path(path_type=Path), default=None,
+                     help="Read the [stage] section of this design file instead of options."),
+        click.option("--td-off", help="Switch turn-off delay, max (both switches), e.g. 35ns."),
+        click.option("--t-fall", help="Switch fall time, max, e.g. 20ns."),
+        click.option("--td-on", help="Switch turn-on delay, min, e.g. 10ns."),
+        click.option("--t-rise", help="Switch rise time (shown, not counted)."),
+        click.option("--prop-delay", metavar="MIN:MAX",
+                     help="Gate-driver propagation delay, min:max per channel, e.g. 20ns:45ns."),
+        click.option("--mismatch", help="Driver channel mismatch not covered by MIN:MAX."),
+        click.option("--isolator-skew", help="Isolator or level-shifter skew."),
+        click.option("--timer-skew", help="The timer's own output skew, if known."),
+        click.option("--margin", help="Margin factor (>= 1).  [default: 1.2]"),
+        click.option("--kind", type=click.Choice(KINDS), default=None,
+                     help="Reverse-conduction path: silicon or SiC body diode, GaN third quadrant."
+                     "  [default: silicon]"),
+        click.option("--vsd", help="Reverse-conduction voltage (default: the kind's usual top)."),
+        click.option("--gate-off", help="GaN gate-off voltage, e.g. -3V (adds to the reverse V)."),
+        click.option("--current", help="Load current at both transitions, signed (+ out of node)."),
+        click.option("--current-to-high", help="Load current at the to_high transition, signed."),
+        click.option("--current-to-low", help="Load current at the to_low transition, signed."),
+        click.option("--fsw", help="Switching frequency, e.g. 20kHz."),
+        click.option("--loss-budget", help="Reverse-conduction + recovery loss budget, e.g. 0.5W."),
+        click.option("--qrr", help="Reverse-recovery charge, e.g. 50nC (needs --bus-voltage)."),
+        click.option("--bus-voltage", help="Bus voltage (recovery loss, inverter voltage error)."),
+    ]
+    for option in reversed(options):
+        func = option(func)
+    return func
+
+
+def spec_from_options(values: dict[str, Any]) -> StageSpec:
+    """A StageSpec from --design or from the stage options (one validation path for both)."""
+    design = values.get("design")
+    given = {
+        key: values[name]
+        for name, key in OPTION_KEYS.items()
+        if values.get(name) is not None
+    }
+    if design is not None:
+        extra = sorted(given)
+        if extra:
+            option = "--" + extra[0].replace("_", "-")
+            raise GapforgeError("give either --design or the stage options, not both", option)
+        data, _raw = load_toml(design)
+        reader = Reader(str(design))
+        table = reader.table(data, "")
+        stage = table.sub("stage", required=True)
+        reader.finish()
+        assert stage is not None
+        spec = read_stage(stage)
+        reader.finish()
+        return spec
+    if given.get("td_off") is None or given.get("td_on") is None:
+        missing = "--td-off" if given.get("td_off") is None else "--td-on"
+        raise GapforgeError("required (or give --design FILE)", missing)
+    reader = Reader("options")
+    spec = read_stage(reader.table(given, ""))
+    if reader.problems:
+        path, message = reader.problems[0]
+        key = path.split(".")[-1]
+        raise GapforgeError(message, "--" + key.replace("_", "-"))
+    return spec
+
+
+# ---------------------------------------------------------------------------------------------
+# rendering (returns text; the command prints)
+
+
+def _seconds(value: Fraction | None) -> float | None:
+    return None if value is None else float(value)
+
+
+def _term_json(term: Term) -> dict[str, Any]:
+    return {
+        "term": term.name,
+        "value": float(term.value),
+        "unit": term.unit or "factor",
+        "counted": term.counted,
+        "note": term.note,
+    }
+
+
+def window_json(
+    window: Window,
+    costs: Costs,
+    dead_times: dict[str, Fraction],
+    judged: dict[str, tuple[str, Fraction, Fraction | None]] | None,
+    verdict: str,
+) -> dict[str, Any]:
+    edges: dict[str, Any] = {}
+    for edge in EDGES:
+        w = window.edges[edge]
+        c = costs.edges[edge]
+        edges[edge] = {
+            "min_s": float(w.min_s),
+            "max_s": _seconds(w.max_s),
+            "min_ps": picoseconds_ceil(w.min_s),
+            "max_ps": None if w.max_s is None else int(w.max_s * 10**12),
+            "max_reason": w.max_reason,
+            "empty": w.empty,
+            "breakdown": [_term_json(t) for t in w.breakdown],
+            "max_breakdown": [_term_json(t) for t in w.max_breakdown],
+            "costs": {
+                "dead_time_s": float(c.dead_time_s),
+                "current_a": float(c.current_a),
+                "reverse_conduction_w": float(c.reverse_conduction_w),
+                "recovery_w": float(c.recovery_w),
+                "voltage_error_v": float(c.voltage_error_v),
+            },
+        }
+        if judged is not None:
+            v, low, high = judged[edge]
+            edges[edge]["judged"] = {
+                "verdict": v,
+                "margin_low_s": float(low),
+                "margin_high_s": _seconds(high),
+            }
+    return {
+        "verdict": verdict,
+        "margin": float(window.margin),
+        "minimum_formula": MIN_FORMULA,
+        "maximum_formula": MAX_FORMULA,
+        "edges": edges,
+        "costs": {
+            "dead_times_s": {edge: float(dead_times[edge]) for edge in EDGES},
+            "reverse_voltage_v": float(costs.reverse_voltage_v),
+            "reverse_conduction_w": float(costs.reverse_conduction_w),
+            "recovery_w": float(costs.recovery_w),
+            "total_w": float(costs.reverse_conduction_w + costs.recovery_w),
+            "dead_share": _seconds(costs.dead_share),
+            "duty_lost": _seconds(costs.duty_lost),
+            "voltage_error_v": _seconds(costs.voltage_error_v),
+        },
+        "caution": CAUTION,
+    }
+
+
+def _exact(value: Fraction) -> str:
+    """Seconds for display with every digit of a whole-picosecond value (no rounding up)."""
+    return format_quantity(value, "s", 12)
+
+
+def _line(term: Term) -> str:
+    if term.unit == "s":
+        value = _exact(abs(term.value))
+        sign = ("-" if term.value < 0 else "+") if term.counted else " "
+        shown = f"{sign} {value}"
+    elif term.unit:
+        shown = f"  {format_quantity(term.value, term.unit)}"
+    else:
+        shown = f"  x {float(term.value):g}"
+    note = f"  ({term.note})" if term.note else ""
+    return f"    {shown:>14}  {term.name}{note}"
+
+
+def window_text(
+    window: Window,
+    costs: Costs,
+    dead_times: dict[str, Fraction],
+    judged: dict[str, tuple[str, Fraction, Fraction | None]] | None,
+    verdict: str,
+) -> str:
+    out: list[str] = ["Power-stage dead-time window"]
+    out.append(f"  {MIN_FORMULA}")
+    out.append(f"  {MAX_FORMULA}")
+    names = {
+        "to_high": "to_high (gap before the high-side switch turns on)",
+        "to_low": "to_low (gap before the low-side switch turns on)",
+    }
+    for edge in EDGES:
+        w = window.edges[edge]
+        out.append("")
+        out.append(names[edge])
+        out.extend(_line(t) for t in w.breakdown)
+        for term in w.max_breakdown:
+            out.append(_line(term))
+        top = "no upper limit" if w.max_s is None else _exact(w.max_s)
+        out.append(f"  window: {_exact(w.min_s)} .. {top}  ({w.max_reason})")
+        if w.empty:
+            out.append("  EMPTY WINDOW: no dead time is both long enough and within the budget")
+    out.append("")
+    shown = ", ".join(f"{edge} {format_quantity(dead_times[edge], 's')}" for edge in EDGES)
+    out.append(f"Costs at {shown}:")
+    out.append(
+        f"  reverse conduction {format_quantity(costs.reverse_conduction_w, 'W')} "
+        f"at {format_quantity(costs.reverse_voltage_v, 'V')}, "
+        f"recovery {format_quantity(costs.recovery_w, 'W')}"
+    )
+    if costs.dead_share is not None:
+        out.append(f"  both switches off {float(costs.dead_share) * 100:.4g} % of each period")
+    if costs.duty_lost is not None:
+        out.append(f"  duty lost by the high-side output: {float(costs.duty_lost) * 100:.4g} %")
+    if costs.voltage_error_v is not None:
+        out.append(
+            "  inverter average output-voltage error (Vd x t_dead x fsw, sign by current): "
+            f"{format_quantity(costs.voltage_error_v, 'V')}"
+        )
+    if judged is not None:
+        for edge in EDGES:
+            v, low, high = judged[edge]
+            top = "" if high is None else f", {format_quantity(high, 's')} below the maximum"
+            out.append(
+                f"  {edge}: {v} ({format_quantity(low, 's')} above the minimum{top})"
+            )
+    out.append("")
+    out.append(f"verdict: {verdict}")
+    out.append(CAUTION)
+    return "\n".join(out) + "\n"
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+@click.command(name="window")
+@stage_options
+@click.option("--dead-time", help="A chosen dead time for both edges: costs and verdict.")
+@click.option("--to-high", help="A chosen to_high dead time (overrides --dead-time).")
+@click.option("--to-low", help="A chosen to_low dead time (overrides --dead-time).")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON.")
+def command(**values: Any) -> None:
+    """Derive the power stage's dead-time window per edge, its breakdown and its costs.
+
+    The minimum is the common-practice sum of delays and skews times a margin; the maximum is
+    what the loss budget allows. Exit 1 on an empty window (or a chosen dead time outside it),
+    2 on bad input. A design aid: verify on the bench at reduced voltage with current limiting.
+    """
+    spec = spec_from_options(values)
+    window = stage_window(spec)
+    chosen: dict[str, Fraction] = {}
+    for edge, option in (("to_high", "to_high"), ("to_low", "to_low")):
+        text = values.get(option) or values.get("dead_time")
+        if text is not None:
+            name = option if values.get(option) else "dead_time"
+            chosen[edge] = parse_quantity(
+                text, "s", "--" + name.replace("_", "-"), allow_zero=True
+            )
+    judged: dict[str, tuple[str, Fraction, Fraction | None]] | None = None
+    if chosen and len(chosen) != len(EDGES):
+        missing = next(edge for edge in EDGES if edge not in chosen)
+        option = "--" + missing.replace("_", "-")
+        raise GapforgeError("give both --to-high and --to-low, or --dead-time", option)
+    if chosen:
+        judged = {edge: judge(window.edges[edge], chosen[edge], chosen[edge]) for edge in EDGES}
+        dead_times = chosen
+    else:
+        dead_times = {edge: window.edges[edge].min_s for edge in EDGES}
+    costs = stage_costs(spec, dead_times)
+    if window.empty:
+        verdict = "empty-window"
+    elif judged is not None:
+        bad = [judged[edge][0] for edge in EDGES if judged[edge][0] != "ok"]
+        verdict = bad[0] if bad else "ok"
+    else:
+        verdict = "ok"
+    if values["as_json"]:
+        click.echo(json.dumps(window_json(window, costs, dead_times, judged, verdict), indent=2))
+    else:
+        click.echo(window_text(window, costs, dead_times, judged, verdict), nl=False)
+    if verdict != "ok":
+        raise SystemExit(1)
