@@ -1,0 +1,205 @@
+"""The pipeline in one function: a design -> what to request -> fits -> limits -> verdicts.
+
+    design --> reference range (analog)  --+
+           --> stage window (stage)      --+--> window --> request --> fit per output
+                                                                   --> PWM limits
+                                                                   --> verdict and margins
+Nothing here reads or writes files (except what load_design read); rendering is elsewhere.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import Any
+
+from gapforge.design import Design, Output
+from gapforge.fit import FitRequest, FitResult, fit
+from gapforge.layouts import EDGES
+from gapforge.limits import PwmLimits, pwm_limits
+
+VERDICTS = ("ok", "unreachable", "empty-window", "too-short", "too-long")
+
+Bounds = tuple[Fraction | None, Fraction | None]
+
+
+@dataclass(frozen=True)
+class EdgeJudgement:
+    verdict: str
+    margin_low_s: Fraction | None  # achieved_min - window min (>= 0 when ok)
+    margin_high_s: Fraction | None  # window max - achieved_max (>= 0 when ok), None if no max
+
+
+@dataclass(frozen=True)
+class OutputPlan:
+    output: Output
+    fit: FitResult
+    limits: PwmLimits | None
+    judgements: dict[str, EdgeJudgement]
+    verdict: str
+    reasons: tuple[str, ...]
+    warnings: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class BuildPlan:
+    design: Design
+    request: FitRequest | None
+    reference: dict[str, Any] | None  # edge -> analog.EdgeRange
+    stage_window: dict[str, Bounds] | None
+    window: dict[str, Bounds] | None  # stage window intersected with the reference range
+    stage: Any  # stage.Window or None (with breakdown and costs)
+    outputs: tuple[OutputPlan, ...]
+    verdict: str
+    reasons: tuple[str, ...]
+
+
+def judge(window: Bounds, achieved_min: Fraction, achieved_max: Fraction) -> EdgeJudgement:
+    """Is [achieved_min, achieved_max] inside the window, and by how much?"""
+    lo, hi = window
+    if lo is not None and hi is not None and lo > hi:
+        return EdgeJudgement("empty-window", None, None)
+    m_low = achieved_min - lo if lo is not None else None
+    m_high = hi - achieved_max if hi is not None else None
+    if m_low is not None and m_low < 0:
+        return EdgeJudgement("too-short", m_low, m_high)
+    if m_high is not None and m_high < 0:
+        return EdgeJudgement("too-long", m_low, m_high)
+    return EdgeJudgement("ok", m_low, m_high)
+
+
+def _windows(design: Design) -> tuple[Any, dict[str, Any] | None, dict[str, Bounds] | None,
+                                      dict[str, Bounds] | None]:
+    stage_result = None
+    reference = None
+    stage_window: dict[str, Bounds] | None = None
+    window: dict[str, Bounds] | None = None
+    if design.reference is not None:
+        from gapforge.analog import reference_dead_times
+
+        reference = reference_dead_times(design.reference)
+    if design.stage is not None:
+        from gapforge.stage import stage_window as derive
+
+        stage_result = derive(design.stage)
+        stage_window = {e: (stage_result.edges[e].min_s, stage_result.edges[e].max_s) for e in EDGES}
+    if stage_window is not None:
+        window = dict(stage_window)
+        if reference is not None:
+            for e in EDGES:
+                lo, hi = stage_window[e]
+                r = reference[e]
+                lo = r.min_s if lo is None else max(lo, r.min_s)
+                hi = r.max_s if hi is None else min(hi, r.max_s)
+                window[e] = (lo, hi)
+    return stage_result, reference, stage_window, window
+
+
+def plan_design(design: Design) -> BuildPlan:
+    stage_result, reference, stage_window, window = _windows(design)
+    reasons: list[str] = []
+    requested: dict[str, Fraction] = {}
+    for e in EDGES:
+        if design.source == "explicit":
+            assert design.dead_time is not None
+            requested[e] = design.dead_time[e]
+        elif design.source == "reference-typical":
+            assert reference is not None
+            requested[e] = reference[e].typ_s
+        elif design.source == "reference-minimum":
+            assert reference is not None
+            requested[e] = reference[e].min_s
+        else:
+            assert window is not None
+            lo = window[e][0]
+            requested[e] = lo if lo is not None else Fraction(0)
+    empty = [
+        e for e in EDGES
+        if window is not None and window[e][0] is not None and window[e][1] is not None
+        and window[e][0] > window[e][1]  # type: ignore[operator]
+    ]
+    if empty:
+        reasons.append(
+            "no dead time fits the window on " + ", ".join(empty)
+            + (" (the stage window and the reference's proven range do not overlap)"
+               if reference is not None and stage_window is not None else "")
+        )
+        return BuildPlan(design, None, reference, stage_window, window, stage_result, (),
+                         "empty-window", tuple(reasons))
+    request = FitRequest(
+        clock_hz=design.clock_hz,
+        clock_tol=design.clock_tol,
+        to_high_s=requested["to_high"],
+        to_low_s=requested["to_low"],
+        rounding=design.rounding,
+    )
+    outputs = tuple(_plan_output(design, o, request, window, reference) for o in design.outputs)
+    verdict = "ok"
+    for o in outputs:
+        if o.verdict != "ok":
+            verdict = o.verdict
+            reasons.extend(f"{o.output.prefix}: {r}" for r in o.reasons)
+            break
+    return BuildPlan(design, request, reference, stage_window, window, stage_result, outputs,
+                     verdict, tuple(reasons))
+
+
+def _plan_output(
+    design: Design,
+    output: Output,
+    request: FitRequest,
+    window: dict[str, Bounds] | None,
+    reference: dict[str, Any] | None,
+) -> OutputPlan:
+    result = fit(output.layout, request)
+    reasons: list[str] = []
+    warnings: list[str] = []
+    judgements: dict[str, EdgeJudgement] = {}
+    if not result.ok:
+        for e in EDGES:
+            edge = result.edges[e]
+            if edge.requested_s > edge.max_min_s:
+                reasons.append(
+                    f"{e} request {float(edge.requested_s) * 1e9:.6g} ns is above the layout's "
+                    f"maximum {float(edge.max_min_s) * 1e9:.6g} ns (worst case at the fast clock)"
+                )
+        return OutputPlan(output, result, None, {}, "unreachable", tuple(reasons), ())
+    limits = pwm_limits(result, design.pwm) if design.pwm is not None else None
+    verdict = "ok"
+    for e in EDGES:
+        edge = result.edges[e]
+        assert edge.achieved_min_s is not None and edge.achieved_max_s is not None
+        if window is not None:
+            j = judge(window[e], edge.achieved_min_s, edge.achieved_max_s)
+            judgements[e] = j
+            if j.verdict != "ok" and verdict == "ok":
+                verdict = j.verdict
+                reasons.append(_reason(e, j, window[e], edge.achieved_min_s, edge.achieved_max_s))
+        if edge.below_request_worst_case:
+            warnings.append(
+                f"{e}: nearest rounding gives {float(edge.achieved_min_s) * 1e9:.6g} ns at the fast "
+                f"clock, below the {float(edge.requested_s) * 1e9:.6g} ns requested"
+            )
+        if reference is not None:
+            r = reference[e]
+            if edge.achieved_min_s < r.min_s or edge.achieved_max_s > r.max_s:
+                warnings.append(
+                    f"{e}: digital range {float(edge.achieved_min_s) * 1e9:.6g}.."
+                    f"{float(edge.achieved_max_s) * 1e9:.6g} ns lies outside what the reference "
+                    f"network proved ({float(r.min_s) * 1e9:.6g}..{float(r.max_s) * 1e9:.6g} ns)"
+                )
+    if limits is not None and limits.verdict != "ok" and verdict == "ok":
+        verdict = limits.verdict
+        reasons.append(limits.reason)
+    return OutputPlan(output, result, limits, judgements, verdict, tuple(reasons), tuple(warnings))
+
+
+def _reason(edge: str, j: EdgeJudgement, window: Bounds, amin: Fraction, amax: Fraction) -> str:
+    lo, hi = window
+    if j.verdict == "too-short":
+        assert lo is not None
+        return (f"{edge}: worst-case {float(amin) * 1e9:.6g} ns is below the window's minimum "
+                f"{float(lo) * 1e9:.6g} ns")
+    assert hi is not None
+    return (f"{edge}: worst-case {float(amax) * 1e9:.6g} ns is above the window's maximum "
+            f"{float(hi) * 1e9:.6g} ns")

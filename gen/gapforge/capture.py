@@ -1,0 +1,299 @@
+"""Two gate signals in one exact time base, from a VCD file or a CSV file of our own.
+
+In memory a capture is a `GateCapture`: for the high-side and the low-side gate, the change times
+as int64 counts of one tick (`tick_s`, an exact Fraction of a second) and the levels after the
+polarity is applied (1 = gate on, 0 = off, 2 = unknown x, 3 = high impedance z).
+
+CSV format (gapforge capture CSV, version 1)
+-------------------------------------------
+Lines starting with '#' are comments, except directive lines `# key: value`. Blank lines are
+skipped. The first other line is the header; its columns choose one of two layouts:
+
+Edge events - header `time_<unit>,signal,level`::
+
+    time_ns,signal,level
+    0,gate_h,0
+    0,gate_l,1
+    100,gate_l,0
+    131.25,gate_h,1
+
+Sampled levels - header `time_<unit>,<name>,<name>...` (a time column), or only signal names with
+a directive `# sample_period: 10ns` before the header (row k is at k * period)::
+
+    # sample_period: 2ns
+    gate_h,gate_l
+    0,1
+    0,0
+    1,0
+
+<unit> is s, ms, us, ns, ps or fs; times are decimal numbers, read exactly. Levels are 0, 1, x or
+z. In the sampled layout an edge is placed at the first sample that shows the new level, so a
+measured gap is accurate to one sample period.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field
+from fractions import Fraction
+from pathlib import Path
+
+import numpy as np
+import numpy.typing as npt
+
+from gapforge.errors import GapforgeError
+
+_UNITS: dict[str, Fraction] = {
+    "s": Fraction(1),
+    "ms": Fraction(1, 10**3),
+    "us": Fraction(1, 10**6),
+    "ns": Fraction(1, 10**9),
+    "ps": Fraction(1, 10**12),
+    "fs": Fraction(1, 10**15),
+}
+_LEVELS = {"0": 0, "1": 1, "x": 2, "X": 2, "z": 3, "Z": 3}
+_DECIMAL = re.compile(r"^[+]?(\d+(\.\d*)?|\.\d+)$")
+
+
+@dataclass(frozen=True)
+class GateCapture:
+    """Both gate signals, polarity applied (1 = on). Times are int64 ticks of `tick_s` seconds."""
+
+    tick_s: Fraction
+    high_times: npt.NDArray[np.int64]
+    high_levels: npt.NDArray[np.uint8]
+    low_times: npt.NDArray[np.int64]
+    low_levels: npt.NDArray[np.uint8]
+    end: int
+    source: str
+    warnings: tuple[str, ...] = field(default=())
+
+
+def invert(levels: npt.NDArray[np.uint8]) -> npt.NDArray[np.uint8]:
+    """Active-low: 0 <-> 1; x and z stay."""
+    out = levels.copy()
+    out[levels == 0] = 1
+    out[levels == 1] = 0
+    return out
+
+
+def make_capture(
+    tick_s: Fraction,
+    high: tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8]],
+    low: tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8]],
+    *,
+    end: int | None = None,
+    source: str = "",
+    active_low_high: bool = False,
+    active_low_low: bool = False,
+    warnings: tuple[str, ...] = (),
+) -> GateCapture:
+    """Build a capture from raw levels (as recorded), applying the polarity options."""
+    ht, hv = np.asarray(high[0], dtype=np.int64), np.asarray(high[1], dtype=np.uint8)
+    lt, lv = np.asarray(low[0], dtype=np.int64), np.asarray(low[1], dtype=np.uint8)
+    if active_low_high:
+        hv = invert(hv)
+    if active_low_low:
+        lv = invert(lv)
+    last = max(int(ht[-1]) if ht.size else 0, int(lt[-1]) if lt.size else 0)
+    return GateCapture(tick_s, ht, hv, lt, lv, max(last, end or 0), source, warnings)
+
+
+def load_capture(
+    path: Path,
+    high: str,
+    low: str,
+    *,
+    active_low_high: bool = False,
+    active_low_low: bool = False,
+) -> GateCapture:
+    """Read a .vcd or .csv capture (by suffix; otherwise by the first bytes)."""
+    kind = _kind(path)
+    if kind == "vcd":
+        from gapforge.vcd import read_vcd
+
+        if high == low:
+            raise GapforgeError("--high and --low name the same signal", str(path))
+        data = read_vcd(path, [high, low])
+        h, lo = data.signals[high], data.signals[low]
+        return make_capture(
+            data.timescale_s,
+            (h.times, h.values),
+            (lo.times, lo.values),
+            end=data.end_time,
+            source=str(path),
+            active_low_high=active_low_high,
+            active_low_low=active_low_low,
+            warnings=data.warnings,
+        )
+    tick, signals, end = read_csv(path, [high, low])
+    return make_capture(
+        tick,
+        signals[high],
+        signals[low],
+        end=end,
+        source=str(path),
+        active_low_high=active_low_high,
+        active_low_low=active_low_low,
+    )
+
+
+def _kind(path: Path) -> str:
+    suffix = path.suffix.lower()
+    if suffix == ".vcd":
+        return "vcd"
+    if suffix == ".csv":
+        return "csv"
+    try:
+        with path.open("rb") as handle:
+            start = handle.read(256).lstrip()
+    except OSError as exc:
+        raise GapforgeError(f"cannot read: {exc.strerror}", str(path)) from None
+    return "vcd" if start.startswith(b"$") else "csv"
+
+
+Signals = dict[str, tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8]]]
+
+
+def read_csv(path: Path, names: list[str]) -> tuple[Fraction, Signals, int]:
+    """Read a gapforge capture CSV: (tick_s, {name: (times, levels)}, end tick)."""
+    where = str(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise GapforgeError(f"cannot read: {exc.strerror}", where) from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise GapforgeError("not a text file (binary data)", where) from None
+    if "\x00" in text:
+        raise GapforgeError("not a text file (binary data)", where)
+    directives: dict[str, str] = {}
+    header: list[str] | None = None
+    rows: list[tuple[int, list[str]]] = []
+    for number, line in enumerate(text.splitlines(), start=1):
+        stripped = line.strip()
+        if not stripped:
+            continue
+        if stripped.startswith("#"):
+            match = re.match(r"#\s*([a-z_]+)\s*:\s*(.+)$", stripped)
+            if match and header is None:
+                directives[match.group(1)] = match.group(2).strip()
+            continue
+        cells = [c.strip() for c in stripped.split(",")]
+        if header is None:
+            header = cells
+            header_line = number
+            continue
+        if len(cells) != len(header):
+            raise GapforgeError(
+                f"{len(cells)} columns, the header has {len(header)}", f"{where}:{number}"
+            )
+        rows.append((number, cells))
+    if header is None:
+        raise GapforgeError("empty capture (no header line)", where)
+    if not rows:
+        raise GapforgeError("no data rows (no edges)", where)
+    time_unit: Fraction | None = None
+    if header[0].startswith("time_"):
+        unit = header[0][5:]
+        if unit not in _UNITS:
+            raise GapforgeError(
+                f"time column {header[0]!r}: unit must be one of {', '.join(_UNITS)}",
+                f"{where}:{header_line}",
+            )
+        time_unit = _UNITS[unit]
+    if time_unit is not None and header[1:] == ["signal", "level"]:
+        return _edges(rows, names, time_unit, where)
+    return _samples(rows, header, header_line, names, time_unit, directives, where)
+
+
+def _exact_times(texts: list[tuple[int, str]], where: str) -> tuple[list[Fraction], int]:
+    values: list[Fraction] = []
+    denominator = 1
+    for number, cell in texts:
+        if not _DECIMAL.match(cell):
+            raise GapforgeError(f"time {cell!r} is not a non-negative decimal number", f"{where}:{number}")
+        value = Fraction(cell)
+        denominator = math.lcm(denominator, value.denominator)
+        values.append(value)
+    return values, denominator
+
+
+def _level(cell: str, where: str) -> int:
+    if cell not in _LEVELS:
+        raise GapforgeError(f"level {cell!r} must be 0, 1, x or z", where)
+    return _LEVELS[cell]
+
+
+def _check_names(names: list[str], present: list[str], where: str) -> None:
+    import difflib
+
+    for name in names:
+        if name not in present:
+            hint = difflib.get_close_matches(name, present, n=1)
+            more = f"; did you mean {hint[0]!r}?" if hint else f"; the file has {', '.join(present)}"
+            raise GapforgeError(f"no signal {name!r} in the capture{more}", where)
+
+
+def _edges(
+    rows: list[tuple[int, list[str]]], names: list[str], unit: Fraction, where: str
+) -> tuple[Fraction, Signals, int]:
+    times, denominator = _exact_times([(n, cells[0]) for n, cells in rows], where)
+    present = sorted({cells[1] for _, cells in rows})
+    _check_names(names, present, where)
+    out: Signals = {}
+    ticks = [int(t * denominator) for t in times]
+    for i in range(1, len(ticks)):
+        if ticks[i] < ticks[i - 1]:
+            raise GapforgeError("times must not go backwards", f"{where}:{rows[i][0]}")
+    for name in names:
+        sel = [(ticks[i], _level(cells[2], f"{where}:{n}")) for i, (n, cells) in enumerate(rows)
+               if cells[1] == name]
+        out[name] = (
+            np.array([t for t, _ in sel], dtype=np.int64),
+            np.array([v for _, v in sel], dtype=np.uint8),
+        )
+    return unit / denominator, out, ticks[-1]
+
+
+def _samples(
+    rows: list[tuple[int, list[str]]],
+    header: list[str],
+    header_line: int,
+    names: list[str],
+    unit: Fraction | None,
+    directives: dict[str, str],
+    where: str,
+) -> tuple[Fraction, Signals, int]:
+    from gapforge.quantities import parse_quantity
+
+    first_signal = 1 if unit is not None else 0
+    columns = header[first_signal:]
+    _check_names(names, columns, f"{where}:{header_line}")
+    if unit is not None:
+        times, denominator = _exact_times([(n, cells[0]) for n, cells in rows], where)
+        ticks = [int(t * denominator) for t in times]
+        tick = unit / denominator
+        for i in range(1, len(ticks)):
+            if ticks[i] <= ticks[i - 1]:
+                raise GapforgeError("sample times must increase", f"{where}:{rows[i][0]}")
+    else:
+        if "sample_period" not in directives:
+            raise GapforgeError(
+                "sampled levels need a time_<unit> column or a '# sample_period: 10ns' line "
+                "(edge events need the header time_<unit>,signal,level)",
+                f"{where}:{header_line}",
+            )
+        tick = parse_quantity(directives["sample_period"], "s", f"{where}: sample_period")
+        ticks = list(range(len(rows)))
+    out: Signals = {}
+    for name in names:
+        col = first_signal + columns.index(name)
+        levels = np.array([_level(cells[col], f"{where}:{n}") for n, cells in rows], dtype=np.uint8)
+        t = np.array(ticks, dtype=np.int64)
+        keep = np.ones(levels.size, dtype=bool)
+        keep[1:] = levels[1:] != levels[:-1]
+        out[name] = (t[keep], levels[keep])
+    return tick, out, ticks[-1]

@@ -1,0 +1,69 @@
+"""Options shared by several commands, defined once, and the click parameter types behind them."""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable
+from fractions import Fraction
+from typing import Any, TypeVar
+
+import click
+
+from gapforge.errors import GapforgeError
+from gapforge.quantities import parse_quantity, parse_tolerance
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+class Quantity(click.ParamType):
+    """Engineering notation, parsed exactly to a Fraction ('160MHz', '6.25ns', '4.7k')."""
+
+    name = "quantity"
+
+    def __init__(self, unit: str, allow_zero: bool = False) -> None:
+        self.unit = unit
+        self.allow_zero = allow_zero
+
+    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        if isinstance(value, Fraction):
+            return value
+        where = f"--{param.name.replace('_', '-')}" if param and param.name else "value"
+        try:
+            return parse_quantity(value, self.unit, where, allow_zero=self.allow_zero)
+        except GapforgeError as exc:
+            self.fail(exc.message, param, ctx)
+
+
+class Tolerance(click.ParamType):
+    name = "tolerance"
+
+    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        if isinstance(value, Fraction):
+            return value
+        try:
+            return parse_tolerance(value, "tolerance")
+        except GapforgeError as exc:
+            self.fail(exc.message, param, ctx)
+
+
+def json_option(f: F) -> F:
+    return click.option("--json", "as_json", is_flag=True, help="Print JSON instead of text.")(f)
+
+
+def clock_options(f: F) -> F:
+    f = click.option("--clock-tol", type=Tolerance(), default="0", show_default=True,
+                     help="Timer clock tolerance: '50ppm', '2%'.")(f)
+    f = click.option("--clock", type=Quantity("Hz"), required=True,
+                     help="Timer clock frequency, e.g. 160MHz.")(f)
+    return f
+
+
+def diagram_options(f: F) -> F:
+    f = click.option("--ascii", "ascii_only", is_flag=True,
+                     help="Plain ASCII in the timing diagram (for logs).")(f)
+    f = click.option("--no-diagram", is_flag=True, help="Leave out the text timing diagram.")(f)
+    return f
+
+
+def emit_json(doc: Any) -> None:
+    click.echo(json.dumps(doc, indent=2, sort_keys=False))

@@ -1,0 +1,42 @@
+"""`gapforge targets`: list the layouts, or show one."""
+
+from __future__ import annotations
+
+import click
+
+from gapforge.cli.options import Quantity, emit_json, json_option
+from gapforge.layouts import builtin_names, load_layout
+from gapforge.views import layout_json, layout_text, table
+
+
+@click.group(invoke_without_command=True)
+@json_option
+@click.pass_context
+def command(ctx: click.Context, as_json: bool) -> None:
+    """List the built-in timer layouts (generic designs of our own), or show one."""
+    if ctx.invoked_subcommand is not None:
+        return
+    layouts = [load_layout(name) for name in builtin_names()]
+    if as_json:
+        emit_json([{"name": lay.name, "summary": lay.summary, "source": lay.source}
+                   for lay in layouts])
+        return
+    click.echo(table(["name", "summary"], [[lay.name, lay.summary] for lay in layouts]))
+    click.echo("\nShow one with: gapforge targets show NAME [--clock F]; "
+               "pass your own layout file anywhere a name is accepted.")
+
+
+@command.command("show")
+@click.argument("target")
+@click.option("--clock", type=Quantity("Hz"), default=None, help="Show steps and ranges at this clock.")
+@json_option
+def show(target: str, clock: object, as_json: bool) -> None:
+    """Show one layout (a built-in NAME or a layout FILE)."""
+    from fractions import Fraction
+
+    layout = load_layout(target)
+    clk = clock if isinstance(clock, Fraction) else None
+    if as_json:
+        emit_json(layout_json(layout, clk))
+    else:
+        click.echo(layout_text(layout, clk))

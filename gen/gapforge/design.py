@@ -1,0 +1,216 @@
+"""Design files (TOML, a schema of our own): what the firmware needs, read into frozen values.
+
+    format = 1
+    [timer]      clock, tolerance, clock_macro
+    [pwm]        frequency, counting = "edge" | "center"
+    [dead_time]  value (both edges) or to_high / to_low, rounding, source
+    [reference]  the analog RC-diode-Schmitt network (read by gapforge.analog)
+    [stage]      the power stage's timing and costs (read by gapforge.stage)
+    [[output]]   target (built-in name or layout file), prefix, file, struct
+
+`source` says where the dead time to reproduce comes from: "explicit" (the values given),
+"reference-typical" or "reference-minimum" (the analog network's typical value or worst-case
+minimum), or "window" (the power stage's minimum). Without a value, the default is "window" when
+there is a [stage] section, else "reference-minimum" when there is a [reference] section.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import re
+from dataclasses import dataclass
+from fractions import Fraction
+from pathlib import Path
+from typing import Any
+
+from gapforge.errors import GapforgeError
+from gapforge.fit import ROUNDINGS
+from gapforge.layouts import EDGES, Layout, load_layout
+from gapforge.limits import COUNTINGS, PwmSpec
+from gapforge.schema import Reader, load_toml
+
+FORMAT_VERSION = 1
+SOURCES = ("explicit", "reference-typical", "reference-minimum", "window")
+
+_TOP = frozenset(
+    {"format", "name", "description", "timer", "pwm", "dead_time", "reference", "stage", "output"}
+)
+_TIMER = frozenset({"clock", "tolerance", "clock_macro"})
+_PWM = frozenset({"frequency", "counting"})
+_DEAD = frozenset({"value", "to_high", "to_low", "rounding", "source"})
+_OUTPUT = frozenset({"target", "prefix", "file", "struct"})
+
+_MACRO = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+
+
+@dataclass(frozen=True)
+class Output:
+    target: str
+    layout: Layout
+    prefix: str
+    file: str
+    struct: bool
+
+
+@dataclass(frozen=True)
+class Design:
+    path: Path
+    label: str  # the file name as recorded in provenance (no directories)
+    sha256: str
+    name: str
+    description: str
+    clock_hz: Fraction
+    clock_tol: Fraction
+    clock_macro: str
+    pwm: PwmSpec | None
+    dead_time: dict[str, Fraction] | None  # explicit values, per edge
+    rounding: str
+    source: str
+    reference: Any  # gapforge.analog.ReferenceNetwork or None
+    stage: Any  # gapforge.stage.StageSpec or None
+    outputs: tuple[Output, ...]
+
+
+def load_design(path: Path) -> Design:
+    data, raw = load_toml(path)
+    reader = Reader(str(path))
+    top = reader.table(data, "")
+    top.check_keys(_TOP, {"format", "timer", "output"})
+    version = top.integer("format", FORMAT_VERSION)
+    if version != FORMAT_VERSION:
+        reader.problem("format", f"design format {version} is not supported (expected {FORMAT_VERSION})")
+
+    timer = top.sub("timer", required=True) or reader.table({}, "timer")
+    timer.check_keys(_TIMER, {"clock"})
+    clock = timer.quantity("clock", "Hz", Fraction(1))
+    tol = timer.tolerance("tolerance", Fraction(0))
+    clock_macro = timer.string("clock_macro", "TIMER_CLOCK_HZ")
+    if not _MACRO.match(clock_macro):
+        reader.problem("timer.clock_macro", f"{clock_macro!r} is not a C identifier")
+
+    pwm = None
+    pwm_t = top.sub("pwm")
+    if pwm_t is not None:
+        pwm_t.check_keys(_PWM, {"frequency"})
+        freq = pwm_t.quantity("frequency", "Hz", Fraction(1))
+        counting = pwm_t.string("counting", "edge", COUNTINGS)
+        assert freq is not None
+        pwm = PwmSpec(freq, counting)
+
+    reference = None
+    ref_t = top.sub("reference")
+    if ref_t is not None:
+        from gapforge import analog
+
+        reference = analog.read_reference(ref_t)
+    stage = None
+    stage_t = top.sub("stage")
+    if stage_t is not None:
+        from gapforge import stage as stage_mod
+
+        stage = stage_mod.read_stage(stage_t)
+
+    dead_t = top.sub("dead_time") or reader.table({}, "dead_time")
+    dead_t.check_keys(_DEAD)
+    rounding = dead_t.string("rounding", "safe", ROUNDINGS)
+    explicit: dict[str, Fraction] | None = None
+    if dead_t.has("value") or dead_t.has("to_high") or dead_t.has("to_low"):
+        both = dead_t.quantity("value", "s", required=False)
+        explicit = {}
+        for edge in EDGES:
+            v = dead_t.quantity(edge, "s", both, required=both is None)
+            explicit[edge] = v if v is not None else Fraction(0)
+        if both is not None and dead_t.has("to_high") and dead_t.has("to_low"):
+            reader.problem("dead_time.value", "give value, or to_high and to_low, not all three")
+    default_source = (
+        "explicit" if explicit else "window" if stage is not None
+        else "reference-minimum" if reference is not None else "explicit"
+    )
+    source = dead_t.string("source", default_source, SOURCES)
+    if source == "explicit" and explicit is None:
+        reader.problem(
+            "dead_time",
+            "give value (or to_high and to_low), or a [reference] or [stage] section to derive it",
+        )
+    if source.startswith("reference") and ref_t is None:
+        reader.problem("dead_time.source", f"{source!r} needs a [reference] section")
+    if source == "window" and stage_t is None:
+        reader.problem("dead_time.source", "'window' needs a [stage] section")
+    if source != "explicit" and explicit is not None:
+        reader.problem("dead_time.source", f"{source!r} derives the dead time: drop value/to_high/to_low")
+
+    outputs: list[Output] = []
+    prefixes: set[str] = set()
+    files: set[str] = set()
+    for t in top.subs("output"):
+        t.check_keys(_OUTPUT, {"target", "prefix", "file"})
+        target = t.string("target", "")
+        prefix = t.string("prefix", "")
+        file = t.string("file", "")
+        struct = t.boolean("struct", False)
+        if prefix and not _MACRO.match(prefix):
+            reader.problem(t.key_path("prefix"), f"{prefix!r} is not a C identifier prefix")
+        if prefix in prefixes:
+            reader.problem(t.key_path("prefix"), f"prefix {prefix!r} is used twice")
+        prefixes.add(prefix)
+        if file and (Path(file).is_absolute() or ".." in Path(file).parts or not file.endswith(".h")):
+            reader.problem(t.key_path("file"), f"{file!r} must be a relative path ending in .h")
+        if file in files:
+            reader.problem(t.key_path("file"), f"file {file!r} is written twice")
+        files.add(file)
+        if not target:
+            continue
+        is_path = target.endswith(".toml") or "/" in target
+        try:
+            layout = load_layout(str(path.parent / target) if is_path else target)
+        except GapforgeError as exc:
+            reader.problem(t.key_path("target"), exc.line())
+            continue
+        outputs.append(Output(target, layout, prefix, file, struct))
+    if not top.has("output"):
+        pass  # reported as a missing required key
+    elif not outputs and not reader.problems:
+        reader.problem("output", "list at least one [[output]]")
+    reader.finish()
+    assert clock is not None
+    return Design(
+        path=path,
+        label=path.name,
+        sha256=hashlib.sha256(raw).hexdigest(),
+        name=top.string("name", path.stem),
+        description=top.string("description", ""),
+        clock_hz=clock,
+        clock_tol=tol,
+        clock_macro=clock_macro,
+        pwm=pwm,
+        dead_time=explicit,
+        rounding=rounding,
+        source=source,
+        reference=reference,
+        stage=stage,
+        outputs=tuple(outputs),
+    )
+
+
+def measurement_expectations(
+    path: Path,
+) -> dict[str, tuple[Fraction | None, Fraction | None, Fraction | None, Fraction | None]]:
+    """Per edge: (window_min_s, window_max_s, predicted_min_s, predicted_max_s) for `measure`.
+
+    The window comes from the [stage] section (None where absent); the predicted range is the
+    first output's fitted achieved min/max over the clock tolerance.
+    """
+    from gapforge.build import plan_design
+
+    plan = plan_design(load_design(path))
+    out: dict[str, tuple[Fraction | None, Fraction | None, Fraction | None, Fraction | None]] = {}
+    first = plan.outputs[0] if plan.outputs else None
+    for edge in EDGES:
+        wmin = wmax = pmin = pmax = None
+        if plan.window is not None:
+            wmin, wmax = plan.window[edge]
+        if first is not None and first.fit.ok:
+            e = first.fit.edges[edge]
+            pmin, pmax = e.achieved_min_s, e.achieved_max_s
+        out[edge] = (wmin, wmax, pmin, pmax)
+    return out

@@ -1,0 +1,361 @@
+"""Text tables and JSON documents for terminal output. Returns strings and plain data; never prints.
+
+Seconds in JSON are numbers (floats for display; the exact values stay inside the program).
+"""
+
+from __future__ import annotations
+
+from fractions import Fraction
+from typing import Any
+
+from gapforge.build import BuildPlan, OutputPlan
+from gapforge.fit import FitResult, step_seconds
+from gapforge.layouts import EDGES, Layout, describe_codes
+from gapforge.limits import PwmLimits
+from gapforge.quantities import format_quantity, format_tolerance
+
+CAUTION = (
+    "Caution: a design aid, not a guarantee. Verify every dead time on the bench at reduced voltage "
+    "with current limiting before full power; local codes and licensed practice prevail."
+)
+
+
+def _f(x: Fraction | None) -> float | None:
+    return None if x is None else float(x)
+
+
+def _t(x: Fraction | None) -> str:
+    return "-" if x is None else format_quantity(x, "s", 6)
+
+
+def table(headers: list[str], rows: list[list[str]]) -> str:
+    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
+              for i, h in enumerate(headers)]
+    lines = ["  ".join(h.ljust(w) for h, w in zip(headers, widths, strict=True)).rstrip()]
+    lines.append("  ".join("-" * w for w in widths))
+    lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip() for r in rows]
+    return "\n".join(lines)
+
+
+# ---------------------------------------------------------------------------------------------
+# layouts
+
+
+def layout_json(layout: Layout, clock_hz: Fraction | None = None) -> dict[str, Any]:
+    doc: dict[str, Any] = {
+        "name": layout.name,
+        "summary": layout.summary,
+        "description": layout.description,
+        "source": layout.source,
+        "register_bits": layout.register_bits,
+        "sub_steps": layout.sub_steps,
+        "dividers": list(layout.dividers),
+        "divider_field": layout.divider_field,
+        "shared": layout.shared,
+        "fields": [
+            {
+                "name": f.name,
+                "role": f.role,
+                "offset": f.offset,
+                "width": f.width,
+                "encoding": f.encoding if f.role != "divider" else None,
+                "codes": describe_codes(f),
+            }
+            for f in layout.fields
+        ],
+    }
+    if clock_hz is not None:
+        doc["clock_hz"] = float(clock_hz)
+        doc["ranges"] = [
+            {
+                "divider_code": d,
+                "divider": div,
+                "step_s": float(step_seconds(layout, clock_hz, div)),
+                "max_s": float(layout.edge_field("to_high").table[0][-1]
+                               * step_seconds(layout, clock_hz, div)),
+            }
+            for d, div in enumerate(layout.dividers)
+        ]
+    return doc
+
+
+def layout_text(layout: Layout, clock_hz: Fraction | None = None) -> str:
+    lines = [f"{layout.name}: {layout.summary}", f"  file: {layout.source}"]
+    lines += [f"  {line}" for line in layout.description.splitlines()]
+    lines.append(
+        f"  register: {layout.register_bits} bits; dead-time step = clock period x divider / "
+        f"{layout.sub_steps}; dividers {', '.join(map(str, layout.dividers))}"
+    )
+    rows = [[f.name, f.role, f"{f.offset}..{f.offset + f.width - 1}", describe_codes(f)]
+            for f in sorted(layout.fields, key=lambda f: f.offset)]
+    lines.append("")
+    lines.append(table(["field", "role", "bits", "codes"], rows))
+    if clock_hz is not None:
+        lines.append("")
+        lines.append(f"At {format_quantity(clock_hz, 'Hz', 9)}:")
+        rows = []
+        for d, div in enumerate(layout.dividers):
+            step = step_seconds(layout, clock_hz, div)
+            lo = layout.edge_field("to_high").table[0][0] * step
+            hi = layout.edge_field("to_high").table[0][-1] * step
+            rows.append([str(d), str(div), _t(step), _t(lo), _t(hi)])
+        lines.append(table(["code", "divider", "step", "shortest", "longest"], rows))
+    return "\n".join(lines)
+
+
+# ---------------------------------------------------------------------------------------------
+# fits
+
+
+def fit_json(result: FitResult, limits: PwmLimits | None) -> dict[str, Any]:
+    req = result.request
+    doc: dict[str, Any] = {
+        "target": result.layout.name,
+        "target_source": result.layout.source,
+        "clock_hz": float(req.clock_hz),
+        "clock_tol": float(req.clock_tol),
+        "rounding": req.rounding,
+        "verdict": result.verdict,
+        "divider_code": result.divider_code,
+        "divider": result.divider,
+        "sub_steps": result.layout.sub_steps,
+        "fields": dict(result.fields),
+        "register": result.register,
+        "register_bits": result.layout.register_bits,
+        "edges": {},
+    }
+    for edge in EDGES:
+        e = result.edges[edge]
+        rel = e.relative_error
+        doc["edges"][edge] = {
+            "field": e.field,
+            "code": e.code,
+            "steps": e.steps,
+            "requested_s": float(e.requested_s),
+            "achieved_s": _f(e.achieved_s),
+            "achieved_min_s": _f(e.achieved_min_s),
+            "achieved_max_s": _f(e.achieved_max_s),
+            "error_s": _f(e.error_s),
+            "error_rel": _f(rel),
+            "step_s": _f(e.step_s),
+            "lower_s": _f(e.lower_s),
+            "higher_s": _f(e.higher_s),
+            "max_s": float(e.max_s),
+            "max_worst_case_s": float(e.max_min_s),
+        }
+    doc["pwm"] = pwm_json(limits) if limits is not None else None
+    return doc
+
+
+def pwm_json(lim: PwmLimits) -> dict[str, Any]:
+    return {
+        "verdict": lim.verdict,
+        "reason": lim.reason or None,
+        "counting": lim.spec.counting,
+        "requested_hz": float(lim.spec.frequency_hz),
+        "real_hz": float(lim.real_frequency_hz),
+        "exact": lim.exact,
+        "compare_counts": lim.counts,
+        "period_counts": lim.period_counts,
+        "duty_bits": lim.duty_bits,
+        "duty_min": float(lim.duty_min),
+        "duty_max": float(lim.duty_max),
+        "duty_min_counts": lim.duty_min_counts,
+        "duty_max_counts": lim.duty_max_counts,
+        "both_off_share": float(lim.both_off_share),
+        "edges": {
+            e: {
+                "dead_counts": float(x.dead_counts),
+                "share": float(x.share),
+                "lost_duty": float(x.lost_duty),
+                "tol_minus_s": float(x.tol_minus_s),
+                "tol_plus_s": float(x.tol_plus_s),
+            }
+            for e, x in lim.edges.items()
+        },
+    }
+
+
+def fit_text(result: FitResult, limits: PwmLimits | None) -> str:
+    req = result.request
+    layout = result.layout
+    lines = [
+        f"target {layout.name}: {layout.summary}",
+        f"timer clock {format_quantity(req.clock_hz, 'Hz', 9)} +/- "
+        f"{format_tolerance(req.clock_tol)}, rounding {req.rounding}",
+    ]
+    if result.ok:
+        assert result.step_s is not None
+        lines.append(
+            f"divider code {result.divider_code} (/{result.divider}), step {_t(result.step_s)}"
+        )
+    rows = []
+    for edge in EDGES:
+        e = result.edges[edge]
+        rel = e.relative_error
+        rows.append([
+            edge,
+            _t(e.requested_s),
+            "-" if e.code is None else str(e.code),
+            _t(e.achieved_s),
+            f"{_t(e.achieved_min_s)} .. {_t(e.achieved_max_s)}",
+            "-" if e.error_s is None else
+            f"{format_quantity(e.error_s, 's', 4)} ({float(rel) * 100:+.3g} %)" if rel is not None
+            else _t(e.error_s),
+            _t(e.step_s),
+            f"{_t(e.lower_s)} / {_t(e.higher_s)}",
+            _t(e.max_s),
+        ])
+    lines.append("")
+    lines.append(table(["edge", "requested", "code", "achieved", "worst case (clock tol)",
+                        "error", "step", "lower / higher", "max"], rows))
+    lines.append("")
+    if result.ok:
+        assert result.register is not None
+        fields = ", ".join(f"{k}={v}" for k, v in result.fields.items())
+        digits = result.layout.register_bits // 4
+        lines.append(f"fields: {fields}; register 0x{result.register:0{digits}x}")
+        for edge in EDGES:
+            e = result.edges[edge]
+            if e.below_request_worst_case:
+                lines.append(f"warning: {edge} is below the request at the fast clock "
+                             "(nearest rounding); use --rounding safe for a guaranteed minimum")
+    else:
+        for edge in EDGES:
+            e = result.edges[edge]
+            if e.requested_s > e.max_min_s:
+                lines.append(
+                    f"unreachable: {edge} request {_t(e.requested_s)} is above the maximum "
+                    f"{_t(e.max_s)} ({_t(e.max_min_s)} at the fast clock)"
+                )
+    if limits is not None:
+        lines.append("")
+        lines.append(pwm_text(limits))
+    lines.append(f"verdict: {result.verdict if limits is None or not result.ok else _worst(result.verdict, limits.verdict)}")
+    return "\n".join(lines)
+
+
+def _worst(a: str, b: str) -> str:
+    return a if a != "ok" else b
+
+
+def pwm_text(lim: PwmLimits) -> str:
+    exact = "" if lim.exact else (
+        f" (not a whole number of counts: real {format_quantity(lim.real_frequency_hz, 'Hz', 7)})"
+    )
+    lines = [
+        f"PWM {format_quantity(lim.spec.frequency_hz, 'Hz', 7)}, {lim.spec.counting}-aligned: "
+        f"{lim.period_counts} clocks per period, compare 0..{lim.counts} "
+        f"({lim.duty_bits:.2f} bits){exact}",
+        f"  usable duty (a pulse on both outputs): {float(lim.duty_min) * 100:.4g} % .. "
+        f"{float(lim.duty_max) * 100:.4g} % (compare {lim.duty_min_counts}..{lim.duty_max_counts})",
+    ]
+    for edge, x in lim.edges.items():
+        lines.append(
+            f"  {edge}: {float(x.dead_counts):.6g} clocks = {float(x.share) * 100:.4g} % of the period"
+            f" (duty lost per period); clock tolerance moves it -{_t(x.tol_minus_s)} / "
+            f"+{_t(x.tol_plus_s)}"
+        )
+    if lim.verdict != "ok":
+        lines.append(f"  {lim.verdict}: {lim.reason}")
+    return "\n".join(lines)
+
+
+# ---------------------------------------------------------------------------------------------
+# builds
+
+
+def plan_json(plan: BuildPlan) -> dict[str, Any]:
+    d = plan.design
+    doc: dict[str, Any] = {
+        "design": d.label,
+        "name": d.name,
+        "clock_hz": float(d.clock_hz),
+        "clock_tol": float(d.clock_tol),
+        "source": d.source,
+        "verdict": plan.verdict,
+        "reasons": list(plan.reasons),
+        "requested": None if plan.request is None else {
+            e: float(plan.request.requested(e)) for e in EDGES
+        },
+        "window": None if plan.window is None else {
+            e: {"min_s": _f(lo), "max_s": _f(hi)} for e, (lo, hi) in plan.window.items()
+        },
+        "reference": None if plan.reference is None else {
+            e: {"min_s": float(r.min_s), "typ_s": float(r.typ_s), "max_s": float(r.max_s)}
+            for e, r in plan.reference.items()
+        },
+        "outputs": [],
+    }
+    for op in plan.outputs:
+        entry = fit_json(op.fit, op.limits)
+        entry.update({
+            "prefix": op.output.prefix,
+            "file": op.output.file,
+            "output_verdict": op.verdict,
+            "reasons": list(op.reasons),
+            "warnings": list(op.warnings),
+            "margins": {
+                e: {"low_s": _f(j.margin_low_s), "high_s": _f(j.margin_high_s),
+                    "verdict": j.verdict}
+                for e, j in op.judgements.items()
+            },
+        })
+        doc["outputs"].append(entry)
+    return doc
+
+
+def plan_text(plan: BuildPlan) -> str:
+    d = plan.design
+    lines = [
+        f"design {d.label}: timer clock {format_quantity(d.clock_hz, 'Hz', 9)} +/- "
+        f"{format_tolerance(d.clock_tol)}, dead time source: {d.source}, rounding {d.rounding}",
+    ]
+    if plan.reference is not None:
+        for e in EDGES:
+            r = plan.reference[e]
+            lines.append(f"  analog reference {e}: {_t(r.min_s)} .. {_t(r.max_s)} "
+                         f"(typical {_t(r.typ_s)})")
+    if plan.window is not None:
+        for e in EDGES:
+            lo, hi = plan.window[e]
+            lines.append(f"  window {e}: {_t(lo)} .. {_t(hi) if hi is not None else 'no maximum'}")
+    if plan.request is not None:
+        lines.append("  requested: " + ", ".join(
+            f"{e} {_t(plan.request.requested(e))}" for e in EDGES))
+    rows = []
+    for op in plan.outputs:
+        rows.extend(_output_rows(op))
+    if rows:
+        lines.append("")
+        lines.append(table(["output", "target", "edge", "code", "achieved", "worst case",
+                            "margin low / high", "verdict"], rows))
+    for op in plan.outputs:
+        for w in op.warnings:
+            lines.append(f"warning: {op.output.prefix}: {w}")
+        if op.limits is not None:
+            lines.append("")
+            lines.append(f"{op.output.prefix}: " + pwm_text(op.limits))
+    for r in plan.reasons:
+        lines.append(f"{plan.verdict}: {r}")
+    lines.append(f"verdict: {plan.verdict}")
+    return "\n".join(lines)
+
+
+def _output_rows(op: OutputPlan) -> list[list[str]]:
+    rows = []
+    for e in EDGES:
+        x = op.fit.edges[e]
+        j = op.judgements.get(e)
+        margin = "-" if j is None else f"{_t(j.margin_low_s)} / {_t(j.margin_high_s)}"
+        rows.append([
+            op.output.prefix if e == "to_high" else "",
+            op.output.layout.name if e == "to_high" else "",
+            e,
+            "-" if x.code is None else str(x.code),
+            _t(x.achieved_s),
+            f"{_t(x.achieved_min_s)} .. {_t(x.achieved_max_s)}",
+            margin,
+            op.verdict if e == "to_high" else "",
+        ])
+    return rows
