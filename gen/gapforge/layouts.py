@@ -84,6 +84,11 @@ class Field:
     @cached_property
     def table(self) -> tuple[tuple[int, ...], tuple[int, ...]]:
         """(steps, codes) of every allowed code, in increasing steps (strictly, once validated)."""
+        if self.encoding == "linear":  # already in increasing order: skip decode and sort
+            span = range(self.min_code, self.max_code + 1)
+            codes = tuple(c for c in span if c not in self.reserved) if self.reserved else tuple(span)
+            add = self.add
+            return tuple(c + add for c in codes), codes
         pairs = sorted(
             (self.decode(code), code)
             for code in range(self.min_code, self.max_code + 1)
