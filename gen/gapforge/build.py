@@ -68,8 +68,9 @@ def judge(window: Bounds, achieved_min: Fraction, achieved_max: Fraction) -> Edg
     return EdgeJudgement("ok", m_low, m_high)
 
 
-def _windows(design: Design) -> tuple[Any, dict[str, Any] | None, dict[str, Bounds] | None,
-                                      dict[str, Bounds] | None]:
+def _windows(
+    design: Design,
+) -> tuple[Any, dict[str, Any] | None, dict[str, Bounds] | None, dict[str, Bounds] | None]:
     stage_result = None
     reference = None
     stage_window: dict[str, Bounds] | None = None
@@ -82,7 +83,9 @@ def _windows(design: Design) -> tuple[Any, dict[str, Any] | None, dict[str, Boun
         from gapforge.stage import stage_window as derive
 
         stage_result = derive(design.stage)
-        stage_window = {e: (stage_result.edges[e].min_s, stage_result.edges[e].max_s) for e in EDGES}
+        stage_window = {
+            e: (stage_result.edges[e].min_s, stage_result.edges[e].max_s) for e in EDGES
+        }
     if stage_window is not None:
         window = dict(stage_window)
         if reference is not None:
@@ -114,18 +117,34 @@ def plan_design(design: Design) -> BuildPlan:
             lo = window[e][0]
             requested[e] = lo if lo is not None else Fraction(0)
     empty = [
-        e for e in EDGES
-        if window is not None and window[e][0] is not None and window[e][1] is not None
+        e
+        for e in EDGES
+        if window is not None
+        and window[e][0] is not None
+        and window[e][1] is not None
         and window[e][0] > window[e][1]  # type: ignore[operator]
     ]
     if empty:
         reasons.append(
-            "no dead time fits the window on " + ", ".join(empty)
-            + (" (the stage window and the reference's proven range do not overlap)"
-               if reference is not None and stage_window is not None else "")
+            "no dead time fits the window on "
+            + ", ".join(empty)
+            + (
+                " (the stage window and the reference's proven range do not overlap)"
+                if reference is not None and stage_window is not None
+                else ""
+            )
         )
-        return BuildPlan(design, None, reference, stage_window, window, stage_result, (),
-                         "empty-window", tuple(reasons))
+        return BuildPlan(
+            design,
+            None,
+            reference,
+            stage_window,
+            window,
+            stage_result,
+            (),
+            "empty-window",
+            tuple(reasons),
+        )
     request = FitRequest(
         clock_hz=design.clock_hz,
         clock_tol=design.clock_tol,
@@ -140,8 +159,17 @@ def plan_design(design: Design) -> BuildPlan:
             verdict = o.verdict
             reasons.extend(f"{o.output.prefix}: {r}" for r in o.reasons)
             break
-    return BuildPlan(design, request, reference, stage_window, window, stage_result, outputs,
-                     verdict, tuple(reasons))
+    return BuildPlan(
+        design,
+        request,
+        reference,
+        stage_window,
+        window,
+        stage_result,
+        outputs,
+        verdict,
+        tuple(reasons),
+    )
 
 
 def _plan_output(
@@ -198,8 +226,12 @@ def _reason(edge: str, j: EdgeJudgement, window: Bounds, amin: Fraction, amax: F
     lo, hi = window
     if j.verdict == "too-short":
         assert lo is not None
-        return (f"{edge}: worst-case {float(amin) * 1e9:.6g} ns is below the window's minimum "
-                f"{float(lo) * 1e9:.6g} ns")
+        return (
+            f"{edge}: worst-case {float(amin) * 1e9:.6g} ns is below the window's minimum "
+            f"{float(lo) * 1e9:.6g} ns"
+        )
     assert hi is not None
-    return (f"{edge}: worst-case {float(amax) * 1e9:.6g} ns is above the window's maximum "
-            f"{float(hi) * 1e9:.6g} ns")
+    return (
+        f"{edge}: worst-case {float(amax) * 1e9:.6g} ns is above the window's maximum "
+        f"{float(hi) * 1e9:.6g} ns"
+    )

@@ -78,7 +78,9 @@ def load_design(path: Path) -> Design:
     top.check_keys(_TOP, {"format", "timer", "output"})
     version = top.integer("format", FORMAT_VERSION)
     if version != FORMAT_VERSION:
-        reader.problem("format", f"design format {version} is not supported (expected {FORMAT_VERSION})")
+        reader.problem(
+            "format", f"design format {version} is not supported (expected {FORMAT_VERSION})"
+        )
 
     timer = top.sub("timer", required=True) or reader.table({}, "timer")
     timer.check_keys(_TIMER, {"clock"})
@@ -123,8 +125,13 @@ def load_design(path: Path) -> Design:
         if both is not None and dead_t.has("to_high") and dead_t.has("to_low"):
             reader.problem("dead_time.value", "give value, or to_high and to_low, not all three")
     default_source = (
-        "explicit" if explicit else "window" if stage is not None
-        else "reference-minimum" if reference is not None else "explicit"
+        "explicit"
+        if explicit
+        else "window"
+        if stage is not None
+        else "reference-minimum"
+        if reference is not None
+        else "explicit"
     )
     source = dead_t.string("source", default_source, SOURCES)
     if source == "explicit" and explicit is None:
@@ -137,7 +144,9 @@ def load_design(path: Path) -> Design:
     if source == "window" and stage_t is None:
         reader.problem("dead_time.source", "'window' needs a [stage] section")
     if source != "explicit" and explicit is not None:
-        reader.problem("dead_time.source", f"{source!r} derives the dead time: drop value/to_high/to_low")
+        reader.problem(
+            "dead_time.source", f"{source!r} derives the dead time: drop value/to_high/to_low"
+        )
 
     outputs: list[Output] = []
     prefixes: set[str] = set()
@@ -153,7 +162,9 @@ def load_design(path: Path) -> Design:
         if prefix in prefixes:
             reader.problem(t.key_path("prefix"), f"prefix {prefix!r} is used twice")
         prefixes.add(prefix)
-        if file and (Path(file).is_absolute() or ".." in Path(file).parts or not file.endswith(".h")):
+        if file and (
+            Path(file).is_absolute() or ".." in Path(file).parts or not file.endswith(".h")
+        ):
             reader.problem(t.key_path("file"), f"{file!r} must be a relative path ending in .h")
         if file in files:
             reader.problem(t.key_path("file"), f"file {file!r} is written twice")

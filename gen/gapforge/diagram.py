@@ -51,16 +51,18 @@ def pair_diagram(
     label = [" "] * (len(high) + 40)
     t1 = f"to_high {format_quantity(to_high_s, 's', 4)}"
     t2 = f"to_low {format_quantity(to_low_s, 's', 4)}"
-    label[head:head + len(t1)] = list(t1)
+    label[head : head + len(t1)] = list(t1)
     start2 = max(head + g1 + high_on, head + len(t1) + 2)
-    label[start2:start2 + len(t2)] = list(t2)
+    label[start2 : start2 + len(t2)] = list(t2)
     note = "" if to_scale else "  (gaps widened: not to scale)"
-    return "\n".join([
-        f"high  {high}",
-        f"low   {low}",
-        f"      {''.join(marks).rstrip()}",
-        f"      {''.join(label).rstrip()}{note}",
-    ])
+    return "\n".join(
+        [
+            f"high  {high}",
+            f"low   {low}",
+            f"      {''.join(marks).rstrip()}",
+            f"      {''.join(label).rstrip()}{note}",
+        ]
+    )
 
 
 def pair_diagram_for_fit(result: FitResult, limits: PwmLimits | None, ascii_only: bool) -> str:

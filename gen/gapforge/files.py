@@ -24,7 +24,9 @@ def write_files(texts: Mapping[Path, str | bytes]) -> list[Path]:
             try:
                 directory.mkdir(parents=True, exist_ok=True)
             except OSError as exc:
-                raise GapforgeError(f"cannot create directory: {exc.strerror}", str(directory)) from None
+                raise GapforgeError(
+                    f"cannot create directory: {exc.strerror}", str(directory)
+                ) from None
             data = text.encode("utf-8") if isinstance(text, str) else text
             try:
                 fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)

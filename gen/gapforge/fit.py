@@ -186,7 +186,9 @@ def _result(layout: Layout, request: FitRequest, d: int, chosen: dict[str, int])
             achieved_min_s=achieved / (1 + tol),
             achieved_max_s=achieved / (1 - tol),
             error_s=achieved - request.requested(edge),
-            step_s=(higher - achieved) if higher is not None else (achieved - lower if lower is not None else None),
+            step_s=(higher - achieved)
+            if higher is not None
+            else (achieved - lower if lower is not None else None),
             lower_s=lower,
             higher_s=higher,
             max_s=top,

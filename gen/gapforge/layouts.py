@@ -86,7 +86,9 @@ class Field:
         """(steps, codes) of every allowed code, in increasing steps (strictly, once validated)."""
         if self.encoding == "linear":  # already in increasing order: skip decode and sort
             span = range(self.min_code, self.max_code + 1)
-            codes = tuple(c for c in span if c not in self.reserved) if self.reserved else tuple(span)
+            codes = (
+                tuple(c for c in span if c not in self.reserved) if self.reserved else tuple(span)
+            )
             add = self.add
             return tuple(c + add for c in codes), codes
         pairs = sorted(
@@ -234,7 +236,9 @@ def parse_layout(data: dict[str, object], raw: bytes, source: str, default_name:
     top.check_keys(_TOP_KEYS, {"format", "summary", "register_bits", "field"})
     version = top.integer("format", FORMAT_VERSION)
     if version != FORMAT_VERSION:
-        reader.problem("format", f"layout format {version} is not supported (expected {FORMAT_VERSION})")
+        reader.problem(
+            "format", f"layout format {version} is not supported (expected {FORMAT_VERSION})"
+        )
     name = top.string("name", default_name)
     summary = top.string("summary", "")
     if "\n" in summary:
@@ -311,17 +315,33 @@ def _read_field(t: Table) -> Field:
     offset = t.integer("offset", 0, lo=0, hi=31)
     width = t.integer("width", 1, lo=1, hi=32)
     if role == "divider":
-        for key in ("encoding", "add", "select_bits", "segment", "min_code", "max_code", "reserved"):
+        for key in (
+            "encoding",
+            "add",
+            "select_bits",
+            "segment",
+            "min_code",
+            "max_code",
+            "reserved",
+        ):
             if t.has(key):
                 t.reader.problem(t.key_path(key), "does not apply to a divider field")
-        return Field(name, role, offset, width, max_code=(1 << width) - 1,
-                     description=t.string("description", ""))
+        return Field(
+            name,
+            role,
+            offset,
+            width,
+            max_code=(1 << width) - 1,
+            description=t.string("description", ""),
+        )
     encoding = t.string("encoding", "linear", ENCODINGS)
     add = t.integer("add", 0, lo=-(1 << 32), hi=1 << 32)
     min_code = t.integer("min_code", 0, lo=0, hi=(1 << width) - 1)
     max_code = t.integer("max_code", (1 << width) - 1, lo=0, hi=(1 << width) - 1)
     if min_code > max_code:
-        t.reader.problem(t.key_path("min_code"), f"min_code {min_code} is above max_code {max_code}")
+        t.reader.problem(
+            t.key_path("min_code"), f"min_code {min_code} is above max_code {max_code}"
+        )
     reserved = _parse_codes(t, "reserved", width)
     select_bits = 0
     segments: list[Segment] = []
@@ -367,7 +387,9 @@ def _check_fields(
     for i, f in enumerate(fields):
         where = f"field[{i}]"
         if not f.name.isidentifier() or not f.name.isascii():
-            reader.problem(f"{where}.name", f"{f.name!r} must be an ASCII identifier (it names macros)")
+            reader.problem(
+                f"{where}.name", f"{f.name!r} must be an ASCII identifier (it names macros)"
+            )
         if names.count(f.name) > 1 and names.index(f.name) == i:
             reader.problem(f"{where}.name", f"field name {f.name!r} is used more than once")
         if f.offset + f.width > register_bits:
@@ -385,9 +407,13 @@ def _check_fields(
     roles = [f.role for f in fields]
     if "both" in roles:
         if roles.count("both") > 1 or "to_high" in roles or "to_low" in roles:
-            reader.problem("field", "give one field with role 'both', or one 'to_high' and one 'to_low'")
+            reader.problem(
+                "field", "give one field with role 'both', or one 'to_high' and one 'to_low'"
+            )
     elif roles.count("to_high") != 1 or roles.count("to_low") != 1:
-        reader.problem("field", "give one field with role 'both', or one 'to_high' and one 'to_low'")
+        reader.problem(
+            "field", "give one field with role 'both', or one 'to_high' and one 'to_low'"
+        )
 
     divider_roles = [f for f in fields if f.role == "divider"]
     if len(divider_roles) > 1:
@@ -397,7 +423,9 @@ def _check_fields(
     if divider_field is not None:
         match = [f for f in divider_roles if f.name == divider_field]
         if not match:
-            reader.problem("clock.divider_field", f"no field with role 'divider' named {divider_field!r}")
+            reader.problem(
+                "clock.divider_field", f"no field with role 'divider' named {divider_field!r}"
+            )
         elif len(dividers) > (1 << match[0].width):
             reader.problem(
                 "clock.dividers",
@@ -413,7 +441,9 @@ def _check_encoding(reader: Reader, where: str, f: Field) -> None:
         return
     if f.encoding == "linear":
         if f.min_code + f.add < 0:
-            reader.problem(f"{where}.add", f"code {f.min_code} + add {f.add} gives a negative dead time")
+            reader.problem(
+                f"{where}.add", f"code {f.min_code} + add {f.add} gives a negative dead time"
+            )
         if all(not f.allowed(c) for c in range(f.min_code, f.max_code + 1)):
             reader.problem(where, "no allowed code is left")
         return

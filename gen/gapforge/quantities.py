@@ -93,7 +93,9 @@ def parse_quantity(
     by its shortest decimal text, which is what the user wrote.
     """
     if isinstance(text, bool):
-        raise GapforgeError(f"expected a quantity in {unit or 'plain numbers'}, got {text!r}", where)
+        raise GapforgeError(
+            f"expected a quantity in {unit or 'plain numbers'}, got {text!r}", where
+        )
     if isinstance(text, int):
         value = Fraction(text)
     elif isinstance(text, float):
@@ -103,7 +105,9 @@ def parse_quantity(
     elif isinstance(text, str):
         value = _parse_text(text, unit, where)
     else:
-        raise GapforgeError(f"expected a quantity in {unit or 'plain numbers'}, got {text!r}", where)
+        raise GapforgeError(
+            f"expected a quantity in {unit or 'plain numbers'}, got {text!r}", where
+        )
     if value < 0 and not allow_negative:
         raise GapforgeError(f"{text!r} must not be negative", where)
     if value == 0 and not allow_zero:
@@ -149,9 +153,7 @@ def parse_tolerance(text: object, where: str, *, limit: Fraction = Fraction(1)) 
     else:
         raise GapforgeError(f"expected a tolerance such as '50ppm' or '2%', got {text!r}", where)
     if value >= limit:
-        raise GapforgeError(
-            f"tolerance {text!r} must be below {format_tolerance(limit)}", where
-        )
+        raise GapforgeError(f"tolerance {text!r} must be below {format_tolerance(limit)}", where)
     return value
 
 

@@ -86,8 +86,11 @@ def _section(title: str, rows: list[tuple[str, str, str]]) -> Section:
     width = max(len(r[0]) for r in rows)
     vwidth = max(len(r[1]) for r in rows)
     macros = tuple(
-        Macro(name.ljust(width), value.ljust(vwidth) if comment else value,
-              f"  /* {comment} */" if comment else "")
+        Macro(
+            name.ljust(width),
+            value.ljust(vwidth) if comment else value,
+            f"  /* {comment} */" if comment else "",
+        )
         for name, value, comment in rows
     )
     return Section(title, macros)
@@ -145,18 +148,32 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
             )
     banner += ["", *(f" {line}" for line in CAUTION)]
     if not clock_exact:
-        banner.append(" Note: the timer clock is not a whole number of hertz; the macro is rounded down.")
+        banner.append(
+            " Note: the timer clock is not a whole number of hertz; the macro is rounded down."
+        )
 
     sections: list[Section] = []
-    sections.append(_section("Format and clock", [
-        (f"{p}_FORMAT_VERSION", c_uint(HEADER_FORMAT), "gapforge header format"),
-        (f"{p}_TIMER_CLOCK_HZ", c_uint(clock_int), format_quantity(clock, "Hz", 9)),
-        (f"{p}_CLOCK_TOL_PPB", c_uint(picoseconds_ceil(design.clock_tol / 10**3)),
-         f"clock tolerance {format_tolerance(design.clock_tol)}"),
-        (f"{p}_SUB_STEPS", c_uint(layout.sub_steps), "dead-time steps per timer clock period"),
-        (f"{p}_DIVIDER_CODE", c_uint(fit.divider_code), f"selects divider {fit.divider}"),
-        (f"{p}_DIVIDER", c_uint(fit.divider), "dead-time clock = timer clock / divider"),
-    ]))
+    sections.append(
+        _section(
+            "Format and clock",
+            [
+                (f"{p}_FORMAT_VERSION", c_uint(HEADER_FORMAT), "gapforge header format"),
+                (f"{p}_TIMER_CLOCK_HZ", c_uint(clock_int), format_quantity(clock, "Hz", 9)),
+                (
+                    f"{p}_CLOCK_TOL_PPB",
+                    c_uint(picoseconds_ceil(design.clock_tol / 10**3)),
+                    f"clock tolerance {format_tolerance(design.clock_tol)}",
+                ),
+                (
+                    f"{p}_SUB_STEPS",
+                    c_uint(layout.sub_steps),
+                    "dead-time steps per timer clock period",
+                ),
+                (f"{p}_DIVIDER_CODE", c_uint(fit.divider_code), f"selects divider {fit.divider}"),
+                (f"{p}_DIVIDER", c_uint(fit.divider), "dead-time clock = timer clock / divider"),
+            ],
+        )
+    )
     field_rows: list[tuple[str, str, str]] = []
     for f in sorted(layout.fields, key=lambda f: f.offset):
         code = fit.fields[f.name]
@@ -164,12 +181,20 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
         field_rows += [
             (f"{p}_{name}_CODE", c_uint(code), f"0x{code:x}, {f.role}"),
             (f"{p}_{name}_SHIFT", c_uint(f.offset), ""),
-            (f"{p}_{name}_MASK", c_hex(f.mask << f.offset, layout.register_bits),
-             f"{f.width} bits in place"),
+            (
+                f"{p}_{name}_MASK",
+                c_hex(f.mask << f.offset, layout.register_bits),
+                f"{f.width} bits in place",
+            ),
         ]
     assert fit.register is not None
-    field_rows.append((f"{p}_REGISTER", c_hex(fit.register, layout.register_bits),
-                       f"{layout.register_bits}-bit dead-time register word"))
+    field_rows.append(
+        (
+            f"{p}_REGISTER",
+            c_hex(fit.register, layout.register_bits),
+            f"{layout.register_bits}-bit dead-time register word",
+        )
+    )
     sections.append(_section("Register fields", field_rows))
 
     edge_rows: list[tuple[str, str, str]] = []
@@ -180,57 +205,106 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
         E = e.upper()
         edge_rows += [
             (f"{p}_{E}_STEPS", c_uint(edge.steps), "dead-time steps inserted"),
-            (f"{p}_{E}_REQUESTED_PS", c_uint(picoseconds_ceil(edge.requested_s)),
-             _ns(edge.requested_s)),
-            (f"{p}_{E}_ACHIEVED_PS", c_uint(picoseconds_floor(edge.achieved_s)),
-             f"{_ns(edge.achieved_s)} nominal, rounded down"),
-            (f"{p}_{E}_ACHIEVED_MIN_PS", c_uint(picoseconds_floor(edge.achieved_min_s)),
-             "fastest clock, rounded down"),
-            (f"{p}_{E}_ACHIEVED_MAX_PS", c_uint(picoseconds_ceil(edge.achieved_max_s)),
-             "slowest clock, rounded up"),
+            (
+                f"{p}_{E}_REQUESTED_PS",
+                c_uint(picoseconds_ceil(edge.requested_s)),
+                _ns(edge.requested_s),
+            ),
+            (
+                f"{p}_{E}_ACHIEVED_PS",
+                c_uint(picoseconds_floor(edge.achieved_s)),
+                f"{_ns(edge.achieved_s)} nominal, rounded down",
+            ),
+            (
+                f"{p}_{E}_ACHIEVED_MIN_PS",
+                c_uint(picoseconds_floor(edge.achieved_min_s)),
+                "fastest clock, rounded down",
+            ),
+            (
+                f"{p}_{E}_ACHIEVED_MAX_PS",
+                c_uint(picoseconds_ceil(edge.achieved_max_s)),
+                "slowest clock, rounded up",
+            ),
         ]
     if plan.window is not None:
         for e in EDGES:
             lo, hi = plan.window[e]
             E = e.upper()
-            edge_rows.append((f"{p}_WINDOW_{E}_MIN_PS", c_uint(picoseconds_ceil(lo or Fraction(0))),
-                              "window minimum, rounded up"))
+            edge_rows.append(
+                (
+                    f"{p}_WINDOW_{E}_MIN_PS",
+                    c_uint(picoseconds_ceil(lo or Fraction(0))),
+                    "window minimum, rounded up",
+                )
+            )
             if hi is not None:
-                edge_rows.append((f"{p}_WINDOW_{E}_MAX_PS", c_uint(picoseconds_floor(hi)),
-                                  "window maximum, rounded down"))
-    sections.append(_section("Dead time per edge (to_high: before the high side turns on)", edge_rows))
+                edge_rows.append(
+                    (
+                        f"{p}_WINDOW_{E}_MAX_PS",
+                        c_uint(picoseconds_floor(hi)),
+                        "window maximum, rounded down",
+                    )
+                )
+    sections.append(
+        _section("Dead time per edge (to_high: before the high side turns on)", edge_rows)
+    )
 
     if op.limits is not None:
         lim = op.limits
-        sections.append(_section("PWM", [
-            (f"{p}_PWM_COUNTING_CENTER", c_uint(1 if lim.spec.counting == "center" else 0),
-             "1: centre-aligned up/down, 0: edge-aligned up"),
-            (f"{p}_PWM_PERIOD_COUNTS", c_uint(lim.period_counts),
-             f"timer clocks per PWM period, {format_quantity(lim.real_frequency_hz, 'Hz', 7)}"),
-            (f"{p}_PWM_COMPARE_COUNTS", c_uint(lim.counts), "compare value for 100 % duty"),
-            (f"{p}_DUTY_MIN_COUNTS", c_uint(lim.duty_min_counts),
-             "smallest compare value that still gives a high-side pulse"),
-            (f"{p}_DUTY_MAX_COUNTS", c_uint(lim.duty_max_counts),
-             "largest compare value that still gives a low-side pulse"),
-        ]))
+        sections.append(
+            _section(
+                "PWM",
+                [
+                    (
+                        f"{p}_PWM_COUNTING_CENTER",
+                        c_uint(1 if lim.spec.counting == "center" else 0),
+                        "1: centre-aligned up/down, 0: edge-aligned up",
+                    ),
+                    (
+                        f"{p}_PWM_PERIOD_COUNTS",
+                        c_uint(lim.period_counts),
+                        f"timer clocks per PWM period, {format_quantity(lim.real_frequency_hz, 'Hz', 7)}",
+                    ),
+                    (f"{p}_PWM_COMPARE_COUNTS", c_uint(lim.counts), "compare value for 100 % duty"),
+                    (
+                        f"{p}_DUTY_MIN_COUNTS",
+                        c_uint(lim.duty_min_counts),
+                        "smallest compare value that still gives a high-side pulse",
+                    ),
+                    (
+                        f"{p}_DUTY_MAX_COUNTS",
+                        c_uint(lim.duty_max_counts),
+                        "largest compare value that still gives a low-side pulse",
+                    ),
+                ],
+            )
+        )
 
     checks = [
-        Check(f"defined(GAPFORGE_FORMAT_REQUIRED) && (GAPFORGE_FORMAT_REQUIRED != {p}_FORMAT_VERSION)",
-              f"{op.output.file} has gapforge header format {HEADER_FORMAT}: regenerate it"),
-        Check(f"defined({design.clock_macro}) && (({design.clock_macro}) != {p}_TIMER_CLOCK_HZ)",
-              f"{design.clock_macro} differs from the timer clock {op.output.file} was computed for:"
-              " rerun gapforge build"),
+        Check(
+            f"defined(GAPFORGE_FORMAT_REQUIRED) && (GAPFORGE_FORMAT_REQUIRED != {p}_FORMAT_VERSION)",
+            f"{op.output.file} has gapforge header format {HEADER_FORMAT}: regenerate it",
+        ),
+        Check(
+            f"defined({design.clock_macro}) && (({design.clock_macro}) != {p}_TIMER_CLOCK_HZ)",
+            f"{design.clock_macro} differs from the timer clock {op.output.file} was computed for:"
+            " rerun gapforge build",
+        ),
     ]
     for f in sorted(layout.fields, key=lambda f: f.offset):
         name = f.name.upper()
-        checks.append(Check(
-            f"({p}_{name}_CODE) > ({p}_{name}_MASK >> {p}_{name}_SHIFT)",
-            f"{p}_{name}_CODE does not fit its field",
-        ))
-    checks.append(Check(
-        f"({p}_REGISTER) > {c_hex((1 << layout.register_bits) - 1, layout.register_bits)}",
-        f"{p}_REGISTER does not fit a {layout.register_bits}-bit register",
-    ))
+        checks.append(
+            Check(
+                f"({p}_{name}_CODE) > ({p}_{name}_MASK >> {p}_{name}_SHIFT)",
+                f"{p}_{name}_CODE does not fit its field",
+            )
+        )
+    checks.append(
+        Check(
+            f"({p}_REGISTER) > {c_hex((1 << layout.register_bits) - 1, layout.register_bits)}",
+            f"{p}_REGISTER does not fit a {layout.register_bits}-bit register",
+        )
+    )
 
     struct_lines: list[str] = []
     if op.output.struct:

@@ -79,7 +79,9 @@ class Table:
     def key_path(self, key: str) -> str:
         return f"{self.path}.{key}" if self.path else key
 
-    def check_keys(self, allowed: set[str] | frozenset[str], required: set[str] | None = None) -> None:
+    def check_keys(
+        self, allowed: set[str] | frozenset[str], required: set[str] | None = None
+    ) -> None:
         for key in sorted(self.data):
             if key not in allowed:
                 hint = difflib.get_close_matches(key, sorted(allowed), n=1)
@@ -177,7 +179,11 @@ class Table:
             return default
         try:
             return parse_quantity(
-                value, unit, self.key_path(key), allow_zero=allow_zero, allow_negative=allow_negative
+                value,
+                unit,
+                self.key_path(key),
+                allow_zero=allow_zero,
+                allow_negative=allow_negative,
             )
         except GapforgeError as exc:
             self.reader.problem(self.key_path(key), exc.message)

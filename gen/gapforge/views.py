@@ -29,8 +29,9 @@ def _t(x: Fraction | None) -> str:
 
 
 def table(headers: list[str], rows: list[list[str]]) -> str:
-    widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h)
-              for i, h in enumerate(headers)]
+    widths = [
+        max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(headers)
+    ]
     lines = ["  ".join(h.ljust(w) for h, w in zip(headers, widths, strict=True)).rstrip()]
     lines.append("  ".join("-" * w for w in widths))
     lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip() for r in rows]
@@ -71,8 +72,9 @@ def layout_json(layout: Layout, clock_hz: Fraction | None = None) -> dict[str, A
                 "divider_code": d,
                 "divider": div,
                 "step_s": float(step_seconds(layout, clock_hz, div)),
-                "max_s": float(layout.edge_field("to_high").table[0][-1]
-                               * step_seconds(layout, clock_hz, div)),
+                "max_s": float(
+                    layout.edge_field("to_high").table[0][-1] * step_seconds(layout, clock_hz, div)
+                ),
             }
             for d, div in enumerate(layout.dividers)
         ]
@@ -86,8 +88,10 @@ def layout_text(layout: Layout, clock_hz: Fraction | None = None) -> str:
         f"  register: {layout.register_bits} bits; dead-time step = clock period x divider / "
         f"{layout.sub_steps}; dividers {', '.join(map(str, layout.dividers))}"
     )
-    rows = [[f.name, f.role, f"{f.offset}..{f.offset + f.width - 1}", describe_codes(f)]
-            for f in sorted(layout.fields, key=lambda f: f.offset)]
+    rows = [
+        [f.name, f.role, f"{f.offset}..{f.offset + f.width - 1}", describe_codes(f)]
+        for f in sorted(layout.fields, key=lambda f: f.offset)
+    ]
     lines.append("")
     lines.append(table(["field", "role", "bits", "codes"], rows))
     if clock_hz is not None:
@@ -193,22 +197,40 @@ def fit_text(result: FitResult, limits: PwmLimits | None) -> str:
     for edge in EDGES:
         e = result.edges[edge]
         rel = e.relative_error
-        rows.append([
-            edge,
-            _t(e.requested_s),
-            "-" if e.code is None else str(e.code),
-            _t(e.achieved_s),
-            f"{_t(e.achieved_min_s)} .. {_t(e.achieved_max_s)}",
-            "-" if e.error_s is None else
-            f"{format_quantity(e.error_s, 's', 4)} ({float(rel) * 100:+.3g} %)" if rel is not None
-            else _t(e.error_s),
-            _t(e.step_s),
-            f"{_t(e.lower_s)} / {_t(e.higher_s)}",
-            _t(e.max_s),
-        ])
+        rows.append(
+            [
+                edge,
+                _t(e.requested_s),
+                "-" if e.code is None else str(e.code),
+                _t(e.achieved_s),
+                f"{_t(e.achieved_min_s)} .. {_t(e.achieved_max_s)}",
+                "-"
+                if e.error_s is None
+                else f"{format_quantity(e.error_s, 's', 4)} ({float(rel) * 100:+.3g} %)"
+                if rel is not None
+                else _t(e.error_s),
+                _t(e.step_s),
+                f"{_t(e.lower_s)} / {_t(e.higher_s)}",
+                _t(e.max_s),
+            ]
+        )
     lines.append("")
-    lines.append(table(["edge", "requested", "code", "achieved", "worst case (clock tol)",
-                        "error", "step", "lower / higher", "max"], rows))
+    lines.append(
+        table(
+            [
+                "edge",
+                "requested",
+                "code",
+                "achieved",
+                "worst case (clock tol)",
+                "error",
+                "step",
+                "lower / higher",
+                "max",
+            ],
+            rows,
+        )
+    )
     lines.append("")
     if result.ok:
         assert result.register is not None
@@ -218,8 +240,10 @@ def fit_text(result: FitResult, limits: PwmLimits | None) -> str:
         for edge in EDGES:
             e = result.edges[edge]
             if e.below_request_worst_case:
-                lines.append(f"warning: {edge} is below the request at the fast clock "
-                             "(nearest rounding); use --rounding safe for a guaranteed minimum")
+                lines.append(
+                    f"warning: {edge} is below the request at the fast clock "
+                    "(nearest rounding); use --rounding safe for a guaranteed minimum"
+                )
     else:
         for edge in EDGES:
             e = result.edges[edge]
@@ -231,7 +255,9 @@ def fit_text(result: FitResult, limits: PwmLimits | None) -> str:
     if limits is not None:
         lines.append("")
         lines.append(pwm_text(limits))
-    lines.append(f"verdict: {result.verdict if limits is None or not result.ok else _worst(result.verdict, limits.verdict)}")
+    lines.append(
+        f"verdict: {result.verdict if limits is None or not result.ok else _worst(result.verdict, limits.verdict)}"
+    )
     return "\n".join(lines)
 
 
@@ -240,8 +266,12 @@ def _worst(a: str, b: str) -> str:
 
 
 def pwm_text(lim: PwmLimits) -> str:
-    exact = "" if lim.exact else (
-        f" (not a whole number of counts: real {format_quantity(lim.real_frequency_hz, 'Hz', 7)})"
+    exact = (
+        ""
+        if lim.exact
+        else (
+            f" (not a whole number of counts: real {format_quantity(lim.real_frequency_hz, 'Hz', 7)})"
+        )
     )
     lines = [
         f"PWM {format_quantity(lim.spec.frequency_hz, 'Hz', 7)}, {lim.spec.counting}-aligned: "
@@ -275,13 +305,15 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
         "source": d.source,
         "verdict": plan.verdict,
         "reasons": list(plan.reasons),
-        "requested": None if plan.request is None else {
-            e: float(plan.request.requested(e)) for e in EDGES
-        },
-        "window": None if plan.window is None else {
-            e: {"min_s": _f(lo), "max_s": _f(hi)} for e, (lo, hi) in plan.window.items()
-        },
-        "reference": None if plan.reference is None else {
+        "requested": None
+        if plan.request is None
+        else {e: float(plan.request.requested(e)) for e in EDGES},
+        "window": None
+        if plan.window is None
+        else {e: {"min_s": _f(lo), "max_s": _f(hi)} for e, (lo, hi) in plan.window.items()},
+        "reference": None
+        if plan.reference is None
+        else {
             e: {"min_s": float(r.min_s), "typ_s": float(r.typ_s), "max_s": float(r.max_s)}
             for e, r in plan.reference.items()
         },
@@ -289,18 +321,23 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
     }
     for op in plan.outputs:
         entry = fit_json(op.fit, op.limits)
-        entry.update({
-            "prefix": op.output.prefix,
-            "file": op.output.file,
-            "output_verdict": op.verdict,
-            "reasons": list(op.reasons),
-            "warnings": list(op.warnings),
-            "margins": {
-                e: {"low_s": _f(j.margin_low_s), "high_s": _f(j.margin_high_s),
-                    "verdict": j.verdict}
-                for e, j in op.judgements.items()
-            },
-        })
+        entry.update(
+            {
+                "prefix": op.output.prefix,
+                "file": op.output.file,
+                "output_verdict": op.verdict,
+                "reasons": list(op.reasons),
+                "warnings": list(op.warnings),
+                "margins": {
+                    e: {
+                        "low_s": _f(j.margin_low_s),
+                        "high_s": _f(j.margin_high_s),
+                        "verdict": j.verdict,
+                    }
+                    for e, j in op.judgements.items()
+                },
+            }
+        )
         doc["outputs"].append(entry)
     return doc
 
@@ -314,22 +351,37 @@ def plan_text(plan: BuildPlan) -> str:
     if plan.reference is not None:
         for e in EDGES:
             r = plan.reference[e]
-            lines.append(f"  analog reference {e}: {_t(r.min_s)} .. {_t(r.max_s)} "
-                         f"(typical {_t(r.typ_s)})")
+            lines.append(
+                f"  analog reference {e}: {_t(r.min_s)} .. {_t(r.max_s)} (typical {_t(r.typ_s)})"
+            )
     if plan.window is not None:
         for e in EDGES:
             lo, hi = plan.window[e]
             lines.append(f"  window {e}: {_t(lo)} .. {_t(hi) if hi is not None else 'no maximum'}")
     if plan.request is not None:
-        lines.append("  requested: " + ", ".join(
-            f"{e} {_t(plan.request.requested(e))}" for e in EDGES))
+        lines.append(
+            "  requested: " + ", ".join(f"{e} {_t(plan.request.requested(e))}" for e in EDGES)
+        )
     rows = []
     for op in plan.outputs:
         rows.extend(_output_rows(op))
     if rows:
         lines.append("")
-        lines.append(table(["output", "target", "edge", "code", "achieved", "worst case",
-                            "margin low / high", "verdict"], rows))
+        lines.append(
+            table(
+                [
+                    "output",
+                    "target",
+                    "edge",
+                    "code",
+                    "achieved",
+                    "worst case",
+                    "margin low / high",
+                    "verdict",
+                ],
+                rows,
+            )
+        )
     for op in plan.outputs:
         for w in op.warnings:
             lines.append(f"warning: {op.output.prefix}: {w}")
@@ -348,14 +400,16 @@ def _output_rows(op: OutputPlan) -> list[list[str]]:
         x = op.fit.edges[e]
         j = op.judgements.get(e)
         margin = "-" if j is None else f"{_t(j.margin_low_s)} / {_t(j.margin_high_s)}"
-        rows.append([
-            op.output.prefix if e == "to_high" else "",
-            op.output.layout.name if e == "to_high" else "",
-            e,
-            "-" if x.code is None else str(x.code),
-            _t(x.achieved_s),
-            f"{_t(x.achieved_min_s)} .. {_t(x.achieved_max_s)}",
-            margin,
-            op.verdict if e == "to_high" else "",
-        ])
+        rows.append(
+            [
+                op.output.prefix if e == "to_high" else "",
+                op.output.layout.name if e == "to_high" else "",
+                e,
+                "-" if x.code is None else str(x.code),
+                _t(x.achieved_s),
+                f"{_t(x.achieved_min_s)} .. {_t(x.achieved_max_s)}",
+                margin,
+                op.verdict if e == "to_high" else "",
+            ]
+        )
     return rows

@@ -73,4 +73,3 @@ def main(argv: list[str] | None = None) -> Any:
     except GapforgeError as exc:
         click.echo(f"gapforge: error: {exc.line()}", err=True)
         sys.exit(2)
-

@@ -17,14 +17,28 @@ from gapforge.views import CAUTION, plan_json, plan_text
 
 @click.command()
 @click.argument("design", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path), default=None,
-              help="Directory for the headers (default: the design file's directory).")
-@click.option("--check", is_flag=True,
-              help="Write nothing; exit 1 listing headers that are missing or stale (for CI).")
+@click.option(
+    "--out",
+    "out_dir",
+    type=click.Path(file_okay=False, path_type=Path),
+    default=None,
+    help="Directory for the headers (default: the design file's directory).",
+)
+@click.option(
+    "--check",
+    is_flag=True,
+    help="Write nothing; exit 1 listing headers that are missing or stale (for CI).",
+)
 @diagram_options
 @json_option
-def command(design: Path, out_dir: Path | None, check: bool, no_diagram: bool, ascii_only: bool,
-            as_json: bool) -> None:
+def command(
+    design: Path,
+    out_dir: Path | None,
+    check: bool,
+    no_diagram: bool,
+    ascii_only: bool,
+    as_json: bool,
+) -> None:
     """Fit a design file's outputs and write one C header per output.
 
     Nothing is written unless every output fits: an error leaves existing files untouched.
@@ -49,8 +63,9 @@ def command(design: Path, out_dir: Path | None, check: bool, no_diagram: bool, a
     directory = out_dir if out_dir is not None else design.parent
     texts = {directory / name: text for name, text in render_headers(plan).items()}
     if check:
-        stale = [p for p, t in texts.items()
-                 if not p.is_file() or p.read_text(encoding="utf-8") != t]
+        stale = [
+            p for p, t in texts.items() if not p.is_file() or p.read_text(encoding="utf-8") != t
+        ]
         for p in stale:
             click.echo(f"stale: {p}", err=True)
         if not as_json:

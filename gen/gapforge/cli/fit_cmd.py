@@ -17,26 +17,63 @@ from gapforge.views import CAUTION, fit_json, fit_text
 
 @click.command()
 @clock_options
-@click.option("--dead-time", type=Quantity("s", allow_zero=True), default=None,
-              help="Dead time for both edges, e.g. 25ns.")
-@click.option("--to-high", type=Quantity("s", allow_zero=True), default=None,
-              help="Gap before the high-side output turns on (overrides --dead-time).")
-@click.option("--to-low", type=Quantity("s", allow_zero=True), default=None,
-              help="Gap before the low-side output turns on (overrides --dead-time).")
+@click.option(
+    "--dead-time",
+    type=Quantity("s", allow_zero=True),
+    default=None,
+    help="Dead time for both edges, e.g. 25ns.",
+)
+@click.option(
+    "--to-high",
+    type=Quantity("s", allow_zero=True),
+    default=None,
+    help="Gap before the high-side output turns on (overrides --dead-time).",
+)
+@click.option(
+    "--to-low",
+    type=Quantity("s", allow_zero=True),
+    default=None,
+    help="Gap before the low-side output turns on (overrides --dead-time).",
+)
 @click.option("--target", required=True, help="Built-in layout name or a layout .toml file.")
-@click.option("--rounding", type=click.Choice(ROUNDINGS), default="safe", show_default=True,
-              help="safe: never below the request at the fastest clock; nearest: closest nominal.")
-@click.option("--divider-code", type=int, default=None,
-              help="Use only this divider code (default: search every divider).")
+@click.option(
+    "--rounding",
+    type=click.Choice(ROUNDINGS),
+    default="safe",
+    show_default=True,
+    help="safe: never below the request at the fastest clock; nearest: closest nominal.",
+)
+@click.option(
+    "--divider-code",
+    type=int,
+    default=None,
+    help="Use only this divider code (default: search every divider).",
+)
 @click.option("--pwm", type=Quantity("Hz"), default=None, help="PWM frequency for the limits.")
-@click.option("--counting", type=click.Choice(COUNTINGS), default="edge", show_default=True,
-              help="PWM counting: edge-aligned up, or center-aligned up/down.")
+@click.option(
+    "--counting",
+    type=click.Choice(COUNTINGS),
+    default="edge",
+    show_default=True,
+    help="PWM counting: edge-aligned up, or center-aligned up/down.",
+)
 @diagram_options
 @json_option
-def command(clock: Fraction, clock_tol: Fraction, dead_time: Fraction | None,
-            to_high: Fraction | None, to_low: Fraction | None, target: str, rounding: str,
-            divider_code: int | None, pwm: Fraction | None, counting: str, no_diagram: bool,
-            ascii_only: bool, as_json: bool) -> None:
+def command(
+    clock: Fraction,
+    clock_tol: Fraction,
+    dead_time: Fraction | None,
+    to_high: Fraction | None,
+    to_low: Fraction | None,
+    target: str,
+    rounding: str,
+    divider_code: int | None,
+    pwm: Fraction | None,
+    counting: str,
+    no_diagram: bool,
+    ascii_only: bool,
+    as_json: bool,
+) -> None:
     """Fit a requested dead time onto one timer layout's codes, exactly."""
     high = to_high if to_high is not None else dead_time
     low = to_low if to_low is not None else dead_time
@@ -45,8 +82,11 @@ def command(clock: Fraction, clock_tol: Fraction, dead_time: Fraction | None,
     layout = load_layout(target)
     result = fit(layout, FitRequest(clock, clock_tol, high, low, rounding), divider_code)
     limits = pwm_limits(result, PwmSpec(pwm, counting)) if pwm is not None and result.ok else None
-    verdict = result.verdict if limits is None else (
-        result.verdict if result.verdict != "ok" else limits.verdict)
+    verdict = (
+        result.verdict
+        if limits is None
+        else (result.verdict if result.verdict != "ok" else limits.verdict)
+    )
     if as_json:
         doc = fit_json(result, limits)
         doc["verdict"] = verdict

@@ -51,16 +51,23 @@ def json_option(f: F) -> F:
 
 
 def clock_options(f: F) -> F:
-    f = click.option("--clock-tol", type=Tolerance(), default="0", show_default=True,
-                     help="Timer clock tolerance: '50ppm', '2%'.")(f)
-    f = click.option("--clock", type=Quantity("Hz"), required=True,
-                     help="Timer clock frequency, e.g. 160MHz.")(f)
+    f = click.option(
+        "--clock-tol",
+        type=Tolerance(),
+        default="0",
+        show_default=True,
+        help="Timer clock tolerance: '50ppm', '2%'.",
+    )(f)
+    f = click.option(
+        "--clock", type=Quantity("Hz"), required=True, help="Timer clock frequency, e.g. 160MHz."
+    )(f)
     return f
 
 
 def diagram_options(f: F) -> F:
-    f = click.option("--ascii", "ascii_only", is_flag=True,
-                     help="Plain ASCII in the timing diagram (for logs).")(f)
+    f = click.option(
+        "--ascii", "ascii_only", is_flag=True, help="Plain ASCII in the timing diagram (for logs)."
+    )(f)
     f = click.option("--no-diagram", is_flag=True, help="Leave out the text timing diagram.")(f)
     return f
 

@@ -18,17 +18,22 @@ def command(ctx: click.Context, as_json: bool) -> None:
         return
     layouts = [load_layout(name) for name in builtin_names()]
     if as_json:
-        emit_json([{"name": lay.name, "summary": lay.summary, "source": lay.source}
-                   for lay in layouts])
+        emit_json(
+            [{"name": lay.name, "summary": lay.summary, "source": lay.source} for lay in layouts]
+        )
         return
     click.echo(table(["name", "summary"], [[lay.name, lay.summary] for lay in layouts]))
-    click.echo("\nShow one with: gapforge targets show NAME [--clock F]; "
-               "pass your own layout file anywhere a name is accepted.")
+    click.echo(
+        "\nShow one with: gapforge targets show NAME [--clock F]; "
+        "pass your own layout file anywhere a name is accepted."
+    )
 
 
 @command.command("show")
 @click.argument("target")
-@click.option("--clock", type=Quantity("Hz"), default=None, help="Show steps and ranges at this clock.")
+@click.option(
+    "--clock", type=Quantity("Hz"), default=None, help="Show steps and ranges at this clock."
+)
 @json_option
 def show(target: str, clock: object, as_json: bool) -> None:
     """Show one layout (a built-in NAME or a layout FILE)."""
