@@ -1,0 +1,246 @@
+"""`gapforge sweep`: layouts x timer clocks x dividers against the power stage's window."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+from fractions import Fraction
+from typing import Any
+
+import click
+
+from gapforge.cli.options import Tolerance
+from gapforge.cli.window_cmd import (
+    CAUTION,
+    MIN_FORMULA,
+    OPTION_KEYS,
+    spec_from_options,
+    stage_options,
+)
+from gapforge.errors import GapforgeError
+from gapforge.layouts import builtin_names, load_layout
+from gapforge.quantities import format_quantity, format_tolerance
+from gapforge.stage import EDGES, parse_span, stage_window
+from gapforge.sweep import RANKS, Sweep, SweepRow, limits_of, parse_clocks, sweep
+
+TEXT_TOP = 20
+
+
+def _f(value: Fraction | None) -> float | None:
+    return None if value is None else float(value)
+
+
+def _row_json(row: SweepRow, rank: int | None) -> dict[str, Any]:
+    return {
+        "rank": rank,
+        "feasible": row.feasible,
+        "layout": row.layout,
+        "clock_hz": float(row.clock_hz),
+        "divider_code": row.divider_code,
+        "divider": row.divider,
+        "fields": row.fields,
+        "register": row.register,
+        "worst_margin_s": _f(row.worst_margin_s),
+        "worst_error_s": _f(row.worst_error_s),
+        "reason": row.reason,
+        "edges": {
+            edge: {
+                "code": e.code,
+                "steps": e.steps,
+                "achieved_s": float(e.achieved_s),
+                "achieved_min_s": float(e.achieved_min_s),
+                "achieved_max_s": float(e.achieved_max_s),
+                "error_s": float(e.error_s),
+                "margin_low_s": float(e.margin_low_s),
+                "margin_high_s": _f(e.margin_high_s),
+                "verdict": e.verdict,
+            }
+            for edge, e in row.edges.items()
+        },
+    }
+
+
+def sweep_json(result: Sweep, top: int | None) -> dict[str, Any]:
+    shown = result.feasible if top is None else result.feasible[:top]
+    return {
+        "window": {
+            edge: {"min_s": float(lo), "max_s": _f(hi)} for edge, (lo, hi) in result.limits.items()
+        },
+        "clock_tol": float(result.clock_tol),
+        "rank_by": result.rank,
+        "layouts": list(result.layouts),
+        "clocks_hz": [float(c) for c in result.clocks],
+        "points": result.points,
+        "feasible_count": len(result.feasible),
+        "feasible": [_row_json(row, i + 1) for i, row in enumerate(shown)],
+        "infeasible": [_row_json(row, None) for row in result.infeasible],
+        "caution": CAUTION,
+    }
+
+
+CSV_COLUMNS = [
+    "rank", "feasible", "layout", "clock_hz", "divider_code", "divider",
+    "to_high_code", "to_high_achieved_s", "to_high_min_s", "to_high_max_s",
+    "to_low_code", "to_low_achieved_s", "to_low_min_s", "to_low_max_s",
+    "worst_margin_s", "worst_error_s", "register", "fields", "reason",
+]
+
+
+def sweep_csv(result: Sweep, top: int | None) -> str:
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(CSV_COLUMNS)
+    shown = result.feasible if top is None else result.feasible[:top]
+    rows = [(i + 1, r) for i, r in enumerate(shown)] + [(None, r) for r in result.infeasible]
+    for rank, row in rows:
+        cells: list[object] = [
+            "" if rank is None else rank,
+            int(row.feasible),
+            row.layout,
+            f"{float(row.clock_hz):.12g}",
+            row.divider_code,
+            row.divider,
+        ]
+        for edge in EDGES:
+            e = row.edges.get(edge)
+            if e is None:
+                cells += ["", "", "", ""]
+            else:
+                cells += [e.code, f"{float(e.achieved_s):.9g}", f"{float(e.achieved_min_s):.9g}",
+                          f"{float(e.achieved_max_s):.9g}"]
+        cells += [
+            "" if row.worst_margin_s is None else f"{float(row.worst_margin_s):.9g}",
+            "" if row.worst_error_s is None else f"{float(row.worst_error_s):.9g}",
+            "" if row.register is None else row.register,
+            ";".join(f"{k}={v}" for k, v in row.fields.items()),
+            row.reason,
+        ]
+        writer.writerow(cells)
+    return buffer.getvalue()
+
+
+def _t(value: Fraction | None) -> str:
+    return "-" if value is None else format_quantity(value, "s", 6)
+
+
+def sweep_text(result: Sweep, top: int | None) -> str:
+    n = TEXT_TOP if top is None else top
+    out: list[str] = []
+    window = ", ".join(
+        f"{edge} {_t(lo)} .. {'no max' if hi is None else _t(hi)}"
+        for edge, (lo, hi) in result.limits.items()
+    )
+    out.append(f"Window: {window}; clock tolerance {format_tolerance(result.clock_tol)}")
+    out.append(
+        f"{result.points} points ({len(result.layouts)} layouts x {len(result.clocks)} clocks x "
+        f"dividers): {len(result.feasible)} feasible, ranked by "
+        + ("worst-case margin to the window" if result.rank == "margin" else "quantization error")
+    )
+    out.append("")
+    header = (
+        f"{'#':>4}  {'layout':<26} {'clock':>12} {'div':>5}  {'to_high (min..max)':<26} "
+        f"{'to_low (min..max)':<26} {'margin':>10} {'error':>10}  register"
+    )
+    out.append(header)
+    for i, row in enumerate(result.feasible[:n]):
+        spans = []
+        for edge in EDGES:
+            e = row.edges[edge]
+            spans.append(f"{e.code}: {_t(e.achieved_min_s)}..{_t(e.achieved_max_s)}")
+        register = "-" if row.register is None else f"0x{row.register:X}"
+        out.append(
+            f"{i + 1:>4}  {row.layout:<26} {format_quantity(row.clock_hz, 'Hz', 8):>12} "
+            f"{'/' + str(row.divider):>5}  {spans[0]:<26} {spans[1]:<26} "
+            f"{_t(row.worst_margin_s):>10} {_t(row.worst_error_s):>10}  {register}"
+        )
+    if len(result.feasible) > n:
+        more = len(result.feasible) - n
+        out.append(f"      ... and {more} more feasible (--top N, --json, --csv)")
+    if not result.feasible:
+        out.append("      (no feasible choice)")
+    if result.infeasible:
+        out.append("")
+        out.append(f"Infeasible ({len(result.infeasible)}):")
+        for row in result.infeasible[:n]:
+            out.append(
+                f"      {row.layout:<26} {format_quantity(row.clock_hz, 'Hz', 8):>12} "
+                f"{'/' + str(row.divider):>5}  {row.reason}"
+            )
+        if len(result.infeasible) > n:
+            out.append(f"      ... and {len(result.infeasible) - n} more (--json or --csv for all)")
+    out.append("")
+    out.append(f"Window {MIN_FORMULA} (see `gapforge window` for the breakdown).")
+    out.append(CAUTION)
+    return "\n".join(out) + "\n"
+
+
+@click.command(name="sweep")
+@click.option("--target", "targets", multiple=True,
+              help="Layout name or .toml file (repeat). Default: every built-in layout.")
+@click.option("--builtins", is_flag=True, help="Add every built-in layout to the --target list.")
+@click.option("--clocks", "clock_texts", multiple=True, required=True,
+              metavar="LIST|START:STOP:STEP",
+              help="Timer clocks: '160MHz,170MHz' or '100MHz:200MHz:5MHz' (repeatable).")
+@click.option("--clock-tol", type=Tolerance(), default="0", show_default=True,
+              help="Timer clock tolerance: '50ppm', '2%'.")
+@click.option("--window", "window_text", metavar="MIN:MAX",
+              help="The window directly for both edges ('90ns:1us'; '90ns' for no maximum), "
+              "instead of the stage options.")
+@stage_options
+@click.option("--rank", type=click.Choice(RANKS), default="auto", show_default=True,
+              help="Order feasible rows by worst-case margin or by quantization error "
+              "(auto: margin when the window has a maximum).")
+@click.option("--top", type=click.IntRange(min=1), default=None,
+              help=f"Show only the N best feasible rows (text default {TEXT_TOP}).")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON.")
+@click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
+def command(**values: Any) -> None:
+    """Compare layouts x timer clocks x dividers against the dead-time window.
+
+    Each point asks for the window minimum with safe rounding and checks the worst case at the
+    slow clock against the window maximum. Exit 1 when no point is feasible. A design aid:
+    verify on the bench at reduced voltage with current limiting.
+    """
+    if values["as_json"] and values["as_csv"]:
+        raise GapforgeError("give --json or --csv, not both", "--csv")
+    if values["window_text"] is not None:
+        used = [name for name in ["design", *OPTION_KEYS] if values.get(name) is not None]
+        if used:
+            raise GapforgeError("give --window or the stage options, not both",
+                                "--" + used[0].replace("_", "-"))
+        limits = _window_limits(values["window_text"])
+    else:
+        limits = limits_of(stage_window(spec_from_options(values)))
+    clocks = parse_clocks(values["clock_texts"])
+    names = list(values["targets"])
+    if values["builtins"] or not names:
+        names = builtin_names() + [n for n in names if n not in builtin_names()]
+    layouts = []
+    seen: set[str] = set()
+    for name in names:  # each layout is loaded once, before the sweep
+        layout = load_layout(name)
+        if layout.name not in seen:
+            seen.add(layout.name)
+            layouts.append(layout)
+    result = sweep(layouts, clocks, values["clock_tol"], limits, values["rank"])
+    top = values["top"]
+    if values["as_json"]:
+        click.echo(json.dumps(sweep_json(result, top), indent=2))
+    elif values["as_csv"]:
+        click.echo(sweep_csv(result, top), nl=False)
+    else:
+        click.echo(sweep_text(result, top), nl=False)
+    if not result.feasible:
+        raise SystemExit(1)
+
+
+def _window_limits(text: str) -> dict[str, tuple[Fraction, Fraction | None]]:
+    where = "--window"
+    lo_text, sep, hi_text = text.partition(":")
+    if not sep or not hi_text.strip():
+        lo, _ = parse_span(lo_text, where)
+        hi: Fraction | None = None
+    else:
+        lo, hi = parse_span(text, where)
+    return {edge: (lo, hi) for edge in EDGES}

@@ -1,0 +1,253 @@
+"""Sweep timer layouts x timer clocks x dividers against a dead-time window.
+
+For every point the window's minimum is requested with `safe` rounding (the smallest value whose
+worst case, at the fastest clock, is still >= the minimum); the point is feasible when the
+achieved worst case at the slowest clock is still <= the window's maximum on both edges.
+Feasible points are ranked by worst-case margin to the window (the smaller of the two distances,
+over both edges, after quantization and clock tolerance), then by quantization error; every
+infeasible point carries the reason it fails.
+
+Layouts are loaded by the caller once and passed in; nothing is read or rendered per point.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from fractions import Fraction
+
+from gapforge.errors import GapforgeError
+from gapforge.fit import FitRequest, fit
+from gapforge.layouts import Layout
+from gapforge.quantities import format_quantity, parse_quantity
+from gapforge.stage import EDGES, Window, WindowEdge, judge
+
+RANKS = ("auto", "margin", "error")
+MAX_CLOCKS = 100_000
+
+# edge -> (min_s, max_s or None)
+Limits = Mapping[str, tuple[Fraction, Fraction | None]]
+
+
+@dataclass(frozen=True)
+class RowEdge:
+    code: int
+    steps: int
+    achieved_s: Fraction
+    achieved_min_s: Fraction
+    achieved_max_s: Fraction
+    error_s: Fraction
+    margin_low_s: Fraction
+    margin_high_s: Fraction | None
+    verdict: str
+
+
+@dataclass(frozen=True)
+class SweepRow:
+    layout: str
+    clock_hz: Fraction
+    divider_code: int
+    divider: int
+    feasible: bool
+    reason: str
+    fields: dict[str, int]
+    register: int | None
+    edges: dict[str, RowEdge]
+    worst_margin_s: Fraction | None
+    worst_error_s: Fraction | None
+
+
+@dataclass(frozen=True)
+class Sweep:
+    limits: dict[str, tuple[Fraction, Fraction | None]]
+    clock_tol: Fraction
+    rank: str
+    feasible: tuple[SweepRow, ...]  # ranked, best first
+    infeasible: tuple[SweepRow, ...]  # in layout, clock, divider order
+    layouts: tuple[str, ...]
+    clocks: tuple[Fraction, ...]
+
+    @property
+    def points(self) -> int:
+        return len(self.feasible) + len(self.infeasible)
+
+
+def limits_of(window: Window) -> dict[str, tuple[Fraction, Fraction | None]]:
+    return {edge: (window.edges[edge].min_s, window.edges[edge].max_s) for edge in EDGES}
+
+
+def _window_edge(lo: Fraction, hi: Fraction | None) -> WindowEdge:
+    return WindowEdge(lo, hi, lo, (), (), "")
+
+
+def parse_clocks(texts: Sequence[str], where: str = "--clocks") -> tuple[Fraction, ...]:
+    """Clocks from 'F1,F2,...' lists and 'START:STOP:STEP' ranges (STOP included when on grid)."""
+    clocks: set[Fraction] = set()
+    for text in texts:
+        for part in text.split(","):
+            part = part.strip()
+            if not part:
+                continue
+            pieces = part.split(":")
+            if len(pieces) == 1:
+                clocks.add(parse_quantity(part, "Hz", where))
+                continue
+            if len(pieces) != 3:
+                raise GapforgeError(
+                    f"{part!r}: expected a clock or START:STOP:STEP (100MHz:200MHz:5MHz)", where
+                )
+            start = parse_quantity(pieces[0], "Hz", where)
+            stop = parse_quantity(pieces[1], "Hz", where)
+            step = parse_quantity(pieces[2], "Hz", where)
+            if stop < start:
+                raise GapforgeError(f"{part!r}: STOP is below START", where)
+            count = int((stop - start) / step) + 1
+            if len(clocks) + count > MAX_CLOCKS:
+                raise GapforgeError(f"{part!r} gives more than {MAX_CLOCKS} clocks", where)
+            clocks.update(start + k * step for k in range(count))
+    if not clocks:
+        raise GapforgeError("no clocks given", where)
+    if len(clocks) > MAX_CLOCKS:
+        raise GapforgeError(f"more than {MAX_CLOCKS} clocks", where)
+    return tuple(sorted(clocks))
+
+
+def sweep(
+    layouts: Sequence[Layout],
+    clocks: Sequence[Fraction],
+    clock_tol: Fraction,
+    limits: Limits,
+    rank: str = "auto",
+) -> Sweep:
+    """Every layout x clock x divider code, judged against the window limits per edge."""
+    if rank not in RANKS:
+        raise GapforgeError(f"rank must be one of {', '.join(RANKS)}", "--rank")
+    if not 0 <= clock_tol < 1:
+        raise GapforgeError("the clock tolerance must be in 0..100 %", "--clock-tol")
+    for edge in EDGES:
+        lo, hi = limits[edge]
+        if lo < 0 or (hi is not None and hi < 0):
+            raise GapforgeError("window limits must not be negative", edge)
+    window = {edge: _window_edge(*limits[edge]) for edge in EDGES}
+    if rank == "auto":
+        rank = "margin" if all(limits[e][1] is not None for e in EDGES) else "error"
+    empty = [e for e in EDGES if window[e].empty]
+    feasible: list[SweepRow] = []
+    infeasible: list[SweepRow] = []
+    for layout in layouts:
+        for clock in clocks:
+            if empty:
+                reason = "empty window on " + ", ".join(
+                    f"{e} ({_t(limits[e][0])} > {_t(limits[e][1] or Fraction(0))})" for e in empty
+                )
+                for d, divider in enumerate(layout.dividers):
+                    infeasible.append(_bare(layout, clock, d, divider, reason))
+                continue
+            request = FitRequest(
+                clock_hz=clock,
+                clock_tol=clock_tol,
+                to_high_s=limits["to_high"][0],
+                to_low_s=limits["to_low"][0],
+                rounding="safe",
+            )
+            for d, divider in enumerate(layout.dividers):
+                row = _point(layout, clock, d, divider, request, window)
+                (feasible if row.feasible else infeasible).append(row)
+    if rank == "margin":
+        feasible.sort(key=lambda r: (-_num(r.worst_margin_s), _num(r.worst_error_s), _order(r)))
+    else:
+        feasible.sort(key=lambda r: (_num(r.worst_error_s), -_num(r.worst_margin_s), _order(r)))
+    return Sweep(
+        limits={e: limits[e] for e in EDGES},
+        clock_tol=clock_tol,
+        rank=rank,
+        feasible=tuple(feasible),
+        infeasible=tuple(infeasible),
+        layouts=tuple(layout.name for layout in layouts),
+        clocks=tuple(clocks),
+    )
+
+
+def _num(value: Fraction | None) -> Fraction:
+    return value if value is not None else Fraction(0)
+
+
+def _order(row: SweepRow) -> tuple[str, Fraction, int]:
+    return (row.layout, row.clock_hz, row.divider_code)
+
+
+def _t(value: Fraction) -> str:
+    return format_quantity(value, "s", 8)
+
+
+def _bare(layout: Layout, clock: Fraction, d: int, divider: int, reason: str) -> SweepRow:
+    return SweepRow(layout.name, clock, d, divider, False, reason, {}, None, {}, None, None)
+
+
+def _point(
+    layout: Layout,
+    clock: Fraction,
+    d: int,
+    divider: int,
+    request: FitRequest,
+    window: dict[str, WindowEdge],
+) -> SweepRow:
+    result = fit(layout, request, d)
+    if result.verdict != "ok":
+        parts = []
+        for edge in EDGES:
+            e = result.edges[edge]
+            if e.requested_s > e.max_min_s:
+                parts.append(
+                    f"{edge} needs {_t(e.requested_s)} worst case, the longest here is "
+                    f"{_t(e.max_min_s)} at the fast clock"
+                )
+        reason = "unreachable: " + ("; ".join(parts) or "no code reaches the window minimum")
+        return _bare(layout, clock, d, divider, reason)
+    edges: dict[str, RowEdge] = {}
+    reasons: list[str] = []
+    margins: list[Fraction] = []
+    errors: list[Fraction] = []
+    for edge in EDGES:
+        e = result.edges[edge]
+        assert e.achieved_s is not None and e.achieved_min_s is not None
+        assert e.achieved_max_s is not None and e.error_s is not None
+        assert e.code is not None and e.steps is not None
+        verdict, low, high = judge(window[edge], e.achieved_min_s, e.achieved_max_s)
+        edges[edge] = RowEdge(
+            code=e.code,
+            steps=e.steps,
+            achieved_s=e.achieved_s,
+            achieved_min_s=e.achieved_min_s,
+            achieved_max_s=e.achieved_max_s,
+            error_s=e.error_s,
+            margin_low_s=low,
+            margin_high_s=high,
+            verdict=verdict,
+        )
+        margins.append(low)
+        if high is not None:
+            margins.append(high)
+        errors.append(abs(e.error_s))
+        if verdict == "too-long":
+            top = window[edge].max_s
+            assert top is not None
+            reasons.append(
+                f"too-long: {edge} shortest safe value {_t(e.achieved_s)} lasts up to "
+                f"{_t(e.achieved_max_s)} at the slow clock, above the window maximum {_t(top)}"
+            )
+        elif verdict != "ok":
+            reasons.append(f"{verdict}: {edge}")
+    return SweepRow(
+        layout=layout.name,
+        clock_hz=clock,
+        divider_code=d,
+        divider=divider,
+        feasible=not reasons,
+        reason="; ".join(reasons),
+        fields=dict(result.fields),
+        register=result.register,
+        edges=edges,
+        worst_margin_s=min(margins),
+        worst_error_s=max(errors),
+    )
