@@ -245,7 +245,11 @@ def select(header: Header, name: str, where: str) -> _Selection:
         raise GapforgeError(f"signal {name!r} is ambiguous: {shown}", where)
     if not candidates:
         names = sorted({v.display() for v in header.variables})
-        hint = difflib.get_close_matches(wanted, names, n=1)
+        hint = difflib.get_close_matches(wanted, names, n=1) or [
+            v.display() for v in header.variables
+            if v.path.rsplit(".", 1)[-1] in difflib.get_close_matches(
+                base.rsplit(".", 1)[-1], [w.path.rsplit(".", 1)[-1] for w in header.variables], n=1)
+        ][:1]
         more = f"; did you mean {hint[0]!r}?" if hint else f"; the file has {', '.join(names[:12])}"
         raise GapforgeError(f"no signal {name!r} in the capture{more}", where)
     variable = candidates[0]

@@ -1,0 +1,283 @@
+"""`gapforge measure`: dead times, overlaps and glitches in a capture file or a live serial stream."""
+
+from __future__ import annotations
+
+import sys
+from fractions import Fraction
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import click
+
+from gapforge.cli.options import Quantity, emit_json, json_option
+from gapforge.errors import GapforgeError
+from gapforge.quantities import format_quantity, parse_quantity
+
+if TYPE_CHECKING:
+    from gapforge.measure import Limits, Measurement
+    from gapforge.serial_stream import SerialResult, StreamStatus
+
+CAUTION = (
+    "Caution: a design aid, not a guarantee. Verify every dead time on the bench at reduced "
+    "voltage with current limiting before full power; local codes and licensed practice prevail."
+)
+
+
+def parse_window(text: str) -> tuple[Fraction | None, Fraction | None]:
+    """'20ns:80ns', '20ns:' or ':80ns' -> (min, max) in seconds, exact."""
+    if ":" not in text:
+        raise GapforgeError(f"{text!r} must be MIN:MAX, e.g. 20ns:80ns", "--window")
+    low_text, high_text = (part.strip() for part in text.split(":", 1))
+    low = parse_quantity(low_text, "s", "--window", allow_zero=True) if low_text else None
+    high = parse_quantity(high_text, "s", "--window") if high_text else None
+    if low is None and high is None:
+        raise GapforgeError("give at least one of MIN and MAX", "--window")
+    if low is not None and high is not None and low > high:
+        raise GapforgeError(f"minimum {low_text} is above maximum {high_text}", "--window")
+    return low, high
+
+
+def build_limits(
+    window: str | None, design: Path | None
+) -> dict[str, Limits]:
+    from gapforge.measure import EDGES, Limits
+
+    per_edge: dict[str, list[Fraction | None]] = {edge: [None, None, None, None] for edge in EDGES}
+    if design is not None:
+        from gapforge.design import measurement_expectations
+
+        try:
+            expected = measurement_expectations(design)
+        except GapforgeError as exc:
+            raise exc if exc.where and str(design) in exc.where else exc.at(str(design)) from None
+        for edge in EDGES:
+            if edge in expected:
+                per_edge[edge] = list(expected[edge])
+    if window is not None:
+        low, high = parse_window(window)
+        for edge in EDGES:
+            per_edge[edge][0], per_edge[edge][1] = low, high
+    return {edge: Limits(*values) for edge, values in per_edge.items()}
+
+
+@click.command()
+@click.argument("capture", required=False, type=click.Path(path_type=Path, dir_okay=False))
+@click.option("--high", default=None, help="High-side gate signal: hierarchical name (top.gate_h, "
+              "top.bus[3]) or CSV column.")
+@click.option("--low", default=None, help="Low-side gate signal, named like --high.")
+@click.option("--active-low-high", is_flag=True, help="The high-side signal is active low.")
+@click.option("--active-low-low", is_flag=True, help="The low-side signal is active low.")
+@click.option("--design", type=click.Path(path_type=Path, dir_okay=False), default=None,
+              help="Design file: judge against its window and predicted dead time.")
+@click.option("--window", default=None, help="Dead-time window MIN:MAX for both edges, e.g. "
+              "20ns:80ns (overrides the design's window).")
+@click.option("--glitch", type=Quantity("s", allow_zero=True), default="0", show_default=True,
+              help="Pulses shorter than this are glitches (listed, left out of the statistics).")
+@click.option("--percentiles", default="1,5,50,95,99", show_default=True,
+              help="Percentiles to report, comma separated.")
+@click.option("--bins", type=click.IntRange(1, 1000), default=20, show_default=True,
+              help="Histogram bins.")
+@click.option("--worst", type=click.IntRange(0, 1000), default=5, show_default=True,
+              help="Worst instances to list per edge.")
+@click.option("--serial", "serial_url", default=None,
+              help="Read a live stream: a port or pyserial URL (loop://, socket://h:p, rfc2217://).")
+@click.option("--baud", type=click.IntRange(1), default=115200, show_default=True,
+              help="Serial baud rate.")
+@click.option("--count", "max_edges", type=click.IntRange(1), default=None,
+              help="Stop the stream after this many gate edges.")
+@click.option("--duration", type=Quantity("s"), default=None,
+              help="Stop the stream after this long, e.g. 10s.")
+@click.option("--idle-timeout", type=Quantity("s"), default="2s", show_default=True,
+              help="Stop the stream when no data arrives for this long.")
+@json_option
+def command(capture: Path | None, high: str | None, low: str | None, active_low_high: bool,
+            active_low_low: bool, design: Path | None, window: str | None, glitch: Fraction,
+            percentiles: str, bins: int, worst: int, serial_url: str | None, baud: int,
+            max_edges: int | None, duration: Fraction | None, idle_timeout: Fraction,
+            as_json: bool) -> None:
+    """Measure every dead time in a capture (VCD or gapforge CSV) or a live serial stream.
+
+    Exit 1 on any overlap (both gates on) or any gap outside the window; 2 on bad input.
+    """
+    from gapforge.measure import measure_capture
+
+    pcts = _percentiles(percentiles)
+    limits = build_limits(window, design)
+    stream: SerialResult | None = None
+    if serial_url is not None:
+        if capture is not None:
+            raise GapforgeError("give a capture file or --serial, not both", "measure")
+        from gapforge.serial_stream import read_serial
+
+        stream = read_serial(
+            serial_url, baud, max_edges=max_edges,
+            max_seconds=None if duration is None else float(duration),
+            idle_timeout_s=float(idle_timeout),
+            progress=_progress if sys.stderr.isatty() else None,
+            active_low_high=active_low_high, active_low_low=active_low_low,
+        )
+        if sys.stderr.isatty():
+            click.echo("", err=True)
+        if stream.capture is None:
+            raise GapforgeError(
+                f"no capture header received ({stream.status.lines} lines, stopped: "
+                f"{stream.stop_reason})", serial_url)
+        gate = stream.capture
+    else:
+        if capture is None:
+            raise GapforgeError("give a capture file (VCD or CSV) or --serial URL", "measure")
+        if high is None or low is None:
+            raise GapforgeError("name both gate signals with --high and --low", str(capture))
+        if not capture.exists():
+            raise GapforgeError("no such file", str(capture))
+        from gapforge.capture import load_capture
+
+        gate = load_capture(capture, high, low, active_low_high=active_low_high,
+                            active_low_low=active_low_low)
+    try:
+        result = measure_capture(gate, limits=limits, glitch_width_s=glitch, percentiles=pcts,
+                                 bins=bins, worst=worst)
+    except GapforgeError as exc:
+        if stream is not None:
+            raise GapforgeError(f"{exc.message} (stream stopped: {stream.stop_reason})",
+                                exc.where) from None
+        raise
+    if as_json:
+        emit_json(measurement_json(result, stream))
+    else:
+        click.echo(measurement_text(result, stream))
+    sys.exit(1 if result.failed else 0)
+
+
+def _percentiles(text: str) -> tuple[float, ...]:
+    out: list[float] = []
+    for part in text.split(","):
+        if not part.strip():
+            continue
+        try:
+            value = float(part)
+        except ValueError:
+            raise GapforgeError(f"{part.strip()!r} is not a number", "--percentiles") from None
+        if not 0 <= value <= 100:
+            raise GapforgeError(f"{value:g} must be between 0 and 100", "--percentiles")
+        out.append(value)
+    return tuple(out)
+
+
+def _progress(status: StreamStatus) -> None:
+    click.echo(
+        f"\r{status.edges} edges, {status.lines} lines, {status.garbage} garbage, "
+        f"{status.lost_lines} lost, {status.elapsed_s:.1f} s   ",
+        err=True, nl=False,
+    )
+
+
+def _f(value: Fraction | None) -> float | None:
+    return None if value is None else float(value)
+
+
+def measurement_json(m: Measurement, stream: SerialResult | None = None) -> dict[str, Any]:
+    edges: dict[str, Any] = {}
+    for name, stats in (("to_high", m.to_high), ("to_low", m.to_low)):
+        lim = m.limits.get(name)
+        edges[name] = {
+            "count": stats.count,
+            "min_s": _f(stats.min_s),
+            "max_s": _f(stats.max_s),
+            "mean_s": stats.mean_s,
+            "std_s": stats.std_s,
+            "percentiles_s": {f"p{p:g}": v for p, v in stats.percentiles},
+            "histogram": {"edges_s": list(stats.histogram_edges_s),
+                          "counts": list(stats.histogram_counts)},
+            "shortest": [{"at_s": float(i.at_s), "gap_s": float(i.gap_s)} for i in stats.shortest],
+            "longest": [{"at_s": float(i.at_s), "gap_s": float(i.gap_s)} for i in stats.longest],
+            "below_window": stats.below_window,
+            "above_window": stats.above_window,
+            "window_min_s": _f(lim.window_min_s) if lim else None,
+            "window_max_s": _f(lim.window_max_s) if lim else None,
+            "predicted_min_s": _f(lim.predicted_min_s) if lim else None,
+            "predicted_max_s": _f(lim.predicted_max_s) if lim else None,
+        }
+    doc: dict[str, Any] = {
+        "source": m.source,
+        "tick_s": float(m.tick_s),
+        "duration_s": float(m.duration_s),
+        "edges": edges,
+        "overlaps": len(m.overlaps),
+        "overlap_events": [{"at_s": float(o.at_s), "duration_s": float(o.duration_s)}
+                           for o in m.overlaps[:100]],
+        "glitches": len(m.glitches),
+        "glitch_events": [{"signal": g.signal, "level": g.level, "at_s": float(g.at_s),
+                           "width_s": float(g.width_s)} for g in m.glitches[:100]],
+        "missing_edges": len(m.missing_edges),
+        "missing_edge_events": [{"at_s": float(f.at_s), "text": f.text}
+                                for f in m.missing_edges[:100]],
+        "unknown_intervals": m.unknown_intervals,
+        "verdict": m.verdict,
+        "reasons": list(m.reasons),
+        "notes": list(m.notes),
+        "warnings": list(m.warnings),
+    }
+    if stream is not None:
+        s = stream.status
+        doc["stream"] = {"stop_reason": stream.stop_reason, "lines": s.lines, "edges": s.edges,
+                         "garbage": s.garbage, "partial": s.partial, "lost_lines": s.lost_lines,
+                         "clock_hz": s.clock_hz, "counter_bits": s.counter_bits,
+                         "elapsed_s": s.elapsed_s}
+    doc["caution"] = CAUTION
+    return doc
+
+
+def _q(value: Fraction | float | None) -> str:
+    return "-" if value is None else format_quantity(value, "s")
+
+
+def measurement_text(m: Measurement, stream: SerialResult | None = None) -> str:
+    lines = [f"Capture: {m.source} (tick {_q(m.tick_s)}, {_q(m.duration_s)} long)"]
+    if stream is not None:
+        s = stream.status
+        lines.append(f"Stream stopped: {stream.stop_reason}; {s.edges} edges, {s.lines} lines, "
+                     f"{s.garbage} garbage, {s.partial} partial, {s.lost_lines} lost")
+    for warning in m.warnings:
+        lines.append(f"Warning: {warning}")
+    lines.append("")
+    lines.append(f"{'edge':<8} {'count':>8} {'min':>11} {'mean':>11} {'max':>11} {'std':>11}"
+                 f"  window")
+    for name in ("to_high", "to_low"):
+        st = m.edge(name)
+        lim = m.limits.get(name)
+        win = "-" if lim is None or (lim.window_min_s is None and lim.window_max_s is None) else (
+            f"{_q(lim.window_min_s)} .. {_q(lim.window_max_s)}")
+        lines.append(f"{name:<8} {st.count:>8} {_q(st.min_s):>11} {_q(st.mean_s):>11} "
+                     f"{_q(st.max_s):>11} {_q(st.std_s):>11}  {win}")
+    for name in ("to_high", "to_low"):
+        st = m.edge(name)
+        if st.percentiles:
+            text = ", ".join(f"p{p:g} {_q(v)}" for p, v in st.percentiles)
+            lines.append(f"{name} percentiles: {text}")
+        if st.shortest:
+            worst = ", ".join(f"{_q(i.gap_s)} at {_q(i.at_s)}" for i in st.shortest)
+            lines.append(f"{name} shortest: {worst}")
+        if st.below_window or st.above_window:
+            lines.append(f"{name}: {st.below_window} below, {st.above_window} above the window")
+    lines.append("")
+    if m.overlaps:
+        lines.append(f"OVERLAPS (shoot-through): {len(m.overlaps)}")
+        for o in m.overlaps[:10]:
+            lines.append(f"  both gates on at {_q(o.at_s)} for {_q(o.duration_s)}")
+    else:
+        lines.append("Overlaps (shoot-through): none")
+    lines.append(f"Glitches: {len(m.glitches)}; missing edges: {len(m.missing_edges)}")
+    for g in m.glitches[:5]:
+        lines.append(f"  glitch on the {g.signal} side at {_q(g.at_s)}, {_q(g.width_s)} wide")
+    for f in m.missing_edges[:5]:
+        lines.append(f"  at {_q(f.at_s)}: {f.text}")
+    for note in m.notes:
+        lines.append(f"Note: {note}")
+    lines.append("")
+    verdict = {"pass": "PASS", "fail": "FAIL", "measured": "MEASURED (no window to judge against)"}
+    lines.append(f"Verdict: {verdict[m.verdict]}")
+    for reason in m.reasons:
+        lines.append(f"  {reason}")
+    lines.append(CAUTION)
+    return "\n".join(lines)
