@@ -184,8 +184,7 @@ def resolve(name_or_path: str) -> Path:
     suggestion = f"; did you mean '{hint[0]}'?" if hint else ""
     raise GapforgeError(
         f"no built-in layout named {name_or_path!r}{suggestion} "
-        f"(built-ins: {', '.join(names)}; or give a path to a .toml layout file)",
-        "target",
+        f"(built-ins: {', '.join(names)}; or give a path to a .toml layout file)"
     )
 
 

@@ -68,8 +68,23 @@ def cli() -> None:
 
 
 def main(argv: list[str] | None = None) -> Any:
+    """Run the CLI. Every user mistake ends as one line on stderr and exit code 2."""
     try:
-        return cli.main(args=argv, prog_name="gapforge", standalone_mode=True)
+        cli.main(args=argv, prog_name="gapforge", standalone_mode=False)
+    except click.exceptions.Exit as exc:
+        sys.exit(exc.exit_code)
+    except click.UsageError as exc:
+        where = exc.ctx.command_path if exc.ctx is not None else "gapforge"
+        _fail(f"{where}: {exc.format_message()}", exc.exit_code)
+    except click.ClickException as exc:
+        _fail(exc.format_message(), exc.exit_code)
+    except click.Abort:
+        _fail("aborted", 130)
     except GapforgeError as exc:
-        click.echo(f"gapforge: error: {exc.line()}", err=True)
-        sys.exit(2)
+        _fail(exc.line(), 2)
+    sys.exit(0)
+
+
+def _fail(message: str, code: int) -> None:
+    click.echo(f"gapforge: error: {' '.join(message.split())}", err=True)
+    sys.exit(code)

@@ -79,7 +79,10 @@ def command(
     low = to_low if to_low is not None else dead_time
     if high is None or low is None:
         raise GapforgeError("give --dead-time, or both --to-high and --to-low", "fit")
-    layout = load_layout(target)
+    try:
+        layout = load_layout(target)
+    except GapforgeError as exc:
+        raise exc.at("--target") if exc.where is None else exc from None
     result = fit(layout, FitRequest(clock, clock_tol, high, low, rounding), divider_code)
     limits = pwm_limits(result, PwmSpec(pwm, counting)) if pwm is not None and result.ok else None
     verdict = (

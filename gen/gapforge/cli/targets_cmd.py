@@ -5,6 +5,7 @@ from __future__ import annotations
 import click
 
 from gapforge.cli.options import Quantity, emit_json, json_option
+from gapforge.errors import GapforgeError
 from gapforge.layouts import builtin_names, load_layout
 from gapforge.views import layout_json, layout_text, table
 
@@ -39,7 +40,10 @@ def show(target: str, clock: object, as_json: bool) -> None:
     """Show one layout (a built-in NAME or a layout FILE)."""
     from fractions import Fraction
 
-    layout = load_layout(target)
+    try:
+        layout = load_layout(target)
+    except GapforgeError as exc:
+        raise exc.at("TARGET") if exc.where is None else exc from None
     clk = clock if isinstance(clock, Fraction) else None
     if as_json:
         emit_json(layout_json(layout, clk))
