@@ -1,0 +1,781 @@
+"""The analog reference network: what an RC-diode-Schmitt dead-time network really delivers.
+
+One channel: a CMOS driver (supply VDD, output resistance Rout, propagation delay) drives a
+resistor R bridged by a fast diode into a capacitor C (plus the Schmitt input capacitance Cin and a
+stray term); a Schmitt-trigger buffer (thresholds VT+ and VT-, propagation delay) reads the node;
+an optional output inverter follows. A complementary pair is two such channels, the low one
+behind an inverter, with independent parts (channel mismatch).
+
+Closed forms (single-time-constant circuits, any circuits textbook):
+    resistor edge   t = (R + Rout)(C + Cin + Cstray) ln(|Vfinal - Vstart| / |Vfinal - Vth|)
+    bypassed edge   fast through Rout + RS until within the diode's knee voltage of the final
+                    value, then through R; when the threshold lies beyond the knee the bypassed
+                    edge is slow too, and the output says so.
+
+Every parameter is a `Band` (min/typ/max); the same table of parameters (`PARAMETERS`) feeds the
+design file's `[reference]` section and the `gapforge analog` options, so they cannot drift apart.
+numpy is imported only inside the functions that evaluate arrays.
+
+Contributor rules: frozen dataclasses for values, no global mutable state, floats only for
+physics; the ranges handed to the fit are Fractions rounded to the safe side.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, replace
+from fractions import Fraction
+from typing import TYPE_CHECKING, Any
+
+from gapforge.errors import GapforgeError
+from gapforge.quantities import (
+    format_quantity,
+    format_tolerance,
+    parse_quantity,
+    parse_tolerance,
+    picoseconds_ceil,
+    picoseconds_floor,
+    picoseconds_nearest,
+)
+
+if TYPE_CHECKING:
+    import numpy as np
+    import numpy.typing as npt
+
+    from gapforge.schema import Table
+
+    FloatArray = npt.NDArray[np.float64]
+
+EDGES = ("rising", "falling")
+BYPASS_CHOICES = ("rising", "falling", "none")
+PAIR_KEYS = ("to_high", "to_low")
+
+# Boltzmann constant over elementary charge (exact SI 2019 constants), V/K.
+K_OVER_Q = 1.380649e-23 / 1.602176634e-19
+ZERO_CELSIUS = 273.15
+REFERENCE_TEMP_C = 25.0  # temperature at which R and C are specified (common practice)
+
+CAUTION = (
+    "CAUTION: a design aid, not a guarantee. A wrong dead time destroys hardware: verify every "
+    "dead time on the bench at reduced voltage with current limiting before full power; local "
+    "codes and licensed practice prevail."
+)
+
+
+# --------------------------------------------------------------------------------------------
+# Values
+
+
+@dataclass(frozen=True)
+class Band:
+    """min/typ/max of one quantity (exact)."""
+
+    min: Fraction
+    typ: Fraction
+    max: Fraction
+
+    @staticmethod
+    def exact(value: Fraction | int) -> Band:
+        v = Fraction(value)
+        return Band(v, v, v)
+
+    def scaled(self, factor: Fraction) -> Band:
+        return Band(self.min * factor, self.typ * factor, self.max * factor)
+
+    def floats(self) -> tuple[float, float, float]:
+        return float(self.min), float(self.typ), float(self.max)
+
+
+@dataclass(frozen=True)
+class Level:
+    """A Schmitt threshold: volts, or a fraction of VDD when `relative`."""
+
+    value: Fraction
+    relative: bool
+
+    def volts(self, vdd: float) -> float:
+        return float(self.value) * vdd if self.relative else float(self.value)
+
+    def text(self) -> str:
+        if self.relative:
+            return f"{float(self.value * 100):g} % VDD"
+        return format_quantity(self.value, "V")
+
+
+@dataclass(frozen=True)
+class LevelBand:
+    min: Level
+    typ: Level
+    max: Level
+
+    def levels(self) -> tuple[Level, Level, Level]:
+        return self.min, self.typ, self.max
+
+
+@dataclass(frozen=True)
+class DiodeModel:
+    """SPICE level-1 diode parameters (floats: physics, not limits). `bv` None = no breakdown."""
+
+    is_: float = 1e-14
+    n: float = 1.0
+    rs: float = 0.0
+    cjo: float = 0.0
+    vj: float = 1.0
+    m: float = 0.5
+    eg: float = 1.11
+    xti: float = 3.0
+    tnom: float = 27.0
+    bv: float | None = None
+    fc: float = 0.5
+
+    def card(self) -> str:
+        """The parameters as a SPICE .model body."""
+        parts = [
+            f"IS={self.is_:.6g}",
+            f"N={self.n:.6g}",
+            f"RS={self.rs:.6g}",
+            f"CJO={self.cjo:.6g}",
+            f"VJ={self.vj:.6g}",
+            f"M={self.m:.6g}",
+            f"EG={self.eg:.6g}",
+            f"XTI={self.xti:.6g}",
+            f"TNOM={self.tnom:.6g}",
+            f"FC={self.fc:.6g}",
+        ]
+        if self.bv is not None:
+            parts.append(f"BV={self.bv:.6g}")
+        return " ".join(parts)
+
+    def saturation_current(self, temp_c: float) -> float:
+        """IS at a temperature: the usual SPICE scaling with EG and XTI."""
+        t = temp_c + ZERO_CELSIUS
+        tn = self.tnom + ZERO_CELSIUS
+        vte = self.n * K_OVER_Q * t
+        return self.is_ * math.exp((t / tn - 1.0) * self.eg / vte + self.xti / self.n * math.log(t / tn))
+
+
+# SPICE defaults for parameters the user leaves out of --diode (the usual level-1 defaults).
+SPICE_DIODE_DEFAULTS = DiodeModel()
+# The default bypass diode: an invented generic small-signal silicon diode (not any real part).
+DEFAULT_DIODE_TEXT = "IS=4n N=1.9 RS=0.6 CJO=1.5p VJ=0.7 M=0.4 EG=1.11 XTI=3 BV=75"
+
+_DIODE_KEYS: dict[str, tuple[str, str, bool]] = {
+    # key: (attribute, unit, allow_negative)
+    "IS": ("is_", "A", False),
+    "N": ("n", "", False),
+    "RS": ("rs", "ohm", False),
+    "CJO": ("cjo", "F", False),
+    "CJ0": ("cjo", "F", False),
+    "VJ": ("vj", "V", False),
+    "M": ("m", "", False),
+    "EG": ("eg", "", False),
+    "XTI": ("xti", "", False),
+    "TNOM": ("tnom", "", True),
+    "BV": ("bv", "V", False),
+    "FC": ("fc", "", False),
+}
+
+
+def parse_diode(text: object, where: str) -> DiodeModel:
+    """'IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5': SPICE diode parameters, defaults for the rest."""
+    if not isinstance(text, str):
+        raise GapforgeError(f"expected diode parameters such as 'IS=1n N=1.8', got {text!r}", where)
+    values: dict[str, float] = {}
+    for token in text.replace(",", " ").split():
+        if "=" not in token:
+            raise GapforgeError(f"expected NAME=value, got {token!r}", where)
+        name, _, value = token.partition("=")
+        key = name.strip().upper()
+        if key not in _DIODE_KEYS:
+            known = ", ".join(k for k in _DIODE_KEYS if k != "CJ0")
+            raise GapforgeError(f"unknown diode parameter {name!r} (expected one of: {known})", where)
+        attr, unit, negative = _DIODE_KEYS[key]
+        allow_zero = attr in ("rs", "cjo", "xti", "tnom")
+        value = value.strip()
+        if attr == "tnom" and value[-1:].upper() == "C":
+            value = value[:-1]
+        number = parse_quantity(value, unit, where, allow_zero=allow_zero, allow_negative=negative)
+        values[attr] = float(number)
+    model = replace(SPICE_DIODE_DEFAULTS, **values)  # type: ignore[arg-type]
+    if not 0.0 < model.m < 1.0:
+        raise GapforgeError(f"diode M={model.m:g} must lie between 0 and 1", where)
+    if not 0.0 <= model.fc < 1.0:
+        raise GapforgeError(f"diode FC={model.fc:g} must lie in 0..1", where)
+    return model
+
+
+@dataclass(frozen=True)
+class ReferenceNetwork:
+    """One channel's parts (each channel of the pair draws its own parts from these bands)."""
+
+    vdd: Band  # V
+    rout: Band  # ohm, driver output resistance
+    driver_delay: Band  # s
+    r: Fraction  # ohm
+    r_tol: Fraction  # relative
+    r_tempco: Fraction  # per kelvin, +/- band
+    c: Fraction  # F
+    c_tol: Fraction
+    c_tempco: Fraction
+    cin: Band  # F, Schmitt input capacitance
+    cstray: Band  # F
+    bypass: str  # which input edge the diode bypasses: rising | falling | none
+    diode: DiodeModel
+    vf: Band | None  # V, closed-form knee; None = derived from the diode model
+    vt_plus: LevelBand
+    vt_minus: LevelBand
+    schmitt_delay: Band  # s
+    output_inverter: bool
+    inverter_delay: Band  # s, the output inverter and the pair's input inverter
+    temp: Band  # degrees C
+    defaults: tuple[str, ...] = ()  # parameter names left at their default
+
+    def r_band(self) -> Band:
+        return Band(self.r * (1 - self.r_tol), self.r, self.r * (1 + self.r_tol))
+
+    def c_band(self) -> Band:
+        return Band(self.c * (1 - self.c_tol), self.c, self.c * (1 + self.c_tol))
+
+    def slow_edges(self) -> tuple[str, ...]:
+        """The input edges that go through R (the delaying edges)."""
+        return tuple(e for e in EDGES if e != self.bypass)
+
+
+@dataclass(frozen=True)
+class EdgeRange:
+    """A proven range of a time, in seconds: min rounded down and max up to 1 ps."""
+
+    min_s: Fraction
+    typ_s: Fraction
+    max_s: Fraction
+
+
+def edge_range(lo: float, typ: float, hi: float) -> EdgeRange:
+    """Floats to a safe exact range: min rounded DOWN, max rounded UP to 1 ps, typ nearest."""
+    return EdgeRange(
+        Fraction(picoseconds_floor(Fraction(lo)), 10**12),
+        Fraction(picoseconds_nearest(Fraction(typ)), 10**12),
+        Fraction(picoseconds_ceil(Fraction(hi)), 10**12),
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# The parameter table shared by the design file and the CLI
+
+
+@dataclass(frozen=True)
+class Parameter:
+    name: str  # design-file key; the CLI option is --name with '_' -> '-'
+    kind: str  # band | value | tolerance | tempco | level | choice | diode | flag
+    unit: str
+    default: str | None  # None = required
+    help: str
+    source: str = ""  # where the default comes from
+
+
+PARAMETERS: tuple[Parameter, ...] = (
+    Parameter("vdd", "band", "V", "3.0:3.3:3.6", "driver and Schmitt supply, min:typ:max",
+              "JESD8C.01 3.3 V supply range"),
+    Parameter("rout", "band", "ohm", "15:25:50", "driver output resistance",
+              "common practice for CMOS logic outputs, from memory"),
+    Parameter("driver_delay", "band", "s", "0", "driver propagation delay (enter the part's)",
+              "none: enter the driver's data"),
+    Parameter("r", "value", "ohm", None, "timing resistor"),
+    Parameter("r_tol", "tolerance", "", "1%", "resistor tolerance", "E96 usual tolerance"),
+    Parameter("r_tempco", "tempco", "", "100ppm", "resistor temperature coefficient, +/- per K",
+              "common practice for thick-film resistors"),
+    Parameter("c", "value", "F", None, "timing capacitor"),
+    Parameter("c_tol", "tolerance", "", "5%", "capacitor tolerance", "common practice"),
+    Parameter("c_tempco", "tempco", "", "30ppm", "capacitor temperature coefficient, +/- per K",
+              "EIA-198 C0G"),
+    Parameter("cin", "band", "F", "3p:5p:8p", "Schmitt input capacitance",
+              "common practice, from memory"),
+    Parameter("cstray", "band", "F", "1p:2p:3p", "stray capacitance at the node",
+              "common practice, from memory"),
+    Parameter("bypass", "choice", "", "falling", "input edge the diode bypasses: rising|falling|none"),
+    Parameter("diode", "diode", "", DEFAULT_DIODE_TEXT, "SPICE diode parameters",
+              "invented generic small-signal silicon diode; SPICE defaults for the rest"),
+    Parameter("vf", "band", "V", "", "diode knee voltage for the closed form",
+              "derived from the diode model: where its current equals the resistor's"),
+    Parameter("vt_plus", "level", "V", "50%:60%:70%", "Schmitt VT+ (volts, or % / 'vdd' of VDD)",
+              "common practice for CMOS Schmitt inputs"),
+    Parameter("vt_minus", "level", "V", "30%:40%:50%", "Schmitt VT- (volts, or % / 'vdd' of VDD)",
+              "common practice for CMOS Schmitt inputs"),
+    Parameter("schmitt_delay", "band", "s", "0", "Schmitt buffer propagation delay (enter the part's)",
+              "none: enter the buffer's data"),
+    Parameter("output_inverter", "flag", "", "false", "an inverter follows the Schmitt buffer"),
+    Parameter("inverter_delay", "band", "s", "0", "inverter propagation delay (output and pair)",
+              "none: enter the inverter's data"),
+    Parameter("temp", "band", "C", "-40:25:125", "ambient temperature, min:typ:max in C",
+              "common practice industrial range"),
+)
+PARAMETER_NAMES = frozenset(p.name for p in PARAMETERS)
+
+# Threshold presets from the JEDEC interface standards (reference-facts: JESD8C.01, JESD8-5,
+# JESD8-7; values from memory, corroborated by public tables). A Schmitt input meeting a standard
+# has VT+ <= VIH min and VT- >= VIL max; the other ends are common practice (0.5 / 0.5 VDD).
+LEVEL_PRESETS: dict[str, dict[str, str]] = {
+    "jedec-3v3": {"vdd": "3.0:3.3:3.6", "vt_plus": "50%:55%:2.0V", "vt_minus": "0.8V:40%:50%"},
+    "jedec-2v5": {"vdd": "2.3:2.5:2.7", "vt_plus": "50%:55%:1.7V", "vt_minus": "0.7V:40%:50%"},
+    "jedec-1v8": {"vdd": "1.65:1.8:1.95", "vt_plus": "50%:55%:65%", "vt_minus": "35%:40%:50%"},
+}
+
+
+def parameter(name: str) -> Parameter:
+    for p in PARAMETERS:
+        if p.name == name:
+            return p
+    raise KeyError(name)
+
+
+def _parse_band(text: object, unit: str, where: str, *, allow_zero: bool, negative: bool) -> Band:
+    if isinstance(text, list):
+        parts: list[object] = list(text)
+    elif isinstance(text, str):
+        parts = [s for s in text.split(":")]
+    else:
+        parts = [text]
+    if len(parts) == 1:
+        parts = parts * 3
+    if len(parts) != 3:
+        raise GapforgeError(f"expected one value or min:typ:max, got {text!r}", where)
+    values = []
+    for part in parts:
+        if isinstance(part, str) and unit == "C":
+            part = part.strip().removesuffix("C").removesuffix("\u00b0").strip()
+            values.append(parse_quantity(part, "", where, allow_zero=True, allow_negative=True))
+        else:
+            values.append(
+                parse_quantity(part, unit, where, allow_zero=allow_zero, allow_negative=negative)
+            )
+    lo, typ, hi = values
+    if not lo <= typ <= hi:
+        raise GapforgeError(f"{text!r}: expected min <= typ <= max", where)
+    return Band(lo, typ, hi)
+
+
+def _parse_level(text: object, where: str) -> Level:
+    if isinstance(text, str):
+        s = text.strip()
+        low = s.lower()
+        if s.endswith("%"):
+            return Level(parse_quantity(s[:-1], "", where) / 100, True)
+        if low.endswith("vdd"):
+            head = s[:-3].strip().rstrip("*").strip()
+            return Level(parse_quantity(head or "1", "", where), True)
+    return Level(parse_quantity(text, "V", where), False)
+
+
+def _parse_level_band(text: object, where: str) -> LevelBand:
+    if isinstance(text, list):
+        parts: list[object] = list(text)
+    elif isinstance(text, str):
+        parts = list(text.split(":"))
+    else:
+        parts = [text]
+    if len(parts) == 1:
+        parts = parts * 3
+    if len(parts) != 3:
+        raise GapforgeError(f"expected one threshold or min:typ:max, got {text!r}", where)
+    a, b, c = (_parse_level(p, where) for p in parts)
+    return LevelBand(a, b, c)
+
+
+def _parse_flag(text: object, where: str) -> bool:
+    if isinstance(text, bool):
+        return text
+    if isinstance(text, str) and text.strip().lower() in ("true", "yes", "1", "on"):
+        return True
+    if isinstance(text, str) and text.strip().lower() in ("false", "no", "0", "off"):
+        return False
+    raise GapforgeError(f"expected true or false, got {text!r}", where)
+
+
+def build_network(
+    raw: Mapping[str, object], problem: Callable[[str, str], None]
+) -> ReferenceNetwork:
+    """A network from raw values (strings, TOML values) keyed by parameter name.
+
+    Every problem is passed to `problem(name, message)`; a default stands in for a bad value so
+    the remaining checks still run. `levels` (a JEDEC preset name) fills vdd and the thresholds
+    unless they are given.
+    """
+    values = dict(raw)
+    preset = values.pop("levels", None)
+    if preset is not None:
+        if not isinstance(preset, str) or preset not in LEVEL_PRESETS:
+            problem("levels", f"{preset!r} is not one of {', '.join(LEVEL_PRESETS)}")
+        else:
+            for key, text in LEVEL_PRESETS[preset].items():
+                values.setdefault(key, text)
+    defaults: list[str] = []
+    parsed: dict[str, Any] = {}
+    for p in PARAMETERS:
+        given = p.name in values and values[p.name] is not None
+        text = values[p.name] if given else p.default
+        if not given:
+            defaults.append(p.name)
+        if text is None:
+            problem(p.name, "required value is missing")
+            parsed[p.name] = Fraction(1)
+            continue
+        try:
+            parsed[p.name] = _parse_one(p, text)
+        except GapforgeError as exc:
+            problem(p.name, exc.message)
+            parsed[p.name] = _parse_one(p, p.default) if p.default is not None else Fraction(1)
+    net = ReferenceNetwork(**parsed, defaults=tuple(defaults))
+    for name, message in check_network(net):
+        problem(name, message)
+    return net
+
+
+def _parse_one(p: Parameter, text: object) -> Any:
+    where = p.name
+    if p.kind == "band":
+        if p.name == "vf" and text == "":
+            return None
+        zero_ok = p.unit in ("s",) or p.name in ("cin", "cstray")
+        return _parse_band(text, p.unit, where, allow_zero=zero_ok, negative=p.unit == "C")
+    if p.kind == "value":
+        return parse_quantity(text, p.unit, where)
+    if p.kind == "tolerance":
+        return parse_tolerance(text, where)
+    if p.kind == "tempco":
+        if isinstance(text, str) and text.strip().lower().endswith("/k"):
+            text = text.strip()[:-2]
+        return parse_tolerance(text, where, limit=Fraction(1, 100))
+    if p.kind == "level":
+        return _parse_level_band(text, where)
+    if p.kind == "choice":
+        if text not in BYPASS_CHOICES:
+            raise GapforgeError(f"{text!r} is not one of {', '.join(BYPASS_CHOICES)}", where)
+        return text
+    if p.kind == "diode":
+        return parse_diode(text, where)
+    if p.kind == "flag":
+        return _parse_flag(text, where)
+    raise AssertionError(p.kind)
+
+
+def check_network(net: ReferenceNetwork) -> list[tuple[str, str]]:
+    """Cross-parameter checks: thresholds inside 0..VDD and VT- <= VT+ at every supply corner."""
+    problems: list[tuple[str, str]] = []
+    for vdd in sorted(set(net.vdd.floats())):
+        for name, band in (("vt_plus", net.vt_plus), ("vt_minus", net.vt_minus)):
+            volts = [lv.volts(vdd) for lv in band.levels()]
+            if any(not 0.0 < v < vdd for v in volts):
+                problems.append((name, f"threshold outside 0..VDD at VDD = {vdd:g} V"))
+                return problems
+            if not volts[0] <= volts[1] <= volts[2]:
+                problems.append((name, f"expected min <= typ <= max at VDD = {vdd:g} V"))
+                return problems
+        plus = [lv.volts(vdd) for lv in net.vt_plus.levels()]
+        minus = [lv.volts(vdd) for lv in net.vt_minus.levels()]
+        if any(m > p for m, p in zip(minus, plus, strict=True)):
+            problems.append(("vt_minus", f"VT- above VT+ at VDD = {vdd:g} V"))
+            return problems
+    if net.diode.bv is not None and net.diode.bv <= float(net.vdd.max):
+        problems.append(("diode", f"BV={net.diode.bv:g} V must exceed the largest VDD"))
+    if net.vf is not None and net.vf.min <= 0:
+        problems.append(("vf", "the knee voltage must be greater than zero"))
+    return problems
+
+
+def read_reference(table: Table) -> ReferenceNetwork:
+    """A design file's `[reference]` table; problems go to the table's Reader, never raised."""
+    allowed = set(PARAMETER_NAMES) | {"levels"}
+    table.check_keys(allowed, required={"r", "c"})
+    raw = {k: v for k, v in table.data.items() if k in allowed}
+    reported: set[str] = set()
+
+    def problem(name: str, message: str) -> None:
+        if name in ("r", "c") and name not in table.data:
+            return  # already reported by check_keys as missing
+        if name not in reported:
+            reported.add(name)
+            table.reader.problem(table.key_path(name), message)
+
+    return build_network(raw, problem)
+
+
+def network_from_options(raw: Mapping[str, object]) -> ReferenceNetwork:
+    """A network from command-line values; the first problem raises, located at its option."""
+    problems: list[tuple[str, str]] = []
+    net = build_network(raw, lambda name, message: problems.append((name, message)))
+    if problems:
+        name, message = problems[0]
+        raise GapforgeError(message, "--" + name.replace("_", "-"))
+    return net
+
+
+# --------------------------------------------------------------------------------------------
+# Closed forms
+
+
+def diode_knee_voltage(diode: DiodeModel, r_ohm: float, temp_c: float) -> float:
+    """The forward voltage at which the diode carries as much current as R at the same voltage.
+
+    Solves IS(T) (exp(v / (N VT)) - 1) = v / R by fixed-point iteration. Below this voltage R
+    carries the charge; above it the diode does. 0 when the diode's zero-bias conductance already
+    exceeds 1/R (a leaky diode shunts R entirely).
+    """
+    import numpy as np
+
+    value = knee_voltage_array(diode, np.asarray([r_ohm], dtype=float), np.asarray([temp_c], dtype=float))
+    return float(value[0])
+
+
+def knee_voltage_array(diode: DiodeModel, r_ohm: FloatArray, temp_c: FloatArray) -> FloatArray:
+    """Vectorised knee voltage: root of v = N VT ln(1 + v / (R IS(T))) (0 if none above 0)."""
+    import numpy as np
+
+    t = temp_c + ZERO_CELSIUS
+    tn = diode.tnom + ZERO_CELSIUS
+    vte = diode.n * K_OVER_Q * t
+    sat = diode.is_ * np.exp((t / tn - 1.0) * diode.eg / vte + diode.xti / diode.n * np.log(t / tn))
+    ris = r_ohm * sat
+    # g(v) = v - vte ln(1 + v/ris) is convex; one fixed-point step from 2 V lands right of the
+    # root, from where Newton converges monotonically.
+    v = vte * np.log1p(2.0 / ris)
+    for _ in range(12):
+        v = v - (v - vte * np.log1p(v / ris)) / (1.0 - vte / (ris + v))
+    result: FloatArray = np.where(vte <= ris, 0.0, np.maximum(v, 0.0))
+    return result
+
+
+def node_delay(
+    edge_bypassed: FloatArray | bool,
+    span: FloatArray,
+    distance: FloatArray,
+    tau_slow: FloatArray,
+    tau_fast: FloatArray,
+    knee: FloatArray,
+) -> FloatArray:
+    """Node delay from an ideal input step to the threshold crossing (no propagation delays).
+
+    span = |Vfinal - Vstart|, distance = |Vfinal - Vth|. On the resistor edge
+    t = tau_slow ln(span / distance). On the bypassed edge the node moves with tau_fast until it is
+    within `knee` of the final value, then with tau_slow.
+    """
+    import numpy as np
+
+    slow: FloatArray = tau_slow * np.log(span / distance)
+    if edge_bypassed is False:
+        return slow
+    k = np.minimum(knee, span)
+    inside = distance >= k
+    safe_k = np.maximum(k, 1e-300)
+    fast_direct = tau_fast * np.log(span / distance)
+    fast_then_slow = tau_fast * np.log(span / safe_k) + tau_slow * np.log(safe_k / distance)
+    bypassed: FloatArray = np.where(inside, fast_direct, fast_then_slow)
+    if edge_bypassed is True:
+        return bypassed
+    result: FloatArray = np.where(edge_bypassed, bypassed, slow)
+    return result
+
+
+# The per-channel random parameters (names used by corners, RSS and Monte Carlo).
+CHANNEL_PARAMS = ("rout", "driver_delay", "r", "c", "r_tc", "c_tc", "cin", "cstray", "vf",
+                  "vt_plus", "vt_minus", "schmitt_delay", "inverter_delay")
+SHARED_PARAMS = ("vdd", "temp", "pair_inverter_delay")
+# The additive propagation delays (their extremes are their band ends, no corners needed).
+DELAY_PARAMS = ("driver_delay", "schmitt_delay", "inverter_delay")
+
+
+def parameter_bands(net: ReferenceNetwork) -> dict[str, tuple[float, float, float]]:
+    """min/typ/max of every random parameter as floats (thresholds: see `values_at`)."""
+    bands: dict[str, tuple[float, float, float]] = {
+        "vdd": net.vdd.floats(),
+        "temp": net.temp.floats(),
+        "pair_inverter_delay": net.inverter_delay.floats(),
+        "rout": net.rout.floats(),
+        "driver_delay": net.driver_delay.floats(),
+        "r": net.r_band().floats(),
+        "c": net.c_band().floats(),
+        "r_tc": (-float(net.r_tempco), 0.0, float(net.r_tempco)),
+        "c_tc": (-float(net.c_tempco), 0.0, float(net.c_tempco)),
+        "cin": net.cin.floats(),
+        "cstray": net.cstray.floats(),
+        "vf": net.vf.floats() if net.vf is not None else (0.0, 0.0, 0.0),
+        "vt_plus": (0.0, 0.5, 1.0),
+        "vt_minus": (0.0, 0.5, 1.0),
+        "schmitt_delay": net.schmitt_delay.floats(),
+        "inverter_delay": net.inverter_delay.floats() if net.output_inverter else (0.0, 0.0, 0.0),
+    }
+    return bands
+
+
+def spread_parameters(net: ReferenceNetwork) -> list[str]:
+    """The parameters whose band is not a single value (the ones that vary)."""
+    bands = parameter_bands(net)
+    names = [k for k, (lo, _, hi) in bands.items() if lo != hi]
+    for key, band in (("vt_plus", net.vt_plus), ("vt_minus", net.vt_minus)):
+        if band.min == band.typ == band.max and key in names:
+            names.remove(key)
+    if net.temp.min == net.temp.max:
+        names = [n for n in names if n not in ("r_tc", "c_tc")]
+    return names
+
+
+def _through(position: FloatArray, lo: float, typ: float, hi: float) -> FloatArray:
+    """Piecewise linear through (0, lo), (0.5, typ), (1, hi), extrapolated beyond."""
+    import numpy as np
+
+    result: FloatArray = np.where(
+        position <= 0.5, lo + (typ - lo) * (position * 2.0), typ + (hi - typ) * (position * 2.0 - 1.0)
+    )
+    return result
+
+
+def values_at(net: ReferenceNetwork, positions: Mapping[str, FloatArray]) -> dict[str, FloatArray]:
+    """Physical values from positions: 0 = min, 0.5 = typ, 1 = max of each parameter's band.
+
+    Thresholds are mapped at the sample's own VDD (a threshold given as a fraction of VDD moves
+    with the supply). Parameters absent from `positions` take their typical value.
+    """
+    import numpy as np
+
+    bands = parameter_bands(net)
+    shape = np.broadcast_shapes(*(np.shape(v) for v in positions.values())) if positions else (1,)
+    out: dict[str, FloatArray] = {}
+    for name, (lo, typ, hi) in bands.items():
+        if name in ("vt_plus", "vt_minus"):
+            continue
+        pos = positions.get(name)
+        if pos is None or lo == hi:
+            out[name] = np.full(shape, typ)
+        else:
+            out[name] = np.broadcast_to(_through(np.asarray(pos, dtype=float), lo, typ, hi), shape)
+    vdd = out["vdd"]
+    for name, band in (("vt_plus", net.vt_plus), ("vt_minus", net.vt_minus)):
+        lo_v, typ_v, hi_v = (
+            vdd * float(lv.value) if lv.relative else np.full(shape, float(lv.value))
+            for lv in band.levels()
+        )
+        pos = np.broadcast_to(np.asarray(positions.get(name, 0.5), dtype=float), shape)
+        out[name] = np.where(
+            pos <= 0.5, lo_v + (typ_v - lo_v) * (pos * 2.0), typ_v + (hi_v - typ_v) * (pos * 2.0 - 1.0)
+        )
+    return out
+
+
+def channel_edge_delays(
+    net: ReferenceNetwork, v: Mapping[str, FloatArray], edges: tuple[str, ...] = EDGES
+) -> dict[str, FloatArray]:
+    """Per input edge: the node delay and the channel delay (input edge to output edge).
+
+    `v` maps every name in CHANNEL_PARAMS and 'vdd', 'temp' to physical values (thresholds in
+    volts). Returns arrays keyed 'node_<edge>' (ideal step to threshold crossing) and '<edge>'
+    (plus driver, Schmitt and output-inverter delays).
+    """
+    import numpy as np
+
+    dt = v["temp"] - REFERENCE_TEMP_C
+    r = v["r"] * (1.0 + v["r_tc"] * dt)
+    c_total = v["c"] * (1.0 + v["c_tc"] * dt) + v["cin"] + v["cstray"]
+    tau_slow = (r + v["rout"]) * c_total
+    vdd = v["vdd"]
+    fixed = v["driver_delay"] + v["schmitt_delay"]
+    if net.output_inverter:
+        fixed = fixed + v["inverter_delay"]
+    out: dict[str, FloatArray] = {}
+    for edge in edges:
+        distance = vdd - v["vt_plus"] if edge == "rising" else v["vt_minus"]
+        if net.bypass != edge:
+            node = tau_slow * np.log(vdd / distance)
+        else:
+            rs = net.diode.rs
+            tau_fast = (v["rout"] + (rs * r / (rs + r) if rs > 0 else 0.0)) * c_total
+            knee = v["vf"] if net.vf is not None else knee_voltage_array(net.diode, r, v["temp"])
+            node = node_delay(True, vdd, distance, tau_slow, tau_fast, knee)
+        out["node_" + edge] = node
+        out[edge] = fixed + node
+    return out
+
+
+def pair_roles(net: ReferenceNetwork) -> dict[str, tuple[str, str]]:
+    """For each dead time, (input edge of the high channel, input edge of the low channel).
+
+    The high channel sees the PWM input, the low channel its inverse. A dead time is the turn-on
+    of one output minus the turn-off of the other on the same PWM edge. The high output turns on
+    on the PWM edge that makes its channel output rise.
+    """
+    rise_on = "falling" if net.output_inverter else "rising"  # channel input edge that turns on
+    other = {"rising": "falling", "falling": "rising"}
+    # to_high: the high channel's input edge is its turn-on edge; the low channel sees the other.
+    return {
+        "to_high": (rise_on, other[rise_on]),
+        "to_low": (other[rise_on], rise_on),
+    }
+
+
+def pair_dead_times(
+    net: ReferenceNetwork,
+    high: Mapping[str, FloatArray],
+    low: Mapping[str, FloatArray],
+    pair_inverter_delay: FloatArray,
+) -> dict[str, FloatArray]:
+    """to_high / to_low from both channels' edge delays (channel_edge_delays outputs)."""
+    roles = pair_roles(net)
+    hi_on, lo_off = roles["to_high"]
+    hi_off, lo_on = roles["to_low"]
+    to_high = high[hi_on] - (pair_inverter_delay + low[lo_off])
+    to_low = (pair_inverter_delay + low[lo_on]) - high[hi_off]
+    return {"to_high": to_high, "to_low": to_low}
+
+
+def reference_dead_times(net: ReferenceNetwork) -> dict[str, EdgeRange]:
+    """Worst-case dead-time ranges of the complementary pair over all tolerances.
+
+    Keys 'to_high' and 'to_low'. Corners over every min/typ/max combination of both channels'
+    independent parts and the shared supply, temperature and pair inverter; checked against a
+    seeded Monte Carlo so a non-monotonic response is not missed (the range is widened if the
+    Monte Carlo finds a value outside it). Min rounded down and max up to 1 ps.
+    """
+    from gapforge.tolerance import worst_case
+
+    result = worst_case(net)
+    return {key: result.pair[key] for key in PAIR_KEYS}
+
+
+def describe_parameters(net: ReferenceNetwork) -> list[tuple[str, str, bool, str]]:
+    """(name, value text, is_default, source) for display: every default is shown."""
+    rows: list[tuple[str, str, bool, str]] = []
+    for p in PARAMETERS:
+        value = getattr(net, p.name)
+        rows.append((p.name, _value_text(p, value, net), p.name in net.defaults, p.source))
+    return rows
+
+
+def _value_text(p: Parameter, value: Any, net: ReferenceNetwork) -> str:
+    if value is None and p.name == "vf":
+        import numpy as np
+
+        temps = np.asarray(net.temp.floats())
+        r = np.full(3, float(net.r))
+        knees = knee_voltage_array(net.diode, r, temps)
+        return "derived: " + " / ".join(
+            f"{k * 1000:.0f} mV at {t:g} C" for k, t in zip(knees, temps, strict=True)
+        )
+    if isinstance(value, Band):
+        unit = "C" if p.unit == "C" else p.unit
+        if p.unit == "C":
+            parts = [f"{float(v):g} C" for v in (value.min, value.typ, value.max)]
+        else:
+            parts = [format_quantity(v, unit) for v in (value.min, value.typ, value.max)]
+        return parts[0] if value.min == value.max else " : ".join(parts)
+    if isinstance(value, LevelBand):
+        return " : ".join(lv.text() for lv in value.levels())
+    if isinstance(value, DiodeModel):
+        return value.card()
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if p.kind == "tolerance":
+        return format_tolerance(value)
+    if p.kind == "tempco":
+        return f"+/- {float(value) * 1e6:g} ppm/K"
+    if isinstance(value, Fraction):
+        return format_quantity(value, p.unit)
+    return str(value)

@@ -1,0 +1,437 @@
+"""Tolerance analysis of the reference network: worst-case corners, RSS, seeded Monte Carlo.
+
+Methods (ECSS-Q-HB-30-01A, worst case analysis; JCGM 100:2008 (GUM) 5.1.2 for the
+root-sum-square of sensitivity x standard uncertainty, 4.3.7 for a uniform band's a/sqrt(3);
+JCGM 101:2008 for Monte Carlo propagation):
+
+- worst case: every min/typ/max combination of the parameters that vary (both channels' parts
+  drawn independently, supply, temperature and the pair's inverter shared), then checked against
+  a seeded Monte Carlo: extreme-value corners can miss the extreme of a non-monotonic response,
+  so the range is widened to any Monte Carlo value outside it and the widening is reported;
+- RSS: central-difference sensitivities at the typical point;
+- Monte Carlo: uniform over each band, or a split normal with the band ends at k sigma; chunked,
+  with exact order statistics from a histogram pass so 10M samples need little memory.
+
+Every parameter is handled as a position: 0 = its min, 0.5 = typ, 1 = max (see analog.values_at).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
+from fractions import Fraction
+
+import numpy as np
+import numpy.typing as npt
+
+from gapforge.analog import (
+    CHANNEL_PARAMS,
+    DELAY_PARAMS,
+    EDGES,
+    PAIR_KEYS,
+    SHARED_PARAMS,
+    EdgeRange,
+    ReferenceNetwork,
+    channel_edge_delays,
+    edge_range,
+    pair_dead_times,
+    pair_roles,
+    parameter_bands,
+    spread_parameters,
+    values_at,
+)
+
+FloatArray = npt.NDArray[np.float64]
+QUANTITIES = ("node_rising", "node_falling", "to_high", "to_low")
+PERCENTILES = (0.135, 50.0, 99.865)
+DEFAULT_SAMPLES = 100_000
+CHUNK = 250_000
+_KEEP_ALL_LIMIT = 2_000_000  # up to this many samples the results are kept and sorted directly
+_LEVELS = (0.0, 0.5, 1.0)
+
+
+# --------------------------------------------------------------------------------------------
+# Evaluation of the pair for arrays of positions
+
+
+def evaluate(
+    net: ReferenceNetwork,
+    shared: Mapping[str, FloatArray],
+    high: Mapping[str, FloatArray],
+    low: Mapping[str, FloatArray],
+) -> dict[str, FloatArray]:
+    """Node delays of the high channel and the pair's dead times for positions (0/0.5/1)."""
+    vh = values_at(net, {**shared, **high})
+    vl = values_at(net, {**shared, **low})
+    dh = channel_edge_delays(net, vh)
+    dl = channel_edge_delays(net, vl)
+    pair = pair_dead_times(net, dh, dl, vh["pair_inverter_delay"])
+    return {"node_rising": dh["node_rising"], "node_falling": dh["node_falling"], **pair}
+
+
+def typical(net: ReferenceNetwork) -> dict[str, float]:
+    half = {"vdd": np.asarray([0.5])}
+    result = evaluate(net, half, {}, {})
+    return {k: float(v[0]) for k, v in result.items()}
+
+
+# --------------------------------------------------------------------------------------------
+# Worst case
+
+
+@dataclass(frozen=True)
+class WorstCase:
+    edges: dict[str, EdgeRange]  # node delays (ideal step to threshold), one channel
+    channel: dict[str, EdgeRange]  # input edge to output edge, one channel
+    pair: dict[str, EdgeRange]  # to_high / to_low
+    floats: dict[str, tuple[float, float, float]]  # the same, unrounded, for display
+    widened: tuple[str, ...]  # quantities whose corners the Monte Carlo check widened
+    check_samples: int
+
+
+def _grid(names: list[str]) -> dict[str, FloatArray]:
+    if not names:
+        return {}
+    mesh = np.meshgrid(*([np.asarray(_LEVELS)] * len(names)), indexing="ij")
+    return {name: m.ravel() for name, m in zip(names, mesh, strict=True)}
+
+
+def corner_extremes(net: ReferenceNetwork) -> dict[str, tuple[float, float, float]]:
+    """min/typ/max over every min/typ/max combination (no Monte Carlo check)."""
+    spread = set(spread_parameters(net))
+    shared_names = [n for n in ("vdd", "temp") if n in spread]
+    shared = _grid(shared_names)
+    n_shared = len(next(iter(shared.values()))) if shared else 1
+    bands = parameter_bands(net)
+    fixed_lo = sum(bands[n][0] for n in DELAY_PARAMS)
+    fixed_hi = sum(bands[n][2] for n in DELAY_PARAMS)
+    node_lo: dict[str, FloatArray] = {}
+    node_hi: dict[str, FloatArray] = {}
+    for edge in EDGES:
+        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS}
+        local_names = [n for n in CHANNEL_PARAMS if n in spread and n not in skip]
+        local = _grid(local_names)
+        n_local = len(next(iter(local.values()))) if local else 1
+        positions: dict[str, FloatArray] = {}
+        for name, arr in shared.items():
+            positions[name] = np.repeat(arr, n_local).reshape(n_shared, n_local)
+        for name, arr in local.items():
+            positions[name] = np.tile(arr, n_shared).reshape(n_shared, n_local)
+        if not positions:
+            positions = {"vdd": np.full((1, 1), 0.5)}
+        values = values_at(net, positions)
+        node = channel_edge_delays(net, values, (edge,))["node_" + edge]
+        node = np.broadcast_to(node, (n_shared, n_local))
+        node_lo[edge] = node.min(axis=1)
+        node_hi[edge] = node.max(axis=1)
+    typ = typical(net)
+    inv_lo, _, inv_hi = bands["pair_inverter_delay"]
+    result: dict[str, tuple[float, float, float]] = {}
+    for edge in EDGES:
+        result["node_" + edge] = (
+            float(node_lo[edge].min()), typ["node_" + edge], float(node_hi[edge].max())
+        )
+        fixed_typ = sum(bands[n][1] for n in DELAY_PARAMS)
+        result[edge] = (
+            float(node_lo[edge].min()) + fixed_lo,
+            typ["node_" + edge] + fixed_typ,
+            float(node_hi[edge].max()) + fixed_hi,
+        )
+    roles = pair_roles(net)
+    for key in PAIR_KEYS:
+        hi_edge, lo_edge = roles[key]
+        if key == "to_high":
+            # high turns on (delayed), low turns off: on - (inverter + off)
+            lo_val = node_lo[hi_edge] + fixed_lo - (inv_hi + node_hi[lo_edge] + fixed_hi)
+            hi_val = node_hi[hi_edge] + fixed_hi - (inv_lo + node_lo[lo_edge] + fixed_lo)
+        else:
+            # low turns on (inverter + delayed), high turns off
+            lo_val = inv_lo + node_lo[lo_edge] + fixed_lo - (node_hi[hi_edge] + fixed_hi)
+            hi_val = inv_hi + node_hi[lo_edge] + fixed_hi - (node_lo[hi_edge] + fixed_lo)
+        result[key] = (float(lo_val.min()), typ[key], float(hi_val.max()))
+    return result
+
+
+def worst_case(
+    net: ReferenceNetwork, check_samples: int = 20_000, seed: int = 20240601
+) -> WorstCase:
+    """Corners, checked (and widened if need be) against a seeded Monte Carlo."""
+    extremes = corner_extremes(net)
+    widened: list[str] = []
+    if check_samples > 0:
+        mc = monte_carlo(net, check_samples, seed=seed)
+        for key in QUANTITIES:
+            lo, typ, hi = extremes[key]
+            stats = mc.stats[key]
+            slack = 1e-12 * max(abs(lo), abs(hi), 1e-12)
+            new_lo = min(lo, stats.min) if stats.min < lo - slack else lo
+            new_hi = max(hi, stats.max) if stats.max > hi + slack else hi
+            if (new_lo, new_hi) != (lo, hi):
+                widened.append(key)
+                extremes[key] = (new_lo, typ, new_hi)
+                # the channel ranges carry the same node widening
+                if key.startswith("node_"):
+                    edge = key[5:]
+                    clo, ctyp, chi = extremes[edge]
+                    extremes[edge] = (clo - (lo - new_lo), ctyp, chi + (new_hi - hi))
+    return WorstCase(
+        edges={e: edge_range(*extremes["node_" + e]) for e in EDGES},
+        channel={e: edge_range(*extremes[e]) for e in EDGES},
+        pair={k: edge_range(*extremes[k]) for k in PAIR_KEYS},
+        floats=extremes,
+        widened=tuple(widened),
+        check_samples=check_samples,
+    )
+
+
+# --------------------------------------------------------------------------------------------
+# Root-sum-square
+
+
+@dataclass(frozen=True)
+class Contribution:
+    name: str  # parameter, prefixed 'high.' / 'low.' for the pair's channel parts
+    sensitivity: float  # d quantity / d parameter, SI units
+    sigma: float  # the parameter's standard uncertainty
+    contribution: float  # |sensitivity| * sigma, seconds
+
+
+@dataclass(frozen=True)
+class RssResult:
+    typ: float
+    sigma: float
+    contributions: tuple[Contribution, ...]  # largest first
+
+    @property
+    def low(self) -> float:
+        return self.typ - 3.0 * self.sigma
+
+    @property
+    def high(self) -> float:
+        return self.typ + 3.0 * self.sigma
+
+
+def rss(
+    net: ReferenceNetwork, distribution: str = "uniform", sigma_band: float = 3.0
+) -> dict[str, RssResult]:
+    """Root-sum-square of sensitivity x standard uncertainty (GUM 5.1.2) per quantity."""
+    spread = spread_parameters(net)
+    bands = parameter_bands(net)
+    shared_names = [n for n in SHARED_PARAMS if n in spread]
+    channel_names = [n for n in CHANNEL_PARAMS if n in spread]
+    entries = [("", n) for n in shared_names]
+    entries += [("high.", n) for n in channel_names] + [("low.", n) for n in channel_names]
+    delta = 1e-4
+    count = 1 + 2 * len(entries)
+    shared: dict[str, FloatArray] = {n: np.full(count, 0.5) for n in shared_names}
+    shared.setdefault("vdd", np.full(count, 0.5))
+    high: dict[str, FloatArray] = {n: np.full(count, 0.5) for n in channel_names}
+    low: dict[str, FloatArray] = {n: np.full(count, 0.5) for n in channel_names}
+    for i, (prefix, name) in enumerate(entries):
+        target = shared if prefix == "" else (high if prefix == "high." else low)
+        target[name][1 + 2 * i] = 0.5 + delta
+        target[name][2 + 2 * i] = 0.5 - delta
+    results = evaluate(net, shared, high, low)
+    out: dict[str, RssResult] = {}
+    for key in QUANTITIES:
+        values = results[key]
+        contributions: list[Contribution] = []
+        total = 0.0
+        for i, (prefix, name) in enumerate(entries):
+            lo, typ, hi = _value_band(net, name, bands)
+            dvalue = 2.0 * delta * (hi - lo)  # value(0.5+d) - value(0.5-d) on the piecewise map
+            dq = float(values[1 + 2 * i] - values[2 + 2 * i])
+            sens = dq / dvalue if dvalue else 0.0
+            divisor = math.sqrt(3.0) if distribution == "uniform" else sigma_band
+            sigma = (hi - lo) / 2.0 / divisor
+            contribution = abs(sens) * sigma
+            total += contribution**2
+            if key.startswith("node_") and prefix == "low.":
+                continue
+            contributions.append(Contribution(prefix + name, sens, sigma, contribution))
+        contributions.sort(key=lambda c: -c.contribution)
+        out[key] = RssResult(float(values[0]), math.sqrt(total), tuple(contributions))
+    return out
+
+
+def _value_band(
+    net: ReferenceNetwork, name: str, bands: Mapping[str, tuple[float, float, float]]
+) -> tuple[float, float, float]:
+    if name in ("vt_plus", "vt_minus"):
+        band = net.vt_plus if name == "vt_plus" else net.vt_minus
+        vdd = float(net.vdd.typ)
+        lo, typ, hi = (lv.volts(vdd) for lv in band.levels())
+        return lo, typ, hi
+    return bands[name]
+
+
+# --------------------------------------------------------------------------------------------
+# Monte Carlo
+
+
+@dataclass(frozen=True)
+class Stats:
+    min: float
+    max: float
+    mean: float
+    percentiles: tuple[float, float, float]  # 0.135 / 50 / 99.865 %
+    share_below: float | None  # fraction of samples below the given minimum (dead times)
+
+
+@dataclass(frozen=True)
+class MonteCarloResult:
+    samples: int
+    seed: int
+    distribution: str
+    sigma_band: float
+    below_s: Fraction | None
+    stats: dict[str, Stats]
+
+
+def _draw(
+    net: ReferenceNetwork,
+    n: int,
+    seed: int,
+    chunk_index: int,
+    distribution: str,
+    sigma_band: float,
+) -> dict[str, FloatArray]:
+    rng = np.random.default_rng([seed, chunk_index])
+    spread = spread_parameters(net)
+
+    def one() -> FloatArray:
+        if distribution == "uniform":
+            return rng.random(n)
+        return 0.5 + rng.standard_normal(n) / (2.0 * sigma_band)
+
+    shared = {name: one() for name in SHARED_PARAMS if name in spread}
+    high = {name: one() for name in CHANNEL_PARAMS if name in spread}
+    low = {name: one() for name in CHANNEL_PARAMS if name in spread}
+    if "vdd" not in shared:
+        shared["vdd"] = np.full(n, 0.5)
+    return evaluate(net, shared, high, low)
+
+
+def monte_carlo(
+    net: ReferenceNetwork,
+    samples: int = DEFAULT_SAMPLES,
+    *,
+    seed: int = 1,
+    distribution: str = "uniform",
+    sigma_band: float = 3.0,
+    below_s: Fraction | None = None,
+    chunk: int = CHUNK,
+) -> MonteCarloResult:
+    """Seeded Monte Carlo of both channels' parts; exact percentiles in modest memory."""
+    if distribution not in ("uniform", "normal"):
+        raise ValueError(distribution)
+    sizes = [min(chunk, samples - start) for start in range(0, samples, chunk)]
+
+    def chunk_results(i: int) -> dict[str, FloatArray]:
+        return _draw(net, sizes[i], seed, i, distribution, sigma_band)
+
+    below = float(below_s) if below_s is not None else None
+    if samples <= _KEEP_ALL_LIMIT:
+        parts = [chunk_results(i) for i in range(len(sizes))]
+        stats = {
+            key: _stats_direct(np.concatenate([p[key] for p in parts]), key, below)
+            for key in QUANTITIES
+        }
+    else:
+        stats = _stats_streaming(chunk_results, len(sizes), samples, below)
+    return MonteCarloResult(samples, seed, distribution, sigma_band, below_s, stats)
+
+
+def _stats_direct(values: FloatArray, key: str, below: float | None) -> Stats:
+    pct = np.percentile(values, PERCENTILES)
+    share = float(np.count_nonzero(values < below)) / len(values) if (
+        below is not None and key in PAIR_KEYS
+    ) else None
+    return Stats(
+        float(values.min()),
+        float(values.max()),
+        float(values.mean()),
+        (float(pct[0]), float(pct[1]), float(pct[2])),
+        share,
+    )
+
+
+def _stats_streaming(
+    chunk_results: Callable[[int], dict[str, FloatArray]],
+    n_chunks: int,
+    total: int,
+    below: float | None,
+) -> dict[str, Stats]:
+    """Three passes over regenerated chunks: extremes, a histogram, then the exact order stats."""
+    lo = {k: math.inf for k in QUANTITIES}
+    hi = {k: -math.inf for k in QUANTITIES}
+    sums = dict.fromkeys(QUANTITIES, 0.0)
+    counts_below = dict.fromkeys(QUANTITIES, 0)
+    for i in range(n_chunks):
+        res = chunk_results(i)
+        for k in QUANTITIES:
+            v = res[k]
+            lo[k] = min(lo[k], float(v.min()))
+            hi[k] = max(hi[k], float(v.max()))
+            sums[k] += float(v.sum())
+            if below is not None:
+                counts_below[k] += int(np.count_nonzero(v < below))
+    bins = 1 << 16
+    hist = {k: np.zeros(bins, dtype=np.int64) for k in QUANTITIES}
+    for i in range(n_chunks):
+        res = chunk_results(i)
+        for k in QUANTITIES:
+            hist[k] += _bin_counts(res[k], lo[k], hi[k], bins)
+    # order statistics needed for numpy's linear percentile: ranks floor(q) and ceil(q)
+    wanted: dict[str, list[tuple[int, int, float]]] = {}
+    for k in QUANTITIES:
+        rows = []
+        for p in PERCENTILES:
+            q = p / 100.0 * (total - 1)
+            rows.append((math.floor(q), math.ceil(q), q - math.floor(q)))
+        wanted[k] = rows
+    cumulative = {k: np.cumsum(hist[k]) for k in QUANTITIES}
+    target_bins = {
+        k: sorted({int(np.searchsorted(cumulative[k], r, side="right")) for row in wanted[k]
+                   for r in row[:2]})
+        for k in QUANTITIES
+    }
+    collected: dict[str, dict[int, list[FloatArray]]] = {
+        k: {b: [] for b in target_bins[k]} for k in QUANTITIES
+    }
+    for i in range(n_chunks):
+        res = chunk_results(i)
+        for k in QUANTITIES:
+            idx = _bin_index(res[k], lo[k], hi[k], bins)
+            for b in target_bins[k]:
+                collected[k][b].append(res[k][idx == b])
+    out: dict[str, Stats] = {}
+    for k in QUANTITIES:
+        def order_stat(rank: int, key: str = k) -> float:
+            b = int(np.searchsorted(cumulative[key], rank, side="right"))
+            before = int(cumulative[key][b - 1]) if b > 0 else 0
+            values = np.sort(np.concatenate(collected[key][b]))
+            return float(values[rank - before])
+
+        pcts = []
+        for r_lo, r_hi, frac in wanted[k]:
+            a = order_stat(r_lo)
+            b_val = order_stat(r_hi)
+            pcts.append(a + (b_val - a) * frac)
+        share = counts_below[k] / total if (below is not None and k in PAIR_KEYS) else None
+        out[k] = Stats(lo[k], hi[k], sums[k] / total, (pcts[0], pcts[1], pcts[2]), share)
+    return out
+
+
+def _bin_index(values: FloatArray, lo: float, hi: float, bins: int) -> npt.NDArray[np.int64]:
+    if hi <= lo:
+        return np.zeros(len(values), dtype=np.int64)
+    idx = ((values - lo) * (bins / (hi - lo))).astype(np.int64)
+    result: npt.NDArray[np.int64] = np.clip(idx, 0, bins - 1)
+    return result
+
+
+def _bin_counts(values: FloatArray, lo: float, hi: float, bins: int) -> npt.NDArray[np.int64]:
+    counts: npt.NDArray[np.int64] = np.bincount(_bin_index(values, lo, hi, bins), minlength=bins)
+    return counts
