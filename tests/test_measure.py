@@ -1,0 +1,161 @@
+"""Measurement checks: hypothesis-built captures whose true gaps are known by construction, and
+exact window judgement at the tick boundary."""
+
+from __future__ import annotations
+
+from fractions import Fraction
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from gapforge.capture import GateCapture, make_capture
+from gapforge.errors import GapforgeError
+from gapforge.measure import Limits, measure_capture
+
+TICK = Fraction(1, 3 * 10**9)  # a tick that is not a decimal fraction of a second
+
+
+def _build(periods: list[tuple[int, int, int, int]]) -> tuple[GateCapture, list[int], list[int]]:
+    """Each period: (to_high gap, high on-time, to_low gap, low on-time) in ticks.
+    A negative gap is an overlap of that length."""
+    ht, hv, lt, lv = [0], [0], [0], [1]
+    t = 10
+    gaps_h: list[int] = []
+    gaps_l: list[int] = []
+    for g_h, on_h, g_l, on_l in periods:
+        lt.append(t); lv.append(0)  # noqa: E702 - low side off
+        ht.append(t + g_h); hv.append(1)  # noqa: E702 - high side on after the gap
+        t_off_h = max(t, t + g_h) + on_h
+        ht.append(t_off_h); hv.append(0)  # noqa: E702
+        lt.append(t_off_h + g_l); lv.append(1)  # noqa: E702
+        gaps_h.append(g_h)
+        gaps_l.append(g_l)
+        t = max(t_off_h, t_off_h + g_l) + on_l
+    order_h = np.argsort(ht, kind="stable")
+    order_l = np.argsort(lt, kind="stable")
+    cap = make_capture(
+        TICK,
+        (np.array(ht, dtype=np.int64)[order_h], np.array(hv, dtype=np.uint8)[order_h]),
+        (np.array(lt, dtype=np.int64)[order_l], np.array(lv, dtype=np.uint8)[order_l]),
+        end=t, source="built",
+    )
+    return cap, gaps_h, gaps_l
+
+
+period = st.tuples(st.integers(-20, 200), st.integers(30, 400), st.integers(-20, 200),
+                   st.integers(30, 400))
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(period, min_size=1, max_size=40))
+def test_known_gaps_recovered(periods: list[tuple[int, int, int, int]]) -> None:
+    cap, gaps_h, gaps_l = _build(periods)
+    m = measure_capture(cap)
+    assert m.to_high.gaps_ticks.tolist() == gaps_h
+    assert m.to_low.gaps_ticks.tolist() == gaps_l
+    expected_overlaps = sum(g < 0 for g in gaps_h) + sum(g < 0 for g in gaps_l)
+    assert len(m.overlaps) == expected_overlaps
+    assert [o.duration_s for o in m.overlaps] == [
+        -g * TICK for pair in zip(gaps_h, gaps_l, strict=True) for g in pair if g < 0]
+    assert m.to_high.min_s == min(gaps_h) * TICK
+    assert m.to_low.max_s == max(gaps_l) * TICK
+    assert m.to_high.mean_s == pytest.approx(float(np.mean(gaps_h)) * float(TICK))
+    assert m.verdict == ("fail" if expected_overlaps or 0 in gaps_h + gaps_l else "measured")
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(period, min_size=1, max_size=30), st.booleans(), st.booleans())
+def test_polarity_inversion_is_transparent(
+    periods: list[tuple[int, int, int, int]], inv_h: bool, inv_l: bool
+) -> None:
+    cap, gaps_h, gaps_l = _build(periods)
+    raw_h = np.where(cap.high_levels == 1, 0, 1).astype(np.uint8) if inv_h else cap.high_levels
+    raw_l = np.where(cap.low_levels == 1, 0, 1).astype(np.uint8) if inv_l else cap.low_levels
+    again = make_capture(TICK, (cap.high_times, raw_h), (cap.low_times, raw_l), end=cap.end,
+                         active_low_high=inv_h, active_low_low=inv_l)
+    m = measure_capture(again)
+    assert m.to_high.gaps_ticks.tolist() == gaps_h
+    assert m.to_low.gaps_ticks.tolist() == gaps_l
+
+
+def test_window_is_exact_at_the_tick() -> None:
+    cap, _, _ = _build([(60, 300, 61, 300)] * 3)
+    # 60 ticks of 1/3 ns = 20 ns exactly: a 20 ns minimum passes, a hair more fails
+    ok = {e: Limits(Fraction(20, 10**9), Fraction(61, 3 * 10**9)) for e in ("to_high", "to_low")}
+    assert measure_capture(cap, limits=ok).verdict == "pass"
+    tight = {"to_high": Limits(Fraction(20, 10**9) + Fraction(1, 10**18), None)}
+    m = measure_capture(cap, limits=tight)
+    assert m.verdict == "fail" and m.to_high.below_window == 3
+    high = {"to_low": Limits(None, Fraction(20, 10**9))}
+    m = measure_capture(cap, limits=high)
+    assert m.verdict == "fail" and m.to_low.above_window == 3 and m.to_high.above_window == 0
+
+
+def test_statistics_and_worst_instances() -> None:
+    gaps = [50, 40, 70, 45, 90, 60]
+    cap, _, _ = _build([(g, 300, 55, 300) for g in gaps])
+    m = measure_capture(cap, percentiles=(50.0,), bins=5, worst=2)
+    st_h = m.to_high
+    assert st_h.count == 6
+    assert [i.gap_s for i in st_h.shortest] == [40 * TICK, 45 * TICK]
+    assert [i.gap_s for i in st_h.longest] == [90 * TICK, 70 * TICK]
+    assert st_h.percentiles[0][1] == pytest.approx(55 * float(TICK))  # median of the six
+    assert sum(st_h.histogram_counts) == 6
+    assert st_h.std_s == pytest.approx(float(np.std(gaps)) * float(TICK))
+    assert m.to_high.gaps_s.shape == (6,)
+    # the instance time stamp is where the low side turned off
+    first = m.to_high.shortest[0]
+    assert first.at_s == TICK * int(m.to_high.at_ticks[1])
+
+
+def test_glitch_listed_and_left_out() -> None:
+    # low side on, a 3-tick on-pulse on the high side during the low side's dead time
+    ht = np.array([0, 100, 103, 200, 500], dtype=np.int64)
+    hv = np.array([0, 1, 0, 1, 0], dtype=np.uint8)
+    lt = np.array([0, 50, 560], dtype=np.int64)
+    lv = np.array([1, 0, 1], dtype=np.uint8)
+    cap = make_capture(TICK, (ht, hv), (lt, lv), end=900)
+    raw = measure_capture(cap)
+    assert raw.to_high.gaps_ticks.tolist() == [50]
+    filtered = measure_capture(cap, glitch_width_s=5 * TICK)
+    assert len(filtered.glitches) == 1 and filtered.glitches[0].width_s == 3 * TICK
+    assert filtered.to_high.gaps_ticks.tolist() == [150]
+    assert filtered.to_low.gaps_ticks.tolist() == [60]
+
+
+def test_glitch_overlap_is_never_hidden() -> None:
+    ht = np.array([0, 100, 102, 300, 600], dtype=np.int64)
+    hv = np.array([0, 1, 0, 1, 0], dtype=np.uint8)
+    lt = np.array([0, 200, 650], dtype=np.int64)
+    lv = np.array([1, 0, 1], dtype=np.uint8)
+    m = measure_capture(make_capture(TICK, (ht, hv), (lt, lv)), glitch_width_s=10 * TICK)
+    assert len(m.overlaps) == 1 and m.overlaps[0].at_s == 100 * TICK
+    assert m.verdict == "fail"
+
+
+def test_missing_edges() -> None:
+    # low turns off, then back on without the high side ever turning on
+    ht = np.array([0, 400, 600], dtype=np.int64)
+    hv = np.array([0, 1, 0], dtype=np.uint8)
+    lt = np.array([0, 100, 150, 350, 650], dtype=np.int64)
+    lv = np.array([1, 0, 1, 0, 1], dtype=np.uint8)
+    m = measure_capture(make_capture(TICK, (ht, hv), (lt, lv)))
+    assert len(m.missing_edges) == 1 and m.missing_edges[0].at_s == 100 * TICK
+    assert m.to_high.gaps_ticks.tolist() == [50]
+    # a level reported twice: the edge between is lost
+    lt2 = np.array([0, 100, 350, 650], dtype=np.int64)
+    lv2 = np.array([1, 0, 0, 1], dtype=np.uint8)
+    m2 = measure_capture(make_capture(TICK, (ht, hv), (lt2, lv2)))
+    assert any("twice" in f.text for f in m2.missing_edges)
+
+
+def test_no_edges_is_bad_input() -> None:
+    t = np.array([0], dtype=np.int64)
+    cap = make_capture(TICK, (t, np.array([0], dtype=np.uint8)), (t, np.array([1], dtype=np.uint8)))
+    with pytest.raises(GapforgeError, match="no dead-time transitions"):
+        measure_capture(cap)
+    empty = make_capture(TICK, (t[:0], np.zeros(0, dtype=np.uint8)), (t, np.array([1], np.uint8)))
+    with pytest.raises(GapforgeError, match="high-side signal never changes"):
+        measure_capture(empty)
