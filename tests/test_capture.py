@@ -1,0 +1,73 @@
+"""gapforge capture CSV (our own documented format) and the common two-gate representation."""
+
+from __future__ import annotations
+
+from fractions import Fraction
+from pathlib import Path
+
+import pytest
+
+from gapforge.capture import load_capture
+from gapforge.errors import GapforgeError
+from gapforge.measure import measure_capture
+
+
+def test_edge_events_exact_decimal_times(tmp_path: Path) -> None:
+    path = tmp_path / "edges.csv"
+    path.write_text(
+        "# invented bench capture\ntime_ns,signal,level\n"
+        "0,gh,0\n0,gl,1\n100,gl,0\n131.25,gh,1\n600,gh,0\n640.5,gl,1\n"
+    )
+    cap = load_capture(path, "gh", "gl")
+    assert cap.tick_s == Fraction(1, 4 * 10**9)  # 0.25 ns: the finest decimal step in the file
+    m = measure_capture(cap)
+    assert m.to_high.min_s == Fraction(3125, 10**11)  # 31.25 ns
+    assert m.to_low.min_s == Fraction(405, 10**10)  # 40.5 ns
+
+
+def test_sampled_with_period_and_active_low(tmp_path: Path) -> None:
+    path = tmp_path / "samples.csv"
+    # the low-side column is active low (0 = gate on)
+    rows = ["0,0"] * 3 + ["0,1"] * 4 + ["1,1"] * 10 + ["0,1"] * 2 + ["0,0"] * 5
+    path.write_text("# sample_period: 2ns\ngh,gl_n\n" + "\n".join(rows) + "\n")
+    cap = load_capture(path, "gh", "gl_n", active_low_low=True)
+    assert cap.tick_s == Fraction(2, 10**9)
+    m = measure_capture(cap)
+    assert m.to_high.gaps_ticks.tolist() == [4]
+    assert m.to_low.gaps_ticks.tolist() == [2]
+    assert m.to_high.min_s == Fraction(8, 10**9)
+
+
+def test_sampled_with_time_column(tmp_path: Path) -> None:
+    path = tmp_path / "timed.csv"
+    path.write_text("time_us,gh,gl\n0,0,1\n0.01,0,0\n0.03,1,0\n0.5,0,0\n0.52,0,1\n")
+    m = measure_capture(load_capture(path, "gh", "gl"))
+    assert m.to_high.min_s == Fraction(2, 10**8)
+    assert m.to_low.min_s == Fraction(2, 10**8)
+
+
+@pytest.mark.parametrize("text,message", [
+    ("", "no header"),
+    ("time_ns,signal,level\n", "no data rows"),
+    ("time_ns,signal,level\n0,gh,0\n1,gl\n", "columns"),
+    ("time_ns,signal,level\n0,gh,0\n-1,gl,1\n", "decimal"),
+    ("time_ns,signal,level\n0,gh,2\n0,gl,1\n", "level"),
+    ("time_ns,signal,level\n5,gh,0\n1,gl,1\n", "backwards"),
+    ("time_qs,gh,gl\n0,0,1\n", "unit"),
+    ("gh,gl\n0,1\n", "sample_period"),
+    ("time_ns,signal,level\n0,gx,0\n0,gl,1\n", "no signal 'gh'"),
+])
+def test_bad_csv(tmp_path: Path, text: str, message: str) -> None:
+    path = tmp_path / "bad.csv"
+    path.write_text(text)
+    with pytest.raises(GapforgeError) as info:
+        load_capture(path, "gh", "gl")
+    assert message in info.value.line()
+    assert "\n" not in info.value.line()
+
+
+def test_binary_csv(tmp_path: Path) -> None:
+    path = tmp_path / "junk.csv"
+    path.write_bytes(b"\x00\xff\xfe" * 100)
+    with pytest.raises(GapforgeError, match="binary"):
+        load_capture(path, "gh", "gl")
