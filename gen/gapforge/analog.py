@@ -779,3 +779,49 @@ def _value_text(p: Parameter, value: Any, net: ReferenceNetwork) -> str:
     if isinstance(value, Fraction):
         return format_quantity(value, p.unit)
     return str(value)
+
+
+def bypass_notes(net: ReferenceNetwork) -> dict[str, str]:
+    """For the bypassed edge: say so when the Schmitt threshold lies beyond the diode's knee.
+
+    Then the diode stops conducting before the node reaches the threshold, the rest goes through
+    R, and the "fast" edge is slow (it bites at low VDD and with a high forward voltage).
+    """
+    import numpy as np
+
+    if net.bypass == "none":
+        return {}
+    edge = net.bypass
+    vdd_lo, vdd_typ, _ = net.vdd.floats()
+    band = net.vt_plus if edge == "rising" else net.vt_minus
+    temps = np.asarray(net.temp.floats())
+    r = np.full(3, float(net.r))
+    if net.vf is not None:
+        knee_typ, knee_max = float(net.vf.typ), float(net.vf.max)
+    else:
+        knees = knee_voltage_array(net.diode, r, temps)
+        knee_typ, knee_max = float(knees[1]), float(knees.max())
+
+    def distance(level: Level, vdd: float) -> float:
+        v = level.volts(vdd)
+        return vdd - v if edge == "rising" else v
+
+    d_typ = distance(band.typ, vdd_typ)
+    d_min = min(distance(lv, vdd) for lv in band.levels() for vdd in (vdd_lo, vdd_typ))
+    if d_typ < knee_typ:
+        return {
+            edge: (
+                f"the bypassed {edge} edge is NOT fast: the threshold lies {d_typ:.3g} V from the "
+                f"final value, inside the diode's knee ({knee_typ:.3g} V), so the last "
+                f"{knee_typ - d_typ:.3g} V go through R"
+            )
+        }
+    if d_min < knee_max:
+        return {
+            edge: (
+                f"the bypassed {edge} edge is slow at some corners: the threshold can lie "
+                f"{d_min:.3g} V from the final value, inside the diode's knee (up to "
+                f"{knee_max:.3g} V), and the rest goes through R"
+            )
+        }
+    return {}

@@ -1,0 +1,416 @@
+"""`gapforge analog`: what the RC-diode-Schmitt reference network really delivers.
+
+Every part of the network is an option (engineering notation, min:typ:max where it varies), or
+`--design FILE` reads the design's `[reference]` section (options given as well override it).
+The options are generated from `analog.PARAMETERS`, the same table the design file uses.
+numpy is imported only inside the command function.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+from collections.abc import Callable
+from fractions import Fraction
+from pathlib import Path
+from typing import Any, TypeVar
+
+import click
+
+from gapforge.analog import (
+    CAUTION,
+    EDGES,
+    LEVEL_PRESETS,
+    PAIR_KEYS,
+    PARAMETERS,
+    ReferenceNetwork,
+    network_from_options,
+)
+from gapforge.errors import GapforgeError
+from gapforge.quantities import format_quantity, parse_quantity, parse_tolerance
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+def _network_options(f: F) -> F:
+    for p in reversed(PARAMETERS):
+        flag = "--" + p.name.replace("_", "-")
+        if p.kind == "flag":
+            f = click.option(
+                f"{flag}/--no-{flag[2:]}", p.name, default=None, help=f"{p.help} [default: no]"
+            )(f)
+            continue
+        default = p.default if p.default else "derived"
+        shown = "required" if p.default is None else f"default: {default}"
+        if p.source:
+            shown += f"; {p.source}"
+        f = click.option(flag, p.name, type=str, default=None, help=f"{p.help} [{shown}]")(f)
+    return f
+
+
+@click.command(
+    "analog", context_settings={"help_option_names": ["-h", "--help"], "max_content_width": 100}
+)
+@click.option("--design", "design", type=click.Path(path_type=Path), default=None,
+              help="Read the network from a design file's [reference] section.")
+@_network_options
+@click.option("--levels", "levels", type=click.Choice(sorted(LEVEL_PRESETS)), default=None,
+              help="Supply and Schmitt thresholds from a JEDEC interface standard "
+              "(given --vdd / --vt-plus / --vt-minus still win).")
+@click.option("--simulate", is_flag=True,
+              help="Add the transient simulation (SPICE-style diode) and the slow edge over "
+              "temperature.")
+@click.option("--leakage-warn", default="20%", show_default=True,
+              help="Warn when diode leakage at the hottest corner takes more than this share "
+              "of the slow edge (with --simulate).")
+@click.option("--monte-carlo", "monte_carlo", is_flag=False, flag_value="100k", default=None,
+              help="Monte Carlo samples (100k when given without a value; up to 10M).")
+@click.option("--seed", type=int, default=1, show_default=True, help="Monte Carlo seed.")
+@click.option("--distribution", type=click.Choice(["uniform", "normal"]), default="uniform",
+              show_default=True, help="Uniform over each band, or normal with the band ends at "
+              "--sigma-band sigma.")
+@click.option("--sigma-band", type=float, default=3.0, show_default=True,
+              help="For --distribution normal: the band ends lie this many sigma out.")
+@click.option("--min-dead", "min_dead", default=None,
+              help="Smallest acceptable dead time: report the share of samples below it; exit 1 "
+              "when the worst case falls below it.")
+@click.option("--suggest", "suggest_t", default=None,
+              help="Propose preferred-value R/C pairs for this typical dead time.")
+@click.option("--suggest-for", type=click.Choice(list(PAIR_KEYS)), default="to_high",
+              show_default=True, help="Which dead time --suggest aims at.")
+@click.option("--series", type=click.Choice(["E12", "E24", "E96"]), default="E96",
+              show_default=True, help="Resistor series for --suggest.")
+@click.option("--c-series", type=click.Choice(["E12", "E24", "E96"]), default="E12",
+              show_default=True, help="Capacitor series for --suggest.")
+@click.option("--json", "as_json", is_flag=True, help="Print JSON instead of text.")
+def command(
+    design: Path | None,
+    levels: str | None,
+    simulate: bool,
+    leakage_warn: str,
+    monte_carlo: str | None,
+    seed: int,
+    distribution: str,
+    sigma_band: float,
+    min_dead: str | None,
+    suggest_t: str | None,
+    suggest_for: str,
+    series: str,
+    c_series: str,
+    as_json: bool,
+    **network: Any,
+) -> None:
+    """Model the RC-diode-Schmitt reference network: edge delays, dead times, tolerances.
+
+    Times are from an ideal input step. A dead time is the delayed turn-on of one output minus
+    the undelayed turn-off of the other on the same input edge: to_high before the high side
+    turns on, to_low before the low side does. Exit 1 when a worst-case dead time is not
+    positive or falls below --min-dead.
+    """
+    raw = {k: v for k, v in network.items() if v is not None}
+    if levels is not None:
+        raw["levels"] = levels
+    net = _load(design, raw)
+    samples = _count(monte_carlo, "--monte-carlo") if monte_carlo is not None else None
+    if sigma_band <= 0:
+        raise GapforgeError("must be greater than zero", "--sigma-band")
+    below = parse_quantity(min_dead, "s", "--min-dead") if min_dead is not None else None
+    warn_share = parse_tolerance(leakage_warn, "--leakage-warn")
+    target = parse_quantity(suggest_t, "s", "--suggest") if suggest_t is not None else None
+    report = analyse(
+        net,
+        simulate=simulate,
+        samples=samples,
+        seed=seed,
+        distribution=distribution,
+        sigma_band=sigma_band,
+        below=below,
+        warn_share=warn_share,
+        target=target,
+        suggest_for=suggest_for,
+        r_series=series,
+        c_series=c_series,
+    )
+    if as_json:
+        click.echo(json.dumps(report, indent=2, sort_keys=True))
+    else:
+        click.echo(render_text(report), nl=False)
+    if report["limit_violated"]:
+        sys.exit(1)
+
+
+def _load(design: Path | None, raw: dict[str, object]) -> ReferenceNetwork:
+    if design is None:
+        return network_from_options(raw)
+    from gapforge.analog import read_reference
+    from gapforge.schema import Reader, load_toml
+
+    data, _ = load_toml(design)
+    reader = Reader(str(design))
+    section = data.get("reference")
+    if section is None:
+        raise GapforgeError("no [reference] section", str(design))
+    table = reader.table(section, "reference")
+    if isinstance(table.data, dict):
+        table.data = {**table.data, **raw}
+    net = read_reference(table)
+    reader.finish()
+    return net
+
+
+def _count(text: str, where: str) -> int:
+    value = parse_quantity(text, "", where)
+    if value.denominator != 1:
+        raise GapforgeError(f"{text!r} is not a whole number of samples", where)
+    if not 100 <= value <= 10**7:
+        raise GapforgeError("expected 100 to 10M samples", where)
+    return int(value)
+
+
+def _range(lo: float, typ: float, hi: float) -> dict[str, float]:
+    return {"min_s": lo, "typ_s": typ, "max_s": hi}
+
+
+def analyse(
+    net: ReferenceNetwork,
+    *,
+    simulate: bool = False,
+    samples: int | None = None,
+    seed: int = 1,
+    distribution: str = "uniform",
+    sigma_band: float = 3.0,
+    below: Fraction | None = None,
+    warn_share: Fraction = Fraction(1, 5),
+    target: Fraction | None = None,
+    suggest_for: str = "to_high",
+    r_series: str = "E96",
+    c_series: str = "E12",
+) -> dict[str, Any]:
+    """Everything `analog` reports, as a JSON-ready dict (floats for display only)."""
+    from gapforge.analog import bypass_notes, describe_parameters
+    from gapforge.tolerance import monte_carlo, rss, worst_case
+
+    wc = worst_case(net)
+    warnings: list[str] = []
+    edges: dict[str, Any] = {}
+    notes = bypass_notes(net)
+    for edge in EDGES:
+        lo, typ, hi = wc.floats["node_" + edge]
+        clo, ctyp, chi = wc.floats[edge]
+        edges[edge] = {
+            "bypassed": net.bypass == edge,
+            "delay_s": typ,
+            "min_s": lo,
+            "max_s": hi,
+            "channel": _range(clo, ctyp, chi),
+        }
+        if edge in notes:
+            edges[edge]["note"] = notes[edge]
+            warnings.append(notes[edge])
+    report: dict[str, Any] = {
+        "caution": CAUTION,
+        "parameters": {
+            name: {"value": text, "default": is_default, "source": source}
+            for name, text, is_default, source in describe_parameters(net)
+        },
+        "edges": edges,
+        "worst_case": {
+            "method": "every min/typ/max corner, checked against a seeded Monte Carlo",
+            "check_samples": wc.check_samples,
+            "widened_by_monte_carlo": list(wc.widened),
+        },
+    }
+    limit_violated = False
+    for key in PAIR_KEYS:
+        rng = wc.pair[key]
+        report[key] = {
+            "min_s": float(rng.min_s),
+            "typ_s": float(rng.typ_s),
+            "max_s": float(rng.max_s),
+            "min_ps": int(rng.min_s * 10**12),
+            "max_ps": int(rng.max_s * 10**12),
+        }
+        if rng.min_s <= 0:
+            limit_violated = True
+            warnings.append(
+                f"{key}: the worst-case dead time is {format_quantity(rng.min_s, 's')}, not "
+                "positive: both outputs can be on together (check the diode orientation and the "
+                "output inverter)"
+            )
+        if below is not None and rng.min_s < below:
+            limit_violated = True
+            warnings.append(
+                f"{key}: the worst-case minimum {format_quantity(rng.min_s, 's')} is below "
+                f"--min-dead {format_quantity(below, 's')}"
+            )
+    sums = rss(net, distribution, sigma_band)
+    report["rss"] = {
+        key: {
+            "typ_s": r.typ,
+            "sigma_s": r.sigma,
+            "low_3sigma_s": r.low,
+            "high_3sigma_s": r.high,
+            "contributions": [
+                {"parameter": c.name, "sensitivity": c.sensitivity, "sigma": c.sigma,
+                 "contribution_s": c.contribution}
+                for c in r.contributions[:6]
+            ],
+        }
+        for key, r in sums.items()
+    }
+    if samples is not None:
+        mc = monte_carlo(
+            net, samples, seed=seed, distribution=distribution, sigma_band=sigma_band,
+            below_s=below,
+        )
+        report["monte_carlo"] = {
+            "samples": mc.samples,
+            "seed": mc.seed,
+            "distribution": mc.distribution,
+            "sigma_band": mc.sigma_band if distribution == "normal" else None,
+            "below_s": float(below) if below is not None else None,
+            "results": {
+                key: {
+                    "min_s": s.min,
+                    "max_s": s.max,
+                    "mean_s": s.mean,
+                    "p0_135_s": s.percentiles[0],
+                    "p50_s": s.percentiles[1],
+                    "p99_865_s": s.percentiles[2],
+                    "share_below": s.share_below,
+                }
+                for key, s in mc.stats.items()
+            },
+        }
+    if simulate:
+        report["simulation"] = _simulation(net, float(warn_share), edges, warnings)
+    if target is not None:
+        from gapforge.preferred import suggest
+
+        report["suggestions"] = {
+            "target_s": float(target),
+            "dead_time": suggest_for,
+            "r_series": r_series,
+            "c_series": c_series,
+            "pairs": [
+                {
+                    "r_ohm": float(s.r),
+                    "c_f": float(s.c),
+                    "typ_s": s.typ_s,
+                    "error": s.error,
+                    **{k: {"min_s": float(v.min_s), "max_s": float(v.max_s)}
+                       for k, v in s.ranges.items()},
+                }
+                for s in suggest(net, target, key=suggest_for, r_series=r_series,
+                                 c_series=c_series)
+            ],
+        }
+    report["warnings"] = warnings
+    report["limit_violated"] = limit_violated
+    return report
+
+
+def _simulation(
+    net: ReferenceNetwork, warn_share: float, edges: dict[str, Any], warnings: list[str]
+) -> dict[str, Any]:
+    from gapforge.simulate import simulated_node_delays, slow_edge_over_temperature
+
+    sim = simulated_node_delays(net)
+    for edge in EDGES:
+        edges[edge]["delay_sim_s"] = sim[edge]
+    points = slow_edge_over_temperature(net)
+    hottest = max(p.temp_c for p in points) if points else None
+    loud = False
+    for p in points:
+        if p.temp_c == hottest and p.erosion > warn_share:
+            loud = True
+            warnings.append(
+                f"WARNING: DIODE LEAKAGE AT {p.temp_c:g} C TAKES {p.erosion * 100:.0f} % OF THE "
+                f"SLOW {p.edge.upper()} EDGE ({format_quantity(p.delay_no_leakage_s, 's')} -> "
+                f"{format_quantity(p.delay_s, 's')}): THE DEAD TIME SHRINKS ON A HOT BOARD. "
+                "Choose a lower-leakage diode or a smaller R."
+            )
+    return {
+        "method": "TR-BDF2 with Newton, SPICE level-1 diode, typical parts",
+        "slow_edge_over_temperature": [
+            {"temp_c": p.temp_c, "edge": p.edge, "delay_s": p.delay_s,
+             "delay_no_leakage_s": p.delay_no_leakage_s, "leakage_erosion": p.erosion}
+            for p in points
+        ],
+        "leakage_warning": loud,
+        "leakage_warn_share": warn_share,
+    }
+
+
+def _t(value: float) -> str:
+    return format_quantity(value, "s", 4)
+
+
+def render_text(report: dict[str, Any]) -> str:
+    """The human-facing report (the caution first and last)."""
+    lines = [report["caution"], "", "Network (default values are marked *):"]
+    for name, row in report["parameters"].items():
+        mark = "*" if row["default"] else " "
+        src = f"  ({row['source']})" if row["default"] and row["source"] else ""
+        lines.append(f"  {mark} {name:<15} {row['value']}{src}")
+    lines += ["", "Node delays (ideal input step to the Schmitt threshold):"]
+    for edge in EDGES:
+        e = report["edges"][edge]
+        kind = "bypassed" if e["bypassed"] else "through R"
+        sim = f"   simulated {_t(e['delay_sim_s'])}" if "delay_sim_s" in e else ""
+        lines.append(
+            f"  {edge:<8} ({kind:<9}) typ {_t(e['delay_s'])}   range {_t(e['min_s'])} .. "
+            f"{_t(e['max_s'])}{sim}"
+        )
+    lines += ["", "Dead times of the complementary pair (worst case over all tolerances):"]
+    for key in PAIR_KEYS:
+        r = report[key]
+        rss_row = report["rss"][key]
+        lines.append(
+            f"  {key:<8} min {_t(r['min_s'])}   typ {_t(r['typ_s'])}   max {_t(r['max_s'])}"
+            f"   (RSS 3 sigma {_t(rss_row['low_3sigma_s'])} .. {_t(rss_row['high_3sigma_s'])})"
+        )
+    widened = report["worst_case"]["widened_by_monte_carlo"]
+    lines.append(
+        "  corners checked against "
+        f"{report['worst_case']['check_samples']} Monte Carlo samples"
+        + (f"; widened for {', '.join(widened)} (non-monotonic)" if widened else "; none beyond them")
+    )
+    if "monte_carlo" in report:
+        mc = report["monte_carlo"]
+        lines += ["", f"Monte Carlo ({mc['samples']} samples, {mc['distribution']}, seed {mc['seed']}):"]
+        for key, s in mc["results"].items():
+            share = (
+                f"   below {_t(mc['below_s'])}: {s['share_below'] * 100:.4g} %"
+                if s["share_below"] is not None else ""
+            )
+            lines.append(
+                f"  {key:<12} min {_t(s['min_s'])}  0.135 % {_t(s['p0_135_s'])}  50 % "
+                f"{_t(s['p50_s'])}  99.865 % {_t(s['p99_865_s'])}  max {_t(s['max_s'])}{share}"
+            )
+    if "simulation" in report:
+        lines += ["", "Slow edge over temperature (simulated, typical parts):"]
+        for p in report["simulation"]["slow_edge_over_temperature"]:
+            lines.append(
+                f"  {p['edge']:<8} {p['temp_c']:>6g} C  {_t(p['delay_s'])}  (without leakage "
+                f"{_t(p['delay_no_leakage_s'])}, leakage takes {p['leakage_erosion'] * 100:.1f} %)"
+            )
+    if "suggestions" in report:
+        sg = report["suggestions"]
+        lines += [
+            "",
+            f"Preferred pairs for {sg['dead_time']} = {_t(sg['target_s'])} "
+            f"(R from {sg['r_series']}, C from {sg['c_series']}):",
+        ]
+        for s in sg["pairs"]:
+            lines.append(
+                f"  R {format_quantity(s['r_ohm'], 'ohm'):>10}  C {format_quantity(s['c_f'], 'F'):>8}"
+                f"  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %)   to_high "
+                f"{_t(s['to_high']['min_s'])} .. {_t(s['to_high']['max_s'])}   to_low "
+                f"{_t(s['to_low']['min_s'])} .. {_t(s['to_low']['max_s'])}"
+            )
+    if report["warnings"]:
+        lines.append("")
+        lines += [f"! {w}" for w in report["warnings"]]
+    lines += ["", report["caution"], ""]
+    return "\n".join(lines)
