@@ -219,7 +219,10 @@ def command(**values: Any) -> None:
     layouts = []
     seen: set[str] = set()
     for name in names:  # each layout is loaded once, before the sweep
-        layout = load_layout(name)
+        try:
+            layout = load_layout(name)
+        except GapforgeError as exc:
+            raise exc.at("--target") from None
         if layout.name not in seen:
             seen.add(layout.name)
             layouts.append(layout)
