@@ -1,0 +1,121 @@
+"""`gapforge analog`: JSON keys, design-file reading, text caution, exit codes."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+from conftest import REPO, run_cli, run_subprocess
+
+NET = ["--r", "4.7k", "--c", "100p"]
+
+
+def test_json_has_the_issue_keys() -> None:
+    code, out, _ = run_cli(["analog", *NET, "--simulate", "--json"])
+    assert code == 0
+    data = json.loads(out)
+    for edge in ("rising", "falling"):
+        assert data["edges"][edge]["delay_s"] > 0
+        assert data["edges"][edge]["delay_sim_s"] > 0
+    for key in ("to_high", "to_low"):
+        r = data[key]
+        assert 0 < r["min_s"] <= r["typ_s"] <= r["max_s"]
+    # the slow edge's simulation agrees with the closed form within a few percent here
+    rising = data["edges"]["rising"]
+    assert rising["delay_sim_s"] == pytest.approx(rising["delay_s"], rel=0.03)
+    assert data["parameters"]["rout"]["default"] is True
+    assert data["parameters"]["r"]["default"] is False
+    assert "bench" in data["caution"]
+
+
+def test_without_simulate_there_is_no_simulated_delay() -> None:
+    code, out, _ = run_cli(["analog", *NET, "--json"])
+    assert code == 0
+    assert "delay_sim_s" not in json.loads(out)["edges"]["rising"]
+
+
+def test_text_output_carries_the_caution_and_shows_defaults() -> None:
+    code, out, _ = run_cli(["analog", *NET, "--monte-carlo", "2000", "--min-dead", "100n"])
+    assert code == 0
+    assert out.count("reduced voltage with current limiting") == 2
+    assert "* rout" in out and "Monte Carlo (2000 samples" in out
+
+
+def test_hot_schottky_warns_loudly() -> None:
+    diode = "IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5 EG=0.69 XTI=2"
+    code, out, _ = run_cli(["analog", "--r", "47k", "--c", "100p", "--diode", diode,
+                            "--simulate", "--json"])
+    data = json.loads(out)
+    assert data["simulation"]["leakage_warning"] is True
+    assert any("DIODE LEAKAGE AT 125 C" in w for w in data["warnings"])
+    assert code == 0
+
+
+def test_wrong_orientation_exits_1() -> None:
+    code, out, _ = run_cli(["analog", *NET, "--bypass", "rising"])
+    assert code == 1
+    assert "not positive" in out
+
+
+def test_min_dead_above_the_worst_case_exits_1() -> None:
+    code, _, _ = run_cli(["analog", *NET, "--min-dead", "400n"])
+    assert code == 1
+
+
+def test_design_file_reference_section(tmp_path: Path) -> None:
+    design = tmp_path / "d.toml"
+    design.write_text(
+        '# invented example\n[reference]\nr = "4.7k"\nc = "100p"\nbypass = "falling"\n'
+        'levels = "jedec-3v3"\n'
+    )
+    code, out, _ = run_cli(["analog", "--design", str(design), "--json"])
+    assert code == 0
+    assert json.loads(out)["parameters"]["vt_plus"]["value"].endswith("2 V")
+    design.write_text('[reference]\nr = "4.7k"\nc = "100p"\nbypas = "falling"\n')
+    code, _, err = run_cli(["analog", "--design", str(design)])
+    assert code == 2
+    assert "reference.bypas" in err and "did you mean 'bypass'" in err
+
+
+@pytest.mark.parametrize(
+    ("args", "where"),
+    [
+        (["--r", "-4.7k", "--c", "100p"], "--r"),
+        (["--r", "4.7k", "--c", "0"], "--c"),
+        (["--r", "4.7k", "--c", "100p", "--vt-plus", "5V"], "--vt-plus"),
+        (["--r", "4.7k", "--c", "100p", "--vt-minus", "2.2V", "--vt-plus", "2.0V"],
+         "--vt-minus"),
+        (["--r", "4.7k", "--c", "100p", "--c-tol", "120%"], "--c-tol"),
+        (["--r", "4.7k", "--c", "100p", "--monte-carlo", "20M"], "--monte-carlo"),
+        (["--r", "4.7k", "--c", "100p", "--diode", "IS=1n BOGUS=2"], "--diode"),
+    ],
+)
+def test_bad_input_is_one_line_exit_2(args: list[str], where: str) -> None:
+    code, out, err = run_cli(["analog", *args])
+    assert code == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and where in lines[0] and "Traceback" not in err
+
+
+def test_bad_input_in_a_fresh_interpreter() -> None:
+    code, _, err = run_subprocess(["analog", "--r", "0", "--c", "100p"])
+    assert code == 2
+    assert err.strip().count("\n") == 0 and "--r" in err and "Traceback" not in err
+
+
+def test_help_does_not_import_numpy() -> None:
+    code = (
+        "import sys\n"
+        "from click.testing import CliRunner\n"
+        "from gapforge.cli import cli\n"
+        "r = CliRunner().invoke(cli, ['analog', '--help'])\n"
+        "assert r.exit_code == 0, r.output\n"
+        "assert '--vt-plus' in r.output\n"
+        "print('numpy' in sys.modules)\n"
+    )
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          env={"PYTHONPATH": str(REPO / "gen")}, check=True)
+    assert proc.stdout.strip() == "False"
