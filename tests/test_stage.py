@@ -341,7 +341,7 @@ def specs(draw: st.DrawFn) -> StageSpec:
     return spec
 
 
-@settings(max_examples=200, deadline=None)
+@settings(deadline=None)
 @given(specs(), st.integers(0, 300))
 def test_a_larger_margin_never_shortens_the_minimum(spec: StageSpec, extra: int) -> None:
     from dataclasses import replace
@@ -355,7 +355,7 @@ def test_a_larger_margin_never_shortens_the_minimum(spec: StageSpec, extra: int)
         assert exact <= before.edges[edge].min_s < exact + PS
 
 
-@settings(max_examples=200, deadline=None)
+@settings(deadline=None)
 @given(specs(), st.integers(0, 10_000))
 def test_a_smaller_loss_budget_never_lengthens_the_maximum(spec: StageSpec, cut: int) -> None:
     from dataclasses import replace

@@ -261,7 +261,7 @@ def windows(draw: st.DrawFn) -> dict[str, tuple[Fraction, Fraction | None]]:
     return out
 
 
-@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(
     windows(),
     st.lists(st.integers(1, 500), min_size=1, max_size=3, unique=True),
