@@ -8,6 +8,7 @@ import sys
 from pathlib import Path
 
 import pytest
+
 from conftest import REPO, run_cli, run_subprocess
 
 NET = ["--r", "4.7k", "--c", "100p"]
@@ -94,7 +95,7 @@ def test_design_file_reference_section(tmp_path: Path) -> None:
     ],
 )
 def test_bad_input_is_one_line_exit_2(args: list[str], where: str) -> None:
-    code, out, err = run_cli(["analog", *args])
+    code, _out, err = run_cli(["analog", *args])
     assert code == 2
     lines = err.strip().splitlines()
     assert len(lines) == 1 and where in lines[0] and "Traceback" not in err

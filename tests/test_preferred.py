@@ -24,7 +24,7 @@ def test_e24_differs_from_the_rounding_formula_in_eight_places() -> None:
 def test_e96_equals_its_formula_and_e12_is_every_other_e24() -> None:
     # reference-facts: E96 = round(100 * 10^(i/96)), i = 0..95, with no exceptions
     assert list(E96) == [round(100 * 10 ** (i / 96)) for i in range(96)]
-    assert E12 == E24[::2]
+    assert E24[::2] == E12
     assert len(E12) == 12 and len(E24) == 24 and len(E96) == 96
 
 

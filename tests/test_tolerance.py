@@ -42,7 +42,7 @@ def test_corners_too_narrow_are_widened_by_the_monte_carlo_check(
 
     def narrow(_net):  # type: ignore[no-untyped-def]
         out = dict(real)
-        lo, typ, hi = out["to_high"]
+        _lo, typ, _hi = out["to_high"]
         out["to_high"] = (typ - 1e-12, typ, typ + 1e-12)
         return out
 

@@ -197,7 +197,7 @@ def parse_diode(text: object, where: str) -> DiodeModel:
             value = value[:-1]
         number = parse_quantity(value, unit, where, allow_zero=allow_zero, allow_negative=negative)
         values[attr] = float(number)
-    model = replace(SPICE_DIODE_DEFAULTS, **values)  # type: ignore[arg-type]
+    model = replace(SPICE_DIODE_DEFAULTS, **values)
     if not 0.0 < model.m < 1.0:
         raise GapforgeError(f"diode M={model.m:g} must lie between 0 and 1", where)
     if not 0.0 <= model.fc < 1.0:
@@ -401,19 +401,19 @@ def build_network(
     the remaining checks still run. `levels` (a JEDEC preset name) fills vdd and the thresholds
     unless they are given.
     """
-    values = dict(raw)
+    values: dict[str, object] = dict(raw)
     preset = values.pop("levels", None)
     if preset is not None:
         if not isinstance(preset, str) or preset not in LEVEL_PRESETS:
             problem("levels", f"{preset!r} is not one of {', '.join(LEVEL_PRESETS)}")
         else:
-            for key, text in LEVEL_PRESETS[preset].items():
-                values.setdefault(key, text)
+            for key, preset_text in LEVEL_PRESETS[preset].items():
+                values.setdefault(key, preset_text)
     defaults: list[str] = []
     parsed: dict[str, Any] = {}
     for p in PARAMETERS:
         given = p.name in values and values[p.name] is not None
-        text = values[p.name] if given else p.default
+        text: object = values[p.name] if given else p.default
         if not given:
             defaults.append(p.name)
         if text is None:

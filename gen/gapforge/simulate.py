@@ -151,7 +151,7 @@ class EdgeResult:
 def _solve(matrix: list[list[float]], rhs: list[float]) -> list[float]:
     """Gaussian elimination with partial pivoting (n <= 3)."""
     n = len(rhs)
-    a = [row[:] + [rhs[i]] for i, row in enumerate(matrix)]
+    a = [[*row[:], rhs[i]] for i, row in enumerate(matrix)]
     for col in range(n):
         pivot = max(range(col, n), key=lambda r: abs(a[r][col]))
         if a[pivot][col] == 0.0:

@@ -100,7 +100,7 @@ def _grid(names: list[str]) -> dict[str, FloatArray]:
 def corner_extremes(net: ReferenceNetwork) -> dict[str, tuple[float, float, float]]:
     """min/typ/max over every min/typ/max combination (no Monte Carlo check)."""
     spread = set(spread_parameters(net))
-    shared_names = [n for n in ("vdd", "temp") if n in spread]
+    shared_names: list[str] = [n for n in ("vdd", "temp") if n in spread]
     shared = _grid(shared_names)
     n_shared = len(next(iter(shared.values()))) if shared else 1
     bands = parameter_bands(net)
@@ -239,7 +239,7 @@ def rss(
         contributions: list[Contribution] = []
         total = 0.0
         for i, (prefix, name) in enumerate(entries):
-            lo, typ, hi = _value_band(net, name, bands)
+            lo, _typ, hi = _value_band(net, name, bands)
             dvalue = 2.0 * delta * (hi - lo)  # value(0.5+d) - value(0.5-d) on the piecewise map
             dq = float(values[1 + 2 * i] - values[2 + 2 * i])
             sens = dq / dvalue if dvalue else 0.0
