@@ -253,6 +253,11 @@ def test_margin_below_one_is_refused() -> None:
 # reading [stage]
 
 
+def test_a_missing_key_is_reported_once() -> None:
+    _, reader = read('[stage]\ntd_off = "35ns"')
+    assert reader.problems == [("stage.td_on", "required key is missing")]
+
+
 def test_read_stage_with_per_switch_overrides() -> None:
     spec, reader = read(
         """
@@ -288,6 +293,7 @@ def test_read_stage_with_per_switch_overrides() -> None:
         ('td_of = "35ns"\ntd_on = "1ns"', "stage.td_of", "did you mean 'td_off'"),
         ('td_off = "-35ns"\ntd_on = "1ns"', "stage.td_off", "must not be negative"),
         ('td_off = "35ns"', "stage.td_on", "required"),
+        ('td_on = "1ns"\n[stage.high]\ntd_off = "3ns"', "stage.td_off", "required"),
         ('td_off = "35ns"\ntd_on = "1ns"\nprop_delay = "9ns:3ns"', "stage.prop_delay", "above MAX"),
         ('td_off = "35ns"\ntd_on = "1ns"\nmargin = 0.8', "stage.margin", "at least 1"),
         ('td_off = "35ns"\ntd_on = "1ns"\nkind = "gallium"', "stage.kind", "not one of"),

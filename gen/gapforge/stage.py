@@ -474,6 +474,12 @@ def read_stage(table: Table) -> StageSpec:
         if sub is not None:
             sub.check_keys(SIDE_KEYS)
         sides[side] = sub
+    for key in ("td_off", "td_on"):
+        present = [sub is not None and sub.has(key) for sub in sides.values()]
+        if not table.has(key) and not all(present):
+            missing = next(s for s, here in zip(SIDES, present, strict=True) if not here)
+            target = sides[missing] or table
+            target.reader.problem(target.key_path(key), "required key is missing")
     timings = {side: _read_timing(table, sides[side]) for side in SIDES}
 
     def time(key: str) -> Fraction:
@@ -520,10 +526,6 @@ def _read_timing(table: Table, side: Table | None) -> SwitchTiming:
         value = source.quantity(key, "s", Fraction(0), allow_zero=True)
         return value if value is not None else Fraction(0)
 
-    for key in ("td_off", "td_on"):
-        if not table.has(key) and not (side is not None and side.has(key)):
-            target = side if side is not None else table
-            target.reader.problem(target.key_path(key), "required key is missing")
     source = side if side is not None and side.has("prop_delay") else table
     prop_min, prop_max = Fraction(0), Fraction(0)
     if source.has("prop_delay"):
