@@ -130,11 +130,14 @@ class Units:
         return num(value * self.factor, self.decimals)
 
 
-def units_for(ticks: Sequence[float]) -> Units:
-    """The prefix that makes the largest tick 1..999, and decimals that tell ticks apart."""
+def units_for(ticks: Sequence[float], scaled: bool = True) -> Units:
+    """The prefix that makes the largest tick 1..999, and decimals that tell ticks apart.
+
+    `scaled=False` keeps plain numbers (counts, ratios): no prefix.
+    """
     big = max((abs(t) for t in ticks), default=0.0)
     exp3 = 0
-    if big > 0:
+    if big > 0 and scaled:
         exp3 = int(math.floor(math.log10(big) / 3) * 3)
         exp3 = max(-15, min(6, exp3))
     factor = 10.0 ** (-exp3)
@@ -169,8 +172,8 @@ class Figure:
     """One SVG drawing. Draw into it, then `render()` once. Coordinates in pixels, y down."""
 
     def __init__(self, ident: str, width: int, height: int, title: str, desc: str = "") -> None:
-        if not ident.replace("-", "").isalnum():
-            raise ValueError(f"figure id {ident!r} must be letters, digits and '-'")
+        if not ident.replace("-", "").replace("_", "").isalnum():
+            raise ValueError(f"figure id {ident!r} must be letters, digits, '-' and '_'")
         self.ident = ident
         self.width = width
         self.height = height
@@ -313,7 +316,7 @@ def x_axis(
     grid_to: float | None = None,
 ) -> Units:
     """A horizontal axis at pixel row y with tick labels in one engineering prefix of `unit`."""
-    units = units_for(ticks)
+    units = units_for(ticks, scaled=bool(unit))
     fig.line(axis.start, y, axis.end, y, Style(INK, width=1.0), "axis")
     for t in ticks:
         x = axis(t)
@@ -337,7 +340,7 @@ def y_axis(
     grid_to: float | None = None,
 ) -> Units:
     """A vertical axis at pixel column x (labels to its left)."""
-    units = units_for(ticks)
+    units = units_for(ticks, scaled=bool(unit))
     fig.line(x, axis.start, x, axis.end, Style(INK, width=1.0), "axis")
     for t in ticks:
         y = axis(t)
@@ -407,7 +410,10 @@ def dimension(
         fig.line(a, y, b, y, s, cls)
         _arrowhead(fig, a, y, +1, head, style.colour, cls)
         _arrowhead(fig, b, y, -1, head, style.colour, cls)
-        fig.text((a + b) / 2, y - 6, label, anchor="middle", size=11, cls=cls + "-label")
+        if text_width(label, 11) <= b - a:
+            fig.text((a + b) / 2, y - 6, label, anchor="middle", size=11, cls=cls + "-label")
+        else:  # a label wider than the dimension starts at its left end
+            fig.text(a, y - 6, label, anchor="start", size=11, cls=cls + "-label")
     else:
         fig.line(a - 3 * head, y, b + 3 * head, y, s, cls)
         _arrowhead(fig, a, y, -1, head, style.colour, cls)
@@ -448,12 +454,16 @@ def vline(fig: Figure, x: float, top: float, bottom: float, style: Style, cls: s
 def legend(
     fig: Figure, x: float, y: float, entries: Sequence[tuple[str, Style, str]], *, across: bool = True
 ) -> None:
-    """Legend entries (label, style, kind) where kind is 'line', 'band', 'bar' or 'marker'.
+    """Legend entries (label, style, kind): kind 'line', 'line+marker', 'band', 'bar', 'marker'.
 
     Each entry shows the same pattern and marker as the series, so the legend reads in greyscale.
+    Entries run across and wrap onto a new row 18 px lower at the figure's right edge.
     """
     cx, cy = x, y
     for label, style, kind in entries:
+        needed = 34 + text_width(label, 11)
+        if across and cx > x and cx + needed > fig.width:
+            cx, cy = x, cy + 18
         if kind == "band":
             fig.rect(cx, cy - 7, 22, 12, style.fill, "legend-swatch", opacity=style.opacity,
                      stroke=Style(style.colour, style.dash, width=1.0))
@@ -461,12 +471,17 @@ def legend(
             fig.rect(cx, cy - 7, 22, 12, style.fill, "legend-swatch",
                      stroke=Style(style.colour, width=0.8))
         else:
-            if kind == "line":
+            if kind in ("line", "line+marker"):
                 fig.line(cx, cy - 1, cx + 22, cy - 1, style, "legend-line")
-            if style.marker != "none":
+            if kind in ("marker", "line+marker") and style.marker != "none":
                 fig.marker(cx + 11, cy - 1, style, "legend-marker", 4.0)
         fig.text(cx + 28, cy + 3, label, size=11, cls="legend-label")
         if across:
-            cx += 40 + 6.5 * len(label)
+            cx += needed + 12
         else:
             cy += 18
+
+
+def text_width(text: str, size: float) -> float:
+    """A generous estimate of a label's width in pixels (sans-serif, about 0.6 em a character)."""
+    return 0.6 * size * len(text)

@@ -1,0 +1,77 @@
+"""`gapforge report`: write a self-contained HTML design report (inline SVG and CSS, no scripts)."""
+
+from __future__ import annotations
+
+import sys
+from fractions import Fraction
+from pathlib import Path
+
+import click
+
+from gapforge.cli.options import Quantity
+from gapforge.errors import GapforgeError
+
+
+@click.command()
+@click.argument("design", type=click.Path(dir_okay=False, path_type=Path))
+@click.option("-o", "--output", "output", type=click.Path(dir_okay=False, path_type=Path),
+              required=True, help="The HTML file to write, e.g. report.html.")
+@click.option("--capture", type=click.Path(dir_okay=False, path_type=Path), default=None,
+              help="A bench capture (.vcd or gapforge capture .csv) to measure and draw.")
+@click.option("--high", default=None, help="High-side gate signal in the capture (top.gate_h).")
+@click.option("--low", default=None, help="Low-side gate signal in the capture (top.gate_l).")
+@click.option("--active-low-high", is_flag=True, help="The high-side signal is active low.")
+@click.option("--active-low-low", is_flag=True, help="The low-side signal is active low.")
+@click.option("--glitch", type=Quantity("s", allow_zero=True), default="0", show_default=True,
+              help="Pulses shorter than this are glitches, left out of the gap statistics.")
+def command(
+    design: Path,
+    output: Path,
+    capture: Path | None,
+    high: str | None,
+    low: str | None,
+    active_low_high: bool,
+    active_low_low: bool,
+    glitch: Fraction,
+) -> None:
+    """Write an HTML design report: timing diagrams, the analog reference's node ramps, the
+    quantization staircases, Monte Carlo and capture histograms, tables of inputs, results,
+    margins and verdicts, and the caution.
+
+    The report is written even when the design fails its verdict (exit code 1 then, as for
+    `build`, and also when a capture shows an overlap or a gap outside the window): a report of
+    a failing design shows why it fails. Bad input writes nothing and
+    exits 2. Rerunning on the same inputs gives a byte-identical file.
+    """
+    from gapforge.build import plan_design
+    from gapforge.design import load_design
+    from gapforge.files import write_files
+    from gapforge.report import capture_limits, render_report
+    from gapforge.views import CAUTION
+
+    if output.suffix.lower() not in (".html", ".htm"):
+        raise GapforgeError("the report is HTML: give a file name ending in .html", "--output")
+    if capture is None and (high is not None or low is not None):
+        raise GapforgeError("--high and --low name signals in a capture: give --capture too",
+                            "--capture")
+    plan = plan_design(load_design(design))
+    measurement = None
+    if capture is not None:
+        if high is None or low is None:
+            raise GapforgeError("name both gate signals with --high and --low", "--capture")
+        if not capture.is_file():
+            raise GapforgeError("no such file", str(capture))
+        from gapforge.capture import load_capture
+        from gapforge.measure import measure_capture
+
+        gate = load_capture(capture, high, low, active_low_high=active_low_high,
+                            active_low_low=active_low_low)
+        measurement = measure_capture(gate, limits=capture_limits(plan), glitch_width_s=glitch)
+    text = render_report(plan, measurement)
+    for path in write_files({output: text}):
+        click.echo(f"wrote {path}")
+    click.echo(f"design verdict: {plan.verdict}"
+               + ("" if measurement is None else f"; capture verdict: {measurement.verdict}"))
+    click.echo(CAUTION)
+    if plan.verdict != "ok" or (measurement is not None and measurement.failed):
+        sys.exit(1)
