@@ -297,7 +297,7 @@ def window_text(
 def command(**values: Any) -> None:
     """Derive the power stage's dead-time window per edge, its breakdown and its costs.
 
-    The minimum is the common-practice sum of delays and skews times a margin; the maximum is
+    The minimum is the sum of delays and skews times a margin (common practice); the maximum is
     what the loss budget allows. Exit 1 on an empty window (or a chosen dead time outside it),
     2 on bad input. A design aid: verify on the bench at reduced voltage with current limiting.
     """
