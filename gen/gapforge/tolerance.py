@@ -67,7 +67,10 @@ def evaluate(
     dh = channel_edge_delays(net, vh)
     dl = channel_edge_delays(net, vl)
     pair = pair_dead_times(net, dh, dl, vh["pair_inverter_delay"])
-    return {"node_rising": dh["node_rising"], "node_falling": dh["node_falling"], **pair}
+    result = {"node_rising": dh["node_rising"], "node_falling": dh["node_falling"], **pair}
+    shape = np.broadcast_shapes(*(np.shape(v) for v in (*shared.values(), *high.values(),
+                                                         *low.values())))
+    return {k: np.broadcast_to(v, shape) for k, v in result.items()}
 
 
 def typical(net: ReferenceNetwork) -> dict[str, float]:

@@ -1,0 +1,78 @@
+"""Benchmark of the analog reference model (a script, not a test: timings vary by machine).
+
+    PYTHONPATH=gen python benchmarks/bench_analog.py
+
+1. Monte Carlo of 1,000,000 samples per edge: gapforge's edge formula against the bare numpy
+   expression of the same formula on the same samples, measured in one run (goal: within 2x).
+   Also the whole `monte_carlo` run (sampling both channels, four quantities, percentiles).
+2. One transient edge to 0.1 % (goal: under 0.2 s), with its error against the closed form.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+
+import numpy as np
+
+from gapforge.analog import channel_edge_delays, network_from_options, values_at
+from gapforge.simulate import EdgeCircuit, edge_circuit, simulate_edge
+from gapforge.tolerance import monte_carlo
+
+N = 1_000_000
+
+
+def best_of(fn, repeat: int = 5) -> float:  # type: ignore[no-untyped-def]
+    times = []
+    for _ in range(repeat):
+        start = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - start)
+    return min(times)
+
+
+def main() -> None:
+    net = network_from_options({"r": "4.7k", "c": "100p", "bypass": "falling"})
+    rng = np.random.default_rng(1)
+    names = ("vdd", "temp", "rout", "r", "c", "r_tc", "c_tc", "cin", "cstray", "vt_plus")
+    values = values_at(net, {n: rng.random(N) for n in names})
+
+    def ours() -> np.ndarray:
+        return channel_edge_delays(net, values, ("rising",))["node_rising"]
+
+    r, rout, c, cin, cs = values["r"], values["rout"], values["c"], values["cin"], values["cstray"]
+    tcr, tcc, temp, vdd, vt = (values["r_tc"], values["c_tc"], values["temp"], values["vdd"],
+                               values["vt_plus"])
+
+    def bare() -> np.ndarray:
+        dt = temp - 25.0
+        return (r * (1.0 + tcr * dt) + rout) * (c * (1.0 + tcc * dt) + cin + cs) * np.log(
+            vdd / (vdd - vt)
+        )
+
+    assert np.allclose(ours(), bare(), rtol=1e-12, atol=0.0)
+    t_ours, t_bare = best_of(ours), best_of(bare)
+    print(f"edge formula, {N:,} samples: gapforge {t_ours * 1e3:.1f} ms, bare numpy "
+          f"{t_bare * 1e3:.1f} ms, ratio {t_ours / t_bare:.2f} (goal <= 2)")
+
+    start = time.perf_counter()
+    monte_carlo(net, N, seed=1)
+    t_mc = time.perf_counter() - start
+    per_edge = t_mc / 4  # two node delays and two dead times, both channels sampled
+    print(f"full Monte Carlo, {N:,} samples (sampling + 4 quantities + percentiles): "
+          f"{t_mc:.2f} s, {per_edge * 1e3:.0f} ms per quantity, "
+          f"ratio to the bare edge expression {per_edge / t_bare:.1f}")
+
+    circuit = edge_circuit(net, "rising")
+    t_edge = best_of(lambda: simulate_edge(circuit), repeat=5)
+    plain = EdgeCircuit(0.0, 3.3, 25.0, 4.7e3, 107e-12, None, False, 27.0, 1.98)
+    exact = plain.tau * math.log(3.3 / (3.3 - 1.98))
+    err = simulate_edge(plain).delay_s / exact - 1.0
+    t_plain = best_of(lambda: simulate_edge(plain), repeat=5)
+    print(f"transient edge with the diode: {t_edge * 1e3:.1f} ms; plain RC edge "
+          f"{t_plain * 1e3:.1f} ms, error against the closed form {err * 100:+.4f} % "
+          f"(goals: < 200 ms, within 0.1 %)")
+
+
+if __name__ == "__main__":
+    main()
