@@ -39,6 +39,7 @@ class OutputPlan:
     verdict: str
     reasons: tuple[str, ...]
     warnings: tuple[str, ...]
+    costs: Any = None  # stage.Costs at the slow-clock (longest) dead times, with a [stage]
 
 
 @dataclass(frozen=True)
@@ -219,7 +220,15 @@ def _plan_output(
     if limits is not None and limits.verdict != "ok" and verdict == "ok":
         verdict = limits.verdict
         reasons.append(limits.reason)
-    return OutputPlan(output, result, limits, judgements, verdict, tuple(reasons), tuple(warnings))
+    costs = None
+    if design.stage is not None:
+        from gapforge.stage import stage_costs
+
+        longest = {e: result.edges[e].achieved_max_s for e in EDGES}
+        costs = stage_costs(design.stage, longest)  # type: ignore[arg-type]
+    return OutputPlan(
+        output, result, limits, judgements, verdict, tuple(reasons), tuple(warnings), costs
+    )
 
 
 def _reason(edge: str, j: EdgeJudgement, window: Bounds, amin: Fraction, amax: Fraction) -> str:

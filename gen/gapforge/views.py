@@ -328,6 +328,7 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
                 "output_verdict": op.verdict,
                 "reasons": list(op.reasons),
                 "warnings": list(op.warnings),
+            "costs": None if op.costs is None else costs_json(op.costs),
                 "margins": {
                     e: {
                         "low_s": _f(j.margin_low_s),
@@ -385,6 +386,8 @@ def plan_text(plan: BuildPlan) -> str:
     for op in plan.outputs:
         for w in op.warnings:
             lines.append(f"warning: {op.output.prefix}: {w}")
+        if op.costs is not None:
+            lines.append(f"{op.output.prefix}: " + costs_text(op.costs))
         if op.limits is not None:
             lines.append("")
             lines.append(f"{op.output.prefix}: " + pwm_text(op.limits))
@@ -392,6 +395,29 @@ def plan_text(plan: BuildPlan) -> str:
         lines.append(f"{plan.verdict}: {r}")
     lines.append(f"verdict: {plan.verdict}")
     return "\n".join(lines)
+
+
+def costs_text(costs: Any) -> str:
+    """One line: what the fitted dead time costs at its longest (slow clock)."""
+    parts = [
+        f"reverse conduction {format_quantity(costs.reverse_conduction_w, 'W', 4)}",
+        f"recovery {format_quantity(costs.recovery_w, 'W', 4)}",
+    ]
+    if costs.duty_lost is not None:
+        parts.append(f"duty lost {float(costs.duty_lost) * 100:.4g} %")
+    if costs.voltage_error_v is not None:
+        parts.append(f"average output-voltage error {format_quantity(costs.voltage_error_v, 'V', 4)}")
+    return "costs at the longest dead time: " + ", ".join(parts)
+
+
+def costs_json(costs: Any) -> dict[str, Any]:
+    return {
+        "reverse_conduction_w": float(costs.reverse_conduction_w),
+        "recovery_w": float(costs.recovery_w),
+        "duty_lost": _f(costs.duty_lost),
+        "voltage_error_v": _f(costs.voltage_error_v),
+        "reverse_voltage_v": float(costs.reverse_voltage_v),
+    }
 
 
 def _output_rows(op: OutputPlan) -> list[list[str]]:
