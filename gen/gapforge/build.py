@@ -53,6 +53,7 @@ class BuildPlan:
     outputs: tuple[OutputPlan, ...]
     verdict: str
     reasons: tuple[str, ...]
+    warnings: tuple[str, ...] = ()
 
 
 def judge(window: Bounds, achieved_min: Fraction, achieved_max: Fraction) -> EdgeJudgement:
@@ -99,8 +100,33 @@ def _windows(
     return stage_result, reference, stage_window, window
 
 
+def _reference_warnings(
+    reference: dict[str, Any] | None, stage_window: dict[str, Bounds] | None
+) -> list[str]:
+    """Where the analog reference itself does not meet the power stage's window."""
+    out: list[str] = []
+    if reference is None or stage_window is None:
+        return out
+    for e in EDGES:
+        lo, hi = stage_window[e]
+        r = reference[e]
+        if lo is not None and r.min_s < lo:
+            out.append(
+                f"{e}: the analog reference's worst-case minimum {float(r.min_s) * 1e9:.6g} ns is "
+                f"below the stage's minimum {float(lo) * 1e9:.6g} ns: the old network was not safe "
+                "at every tolerance corner"
+            )
+        if hi is not None and r.max_s > hi:
+            out.append(
+                f"{e}: the analog reference's worst-case maximum {float(r.max_s) * 1e9:.6g} ns is "
+                f"above the stage's maximum {float(hi) * 1e9:.6g} ns"
+            )
+    return out
+
+
 def plan_design(design: Design) -> BuildPlan:
     stage_result, reference, stage_window, window = _windows(design)
+    warnings = tuple(_reference_warnings(reference, stage_window))
     reasons: list[str] = []
     requested: dict[str, Fraction] = {}
     for e in EDGES:
@@ -145,6 +171,7 @@ def plan_design(design: Design) -> BuildPlan:
             (),
             "empty-window",
             tuple(reasons),
+            warnings,
         )
     request = FitRequest(
         clock_hz=design.clock_hz,
@@ -170,6 +197,7 @@ def plan_design(design: Design) -> BuildPlan:
         outputs,
         verdict,
         tuple(reasons),
+        warnings,
     )
 
 

@@ -305,6 +305,7 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
         "source": d.source,
         "verdict": plan.verdict,
         "reasons": list(plan.reasons),
+        "warnings": list(plan.warnings),
         "requested": None
         if plan.request is None
         else {e: float(plan.request.requested(e)) for e in EDGES},
@@ -356,9 +357,14 @@ def plan_text(plan: BuildPlan) -> str:
                 f"  analog reference {e}: {_t(r.min_s)} .. {_t(r.max_s)} (typical {_t(r.typ_s)})"
             )
     if plan.window is not None:
+        what = "stage window" + (" within the reference's range" if plan.reference else "")
         for e in EDGES:
             lo, hi = plan.window[e]
-            lines.append(f"  window {e}: {_t(lo)} .. {_t(hi) if hi is not None else 'no maximum'}")
+            lines.append(
+                f"  {what} {e}: {_t(lo)} .. {_t(hi) if hi is not None else 'no maximum'}"
+            )
+    for w in plan.warnings:
+        lines.append(f"warning: {w}")
     if plan.request is not None:
         lines.append(
             "  requested: " + ", ".join(f"{e} {_t(plan.request.requested(e))}" for e in EDGES)
