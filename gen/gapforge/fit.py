@@ -151,7 +151,8 @@ def _choose(f: Field, request: FitRequest, target: Fraction, scale: Fraction) ->
         return None
     i = f.at_least(ceil_fraction(exact))
     candidates = [j for j in (i, (len(values) if i is None else i) - 1) if j is not None and j >= 0]
-    return min(candidates, key=lambda j: (abs(values[j] - exact), values[j]))
+    # an exact tie goes to the longer value: the safe side
+    return min(candidates, key=lambda j: (abs(values[j] - exact), -values[j]))
 
 
 def _edge_max(layout: Layout, request: FitRequest, edge: str, divider_code: int | None) -> Fraction:
