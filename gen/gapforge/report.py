@@ -559,7 +559,7 @@ def distribution_figure(
     top = max(counts) if counts else 1
     width, height = 480, 340
     xa = Axis(edges[0], edges[-1], 70.0, width - 20.0)
-    _, c_hi = nice_range(0.0, float(max(top, 1)), 5)
+    _, c_hi = nice_range(0.0, 1.1 * float(max(top, 1)), 5)
     ya = Axis(0.0, c_hi, 250.0, 50.0)
     title = f"{what}: {edge}"
     fig = Figure(ident, width, height, title, f"Histogram of {what} with the window.")
@@ -576,9 +576,10 @@ def distribution_figure(
     x_axis(fig, xa, ya.start, nice_ticks(edges[0], edges[-1], 6), "s", "dead time")
     for bound, name in zip(window, ("min", "max"), strict=True):
         if bound is not None:
-            vline(fig, xa(float(bound)), ya.end - 6, ya.start, PALETTE["window"], f"window-{name}")
-            fig.text(xa(float(bound)), ya.end - 10, f"window {name}", anchor="middle", size=10,
-                     cls="window-label")
+            x = xa(float(bound))
+            vline(fig, x, ya.end - 6, ya.start, PALETTE["window"], f"window-{name}")
+            fig.text(x + 3 if name == "min" else x - 3, ya.end - 10, f"window {name}",
+                     anchor="start" if name == "min" else "end", size=10, cls="window-label")
     entries = [(what, style, "bar"), ("window", PALETTE["window"], "line")]
     if digital is not None:
         vline(fig, xa(float(digital[0])), ya.end, ya.start, PALETTE["digital"], "digital")

@@ -1,0 +1,449 @@
+"""The HTML design report (issue 6): figures hold the right numbers at the right places, the
+report is byte-identical on rerun, the command's exit codes, and a real browser renders it."""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import shutil
+import struct
+import subprocess
+import tempfile
+import xml.etree.ElementTree as ET
+import zlib
+from pathlib import Path
+
+import pytest
+
+from conftest import REPO
+from gapforge.build import BuildPlan, plan_design
+from gapforge.design import load_design
+from gapforge.report import MC_SAMPLES, render_report
+
+SVG = "{http://www.w3.org/2000/svg}"
+
+# An INVENTED design (no real board or part): 160 MHz timer with 1 % tolerance, 100 kHz
+# centre-aligned PWM, an analog reference network and a power stage whose window gives the request.
+DESIGN = """\
+# invented test design
+format = 1
+name = "report-demo"
+description = "Invented half bridge for the report tests"
+
+[timer]
+clock = "160MHz"
+tolerance = "1%"
+
+[pwm]
+frequency = "100kHz"
+counting = "center"
+
+[dead_time]
+source = "window"
+
+[reference]
+r = "1k"
+c = "100p"
+bypass = "falling"
+
+[stage]
+td_off = "35ns"
+t_fall = "20ns"
+td_on = "10ns"
+prop_delay = "20ns:45ns"
+mismatch = "5ns"
+current = "10A"
+fsw = "100kHz"
+loss_budget = "2W"
+bus_voltage = "48V"
+
+[[output]]
+target = "shared-8bit-linear"
+prefix = "A_DT"
+file = "a.h"
+"""
+
+
+@pytest.fixture(scope="module")
+def design_file(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    path = tmp_path_factory.mktemp("report") / "demo.toml"
+    path.write_text(DESIGN)
+    return path
+
+
+@pytest.fixture(scope="module")
+def plan(design_file: Path) -> BuildPlan:
+    return plan_design(load_design(design_file))
+
+
+@pytest.fixture(scope="module")
+def html(plan: BuildPlan) -> str:
+    return render_report(plan)
+
+
+def svgs(text: str) -> dict[str, ET.Element]:
+    """Every inline SVG of the page, parsed as XML, by its id."""
+    found = re.findall(r"<svg .*?</svg>", text, re.S)
+    roots = [ET.fromstring(s) for s in found]
+    return {str(r.get("id")): r for r in roots}
+
+
+def of_class(root: ET.Element, tag: str, cls: str) -> list[ET.Element]:
+    return [e for e in root.iter(SVG + tag) if e.get("class") == cls]
+
+
+def axis_pairs(root: ET.Element, vertical_ticks: bool, unit: float) -> list[tuple[float, float]]:
+    """(value, pixel) of one axis's ticks, read back from the tick marks and their labels.
+
+    x-axis ticks are vertical marks labelled centred below; y-axis ticks are horizontal marks
+    labelled to their left. The check reads the drawing, not the report's own scale.
+    """
+    ticks = [t for t in of_class(root, "line", "tick")
+             if (t.get("x1") == t.get("x2")) == vertical_ticks]
+    anchor = "middle" if vertical_ticks else "end"
+    labels = [lab for lab in of_class(root, "text", "tick-label")
+              if lab.get("text-anchor") == anchor]
+    coord = "x1" if vertical_ticks else "y1"
+    return [(float(str(lab.text)) * unit, float(str(t.get(coord))))
+            for t, lab in zip(ticks, labels, strict=True)]
+
+
+def x_scale(root: ET.Element, seconds_per_unit: float) -> tuple[float, float]:
+    """(pixel of t = 0, pixels per second) of the figure's x axis."""
+    pairs = axis_pairs(root, True, seconds_per_unit)
+    (t0, x0), (t1, x1) = pairs[0], pairs[-1]
+    per = (x1 - x0) / (t1 - t0)
+    return x0 - t0 * per, per
+
+
+def y_scale(root: ET.Element, unit: float) -> tuple[float, float]:
+    """(pixel of value 0, pixels per unit value) of the figure's y axis (negative: y grows down)."""
+    pairs = axis_pairs(root, False, unit)
+    (v0, y0), (v1, y1) = pairs[0], pairs[-1]
+    per = (y1 - y0) / (v1 - v0)
+    return y0 - v0 * per, per
+
+
+def polyline(root: ET.Element, cls: str) -> list[tuple[float, float]]:
+    line = of_class(root, "polyline", cls)[0]
+    return [tuple(map(float, p.split(","))) for p in str(line.get("points")).split()]  # type: ignore[misc]
+
+
+# --- numbers worked by hand for the design above ------------------------------------------------
+# Stage minimum (common practice formula, see gapforge.stage): (35 + 20 - 10 + (45 - 20) + 5) ns
+# x 1.2 = 90 ns. Timer step 1 / 160 MHz = 6.25 ns; safe rounding needs k x 6.25 ns / 1.01 >= 90 ns,
+# k >= 14.544, so k = 15 -> 93.75 ns, worst case 93.75 / 1.01 = 92.8218 ns .. 93.75 / 0.99.
+STEP = 6.25e-9
+ACHIEVED = 15 * STEP
+PERIOD = 1 / 100e3
+TOL = 0.01
+
+
+def test_plan_matches_the_hand_arithmetic(plan: BuildPlan) -> None:
+    assert plan.verdict == "ok"
+    assert plan.request is not None and float(plan.request.requested("to_high")) == 90e-9
+    assert float(plan.outputs[0].fit.edges["to_high"].achieved_s or 0) == ACHIEVED
+
+
+def test_timing_diagram_places_the_edges_in_proportion(html: str) -> None:
+    root = svgs(html)["timing-0"]
+    origin, per_s = x_scale(root, 1e-6)  # the overview axis counts in microseconds
+    # centre-aligned at 50 % duty: the command rises at T/4 and falls at 3T/4; the high side
+    # turns on one dead time after the rise; the low side one dead time after the fall.
+    high = polyline(root, "gate-high")
+    low = polyline(root, "gate-low")
+    rise_high = high[1][0]
+    fall_low = low[1][0]
+    rise_low = low[3][0]
+    assert fall_low == pytest.approx(origin + PERIOD / 4 * per_s, abs=0.02)
+    assert rise_high == pytest.approx(origin + (PERIOD / 4 + ACHIEVED) * per_s, abs=0.02)
+    assert rise_low == pytest.approx(origin + (3 * PERIOD / 4 + ACHIEVED) * per_s, abs=0.02)
+    labels = [t.text for t in of_class(root, "text", "dim-to_high-label")]
+    assert labels == ["to_high 93.75 ns"]
+    # the clock-tolerance band spans achieved / 1.01 .. achieved / 0.99 after the command edge
+    band = of_class(root, "rect", "tolerance-to_high")[0]
+    x = float(str(band.get("x")))
+    w = float(str(band.get("width")))
+    assert x == pytest.approx(origin + (PERIOD / 4 + ACHIEVED / (1 + TOL)) * per_s, abs=0.02)
+    assert w == pytest.approx(ACHIEVED * (1 / (1 - TOL) - 1 / (1 + TOL)) * per_s, abs=0.02)
+    # window edges: 90 ns after each command edge
+    win = of_class(root, "line", "window-min-to_high")[0]
+    assert float(str(win.get("x1"))) == pytest.approx(origin + (PERIOD / 4 + 90e-9) * per_s,
+                                                      abs=0.02)
+
+
+def test_transition_zoom_is_to_scale(html: str) -> None:
+    root = svgs(html)["zoom-0-to_high"]
+    origin, per_s = x_scale(root, 1e-9)
+    heads = of_class(root, "polygon", "dim-head")
+    tips = sorted(float(str(h.get("points")).split()[0].split(",")[0]) for h in heads)
+    assert tips == pytest.approx([origin, origin + ACHIEVED * per_s], abs=0.02)
+    request = of_class(root, "line", "request")[0]
+    assert float(str(request.get("x1"))) == pytest.approx(origin + 90e-9 * per_s, abs=0.02)
+
+
+def test_staircase_steps_at_the_safe_rounding_breakpoints(html: str) -> None:
+    root = svgs(html)["stair-0-gap"]
+    x0, px = x_scale(root, 1e-9)
+    pts = polyline(root, "staircase")
+    y_origin, y_per = y_scale(root, 1e-9)
+    levels = sorted({y for _, y in pts}, reverse=True)  # pixels, lowest value first
+    # levels are whole steps of 6.25 ns, six each side of the chosen 15 steps (0.02 px: the
+    # coordinates are written with two decimals)
+    assert levels == pytest.approx([y_origin + k * STEP * y_per for k in range(9, 22)], abs=0.02)
+    # value k serves requests in (k - 1, k] x 6.25 ns / 1.01: the risers sit at those requests
+    risers = sorted({x for x, _ in pts})
+    assert risers == pytest.approx([x0 + k * STEP / 1.01 * px for k in range(8, 22)], abs=0.02)
+    chosen = [t.text for t in of_class(root, "text", "chosen-label")]
+    assert chosen == ["chosen 93.75 ns"]
+
+
+def test_analog_ramp_follows_the_textbook_rc_charge(html: str) -> None:
+    root = svgs(html)["analog-rising"]
+    origin, per_s = x_scale(root, 1e-9)
+    # Single-time-constant charging (Sedra & Smith, Microelectronic Circuits, STC circuits):
+    # tau = (R + Rout)(C + Cin + Cstray) = (1000 + 25) x (100 + 5 + 2) pF = 109.675 ns, and the
+    # typical VT+ = 60 % VDD is reached after tau ln(1 / 0.4) = 100.493 ns.
+    tau = 1025 * 107e-12
+    label = of_class(root, "text", "dim-delay-label")[0].text or ""
+    assert f"closed form {tau * math.log(2.5) * 1e9:.1f} ns" in label
+    # the closed-form curve passes 63.2121 % of VDD (1 - 1/e) at one time constant
+    y_origin, y_per = y_scale(root, 1.0)
+    curve = [((x - origin) / per_s, (y - y_origin) / y_per)
+             for x, y in polyline(root, "ramp-closed-form")]
+    before = max(p for p in curve if p[0] <= tau)
+    after = min(p for p in curve if p[0] > tau)
+    v_tau = before[1] + (after[1] - before[1]) * (tau - before[0]) / (after[0] - before[0])
+    assert v_tau / 3.3 == pytest.approx(1 - math.exp(-1), abs=0.004)  # chord error of 80 points
+
+
+def test_monte_carlo_histogram_holds_every_sample(html: str) -> None:
+    root = svgs(html)["mc-to_high"]
+    _, per_count = y_scale(root, 1.0)
+    per_count = -per_count
+    total = sum(float(str(b.get("height"))) / per_count for b in of_class(root, "rect", "bar"))
+    assert total == pytest.approx(MC_SAMPLES, abs=0.01 * 40)  # 40 bars, 0.005 px rounding each
+    # the digital value is drawn at 93.75 ns
+    origin, per_s = x_scale(root, 1e-9)
+    digital = of_class(root, "line", "digital")[0]
+    assert float(str(digital.get("x1"))) == pytest.approx(origin + ACHIEVED * per_s, abs=0.02)
+
+
+def test_tables_carry_inputs_with_units_results_and_the_caution(html: str) -> None:
+    for text in ("160 MHz", "1 %", "93.75 ns", "92.8218 ns", "90 ns", "Margins to the window",
+                 "Minimum breakdown, to_high (common practice)", "reduced voltage",
+                 "current limiting", "licensed practice prevail", "Design verdict: <strong>ok"):
+        assert text in html, text
+    assert "<script" not in html.lower()
+    assert "http://" not in html.replace("http://www.w3.org/2000/svg", "")
+    assert "https://" not in html
+
+
+def test_report_is_byte_identical_on_rerun(design_file: Path, html: str) -> None:
+    again = render_report(plan_design(load_design(design_file)))
+    assert again == html
+
+
+def test_absent_inputs_leave_their_sections_out_and_say_so(tmp_path: Path) -> None:
+    bare = tmp_path / "bare.toml"
+    head = DESIGN.split("[reference]")[0].replace('source = "window"', 'value = "50ns"')
+    bare.write_text(head + '[[output]]\ntarget = "shared-8bit-linear"\nprefix = "A"\nfile = "a.h"\n')
+    text = render_report(plan_design(load_design(bare)))
+    figures = svgs(text)
+    assert "Absent: the design has no [reference] section" in text
+    assert "Absent: no capture was given" in text
+    assert "Absent: the design has neither a [stage] nor a [reference] section" in text
+    assert not any(k.startswith(("analog-", "mc-", "capture-")) for k in figures)
+    assert "timing-0" in figures and "zoom-0-to_low" in figures
+
+
+def capture_csv(path: Path) -> None:
+    """An invented capture in gapforge's CSV: 200 periods of 10 us; to_high gaps of 94..98 ns,
+    to_low gaps of 94..96 ns, except period 77 where the low side turns on 20 ns early."""
+    lines = ["time_ns,signal,level", "0,gh,0", "0,gl,1"]
+    for k in range(200):
+        base = k * 10_000
+        lines += [f"{base + 2500},gl,0", f"{base + 2500 + 94 + k % 5},gh,1"]
+        if k == 77:
+            lines += [f"{base + 7480},gl,1", f"{base + 7500},gh,0"]
+        else:
+            lines += [f"{base + 7500},gh,0", f"{base + 7500 + 96 - k % 3},gl,1"]
+    path.write_text("\n".join(lines) + "\n")
+
+
+def run(args: list[str], cwd: Path) -> subprocess.CompletedProcess[str]:
+    env = dict(os.environ, PYTHONPATH=str(REPO / "gen"))
+    return subprocess.run(["python3", "-m", "gapforge", *args], cwd=cwd, env=env,
+                          capture_output=True, text=True, timeout=120)
+
+
+def test_command_with_capture_draws_gaps_and_the_overlap(design_file: Path, tmp_path: Path) -> None:
+    cap = tmp_path / "cap.csv"
+    capture_csv(cap)
+    out = tmp_path / "r.html"
+    result = run(["report", str(design_file), "-o", str(out), "--capture", str(cap),
+                  "--high", "gh", "--low", "gl"], tmp_path)
+    assert result.returncode == 1, result.stderr  # the overlap fails the capture
+    text = out.read_text()
+    figures = svgs(text)
+    assert of_class(figures["capture-to_high"], "text", "figure-title")[0].text == \
+        "measured gaps: to_high (200 values)"
+    overlaps = figures["overlaps"]
+    origin, per_s = x_scale(overlaps, 1e-3)  # the capture axis counts in milliseconds
+    marker = of_class(overlaps, "polygon", "overlap")
+    assert len(marker) == 1
+    tip_x = float(str(marker[0].get("points")).split()[0].split(",")[0])
+    # the overlap starts when the low side turns on: 77 x 10 us + 7480 ns = 777.48 us
+    assert tip_x == pytest.approx(origin + 777.48e-6 * per_s, abs=0.02)
+    second = tmp_path / "r2.html"
+    run(["report", str(design_file), "-o", str(second), "--capture", str(cap), "--high", "gh",
+         "--low", "gl"], tmp_path)
+    assert second.read_bytes() == out.read_bytes()
+
+
+@pytest.mark.parametrize(
+    ("args", "where"),
+    [
+        (["report", "missing.toml", "-o", "r.html"], "missing.toml"),
+        (["report", "{design}", "-o", "r.txt"], "--output"),
+        (["report", "{design}", "-o", "r.html", "--high", "gh"], "--capture"),
+        (["report", "{design}", "-o", "r.html", "--capture", "nope.csv", "--high", "a",
+          "--low", "b"], "nope.csv"),
+    ],
+)
+def test_bad_input_is_one_line_exit_2_and_writes_nothing(design_file: Path, tmp_path: Path,
+                                                         args: list[str], where: str) -> None:
+    result = run([a.replace("{design}", str(design_file)) for a in args], tmp_path)
+    assert result.returncode == 2
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and where in lines[0] and "Traceback" not in result.stderr
+    assert not (tmp_path / "r.html").exists() and not (tmp_path / "r.txt").exists()
+
+
+def test_a_failing_design_still_gets_its_report_with_exit_1(tmp_path: Path) -> None:
+    # invented: a 20 ns request against the 90 ns stage minimum -> too-short
+    design = tmp_path / "short.toml"
+    text = DESIGN.replace('source = "window"', 'value = "20ns"')
+    design.write_text(text)
+    out = tmp_path / "short.html"
+    result = run(["report", str(design), "-o", str(out)], tmp_path)
+    assert result.returncode == 1, result.stderr
+    page = out.read_text()
+    assert "Design verdict: <strong>too-short" in page
+    assert "is below the window" in page
+
+
+# --- a real browser -------------------------------------------------------------------------------
+
+
+def browser() -> str | None:
+    for candidate in ("/usr/bin/chromium", "chromium", "chromium-browser", "google-chrome"):
+        found = shutil.which(candidate)
+        if found:
+            return found
+    return None
+
+
+def decode_png(data: bytes) -> tuple[int, int, int, bytes]:
+    """(width, height, bytes per pixel, raw pixels) of an 8-bit RGB/RGBA PNG (ISO/IEC 15948,
+    the PNG specification: chunks, zlib stream, per-row filters 0-4 with the Paeth predictor)."""
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"
+    pos, idat = 8, b""
+    width = height = bpp = 0
+    while pos < len(data):
+        (n,) = struct.unpack(">I", data[pos : pos + 4])
+        kind, body = data[pos + 4 : pos + 8], data[pos + 8 : pos + 8 + n]
+        pos += 12 + n
+        if kind == b"IHDR":
+            width, height, depth, colour, _, _, interlace = struct.unpack(">IIBBBBB", body)
+            assert depth == 8 and colour in (2, 6) and interlace == 0
+            bpp = 3 if colour == 2 else 4
+        elif kind == b"IDAT":
+            idat += body
+    raw = zlib.decompress(idat)
+    import numpy as np
+
+    stride = width * bpp
+    out = np.zeros((height, stride), dtype=np.uint8)
+    prev = np.zeros(stride, dtype=np.uint8)
+    for r in range(height):
+        f = raw[r * (stride + 1)]
+        line = np.frombuffer(raw, dtype=np.uint8, count=stride, offset=r * (stride + 1) + 1)
+        if f == 0:
+            cur = line.copy()
+        elif f == 1:  # Sub: a running sum per channel, modulo 256
+            cur = np.cumsum(line.reshape(width, bpp), axis=0, dtype=np.uint8).reshape(stride)
+        elif f == 2:  # Up
+            cur = line + prev
+        else:  # Average (3) and Paeth (4) depend on the decoded left byte: byte by byte
+            cur_l = [0] * stride
+            src, up = line.tolist(), prev.tolist()
+            for i in range(stride):
+                a = cur_l[i - bpp] if i >= bpp else 0
+                b = up[i]
+                if f == 3:
+                    cur_l[i] = (src[i] + (a + b) // 2) & 255
+                else:
+                    c = up[i - bpp] if i >= bpp else 0
+                    p = a + b - c
+                    pa, pb, pc = abs(p - a), abs(p - b), abs(p - c)
+                    pred = a if pa <= pb and pa <= pc else (b if pb <= pc else c)
+                    cur_l[i] = (src[i] + pred) & 255
+            cur = np.array(cur_l, dtype=np.uint8)
+        out[r] = cur
+        prev = cur
+    return width, height, bpp, out.tobytes()
+
+
+def test_decode_png_on_a_known_image() -> None:
+    # A 2x2 RGB image written here with filter types 1 and 4 (PNG spec, section 9) decodes to
+    # the pixels it encodes.
+    import numpy as np
+
+    pixels = np.array([[[255, 0, 0], [0, 255, 0]], [[0, 0, 255], [255, 255, 255]]], np.uint8)
+    p = pixels.astype(int)
+    row0 = bytes([1]) + bytes(pixels[0, 0]) + bytes(((p[0, 1] - p[0, 0]) % 256).tolist())
+    # Paeth row: for the first pixel a = c = 0 so the predictor is b (the pixel above)
+    first = (p[1, 0] - p[0, 0]) % 256
+    second = []
+    for ch in range(3):
+        a, b, c = int(pixels[1, 0, ch]), int(pixels[0, 1, ch]), int(pixels[0, 0, ch])
+        p = a + b - c
+        pa, pb, pc = abs(p - a), abs(p - b), abs(p - c)
+        pred = a if pa <= pb and pa <= pc else (b if pb <= pc else c)
+        second.append((int(pixels[1, 1, ch]) - pred) % 256)
+    row1 = bytes([4]) + bytes(first.tolist()) + bytes(second)
+
+    def chunk(kind: bytes, body: bytes) -> bytes:
+        return struct.pack(">I", len(body)) + kind + body + struct.pack(
+            ">I", zlib.crc32(kind + body))
+
+    png = (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", struct.pack(">IIBBBBB", 2, 2, 8, 2, 0, 0, 0))
+           + chunk(b"IDAT", zlib.compress(row0 + row1)) + chunk(b"IEND", b""))
+    assert decode_png(png) == (2, 2, 3, pixels.tobytes())
+
+
+def test_headless_browser_renders_a_non_blank_page(html: str) -> None:
+    exe = browser()
+    if exe is None:
+        pytest.skip("no Chromium on this machine (.ci/run installs it where apt-get exists)")
+    with tempfile.TemporaryDirectory() as tmp:
+        page = Path(tmp) / "report.html"
+        page.write_text(html, encoding="utf-8")
+        shot = Path(tmp) / "shot.png"
+        # a device scale of 0.5 keeps the PNG small enough to decode quickly in pure Python
+        cmd = [exe, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic",
+               "--no-first-run", "--disable-background-networking",
+               "--disable-component-update", "--disable-sync",
+               f"--user-data-dir={Path(tmp) / 'profile'}", "--force-device-scale-factor=0.5",
+               f"--screenshot={shot}", "--window-size=1200,2000", page.as_uri()]
+        subprocess.run(cmd, capture_output=True, timeout=120, check=False)
+        assert shot.is_file(), "the browser wrote no screenshot"
+        width, height, bpp, pixels = decode_png(shot.read_bytes())
+    assert width >= 300 and height >= 500
+    colours = {pixels[i : i + 3] for i in range(0, len(pixels), bpp * 7)}
+    non_white = sum(1 for i in range(0, len(pixels), bpp)
+                    if pixels[i : i + 3] != b"\xff\xff\xff")
+    assert len(colours) >= 20, "too few colours: the page did not draw its figures"
+    assert non_white > 0.05 * width * height, "the page is (nearly) blank"
