@@ -1,0 +1,270 @@
+"""Timer layouts as data (gapforge.layouts): the built-ins load and round-trip over their whole
+code space; bad layout files are refused with one message naming the file and the key path.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from conftest import BUILTINS
+from gapforge.errors import GapforgeError
+from gapforge.layouts import Layout, builtin_names, load_layout
+
+
+def test_every_builtin_is_listed_and_loads() -> None:
+    assert tuple(builtin_names()) == BUILTINS
+    for name in BUILTINS:
+        layout = load_layout(name)
+        assert layout.name == name
+        assert layout.summary and "\n" not in layout.summary
+        assert layout.source == f"targets/{name}.toml"
+        assert len(layout.sha256) == 64
+        # one field for both edges, or one per edge
+        roles = sorted(f.role for f in layout.dead_time_fields)
+        assert roles in (["both"], ["to_high", "to_low"])
+
+
+def _code_space(layout: Layout) -> list[tuple[str, int]]:
+    return [(f.name, code) for f in layout.fields for code in range(f.mask + 1)]
+
+
+@pytest.mark.parametrize("name", BUILTINS)
+def test_pack_unpack_round_trip_over_every_code(name: str) -> None:
+    layout = load_layout(name)
+    others = {f.name: 0 for f in layout.fields}
+    for fname, code in _code_space(layout):
+        f = layout.field_named(fname)
+        word = layout.pack({**others, fname: code})
+        # the code lands exactly at the field's offset, nothing else set
+        assert word == code << f.offset
+        assert word < 1 << layout.register_bits
+        assert layout.unpack(word) == {**others, fname: code}
+    # all fields at their top code at once: the word is the OR of the in-place masks
+    full = {f.name: f.mask for f in layout.fields}
+    word = layout.pack(full)
+    expected = 0
+    for f in layout.fields:
+        expected |= f.mask << f.offset
+    assert word == expected
+    assert layout.unpack(word) == full
+
+
+@pytest.mark.parametrize("name", BUILTINS)
+def test_decode_agrees_with_table_and_reserved_codes_never_appear(name: str) -> None:
+    layout = load_layout(name)
+    for f in layout.dead_time_fields:
+        steps, codes = f.table
+        assert len(steps) == len(codes)
+        assert list(steps) == sorted(set(steps)), "table must be strictly increasing"
+        for s, c in zip(steps, codes, strict=True):
+            assert f.decode(c) == s
+            assert f.allowed(c)
+            assert c not in f.reserved
+        listed = set(codes)
+        for code in range(f.mask + 1):
+            in_range = f.min_code <= code <= f.max_code
+            assert (code in listed) == (in_range and code not in f.reserved)
+        with pytest.raises(ValueError):
+            f.decode(f.mask + 1)
+
+
+def test_builtin_encodings_by_hand() -> None:
+    # shared-16bit-plus-one: steps = code + 1 over 0..65535
+    f = load_layout("shared-16bit-plus-one").field_named("gap_minus_one")
+    assert (f.decode(0), f.decode(65535)) == (1, 65536)
+    # shared-8bit-segmented: top 2 bits select; 0x96 = select 2, low 22 -> 192 + 22 x 4 = 280
+    g = load_layout("shared-8bit-segmented").field_named("gap_code")
+    assert g.decode(0x96) == 280
+    assert [g.decode(c) for c in (0, 63, 64, 127, 128, 191, 192, 255)] == [
+        0, 63, 64, 190, 192, 444, 448, 952,
+    ]
+    # split-6bit-div2-reserved: codes 0 and 1 reserved, so the smallest allowed value is 2 steps
+    h = load_layout("split-6bit-div2-reserved").field_named("to_high_count")
+    assert h.table[0][:2] == (2, 3) and h.table[1][:2] == (2, 3)
+    assert h.reserved == frozenset({0, 1})
+    # split-9bit-subclock: 16 sub-steps per clock, 2-bit divider field
+    sub = load_layout("split-9bit-subclock")
+    assert sub.sub_steps == 16 and sub.dividers == (1, 2, 4, 8) and sub.divider_field == "scale"
+
+
+# ---------------------------------------------------------------------------------------------
+# bad layout files: one small file each, an exact message naming the file and the key path
+
+HEAD = 'format = 1\nsummary = "invented test layout"\nregister_bits = 16\n'
+BOTH8 = '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidth = 8\n'
+
+
+def _seg(width: int, bits: int, segments: str) -> str:
+    return (
+        f'[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidth = {width}\n'
+        f'encoding = "segmented"\nselect_bits = {bits}\nsegment = [{segments}]\n'
+    )
+
+
+BAD_LAYOUTS: dict[str, tuple[str, str]] = {
+    "overlapping-fields": (
+        HEAD + '[clock]\ndividers = [1, 2]\ndivider_field = "div"\n' + BOTH8
+        + '[[field]]\nname = "div"\nrole = "divider"\noffset = 7\nwidth = 1\n',
+        "field[1]: field 'div' overlaps field 'gap'",
+    ),
+    "field-past-register": (
+        HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 10\nwidth = 8\n',
+        "field[0]: bits 10..17 do not fit a 16-bit register",
+    ),
+    "segments-overlap": (
+        # range 0: 0 + low x 1 over low 0..7 ends at 7; range 1 starts at 7: overlap
+        HEAD + _seg(4, 1, "{select = 0, base = 0, multiplier = 1}, "
+                          "{select = 1, base = 7, multiplier = 2}"),
+        "field[0].segment[1]: range 1 starts at 7 steps, not above range 0's last value 7: "
+        "ranges overlap or run backwards",
+    ),
+    "segments-gap": (
+        # range 0 ends at 7; range 1 starts at 11: a jump of 4 steps, wider than steps 1 and 2
+        HEAD + _seg(4, 1, "{select = 0, base = 0, multiplier = 1}, "
+                          "{select = 1, base = 11, multiplier = 2}"),
+        "field[0].segment[1]: a gap of 4 steps between range 0 (ends 7) and range 1 "
+        "(starts 11) is wider than either range's step",
+    ),
+    "segments-backwards": (
+        HEAD + _seg(4, 1, "{select = 0, base = 20, multiplier = 1}, "
+                          "{select = 1, base = 0, multiplier = 2}"),
+        "field[0].segment[1]: range 1 starts at 0 steps, not above range 0's last value 27: "
+        "ranges overlap or run backwards",
+    ),
+    "missing-select-value": (
+        HEAD + _seg(4, 2, "{select = 0, base = 0, multiplier = 1}, "
+                          "{select = 1, base = 4, multiplier = 2}, "
+                          "{select = 3, base = 20, multiplier = 4}"),
+        "field[0].segment: the 2 select bits need exactly one range for each of 0..3 "
+        "(got [0, 1, 3])",
+    ),
+    "unknown-field-key": (
+        HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidth = 8\nofset = 1\n',
+        "field[0].ofset: unknown key; did you mean 'offset'? (expected one of: add, description, "
+        "encoding, max_code, min_code, name, offset, reserved, role, segment, select_bits, width)",
+    ),
+    "unknown-top-key": (
+        HEAD + "registr_bits = 16\n" + BOTH8,
+        "registr_bits: unknown key; did you mean 'register_bits'? (expected one of: clock, "
+        "description, field, format, name, register_bits, summary)",
+    ),
+    "unknown-clock-key": (
+        HEAD + "[clock]\nsubsteps = 4\n" + BOTH8,
+        "clock.substeps: unknown key; did you mean 'sub_steps'? (expected one of: "
+        "divider_field, dividers, sub_steps)",
+    ),
+    "dividers-exceed-field": (
+        HEAD + '[clock]\ndividers = [1, 2, 4]\ndivider_field = "div"\n' + BOTH8
+        + '[[field]]\nname = "div"\nrole = "divider"\noffset = 8\nwidth = 1\n',
+        "clock.dividers: 3 dividers do not fit the 1-bit field 'div'",
+    ),
+    "divider-field-not-named": (
+        HEAD + "[clock]\ndividers = [1, 2]\n" + BOTH8
+        + '[[field]]\nname = "div"\nrole = "divider"\noffset = 8\nwidth = 1\n',
+        # the same omission is also reported as "name the divider field here"
+        "clock.divider_field: required when more than one divider is listed "
+        "(and 1 more problem)",
+    ),
+    "divider-zero": (
+        HEAD + '[clock]\ndividers = [1, 0]\ndivider_field = "div"\n' + BOTH8
+        + '[[field]]\nname = "div"\nrole = "divider"\noffset = 8\nwidth = 1\n',
+        "clock.dividers[1]: divider 0 must be a positive integer",
+    ),
+    "bad-role": (
+        HEAD + '[[field]]\nname = "gap"\nrole = "bothh"\noffset = 0\nwidth = 8\n',
+        "field[0].role: 'bothh' is not one of both, to_high, to_low, divider; did you mean 'both'?",
+    ),
+    "one-edge-only": (
+        HEAD + '[[field]]\nname = "rise"\nrole = "to_high"\noffset = 0\nwidth = 8\n',
+        "field: give one field with role 'both', or one 'to_high' and one 'to_low'",
+    ),
+    "register-bits": (
+        'format = 1\nsummary = "s"\nregister_bits = 12\n' + BOTH8,
+        "register_bits: 12 must be 8, 16 or 32",
+    ),
+    "format-version": (
+        'format = 2\nsummary = "s"\nregister_bits = 16\n' + BOTH8,
+        "format: layout format 2 is not supported (expected 1)",
+    ),
+    "reserved-out-of-field": (
+        HEAD + BOTH8 + 'reserved = ["0..256"]\n',
+        "field[0].reserved[0]: '0..256' is outside the field's codes 0..255",
+    ),
+    "every-code-reserved": (
+        HEAD + BOTH8 + 'reserved = ["0..255"]\n',
+        "field[0]: no allowed code is left",
+    ),
+    "negative-add": (
+        HEAD + BOTH8 + "add = -1\n",
+        "field[0].add: code 0 + add -1 gives a negative dead time",
+    ),
+    "min-above-max": (
+        HEAD + BOTH8 + "min_code = 9\nmax_code = 3\n",
+        "field[0].min_code: min_code 9 is above max_code 3",
+    ),
+    "duplicate-field-name": (
+        HEAD + '[[field]]\nname = "a"\nrole = "to_high"\noffset = 0\nwidth = 4\n'
+        '[[field]]\nname = "a"\nrole = "to_low"\noffset = 4\nwidth = 4\n',
+        "field[0].name: field name 'a' is used more than once",
+    ),
+    "field-name-not-identifier": (
+        HEAD + '[[field]]\nname = "a-b"\nrole = "both"\noffset = 0\nwidth = 8\n',
+        "field[0].name: 'a-b' must be an ASCII identifier (it names macros)",
+    ),
+    "select-bits-on-linear": (
+        HEAD + BOTH8 + "select_bits = 1\n",
+        "field[0].select_bits: applies only to encoding = 'segmented'",
+    ),
+}
+
+
+@pytest.mark.parametrize("case", sorted(BAD_LAYOUTS))
+def test_bad_layout_file_names_file_and_key_path(case: str, tmp_path: Path) -> None:
+    text, message = BAD_LAYOUTS[case]
+    path = tmp_path / f"{case}.toml"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
+    assert info.value.line() == f"{path}: {message}"
+
+
+def test_all_problems_are_collected_and_counted(tmp_path: Path) -> None:
+    # misspelt 'width' is unknown AND leaves 'width' missing: two problems, one error
+    path = tmp_path / "two.toml"
+    path.write_text(HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidht = 8\n')
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
+    line = info.value.line()
+    assert line.startswith(f"{path}: field[0].widht: unknown key; did you mean 'width'?")
+    assert line.endswith("(and 1 more problem)")
+
+
+def test_toml_syntax_error_keeps_the_line_number(tmp_path: Path) -> None:
+    path = tmp_path / "syntax.toml"
+    path.write_text(HEAD + "[[field]\n")
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
+    assert info.value.line() == (
+        f"{path}: TOML syntax error: Expected ']]' at the end of an array declaration "
+        "(at line 4, column 8)"
+    )
+
+
+def test_unknown_builtin_name_gets_a_hint() -> None:
+    with pytest.raises(GapforgeError) as info:
+        load_layout("shared-8bit-linaer")
+    assert "did you mean 'shared-8bit-linear'?" in info.value.line()
+
+
+def test_a_valid_user_layout_file_loads(tmp_path: Path) -> None:
+    path = tmp_path / "mine.toml"
+    path.write_text(
+        HEAD + _seg(4, 1, "{select = 0, base = 0, multiplier = 1}, "
+                          "{select = 1, base = 9, multiplier = 2}")
+    )
+    layout = load_layout(str(path))
+    # range 0: 0..7; range 1: 9 + low x 2 = 9..23 (a jump of 2 = range 1's step: allowed)
+    assert layout.field_named("gap").table[0] == (*range(8), *range(9, 24, 2))
+    assert layout.source == str(path)

@@ -1,0 +1,205 @@
+"""Engineering notation in and out, exact inside (gapforge.quantities).
+
+Expected values are exact fractions worked out by hand from the SI prefixes (BIPM, The
+International System of Units, 9th ed., 2019, table 7: p = 1e-12, n = 1e-9, u = 1e-6, m = 1e-3,
+k = 1e3, M = 1e6, G = 1e9); 'meg' for mega is the circuit-simulator spelling (common practice).
+"""
+
+from __future__ import annotations
+
+from fractions import Fraction
+
+import pytest
+
+from gapforge.errors import GapforgeError
+from gapforge.quantities import (
+    format_quantity,
+    format_tolerance,
+    parse_quantity,
+    parse_tolerance,
+    picoseconds_ceil,
+    picoseconds_floor,
+    picoseconds_nearest,
+)
+
+F = Fraction
+
+
+@pytest.mark.parametrize(
+    ("text", "unit", "expected"),
+    [
+        ("160MHz", "Hz", F(160_000_000)),
+        ("160e6", "Hz", F(160_000_000)),
+        ("160E6", "Hz", F(160_000_000)),
+        ("160 MHz", "Hz", F(160_000_000)),
+        ("  160MHz  ", "Hz", F(160_000_000)),
+        ("1meg", "Hz", F(1_000_000)),
+        ("1MEG", "", F(1_000_000)),
+        ("1megHz", "Hz", F(1_000_000)),
+        ("2.5GHz", "Hz", F(2_500_000_000)),
+        ("10mHz", "Hz", F(1, 100)),  # milli, not mega: 10 x 1e-3
+        ("20kHz", "Hz", F(20_000)),
+        ("6.25ns", "s", F(1, 160_000_000)),  # 6.25e-9 = 625/1e11 = 1/160e6
+        ("25ns", "s", F(1, 40_000_000)),
+        ("+25ns", "s", F(1, 40_000_000)),
+        ("1.5us", "s", F(3, 2_000_000)),
+        ("1\u00b5s", "s", F(1, 1_000_000)),  # micro sign
+        ("1\u03bcs", "s", F(1, 1_000_000)),  # Greek mu
+        ("3ms", "s", F(3, 1000)),
+        ("2s", "s", F(2)),
+        ("0.1e-6", "s", F(1, 10_000_000)),
+        (".5ns", "s", F(1, 2_000_000_000)),
+        ("4.7k", "ohm", F(4700)),
+        ("4.7kohm", "ohm", F(4700)),
+        ("4.7k\u03a9", "ohm", F(4700)),  # Greek capital omega
+        ("4.7k", "", F(4700)),
+        ("100p", "F", F(1, 10_000_000_000)),  # 100e-12
+        ("100pF", "F", F(1, 10_000_000_000)),
+        ("1nF", "F", F(1, 1_000_000_000)),
+        ("3.3V", "V", F(33, 10)),
+        ("250fs", "s", F(1, 4_000_000_000_000)),
+        ("1T", "", F(10**12)),
+    ],
+)
+def test_parse_quantity_table(text: str, unit: str, expected: Fraction) -> None:
+    value = parse_quantity(text, unit, "where")
+    assert isinstance(value, Fraction)
+    assert value == expected
+
+
+def test_decimal_text_is_exact_not_float() -> None:
+    # 0.1 has no exact binary float; the parser must keep the decimal: 0.1 ns = 1/1e10 exactly
+    assert parse_quantity("0.1ns", "s", "w") == F(1, 10**10)
+    assert parse_quantity("0.1ns", "s", "w") != F(0.1e-9)
+    # a TOML float is taken by its shortest decimal text
+    assert parse_quantity(6.25e-9, "s", "w") == F(1, 160_000_000)
+    assert parse_quantity(160000000, "Hz", "w") == F(160_000_000)
+
+
+@pytest.mark.parametrize(
+    ("text", "unit", "message"),
+    [
+        ("160MHzz", "Hz", "where: unknown unit 'MHzz' in '160MHzz' (expected an SI prefix and Hz)"),
+        ("6.25ns", "Hz", "where: unknown unit 'ns' in '6.25ns' (expected an SI prefix and Hz)"),
+        ("160MHz", "s", "where: unknown unit 'MHz' in '160MHz' (expected an SI prefix and s)"),
+        ("5x", "", "where: unknown unit 'x' in '5x' (expected an SI prefix and no unit)"),
+        ("abc", "s", "where: 'abc' is not a number with an optional unit"),
+        ("", "s", "where: '' is not a number with an optional unit"),
+        ("nan", "s", "where: 'nan' is not a finite number"),
+        ("NaN", "Hz", "where: 'NaN' is not a finite number"),
+        ("inf", "Hz", "where: 'inf' is not a finite number"),
+        ("-inf", "s", "where: '-inf' is not a finite number"),
+        ("Infinity", "s", "where: 'Infinity' is not a finite number"),
+        ("-5ns", "s", "where: '-5ns' must not be negative"),
+        ("0", "Hz", "where: '0' must be greater than zero"),
+        ("0ns", "s", "where: '0ns' must be greater than zero"),
+    ],
+)
+def test_parse_quantity_errors(text: str, unit: str, message: str) -> None:
+    with pytest.raises(GapforgeError) as info:
+        parse_quantity(text, unit, "where")
+    assert info.value.line() == message
+    assert "\n" not in info.value.line()
+
+
+@pytest.mark.parametrize(
+    ("value", "message"),
+    [
+        (float("nan"), "w: nan is not a finite number"),
+        (float("inf"), "w: inf is not a finite number"),
+        (True, "w: expected a quantity in s, got True"),
+        ([1], "w: expected a quantity in s, got [1]"),
+        (-1, "w: -1 must not be negative"),
+        (0, "w: 0 must be greater than zero"),
+    ],
+)
+def test_parse_quantity_rejects_non_text_values(value: object, message: str) -> None:
+    with pytest.raises(GapforgeError) as info:
+        parse_quantity(value, "s", "w")
+    assert info.value.line() == message
+
+
+def test_zero_and_negative_only_where_allowed() -> None:
+    assert parse_quantity("0ns", "s", "w", allow_zero=True) == 0
+    assert parse_quantity("-3ns", "s", "w", allow_negative=True) == F(-3, 10**9)
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        ("50ppm", F(50, 10**6)),
+        ("50 ppm", F(1, 20_000)),
+        ("2%", F(1, 50)),
+        ("2 %", F(1, 50)),
+        ("0.5%", F(1, 200)),
+        ("5ppb", F(5, 10**9)),
+        ("0.02", F(1, 50)),
+        ("0", F(0)),
+        (0, F(0)),
+        (0.02, F(1, 50)),
+    ],
+)
+def test_parse_tolerance_table(text: object, expected: Fraction) -> None:
+    assert parse_tolerance(text, "w") == expected
+
+
+@pytest.mark.parametrize(
+    ("text", "message"),
+    [
+        ("100%", "w: tolerance '100%' must be below 100 %"),
+        ("150%", "w: tolerance '150%' must be below 100 %"),
+        ("abc", "w: 'abc' is not a number with an optional unit"),
+        ("nanppm", "w: 'nan' is not a finite number"),
+        (True, "w: expected a tolerance such as '50ppm' or '2%', got True"),
+    ],
+)
+def test_parse_tolerance_errors(text: object, message: str) -> None:
+    with pytest.raises(GapforgeError) as info:
+        parse_tolerance(text, "w")
+    assert info.value.line() == message
+
+
+def test_negative_tolerance_is_refused() -> None:
+    with pytest.raises(GapforgeError) as info:
+        parse_tolerance("-5ppm", "w")
+    assert "must not be negative" in info.value.line()
+
+
+@pytest.mark.parametrize(
+    ("value", "unit", "text"),
+    [
+        (F(1, 160_000_000), "s", "6.25 ns"),
+        (F(1, 32_000_000), "s", "31.25 ns"),
+        (F(160_000_000), "Hz", "160 MHz"),
+        (F(0), "s", "0 s"),
+        (F(-3, 10**9), "s", "-3 ns"),
+        (F(390625, 10**15), "s", "390.62 ps"),  # 5 significant digits by default
+        (F(4700), "ohm", "4.7 kohm"),
+        (F(1, 10**16), "s", "0.1 fs"),  # below the smallest prefix stays in fs
+        (F(999_999_9, 10**13), "s", "1 us"),  # 999.9999 ns rounds to 1000 ns: prefix steps up
+    ],
+)
+def test_format_quantity_table(value: Fraction, unit: str, text: str) -> None:
+    assert format_quantity(value, unit) == text
+
+
+def test_format_quantity_digits() -> None:
+    assert format_quantity(F(390625, 10**15), "s", 6) == "390.625 ps"
+
+
+@pytest.mark.parametrize(
+    ("value", "text"),
+    [(F(0), "0"), (F(50, 10**6), "50 ppm"), (F(1, 50), "2 %"), (F(1, 1000), "0.1 %")],
+)
+def test_format_tolerance_table(value: Fraction, text: str) -> None:
+    assert format_tolerance(value) == text
+
+
+def test_picoseconds_round_toward_the_safe_side() -> None:
+    # 14.0625 ns = 14062.5 ps: a minimum rounds up, a maximum or an achieved value rounds down
+    v = F(140625, 10**13)
+    assert picoseconds_floor(v) == 14062
+    assert picoseconds_ceil(v) == 14063
+    assert picoseconds_nearest(v) == 14063
+    # an exact whole number of ps stays put either way
+    assert picoseconds_floor(F(1, 40_000_000)) == picoseconds_ceil(F(1, 40_000_000)) == 25_000
