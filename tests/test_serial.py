@@ -1,0 +1,130 @@
+"""Live serial stream: over pyserial's loop:// and over a real pseudo-terminal pair (os.openpty)."""
+
+from __future__ import annotations
+
+import os
+import sys
+import threading
+import time
+from fractions import Fraction
+
+import pytest
+import serial
+
+from gapforge.measure import measure_capture
+from gapforge.serial_stream import LineDecoder, read_serial
+
+CLOCK = 100_000_000  # 10 ns ticks
+
+
+def _lines(periods: int, start: int, bits: int = 16, gap_h: int = 7, gap_l: int = 9) -> bytes:
+    """An invented stream: a 16-bit counter that wraps many times, known gaps in ticks."""
+    out = [f"#GFCAP 1 clock_hz={CLOCK} counter_bits={bits}"]
+    t, seq, mask = start, 0, (1 << bits) - 1
+
+    def put(side: str, level: int, when: int) -> None:
+        nonlocal seq
+        out.append(f"{side}{level} {when & mask:0{(bits + 3) // 4}X} {seq & 0xFF:02X}")
+        seq += 1
+
+    for _ in range(periods):
+        put("L", 0, t)
+        put("H", 1, t + gap_h)
+        put("H", 0, t + gap_h + 3000)
+        put("L", 1, t + gap_h + 3000 + gap_l)
+        t += 20_000  # > one wrap of 2**16 every few periods
+    return ("\n".join(out) + "\n").encode()
+
+
+def test_decoder_unwraps_and_counts_problems() -> None:
+    data = _lines(40, 65_000)
+    dec = LineDecoder()
+    # garbage, a comment, a line split over two reads, CR LF line ends
+    dec.feed(b"noise \x00\xff\n# comment\n")
+    for k in range(0, len(data), 7):
+        dec.feed(data[k : k + 7].replace(b"\n", b"\r\n"))
+    dec.feed(b"H1 00")  # a partial line at the end
+    dec.finish()
+    assert dec.status.garbage == 1 and dec.status.partial == 1 and dec.status.lost_lines == 0
+    cap = dec.capture("test")
+    assert cap is not None and cap.tick_s == Fraction(1, CLOCK)
+    m = measure_capture(cap)
+    # the first low-side turn-off comes before any known low-side level, so the first to_high
+    # transition has no measured start: 39 of 40
+    assert m.to_high.gaps_ticks.tolist() == [7] * 39
+    assert m.to_low.gaps_ticks.tolist() == [9] * 40
+    assert int(cap.high_times[-1]) - int(cap.high_times[0]) == 39 * 20_000 + 3000
+
+
+def test_lost_lines_seen_by_sequence() -> None:
+    lines = _lines(5, 0).split(b"\n")
+    del lines[3]  # drop one edge line
+    dec = LineDecoder()
+    dec.feed(b"\n".join(lines))
+    assert dec.status.lost_lines == 1
+
+
+def test_second_header_stops() -> None:
+    dec = LineDecoder()
+    dec.feed(_lines(2, 0) + _lines(2, 0))
+    assert dec.stopped is not None and "restarted" in dec.stopped
+    assert dec.status.edges == 8
+
+
+def _feed(port: serial.SerialBase, data: bytes) -> threading.Thread:
+    """Write from a thread: loop:// holds only a small buffer and blocks the writer."""
+    thread = threading.Thread(target=port.write, args=(data,), daemon=True)
+    thread.start()
+    return thread
+
+
+def test_loop_url_stops_after_count() -> None:
+    port = serial.serial_for_url("loop://", baudrate=2_000_000, timeout=0.05)
+    port.write_timeout = 2.0
+    _feed(port, _lines(30, 123))
+    result = read_serial("loop://", 2_000_000, max_edges=50, idle_timeout_s=1.0, port=port)
+    assert result.stop_reason == "edge count reached (50)"
+    assert result.capture is not None
+    m = measure_capture(result.capture)
+    assert result.status.edges >= 50 and m.to_low.count == 12
+    assert set(m.to_high.gaps_ticks.tolist()) == {7} and m.to_high.count == 12
+
+
+def test_loop_url_idle_timeout_reports_what_was_measured() -> None:
+    port = serial.serial_for_url("loop://", timeout=0.05)
+    _feed(port, _lines(10, 0) + b"L0 01").join(timeout=0.01)
+    result = read_serial("loop://", 115200, idle_timeout_s=0.3, port=port)
+    assert "timeout" in result.stop_reason
+    assert result.status.edges == 40 and result.status.partial == 1
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="pseudo-terminals on Linux")
+def test_pty_pair_then_port_vanishes() -> None:
+    master, slave = os.openpty()
+    name = os.ttyname(slave)
+    data = _lines(200, 5)
+
+    def writer() -> None:
+        for k in range(0, len(data), 512):
+            os.write(master, data[k : k + 512])
+            time.sleep(0.002)
+        time.sleep(0.2)
+        os.close(master)  # the device disappears
+
+    thread = threading.Thread(target=writer)
+    thread.start()
+    result = read_serial(name, 2_000_000, idle_timeout_s=5.0)
+    thread.join()
+    os.close(slave)
+    assert "vanished" in result.stop_reason or "timeout" in result.stop_reason
+    assert result.status.edges == 800 and result.status.garbage == 0
+    assert result.capture is not None
+    assert measure_capture(result.capture).to_low.gaps_ticks.tolist() == [9] * 200
+
+
+def test_time_limit() -> None:
+    port = serial.serial_for_url("loop://", timeout=0.05)
+    _feed(port, _lines(3, 0))
+    result = read_serial("loop://", 115200, max_seconds=0.2, idle_timeout_s=10.0, port=port)
+    assert result.stop_reason.startswith("time limit")
+    assert result.status.edges == 12
