@@ -578,8 +578,9 @@ def distribution_figure(
         if bound is not None:
             x = xa(float(bound))
             vline(fig, x, ya.end - 6, ya.start, PALETTE["window"], f"window-{name}")
-            fig.text(x + 3 if name == "min" else x - 3, ya.end - 10, f"window {name}",
-                     anchor="start" if name == "min" else "end", size=10, cls="window-label")
+            # min labelled above the plot, max inside it: close edges keep both labels legible
+            fig.text(x + 3, ya.end - 10 if name == "min" else ya.end + 12, f"window {name}",
+                     anchor="start", size=10, cls="window-label")
     entries = [(what, style, "bar"), ("window", PALETTE["window"], "line")]
     if digital is not None:
         vline(fig, xa(float(digital[0])), ya.end, ya.start, PALETTE["digital"], "digital")
