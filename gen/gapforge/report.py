@@ -431,7 +431,8 @@ def staircase(op: OutputPlan, field: Field, rounding: str) -> Staircase:
 
     safe: a request r gets the smallest value v with v / (1 + tol) >= r, so value v_i serves
     requests in (v_(i-1) / (1 + tol), v_i / (1 + tol)]. nearest: v_i serves requests between
-    the midpoints to its neighbours (ties go to the smaller value, as the fit does).
+    the midpoints to its neighbours (a tie exactly on a midpoint sits on a riser, whichever
+    value the fit gives it).
     """
     fit = op.fit
     assert fit.step_s is not None
