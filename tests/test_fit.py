@@ -193,9 +193,8 @@ def test_nearest_versus_safe() -> None:
     assert n.edges["to_high"].code == 4 and n.edges["to_high"].below_request_worst_case
 
 
-@pytest.mark.xfail(strict=True, reason="bug: nearest breaks an exact tie toward the SHORTER dead "
-                   "time (fit._choose sorts by (distance, value)); the safe side is the longer one")
 def test_nearest_tie_rounds_toward_the_longer_safe_value() -> None:
+    # regression: an exact tie first went to the shorter value (found by this suite, fixed)
     # 28.125 ns at 160 MHz = 4.5 counts: 4 and 5 are equally near; the rules say ties go to the
     # safe side, i.e. the longer gap (5 counts = 31.25 ns)
     near = fit(load_layout("shared-8bit-linear"), request(160 * MHZ, F(28125, 10**12),
@@ -411,10 +410,22 @@ def _reference_below(name: str, edge: str) -> tuple[int | None, ...]:
     return tuple(out)
 
 
-@given(layouts, clocks, tolerances, dead_times)
-def test_nearest_is_nearest_by_brute_force(
-    name: str, clock: Fraction, tol: Fraction, dead: Fraction
-) -> None:
+@st.composite
+def midpoint_requests(draw: st.DrawFn) -> tuple[str, Fraction, Fraction, Fraction]:
+    """A request exactly halfway between two neighbouring values of one divider (a tie)."""
+    name = draw(layouts)
+    layout = layout_named(name)
+    clock = draw(clocks)
+    steps = _reference_values(name, "to_high")
+    i = draw(st.integers(0, len(steps) - 2))
+    div = draw(st.sampled_from(layout.dividers))
+    mid = F(steps[i] + steps[i + 1], 2) * F(div) / (layout.sub_steps * clock)
+    return name, clock, draw(tolerances), mid
+
+
+@given(st.one_of(st.tuples(layouts, clocks, tolerances, dead_times), midpoint_requests()))
+def test_nearest_is_nearest_by_brute_force(req: tuple[str, Fraction, Fraction, Fraction]) -> None:
+    name, clock, tol, dead = req
     layout = layout_named(name)
     result = fit(layout, FitRequest(clock, tol, dead, dead, "nearest"))
     for edge in EDGES:
@@ -425,16 +436,19 @@ def test_nearest_is_nearest_by_brute_force(
             # nearest is unreachable when the request is above the nominal maximum
             assert result.verdict == "unreachable"
             continue
-        errors = []
+        values = []
         for div in layout.dividers:
             unit = F(div) / (layout.sub_steps * clock)
             x = dead / unit  # the request in steps of this divider
             lo = below[min(math.floor(x), top)]
             hi = nxt[math.ceil(x)] if math.ceil(x) <= top else None
-            errors += [abs(s * unit - dead) for s in (lo, hi[0] if hi else None) if s is not None]
+            values += [s * unit for s in (lo, hi[0] if hi else None) if s is not None]
         e = result.edges[edge]
         assert e.achieved_s is not None
-        assert abs(e.achieved_s - dead) == min(errors)
+        best = min(abs(v - dead) for v in values)
+        assert abs(e.achieved_s - dead) == best
+        # an exact tie goes to the longer value (the safe side)
+        assert e.achieved_s == max(v for v in values if abs(v - dead) == best)
 
 
 @given(layouts, clocks, tolerances, dead_times, dead_times)
