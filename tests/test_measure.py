@@ -21,7 +21,7 @@ def _build(periods: list[tuple[int, int, int, int]]) -> tuple[GateCapture, list[
     """Each period: (to_high gap, high on-time, to_low gap, low on-time) in ticks.
     A negative gap is an overlap of that length."""
     ht, hv, lt, lv = [0], [0], [0], [1]
-    t = 10
+    t = 1000  # later than any negative gap, so every change follows the initial levels
     gaps_h: list[int] = []
     gaps_l: list[int] = []
     for g_h, on_h, g_l, on_l in periods:

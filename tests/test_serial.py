@@ -12,7 +12,7 @@ import pytest
 import serial
 
 from gapforge.measure import measure_capture
-from gapforge.serial_stream import LineDecoder, read_serial
+from gapforge.serial_stream import LineDecoder, open_port, read_serial
 
 CLOCK = 100_000_000  # 10 ns ticks
 
@@ -49,9 +49,8 @@ def test_decoder_unwraps_and_counts_problems() -> None:
     cap = dec.capture("test")
     assert cap is not None and cap.tick_s == Fraction(1, CLOCK)
     m = measure_capture(cap)
-    # the first low-side turn-off comes before any known low-side level, so the first to_high
-    # transition has no measured start: 39 of 40
-    assert m.to_high.gaps_ticks.tolist() == [7] * 39
+    # the stream reports edges, so the level before each side's first edge is implied
+    assert m.to_high.gaps_ticks.tolist() == [7] * 40
     assert m.to_low.gaps_ticks.tolist() == [9] * 40
     assert int(cap.high_times[-1]) - int(cap.high_times[0]) == 39 * 20_000 + 3000
 
@@ -87,7 +86,7 @@ def test_loop_url_stops_after_count() -> None:
     assert result.capture is not None
     m = measure_capture(result.capture)
     assert result.status.edges >= 50 and m.to_low.count == 12
-    assert set(m.to_high.gaps_ticks.tolist()) == {7} and m.to_high.count == 12
+    assert set(m.to_high.gaps_ticks.tolist()) == {7} and m.to_high.count == 13
 
 
 def test_loop_url_idle_timeout_reports_what_was_measured() -> None:
@@ -111,10 +110,12 @@ def test_pty_pair_then_port_vanishes() -> None:
         time.sleep(0.2)
         os.close(master)  # the device disappears
 
+    port = open_port(name, 2_000_000)  # open (raw mode) before the first byte arrives
     thread = threading.Thread(target=writer)
     thread.start()
-    result = read_serial(name, 2_000_000, idle_timeout_s=5.0)
+    result = read_serial(name, 2_000_000, idle_timeout_s=5.0, port=port)
     thread.join()
+    port.close()
     os.close(slave)
     assert "vanished" in result.stop_reason or "timeout" in result.stop_reason
     assert result.status.edges == 800 and result.status.garbage == 0

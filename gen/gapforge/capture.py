@@ -68,6 +68,9 @@ class GateCapture:
     end: int
     source: str
     warnings: tuple[str, ...] = field(default=())
+    # levels before the first change (2 = unknown); an edge stream implies them
+    high_initial: int = 2
+    low_initial: int = 2
 
 
 def invert(levels: npt.NDArray[np.uint8]) -> npt.NDArray[np.uint8]:
@@ -88,8 +91,12 @@ def make_capture(
     active_low_high: bool = False,
     active_low_low: bool = False,
     warnings: tuple[str, ...] = (),
+    edges_only: bool = False,
 ) -> GateCapture:
-    """Build a capture from raw levels (as recorded), applying the polarity options."""
+    """Build a capture from raw levels (as recorded), applying the polarity options.
+
+    `edges_only`: every change is an edge, so each signal's level before its first change is
+    the opposite of that change (a stream of edge reports)."""
     ht, hv = np.asarray(high[0], dtype=np.int64), np.asarray(high[1], dtype=np.uint8)
     lt, lv = np.asarray(low[0], dtype=np.int64), np.asarray(low[1], dtype=np.uint8)
     if active_low_high:
@@ -97,7 +104,9 @@ def make_capture(
     if active_low_low:
         lv = invert(lv)
     last = max(int(ht[-1]) if ht.size else 0, int(lt[-1]) if lt.size else 0)
-    return GateCapture(tick_s, ht, hv, lt, lv, max(last, end or 0), source, warnings)
+    hi0 = int(1 - hv[0]) if edges_only and hv.size and hv[0] <= 1 else 2
+    lo0 = int(1 - lv[0]) if edges_only and lv.size and lv[0] <= 1 else 2
+    return GateCapture(tick_s, ht, hv, lt, lv, max(last, end or 0), source, warnings, hi0, lo0)
 
 
 def load_capture(

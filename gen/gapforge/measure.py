@@ -178,7 +178,8 @@ def measure_capture(
     missing: list[Finding] = []
     ht, hv = _dedupe(capture.high_times, capture.high_levels, "high", tick, missing)
     lt, lv = _dedupe(capture.low_times, capture.low_levels, "low", tick, missing)
-    times, states = _joint(ht, hv, lt, lv)
+    init = (capture.high_initial, capture.low_initial)
+    times, states = _joint(ht, hv, lt, lv, init)
     overlaps = _overlaps(times, states, capture.end, tick)
     unknown = int(np.count_nonzero(((states >> 2) >= 2) | ((states & 3) >= 2))) - (
         1 if states.size and (((states[0] >> 2) >= 2) or ((states[0] & 3) >= 2)) else 0
@@ -189,7 +190,7 @@ def measure_capture(
         ht2, hv2 = _deglitch(ht, hv, width, "high", tick, glitches)
         lt2, lv2 = _deglitch(lt, lv, width, "low", tick, glitches)
         if len(glitches):
-            times, states = _joint(ht2, hv2, lt2, lv2)
+            times, states = _joint(ht2, hv2, lt2, lv2, init)
     glitches.sort(key=lambda g: g.at_s)
     gaps = _transitions(times, states, tick, missing)
     missing.sort(key=lambda f: f.at_s)
@@ -275,7 +276,11 @@ def _dedupe(
 
 
 def _joint(
-    ht: Ints, hv: npt.NDArray[np.uint8], lt: Ints, lv: npt.NDArray[np.uint8]
+    ht: Ints,
+    hv: npt.NDArray[np.uint8],
+    lt: Ints,
+    lv: npt.NDArray[np.uint8],
+    initial: tuple[int, int] = (2, 2),
 ) -> tuple[Ints, npt.NDArray[np.uint8]]:
     """Joint state (high*4 + low) after all changes at each distinct time, repeats removed."""
     t = np.concatenate([ht, lt])
@@ -286,13 +291,17 @@ def _joint(
     del order
     n_low = np.cumsum(is_low)
     n_high = np.arange(1, t.size + 1) - n_low
-    h = np.where(n_high > 0, hv[np.maximum(n_high - 1, 0)], 2).astype(np.uint8)
-    low = np.where(n_low > 0, lv[np.maximum(n_low - 1, 0)], 2).astype(np.uint8)
+    h = np.where(n_high > 0, hv[np.maximum(n_high - 1, 0)], initial[0]).astype(np.uint8)
+    low = np.where(n_low > 0, lv[np.maximum(n_low - 1, 0)], initial[1]).astype(np.uint8)
     del n_low, n_high, is_low
     state = (h << 2) | low
     last = np.ones(t.size, dtype=bool)
     last[:-1] = t[1:] != t[:-1]
     t, state = t[last], state[last]
+    if t.size and initial != (2, 2):
+        # the levels before the first change, as a zero-length state at the first time
+        t = np.concatenate([t[:1], t])
+        state = np.concatenate([np.array([(initial[0] << 2) | initial[1]], dtype=np.uint8), state])
     change = np.ones(t.size, dtype=bool)
     change[1:] = state[1:] != state[:-1]
     return t[change], state[change]

@@ -183,6 +183,7 @@ class LineDecoder:
             active_low_high=active_low_high,
             active_low_low=active_low_low,
             warnings=tuple(warnings),
+            edges_only=True,
         )
 
 

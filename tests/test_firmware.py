@@ -1,0 +1,107 @@
+"""The generated C capture-line formatter, compiled by the host C compiler (an outside reference
+program) in strict C99, run, and its output fed through the Python stream reader: a round trip."""
+
+from __future__ import annotations
+
+import shutil
+import subprocess
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from gapforge.cli import cli
+from gapforge.firmware import render_capture_helper
+from gapforge.measure import measure_capture
+from gapforge.serial_stream import LineDecoder
+
+CC = shutil.which("gcc") or shutil.which("cc")
+FLAGS = ["-std=c99", "-Wall", "-Wextra", "-Wpedantic", "-Werror", "-Wconversion"]
+
+# An invented bench program: a 16-bit capture counter at 50 MHz, gaps of 11 and 13 counts, the
+# counter wrapping every few periods, a keep-alive line per period, and checks of the error path.
+MAIN_C = r"""
+#include <stdio.h>
+#include <string.h>
+#include "gapforge_capture_fmt.h"
+
+static char line[GFCAP_BUFFER_SIZE];
+
+static void put(size_t n) { if (n == 0u) { fputs("FORMAT FAILED\n", stdout); } else { fputs(line, stdout); } }
+
+int main(void)
+{
+    uint32_t t = 60000u;
+    uint8_t seq = 0u;
+    unsigned k;
+    char tiny[4];
+    if (gfcap_format_edge(tiny, sizeof tiny, 'H', 1u, 1u, 0u) != 0u) { return 2; }
+    if (gfcap_format_edge(line, sizeof line, 'Q', 1u, 1u, 0u) != 0u) { return 3; }
+    if (gfcap_format_edge(line, sizeof line, 'H', 2u, 1u, 0u) != 0u) { return 4; }
+    if (gfcap_format_header(line, sizeof line, 0u) != 0u) { return 5; }
+    put(gfcap_format_header(line, sizeof line, 50000000u));
+    if (strlen(line) > GFCAP_HEADER_MAX_LEN) { return 6; }
+    put(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_LOW, 1u, (gfcap_counter_t)(t - 100u), seq++));
+    for (k = 0u; k < 25u; k++) {
+        put(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_LOW, 0u, (gfcap_counter_t)t, seq++));
+        put(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_HIGH, 1u, (gfcap_counter_t)(t + 11u), seq++));
+        put(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_HIGH, 0u, (gfcap_counter_t)(t + 5011u), seq++));
+        if (strlen(line) != GFCAP_EDGE_LINE_LEN) { return 7; }
+        put(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_LOW, 1u, (gfcap_counter_t)(t + 5024u), seq++));
+        put(gfcap_format_keepalive(line, sizeof line, (gfcap_counter_t)(t + 30000u), seq++));
+        t += 50000u;
+    }
+    return 0;
+}
+"""
+
+
+def test_render_is_deterministic_and_logic_free() -> None:
+    a = render_capture_helper(32)
+    assert a == render_capture_helper(32)
+    assert set(a) == {"gapforge_capture_fmt.h", "gapforge_capture_fmt.c"}
+    assert "#define GFCAP_COUNTER_DIGITS 8u" in a["gapforge_capture_fmt.h"]
+    assert "typedef uint16_t gfcap_counter_t;" in render_capture_helper(16)["gapforge_capture_fmt.h"]
+    assert "Caution" in a["gapforge_capture_fmt.h"]
+    for name in ("capture_fmt.h.j2", "capture_fmt.c.j2"):
+        text = (Path(__file__).parents[1] / "gen/gapforge/templates" / name).read_text()
+        assert "{%" not in text  # layout only: Python computes everything
+
+
+@pytest.mark.skipif(CC is None, reason="no C compiler on this machine")
+@pytest.mark.parametrize("std", ["-std=c99", "-std=c11"])
+def test_c_helper_round_trip(tmp_path: Path, std: str) -> None:
+    assert CC is not None
+    for name, text in render_capture_helper(16).items():
+        (tmp_path / name).write_text(text)
+    (tmp_path / "main.c").write_text(MAIN_C)
+    exe = tmp_path / "bench"
+    flags = [std, *FLAGS[1:]]
+    build = subprocess.run([CC, *flags, "-o", str(exe), "main.c", "gapforge_capture_fmt.c"],
+                           cwd=tmp_path, capture_output=True, text=True, check=False)
+    assert build.returncode == 0, build.stderr
+    run = subprocess.run([str(exe)], capture_output=True, check=False, timeout=20)
+    assert run.returncode == 0, run.stdout
+    assert b"FAILED" not in run.stdout
+    dec = LineDecoder()
+    dec.feed(run.stdout)
+    dec.finish()
+    assert dec.status.garbage == 0 and dec.status.lost_lines == 0 and dec.status.partial == 0
+    assert dec.status.clock_hz == 50_000_000 and dec.status.counter_bits == 16
+    cap = dec.capture("c-helper")
+    assert cap is not None
+    m = measure_capture(cap)
+    assert m.to_high.gaps_ticks.tolist() == [11] * 25
+    assert m.to_low.gaps_ticks.tolist() == [13] * 25
+    assert m.to_high.min_s == pytest.approx(11 / 50e6)
+    # 24 periods of 50000 counts between the first and last high turn-on, across 16-bit wraps
+    assert int(cap.high_times[-2]) - int(cap.high_times[0]) == 24 * 50_000
+
+
+def test_firmware_command_writes_files(tmp_path: Path) -> None:
+    result = CliRunner().invoke(cli, ["firmware", "--out", str(tmp_path / "fw"),
+                                      "--counter-bits", "16"])
+    assert result.exit_code == 0, result.output
+    assert (tmp_path / "fw/gapforge_capture_fmt.h").read_text() == render_capture_helper(16)[
+        "gapforge_capture_fmt.h"]
+    assert "Caution" in result.output
