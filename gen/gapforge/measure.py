@@ -196,7 +196,7 @@ def measure_capture(
     missing.sort(key=lambda f: f.at_s)
     if all(g[0].size == 0 for g in gaps.values()) and not overlaps:
         raise GapforgeError(
-            "no dead-time transitions found (the gates never hand over from one to the other)", where
+            "no dead-time transitions found (no edges where one gate hands over to the other)", where
         )
     stats: dict[str, EdgeStats] = {}
     reasons: list[str] = []

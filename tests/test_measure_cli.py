@@ -1,0 +1,166 @@
+"""`gapforge measure` end to end: exit codes, JSON keys, one-line errors, --design, --serial."""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import threading
+import time
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+from vcd import VCDWriter
+
+from gapforge.cli import cli
+
+ROOT = Path(__file__).parents[1]
+
+
+def _vcd(path: Path, to_high: int, to_low: int, overlap_at: int | None = None) -> Path:
+    # written by pyvcd, a general-purpose VCD writer (not gapforge); times in ns
+    with path.open("w") as handle, VCDWriter(handle, timescale="1 ns", date="invented") as w:
+        h = w.register_var("top", "gate_h", "wire", size=1, init=0)
+        lo = w.register_var("top", "gate_l", "wire", size=1, init=1)
+        for k in range(20):
+            t = 1000 * k + 100
+            w.change(lo, t, 0)
+            w.change(h, t + to_high, 1)
+            w.change(h, t + 400, 0)
+            w.change(lo, t + 400 + to_low, 1)
+            if overlap_at == k:
+                w.change(h, t + 420 + to_low, 1)
+                w.change(h, t + 425 + to_low, 0)
+    return path
+
+
+def _run(args: list[str]) -> subprocess.CompletedProcess[str]:
+    env = dict(os.environ, PYTHONPATH=str(ROOT / "gen"))
+    return subprocess.run([sys.executable, "-m", "gapforge", *args], capture_output=True,
+                          text=True, env=env, check=False, timeout=60)
+
+
+def test_pass_json(tmp_path: Path) -> None:
+    path = _vcd(tmp_path / "ok.vcd", 30, 40)
+    result = CliRunner().invoke(cli, ["measure", str(path), "--high", "top.gate_h", "--low",
+                                      "top.gate_l", "--window", "25ns:50ns", "--json"])
+    assert result.exit_code == 0, result.output
+    doc = json.loads(result.output)
+    assert doc["edges"]["to_high"]["count"] == 20
+    assert doc["edges"]["to_high"]["min_s"] == pytest.approx(30e-9)
+    assert doc["edges"]["to_low"]["max_s"] == pytest.approx(40e-9)
+    assert doc["edges"]["to_low"]["mean_s"] == pytest.approx(40e-9)
+    assert doc["overlaps"] == 0 and doc["verdict"] == "pass"
+    assert "bench" in doc["caution"]
+
+
+def test_window_violation_exits_1(tmp_path: Path) -> None:
+    path = _vcd(tmp_path / "short.vcd", 30, 40)
+    result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low", "gate_l",
+                                      "--window", "35ns:"])
+    assert result.exit_code == 1
+    assert "FAIL" in result.output and "reduced voltage" in result.output
+
+
+def test_overlap_exits_1_with_timestamp(tmp_path: Path) -> None:
+    path = _vcd(tmp_path / "shoot.vcd", 30, 40, overlap_at=3)
+    result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low", "gate_l",
+                                      "--json"])
+    assert result.exit_code == 1
+    doc = json.loads(result.output)
+    assert doc["overlaps"] == 1 and doc["verdict"] == "fail"
+    # low side back on at 3100 + 440 ns; the high side pulses on at 3100 + 460 ns for 5 ns
+    assert doc["overlap_events"][0]["at_s"] == pytest.approx(3560e-9)
+    assert doc["overlap_events"][0]["duration_s"] == pytest.approx(5e-9)
+
+
+def test_active_low_options(tmp_path: Path) -> None:
+    path = _vcd(tmp_path / "ok.vcd", 30, 40)
+    # read inverted, the low side's dead times become the high side's on-times and vice versa
+    result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low", "gate_l",
+                                      "--active-low-high", "--active-low-low", "--json"])
+    doc = json.loads(result.output)
+    assert result.exit_code == 1  # both inverted gates are "on" together most of the period
+    assert doc["overlaps"] > 0
+
+
+@pytest.mark.parametrize("content,args,message", [
+    (b"$timescale 1ns $end\n$var wire 1 ! gate_h $end\n", ["--high", "gate_h", "--low", "gate_l"],
+     "enddefinitions"),  # truncated
+    (bytes(range(256)) * 8, ["--high", "gate_h", "--low", "gate_l"], "error"),  # binary junk
+    (None, ["--high", "gate_x", "--low", "gate_l"], "no signal 'gate_x'"),  # unknown signal
+    (None, ["--high", "gate_h"], "--high and --low"),  # one signal missing
+    (b"$var wire 1 ! gate_h $end $var wire 1 \" gate_l $end $enddefinitions $end\n#0 0! 1\"\n",
+     ["--high", "gate_h", "--low", "gate_l"], "no edges"),  # no edges
+    (None, ["--high", "gate_h", "--low", "gate_l", "--window", "50ns:20ns"], "above maximum"),
+])
+def test_bad_input_one_line_exit_2(tmp_path: Path, content: bytes | None, args: list[str],
+                                   message: str) -> None:
+    path = tmp_path / "bad.vcd"
+    if content is None:
+        _vcd(path, 30, 40)
+    else:
+        path.write_bytes(content)
+    proc = _run(["measure", str(path), *args])
+    assert proc.returncode == 2, proc.stdout + proc.stderr
+    assert "Traceback" not in proc.stderr
+    lines = proc.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("gapforge: error:")
+    assert message in lines[0]
+
+
+def test_design_file(tmp_path: Path) -> None:
+    from gapforge.design import measurement_expectations
+
+    design = ROOT / "examples" / "motor-inverter.toml"
+    expected = measurement_expectations(design)
+    path = _vcd(tmp_path / "ok.vcd", 30, 40)
+    result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low", "gate_l",
+                                      "--design", str(design), "--json"])
+    assert result.exit_code in (0, 1), result.output
+    doc = json.loads(result.output)
+    for edge in ("to_high", "to_low"):
+        wmin, wmax, pmin, pmax = expected[edge]
+        got = doc["edges"][edge]
+        assert got["window_min_s"] == (None if wmin is None else float(wmin))
+        assert got["predicted_max_s"] == (None if pmax is None else float(pmax))
+        judged = (wmin is not None and 30e-9 < float(wmin)) or (wmax is not None and 40e-9 > float(wmax))
+        if judged:
+            assert doc["verdict"] == "fail"
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="pseudo-terminals on Linux")
+def test_serial_over_pty(tmp_path: Path) -> None:
+    import tty
+
+    master, slave = os.openpty()
+    tty.setraw(slave)
+    name = os.ttyname(slave)
+    lines = ["#GFCAP 1 clock_hz=1000000000 counter_bits=32"]
+    seq = 0
+    for k in range(30):
+        t = 1000 * k + 500
+        for side, level, at in (("L", 0, t), ("H", 1, t + 25), ("H", 0, t + 400),
+                                ("L", 1, t + 433)):
+            lines.append(f"{side}{level} {at:08X} {seq % 256:02X}")
+            seq += 1
+    data = ("\n".join(lines) + "\n").encode()
+
+    def writer() -> None:
+        time.sleep(0.5)  # let the command open the port
+        os.write(master, data)
+
+    thread = threading.Thread(target=writer, daemon=True)
+    thread.start()
+    proc = _run(["measure", "--serial", name, "--baud", "2000000", "--count", "120",
+                 "--idle-timeout", "5s", "--window", "20ns:40ns", "--json"])
+    thread.join()
+    os.close(master)
+    os.close(slave)
+    assert proc.returncode == 0, proc.stderr
+    doc = json.loads(proc.stdout)
+    assert doc["stream"]["stop_reason"] == "edge count reached (120)"
+    assert doc["edges"]["to_high"]["count"] == 30
+    assert doc["edges"]["to_low"]["min_s"] == pytest.approx(33e-9)
