@@ -122,11 +122,11 @@ def test_design_file(tmp_path: Path) -> None:
     assert result.exit_code in (0, 1), result.output
     doc = json.loads(result.output)
     for edge in ("to_high", "to_low"):
-        wmin, wmax, pmin, pmax = expected[edge]
+        wmin, wmax, _pmin, pmax = expected[edge]
         got = doc["edges"][edge]
         assert got["window_min_s"] == (None if wmin is None else float(wmin))
         assert got["predicted_max_s"] == (None if pmax is None else float(pmax))
-        judged = (wmin is not None and 30e-9 < float(wmin)) or (wmax is not None and 40e-9 > float(wmax))
+        judged = (wmin is not None and float(wmin) > 30e-9) or (wmax is not None and float(wmax) < 40e-9)
         if judged:
             assert doc["verdict"] == "fail"
 

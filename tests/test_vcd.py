@@ -246,7 +246,7 @@ def test_unknown_and_ambiguous_and_wide_signals(tmp_path: Path) -> None:
         w.register_var("a", "bus", "wire", size=4, init=0)
 
     _write(path, "1 ns", build)
-    with pytest.raises(GapforgeError, match="did you mean 'a.gate'"):
+    with pytest.raises(GapforgeError, match=r"did you mean 'a\.gate'"):
         read_vcd(path, ["a.gat"])
     with pytest.raises(GapforgeError, match="ambiguous"):
         read_vcd(path, ["gate"])

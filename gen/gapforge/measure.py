@@ -218,12 +218,14 @@ def measure_capture(
         if nonpositive and not below:
             reasons.append(f"{name}: {nonpositive} transition(s) with no dead time at all")
         st = stats[name]
-        if st.count and lim.predicted_min_s is not None and st.min_s is not None:
-            if st.min_s < lim.predicted_min_s:
-                notes.append(f"{name}: shortest measured gap is below the predicted minimum")
-        if st.count and lim.predicted_max_s is not None and st.max_s is not None:
-            if st.max_s > lim.predicted_max_s:
-                notes.append(f"{name}: longest measured gap is above the predicted maximum")
+        if lim.predicted_min_s is not None and st.min_s is not None and (
+            st.min_s < lim.predicted_min_s
+        ):
+            notes.append(f"{name}: shortest measured gap is below the predicted minimum")
+        if lim.predicted_max_s is not None and st.max_s is not None and (
+            st.max_s > lim.predicted_max_s
+        ):
+            notes.append(f"{name}: longest measured gap is above the predicted maximum")
     if overlaps:
         reasons.insert(0, f"{len(overlaps)} overlap(s): both gates on (shoot-through)")
     if missing:
@@ -294,7 +296,7 @@ def _joint(
     h = np.where(n_high > 0, hv[np.maximum(n_high - 1, 0)], initial[0]).astype(np.uint8)
     low = np.where(n_low > 0, lv[np.maximum(n_low - 1, 0)], initial[1]).astype(np.uint8)
     del n_low, n_high, is_low
-    state = (h << 2) | low
+    state: npt.NDArray[np.uint8] = ((h << 2) | low).astype(np.uint8)
     last = np.ones(t.size, dtype=bool)
     last[:-1] = t[1:] != t[:-1]
     t, state = t[last], state[last]

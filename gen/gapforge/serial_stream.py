@@ -21,6 +21,7 @@ timeouts or a port that disappears end the capture with a stated reason and what
 
 from __future__ import annotations
 
+import contextlib
 import re
 import time
 from collections.abc import Callable
@@ -259,10 +260,8 @@ def read_serial(
         reason = "interrupted"
     finally:
         if port is None:
-            try:
+            with contextlib.suppress(Exception):
                 link.close()
-            except Exception:  # noqa: BLE001 - a vanished port may fail to close; nothing to do
-                pass
     decoder.finish()
     decoder.status.elapsed_s = time.monotonic() - start
     if progress is not None:

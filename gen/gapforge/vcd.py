@@ -26,6 +26,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from fractions import Fraction
 from pathlib import Path
+from typing import TypeVar
 
 import numpy as np
 import numpy.typing as npt
@@ -34,6 +35,7 @@ from gapforge.errors import GapforgeError
 
 X = 2
 Z = 3
+_T = TypeVar("_T", bound=np.generic)
 
 CHUNK_BYTES = 1 << 21
 _MAX_TIME_DIGITS = 18
@@ -369,7 +371,7 @@ def read_vcd(
     return VcdData(header.timescale_s, signals, state.time, tuple(warnings))
 
 
-def _join(parts: list[npt.NDArray[np.generic]], dtype: type[np.generic]) -> npt.NDArray[np.generic]:
+def _join(parts: list[npt.NDArray[_T]], dtype: type[_T]) -> npt.NDArray[_T]:
     """Concatenate and free the parts one by one (peak = result + one part)."""
     total = sum(int(p.size) for p in parts)
     out = np.empty(total, dtype=dtype)
@@ -534,7 +536,8 @@ def _resolve_value_chain(vec: npt.NDArray[np.bool_]) -> npt.NDArray[np.bool_]:
     idx = np.arange(vec.size)
     run_start = np.where(vec & ~np.concatenate([[False], vec[:-1]]), idx, 0)
     run_start = np.maximum.accumulate(run_start)
-    return vec & ((idx - run_start) % 2 == 0)
+    even: npt.NDArray[np.bool_] = (idx - run_start) % 2 == 0
+    return vec & even
 
 
 def _keywords(
