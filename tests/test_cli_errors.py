@@ -5,6 +5,7 @@ nothing either; `build --check` lists stale headers and exits 1.
 
 from __future__ import annotations
 
+import os
 import shutil
 from pathlib import Path
 
@@ -322,3 +323,71 @@ def test_write_failure_is_one_line_and_leaves_no_temporary_files(tmp_path: Path)
     assert line.startswith(f"gapforge: error: {tmp_path / 'out'}: cannot create directory")
     assert _snapshot(tmp_path) == before
 
+
+
+TWO_OUTPUTS = """# invented test design
+format = 1
+[timer]
+clock = "100MHz"
+[dead_time]
+value = "50ns"
+[[output]]
+target = "shared-8bit-linear"
+prefix = "A"
+file = "a.h"
+[[output]]
+target = "split-10bit-div4"
+prefix = "B"
+file = "b.h"
+"""
+
+
+@pytest.mark.xfail(strict=True, reason="bug: files.write_files renames file by file and does not "
+                   "catch OSError from os.replace: an output path that is a directory gives a "
+                   "traceback (exit 1) after the first header was already replaced")
+def test_output_path_that_is_a_directory_is_bad_input_and_writes_nothing(tmp_path: Path) -> None:
+    design = tmp_path / "d.toml"
+    design.write_text(TWO_OUTPUTS)
+    (tmp_path / "a.h").write_text(SENTINEL)
+    (tmp_path / "b.h").mkdir()  # in the way of the second output
+    before = _snapshot(tmp_path)
+    code, _, err = run_subprocess(["build", str(design)], cwd=tmp_path)
+    assert "Traceback" not in err
+    assert code == 2
+    assert _one_line(err).startswith("gapforge: error: ")
+    assert _snapshot(tmp_path) == before
+
+
+def test_write_files_is_all_or_nothing_when_a_directory_cannot_be_made(tmp_path: Path) -> None:
+    from gapforge.errors import GapforgeError
+    from gapforge.files import write_files
+
+    (tmp_path / "a.h").write_text(SENTINEL)
+    (tmp_path / "blocked").write_text("a file, not a directory\n")
+    before = _snapshot(tmp_path)
+    with pytest.raises(GapforgeError) as info:
+        write_files({tmp_path / "a.h": "new\n", tmp_path / "blocked" / "b.h": "new\n"})
+    assert info.value.where == str(tmp_path / "blocked")
+    assert _snapshot(tmp_path) == before  # a.h untouched, no temporary files left
+
+
+def test_write_files_writes_utf8_with_newlines(tmp_path: Path) -> None:
+    from gapforge.files import write_files
+
+    target = tmp_path / "sub" / "x.h"
+    assert write_files({target: "/* \u00b5s */\n"}) == [target]
+    assert target.read_bytes() == "/* \u00b5s */\n".encode()
+    assert [p.name for p in target.parent.iterdir()] == ["x.h"]
+
+
+@pytest.mark.xfail(strict=True, reason="bug: files.write_files keeps mkstemp's 0600 mode, so "
+                   "generated headers are readable by their owner only (umask ignored)")
+def test_written_headers_respect_the_umask(tmp_path: Path) -> None:
+    design = tmp_path / "d.toml"
+    design.write_text(TWO_OUTPUTS)
+    code, _, err = run_cli(["build", str(design)])
+    assert code == 0, err
+    umask = os.umask(0)
+    os.umask(umask)
+    for name in ("a.h", "b.h"):
+        assert (tmp_path / name).stat().st_mode & 0o777 == 0o666 & ~umask
