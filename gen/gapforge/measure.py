@@ -284,19 +284,25 @@ def _joint(
     lv: npt.NDArray[np.uint8],
     initial: tuple[int, int] = (2, 2),
 ) -> tuple[Ints, npt.NDArray[np.uint8]]:
-    """Joint state (high*4 + low) after all changes at each distinct time, repeats removed."""
-    t = np.concatenate([ht, lt])
-    is_low = np.concatenate([np.zeros(ht.size, dtype=bool), np.ones(lt.size, dtype=bool)])
-    order = np.argsort(t, kind="stable")
-    t = t[order]
-    is_low = is_low[order]
-    del order
-    n_low = np.cumsum(is_low)
-    n_high = np.arange(1, t.size + 1) - n_low
-    h = np.where(n_high > 0, hv[np.maximum(n_high - 1, 0)], initial[0]).astype(np.uint8)
-    low = np.where(n_low > 0, lv[np.maximum(n_low - 1, 0)], initial[1]).astype(np.uint8)
-    del n_low, n_high, is_low
-    state: npt.NDArray[np.uint8] = ((h << 2) | low).astype(np.uint8)
+    """Joint state (high*4 + low) after all changes at each distinct time, repeats removed.
+
+    Both inputs are sorted, so the merge is two binary searches (no sort); at equal times the
+    high-side change comes first, and only the last state at each time is kept anyway."""
+    # for each change of one side, how many changes of the other side come before it
+    low_before_high = np.searchsorted(lt, ht, side="left")
+    high_upto_low = np.searchsorted(ht, lt, side="right")
+    t = np.empty(ht.size + lt.size, dtype=np.int64)
+    state: npt.NDArray[np.uint8] = np.empty(t.size, dtype=np.uint8)
+    pos = np.arange(ht.size) + low_before_high
+    t[pos] = ht
+    low_prev = np.where(low_before_high > 0, lv[np.maximum(low_before_high - 1, 0)], initial[1])
+    state[pos] = (hv << 2) | low_prev.astype(np.uint8)
+    del pos, low_prev, low_before_high
+    pos = np.arange(lt.size) + high_upto_low
+    t[pos] = lt
+    high_prev = np.where(high_upto_low > 0, hv[np.maximum(high_upto_low - 1, 0)], initial[0])
+    state[pos] = (high_prev.astype(np.uint8) << 2) | lv
+    del pos, high_prev, high_upto_low
     last = np.ones(t.size, dtype=bool)
     last[:-1] = t[1:] != t[:-1]
     t, state = t[last], state[last]
@@ -404,11 +410,8 @@ def _stats(
     nbins = max(1, min(bins, hi - lo + 1))
     counts, edges = np.histogram(gaps, bins=nbins, range=(lo, hi + 1))
     k = min(worst, gaps.size)
-    order = np.argsort(gaps, kind="stable")
-    shortest = tuple(Instance(tick * int(at[i]), tick * int(gaps[i])) for i in order[:k].tolist())
-    longest = tuple(
-        Instance(tick * int(at[i]), tick * int(gaps[i])) for i in order[::-1][:k].tolist()
-    )
+    shortest = tuple(Instance(tick * int(at[i]), tick * int(gaps[i])) for i in _extremes(gaps, k))
+    longest = tuple(Instance(tick * int(at[i]), tick * int(gaps[i])) for i in _extremes(-gaps, k))
     return EdgeStats(
         name,
         tick,
@@ -422,3 +425,16 @@ def _stats(
         below,
         above,
     )
+
+
+def _extremes(values: Ints, k: int) -> list[int]:
+    """Indices of the k smallest values, smallest first, earlier first among equals."""
+    if k <= 0:
+        return []
+    if k < values.size:
+        cut = np.partition(values, k - 1)[k - 1]
+        candidates = np.flatnonzero(values <= cut)
+    else:
+        candidates = np.arange(values.size)
+    order = np.lexsort((candidates, values[candidates]))
+    return [int(i) for i in candidates[order][:k]]
