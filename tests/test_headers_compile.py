@@ -13,14 +13,16 @@ from __future__ import annotations
 
 import json
 import math
+import re
 import shutil
 import subprocess
+from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
 import pytest
 
-from conftest import EXAMPLES, run_cli
+from conftest import BUILTINS, EXAMPLES, run_cli
 
 # -Wconversion passes too, so it is part of the set
 WARNINGS = ["-Wall", "-Wextra", "-Wpedantic", "-Werror", "-Wconversion"]
@@ -284,3 +286,63 @@ def test_field_names_cannot_collide_with_fixed_macros(tmp_path: Path) -> None:
     proc = subprocess.run([compiler, "-std=c99", *WARNINGS, "-c", str(src), "-o",
                            str(tmp_path / "c.o")], capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
+
+
+CORNERS = {
+    # (timer clock, PWM frequency, dead time as a share of the layout's nominal maximum)
+    "slow-clock-long-gap": ("1MHz", "1Hz", Fraction(9, 10)),
+    "fast-clock-short-gap": ("500MHz", "10Hz", None),  # None: 0.5 ns
+}
+
+
+@pytest.mark.parametrize("corner", sorted(CORNERS))
+@pytest.mark.parametrize("target", BUILTINS)
+def test_every_layout_at_extreme_clocks_compiles_and_recomputes(
+    target: str, corner: str, tmp_path: Path
+) -> None:
+    """Large counts (16-bit layout at 1 MHz: tens of milliseconds, > 2^32 ps) and tiny ones
+    must keep their literal suffixes right on the host and on a 32-bit MCU."""
+    from gapforge.layouts import load_layout
+
+    compiler = _compiler("gcc")
+    clock, pwm, share = CORNERS[corner]
+    layout = load_layout(target)
+    if share is None:
+        dead = "0.5ns"
+    else:
+        top = layout.edge_field("to_high").table[0][-1] * max(layout.dividers)
+        max_s = Fraction(top, layout.sub_steps) / Fraction(10**6)  # at 1 MHz
+        dead = f"{math.floor(max_s * share * 10**9)}ns"
+    (tmp_path / "d.toml").write_text(
+        "# invented corner-case design\nformat = 1\n"
+        f'[timer]\nclock = "{clock}"\ntolerance = "1%"\n'
+        f'[pwm]\nfrequency = "{pwm}"\ncounting = "edge"\n'
+        f'[dead_time]\nvalue = "{dead}"\n'
+        f'[[output]]\ntarget = "{target}"\nprefix = "CORNER"\nfile = "corner.h"\nstruct = true\n'
+    )
+    code, stdout, stderr = run_cli(["build", str(tmp_path / "d.toml"), "--json"])
+    assert code == 0, stdout + stderr
+    entry = json.loads(stdout)["outputs"][0]
+    header = tmp_path / "corner.h"
+    if target == "shared-16bit-plus-one" and share is not None:
+        # about 0.9 x 65536 counts at 1 MHz = 59 ms = 5.9e10 ps: needs an unsigned long long
+        assert entry["edges"]["to_high"]["achieved_s"] * 1e12 > 2**32
+        assert re.search(r"CORNER_TO_HIGH_ACHIEVED_PS +\d{11}ull ", header.read_text())
+    src = tmp_path / "check.c"
+    src.write_text(_check_program(header, entry))
+    exe = tmp_path / "check"
+    proc = subprocess.run([compiler, "-std=c99", *WARNINGS, str(src), "-o", str(exe)],
+                          capture_output=True, text=True)
+    assert proc.returncode == 0, proc.stderr
+    run = subprocess.run([str(exe)], capture_output=True, text=True, check=True)
+    _compare(_parse(run.stdout), entry)
+    cross = shutil.which("arm-none-eabi-gcc")
+    if cross is not None:
+        mcu = tmp_path / "mcu.c"
+        mcu.write_text(f'#include "{header}"\nunsigned long word(void) '
+                       "{ return (unsigned long)CORNER_REGISTER"
+                       " + (unsigned long)corner_dead_time_config.to_high_steps; }\n")
+        proc = subprocess.run([cross, "-mcpu=cortex-m0", "-mthumb", "-std=c99", *WARNINGS, "-c",
+                               str(mcu), "-o", str(tmp_path / "mcu.o")],
+                              capture_output=True, text=True)
+        assert proc.returncode == 0, proc.stderr
