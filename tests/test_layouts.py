@@ -4,11 +4,12 @@ code space; bad layout files are refused with one message naming the file and th
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import pytest
 
-from conftest import BUILTINS
+from conftest import BUILTINS, run_cli
 from gapforge.errors import GapforgeError
 from gapforge.layouts import Layout, builtin_names, load_layout
 
@@ -268,3 +269,25 @@ def test_a_valid_user_layout_file_loads(tmp_path: Path) -> None:
     # range 0: 0..7; range 1: 9 + low x 2 = 9..23 (a jump of 2 = range 1's step: allowed)
     assert layout.field_named("gap").table[0] == (*range(8), *range(9, 24, 2))
     assert layout.source == str(path)
+
+
+def test_targets_show_json_at_a_clock() -> None:
+    code, out, err = run_cli(["targets", "show", "split-9bit-subclock", "--clock", "160MHz",
+                              "--json"])
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["name"] == "split-9bit-subclock" and doc["sub_steps"] == 16
+    assert [f["name"] for f in doc["fields"]] == ["to_high_fine", "to_low_fine", "scale"]
+    # step = divider / (16 x 160 MHz): 390.625 ps x divider; longest = 511 steps
+    for row, div in zip(doc["ranges"], (1, 2, 4, 8), strict=True):
+        assert row["divider"] == div
+        assert row["step_s"] == div / 2.56e9
+        assert row["max_s"] == pytest.approx(511 * div / 2.56e9, rel=1e-15)
+
+
+def test_targets_list_json() -> None:
+    code, out, _ = run_cli(["targets", "--json"])
+    assert code == 0
+    doc = json.loads(out)
+    assert [d["name"] for d in doc] == list(BUILTINS)
+    assert all(d["source"] == f"targets/{d['name']}.toml" for d in doc)
