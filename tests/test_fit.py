@@ -492,3 +492,87 @@ def test_reference_tables_agree_with_hand_counts() -> None:
     assert top == 63 and nxt[0] == (2, 2)
     nxt, _ = _reference_tables("shared-8bit-segmented", "to_high")
     assert nxt[191] == (192, 128)
+
+
+# ---------------------------------------------------------------------------------------------
+# user layouts: random linear and segmented fields, validated, then fitted against brute force
+
+
+@st.composite
+def user_layouts(draw: st.DrawFn) -> tuple[str, bool]:
+    """TOML text of a random one-field layout, and whether it should load (by our own rules:
+    ranges in select order, each starting above the previous one's last value, by at most
+    the larger of the two steps; at least one allowed code)."""
+    width = draw(st.integers(2, 8))
+    lines = ["# invented test layout", "format = 1", 'summary = "random"', "register_bits = 16"]
+    dividers = draw(st.lists(st.integers(1, 16), min_size=1, max_size=4))
+    lines += ["[clock]", f"sub_steps = {draw(st.integers(1, 32))}", f"dividers = {dividers}"]
+    if len(dividers) > 1:
+        lines.append('divider_field = "div"')
+    lines += ["[[field]]", 'name = "gap"', 'role = "both"', "offset = 0", f"width = {width}"]
+    reserved = draw(st.lists(st.integers(0, (1 << width) - 1), max_size=4))
+    lines.append(f"reserved = {sorted(set(reserved))}")
+    ok = len(set(reserved)) < (1 << width)
+    if draw(st.booleans()):
+        add = draw(st.integers(0, 3))
+        lines += ['encoding = "linear"', f"add = {add}"]
+    else:
+        bits = draw(st.integers(1, min(2, width - 1)))
+        low_count = 1 << (width - bits)
+        segs = []
+        last = -1
+        prev_mult = 0
+        for sel in range(1 << bits):
+            mult = draw(st.integers(1, 4))
+            jump = draw(st.integers(-1, 5))
+            base = max(0, last + jump) if sel else draw(st.integers(0, 3))
+            if sel:
+                first_ok = base > last and base - last <= max(prev_mult, mult)
+                ok = ok and first_ok
+            segs.append(f"{{select = {sel}, base = {base}, multiplier = {mult}}}")
+            last = base + (low_count - 1) * mult
+            prev_mult = mult
+        lines += ['encoding = "segmented"', f"select_bits = {bits}",
+                  f"segment = [{', '.join(segs)}]"]
+    if len(dividers) > 1:
+        div_bits = max(1, (len(dividers) - 1).bit_length())
+        lines += ["[[field]]", 'name = "div"', 'role = "divider"', "offset = 12",
+                  f"width = {div_bits}"]
+    return "\n".join(lines) + "\n", ok
+
+
+@given(user_layouts(), clocks, tolerances, dead_times)
+def test_user_layouts_validate_and_fit_like_brute_force(
+    spec: tuple[str, bool], clock: Fraction, tol: Fraction, dead: Fraction
+) -> None:
+    import tomllib
+
+    from gapforge.errors import GapforgeError
+    from gapforge.layouts import parse_layout
+
+    text, ok = spec
+    try:
+        layout = parse_layout(tomllib.loads(text), text.encode(), "random.toml", "random")
+    except GapforgeError as exc:
+        assert not ok, f"{exc.line()}\n{text}"
+        assert exc.line().startswith("random.toml: ")
+        return
+    assert ok, text
+    # brute force over every divider and every allowed code, through Field.decode only
+    f = layout.field_named("gap")
+    candidates = []
+    for div in layout.dividers:
+        unit = F(div) / (layout.sub_steps * clock)
+        for code in range(f.mask + 1):
+            if code in f.reserved or not f.min_code <= code <= f.max_code:
+                continue
+            value = f.decode(code) * unit
+            if value / (1 + tol) >= dead:
+                candidates.append((value, div, code))
+    result = fit(layout, FitRequest(clock, tol, dead, dead, "safe"))
+    if not candidates:
+        assert result.verdict == "unreachable"
+        return
+    value, div, code = min(candidates)
+    e = result.edges["to_high"]
+    assert (e.achieved_s, result.divider, e.code) == (value, div, code)
