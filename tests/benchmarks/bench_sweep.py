@@ -17,7 +17,7 @@ import time
 from fractions import Fraction
 from pathlib import Path
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "gen"))
 
 from gapforge.layouts import builtin_names, load_layout  # noqa: E402
