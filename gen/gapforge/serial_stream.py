@@ -3,7 +3,7 @@
 The firmware timestamps each gate edge with a free-running timer-capture counter and prints one
 ASCII line per edge (the C helper from `gapforge firmware` formats them)::
 
-    #GFCAP 1 clock_hz=170000000 counter_bits=32      header: protocol 1, counter clock, width
+    #GFCAP 1 clock_hz=160000000 counter_bits=32      header: protocol 1, counter clock, width
     H1 0001F4A0 07                                   high side turned on at counter 0x0001F4A0
     L0 0001F4B8 08                                   low side turned off
     T 8001F4B8 09                                    keep-alive: no edge, counter now
