@@ -1,6 +1,6 @@
 """VCD reading speed and memory, gapforge against other readers, in one run (not a test).
 
-    python benchmarks/bench_vcd.py [--periods 2000000] [--dir /tmp] [--keep]
+    python tests/benchmarks/bench_vcd.py [--periods 2000000] [--dir /tmp] [--keep]
 
 Writes an invented half-bridge capture (two gates, 1 ps timescale, 10 us period, dead times
 30-60 ns, four edges per period; about 150 MB for 2 million periods) to a temporary file that is
@@ -31,7 +31,7 @@ from pathlib import Path
 
 import numpy as np
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "gen"))
 
 PERIOD_PS = 10_000_000
