@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 import pytest
 
 from gapforge.analog import DiodeModel, network_from_options, parse_diode
 from gapforge.simulate import (
     EdgeCircuit,
     junction,
+    node_waveform,
     simulate_edge,
     slow_edge_over_temperature,
 )
@@ -95,3 +97,82 @@ def test_slow_edge_over_temperature_reports_leakage_erosion() -> None:
     cool, hot = points
     assert cool.erosion < 0.05
     assert hot.erosion > 0.9
+
+
+# --- the node waveform ----------------------------------------------------------------------------
+
+
+def _crossing_from_samples(times: np.ndarray, volts: np.ndarray, threshold: float,
+                           rising: bool) -> float:
+    """The first threshold crossing read off the samples alone (linear between samples)."""
+    past = (volts >= threshold) if rising else (volts <= threshold)
+    k = int(np.argmax(past))
+    assert past[k] and k > 0
+    t0, t1, v0, v1 = times[k - 1], times[k], volts[k - 1], volts[k]
+    return float(t0 + (threshold - v0) * (t1 - t0) / (v1 - v0))
+
+
+WAVEFORM_CASES = [
+    # (description, circuit): slow edges, a bypassed edge, the low-voltage knee, a hot Schottky
+    ("rc rising", EdgeCircuit(0.0, 3.3, 25.0, 10e3, 1e-9, None, False, 27.0, 2.0)),
+    ("rc falling", EdgeCircuit(3.3, 0.0, 25.0, 1e3, 100e-12, None, False, 27.0, 1.3)),
+    ("bypassed falling, Schottky", EdgeCircuit(3.3, 0.0, 25.0, 10e3, 100e-12,
+                                               parse_diode(SCHOTTKY, "x"), True, 27.0, 1.3)),
+    ("knee at 1.8 V", EdgeCircuit(1.8, 0.0, 25.0, 10e3, 100e-12,
+                                  parse_diode("IS=1e-14 N=1.8 RS=5", "x"), True, 27.0, 0.5)),
+    ("hot Schottky slow edge", EdgeCircuit(0.0, 3.3, 25.0, 47e3, 100e-12,
+                                           parse_diode(SCHOTTKY, "x"), True, 125.0, 2.0)),
+]
+
+
+@pytest.mark.parametrize(("name", "circuit"), WAVEFORM_CASES, ids=[c[0] for c in WAVEFORM_CASES])
+def test_waveform_crosses_the_threshold_at_simulate_edges_delay(
+    name: str, circuit: EdgeCircuit
+) -> None:
+    wave = node_waveform(circuit)
+    delay = simulate_edge(circuit).delay_s
+    rising = circuit.v_final > circuit.v_start
+    # the reported crossing is the same integration's, and the samples themselves cross there
+    assert wave.delay_s == pytest.approx(delay, rel=1e-12)
+    read = _crossing_from_samples(wave.times_s, wave.volts, circuit.threshold, rising)
+    # to the integrator's tolerance: a local error of 2e-7 x the step height on the node,
+    # turned into time through the node's slope at the crossing
+    slope = float(np.max(np.abs(np.diff(wave.volts) / np.diff(wave.times_s))))
+    span = abs(circuit.v_final - circuit.v_start)
+    assert abs(read - delay) <= max(2e-7 * span / slope, 1e-9 * delay)
+    # starts at the step, times strictly increasing, ends a quarter of the delay beyond it
+    assert wave.times_s[0] == 0.0 and wave.volts[0] == circuit.v_start
+    assert bool(np.all(np.diff(wave.times_s) > 0.0))
+    assert wave.times_s[-1] == pytest.approx(1.25 * delay, rel=1e-12)
+    assert len(wave.times_s) == len(wave.volts)
+    # the node never leaves the supply rails by more than a diode drop
+    assert float(np.min(wave.volts)) > -0.8 and float(np.max(wave.volts)) < span + 0.8
+
+
+@pytest.mark.parametrize("rising", [True, False])
+def test_waveform_of_the_resistor_edge_is_the_textbook_exponential(rising: bool) -> None:
+    # Single-time-constant step response (Sedra & Smith, Microelectronic Circuits, STC
+    # circuits): V(t) = Vfinal + (Vstart - Vfinal) exp(-t / RC), RC = (R + Rout) C. With an ideal
+    # diode (no leakage, no junction capacitance) on the resistor edge, every simulated sample
+    # from the step to 2.5 delays must follow it within 0.1 % of the step height.
+    ideal = parse_diode("IS=1e-16 N=1 CJO=0", "x")
+    v0, v1, th = (0.0, 3.3, 2.0) if rising else (3.3, 0.0, 1.3)
+    circuit = EdgeCircuit(v0, v1, 25.0, 10e3, 100e-12, ideal, rising, 27.0, th)
+    wave = node_waveform(circuit, beyond=1.5)
+    rc = (10e3 + 25.0) * 100e-12
+    exact = v1 + (v0 - v1) * np.exp(-wave.times_s / rc)
+    assert float(np.max(np.abs(wave.volts - exact))) <= 1e-3 * 3.3
+    # and the distance still to go, (Vfinal - V), is the exponential itself within 0.1 %
+    assert float(np.max(np.abs((v1 - wave.volts) / (v1 - exact) - 1.0))) <= 1e-3
+    # the waveform reaches past one time constant: 63.2 % of the step there (1 - 1/e)
+    assert wave.times_s[-1] > rc
+    at_rc = float(np.interp(rc, wave.times_s, wave.volts))
+    assert abs(at_rc - v0) / 3.3 == pytest.approx(1 - math.exp(-1), abs=1e-3)
+    # the delay: RC ln(|Vfinal - Vstart| / |Vfinal - Vth|) (the same textbook response)
+    assert wave.delay_s == pytest.approx(rc * math.log(3.3 / abs(v1 - th)), rel=1e-3)
+
+
+def test_waveform_rejects_a_negative_beyond() -> None:
+    circuit = EdgeCircuit(0.0, 3.3, 25.0, 1e3, 1e-9, None, False, 27.0, 2.0)
+    with pytest.raises(ValueError, match="beyond"):
+        node_waveform(circuit, beyond=-0.1)

@@ -20,7 +20,9 @@ Plain Python floats in the inner loop (a 2x2 or 3x3 system is faster without num
 from __future__ import annotations
 
 import math
+from collections.abc import Iterator
 from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
 
 from gapforge.analog import (
     K_OVER_Q,
@@ -29,12 +31,22 @@ from gapforge.analog import (
     ReferenceNetwork,
 )
 
+if TYPE_CHECKING:
+    import numpy as np
+    import numpy.typing as npt
+
+    FloatArray = npt.NDArray[np.float64]
+
 GMIN = 1e-12  # S, across every junction, as circuit simulators do
 _REF_K = 300.15  # K, the reference temperature of the junction-potential scaling
 _BOLTZMANN = 1.380649e-23
 _CHARGE = 1.602176634e-19
 _GAMMA = 2.0 - math.sqrt(2.0)
 _K_ERR = (-3.0 * _GAMMA**2 + 4.0 * _GAMMA - 2.0) / (12.0 * (2.0 - _GAMMA))
+_A1 = _GAMMA / 2.0  # trapezoidal stage to t + gamma h
+_A2 = (1.0 - _GAMMA) / (2.0 - _GAMMA)  # BDF2 stage
+_B_G = 1.0 / (_GAMMA * (2.0 - _GAMMA))
+_B_N = (1.0 - _GAMMA) ** 2 / (_GAMMA * (2.0 - _GAMMA))
 
 
 class SimulationError(RuntimeError):
@@ -278,6 +290,111 @@ def simulate_edge(circuit: EdgeCircuit, tolerance: float = 2e-7) -> EdgeResult:
     `tolerance` bounds each step's estimated local error on the node voltage, relative to the
     step height; the default keeps the delay within 0.01 % of the exact value on an RC edge.
     """
+    counts = _Counts()
+    for step in _march(circuit, tolerance, counts):
+        if step.crosses:
+            t_cross = step.crossing()
+            return EdgeResult(step.t + t_cross, counts.steps, counts.rejected, counts.newton)
+    raise SimulationError("the node never crossed the threshold")
+
+
+@dataclass(frozen=True, eq=False)
+class NodeWaveform:
+    """The capacitor node after an ideal input step at t = 0, as the integrator computed it.
+
+    The samples are the integrator's accepted time points plus the refined threshold crossing
+    itself, so drawing them as a polyline shows the simulated waveform, not an interpolation of
+    separate runs.
+    """
+
+    times_s: FloatArray  # from 0, increasing
+    volts: FloatArray  # the node voltage at each time
+    delay_s: float  # the threshold crossing (one of the samples); equals simulate_edge's delay
+    threshold: float
+
+
+def node_waveform(
+    circuit: EdgeCircuit, tolerance: float = 2e-7, *, beyond: float = 0.25
+) -> NodeWaveform:
+    """The node voltage from the input step through the threshold crossing and a little beyond.
+
+    The same integration as `simulate_edge` (the same steps up to the crossing, so the same
+    delay); it then carries on to (1 + beyond) x the delay, the last step cut to end there.
+    """
+    import numpy as np
+
+    if beyond < 0.0:
+        raise ValueError("beyond must not be negative")
+    counts = _Counts()
+    times = [0.0]
+    volts = [circuit.v_start]
+    delay: float | None = None
+    stop = math.inf
+    marcher = _march(circuit, tolerance, counts)
+    for step in marcher:
+        if delay is None and step.crosses:
+            t_cross = step.crossing()
+            delay = step.t + t_cross
+            stop = delay * (1.0 + beyond)
+            if 0.0 < t_cross < step.h:  # else it is the step's start or end, a sample anyway
+                times.append(delay)
+                volts.append(step.node_at(t_cross))
+        if delay is not None and step.t + step.h >= stop:
+            if stop > times[-1]:
+                times.append(stop)
+                volts.append(step.node_at(stop - step.t))
+            break
+        times.append(step.t + step.h)
+        volts.append(step.x_new[1])
+    if delay is None:
+        raise SimulationError("the node never crossed the threshold")
+    return NodeWaveform(np.asarray(times), np.asarray(volts), delay, circuit.threshold)
+
+
+@dataclass
+class _Counts:
+    """Work done by one integration (mutable, local to one call)."""
+
+    steps: int = 0
+    rejected: int = 0
+    newton: int = 0
+
+
+@dataclass(frozen=True)
+class _Step:
+    """One accepted TR-BDF2 step from (t, x) to (t + h, x_new), offered before it is taken."""
+
+    model: _Model
+    t: float
+    h: float
+    x: list[float]
+    q_n: list[float]
+    i_n: list[float]
+    x_new: list[float]
+    span: float
+    crosses: bool  # the node reaches the threshold within this step
+
+    def crossing(self) -> float:
+        """The time within the step at which the node crosses the threshold."""
+        return _refine(self.model, self.x, self.q_n, self.i_n, self.h,
+                       self.model.c.threshold, self.span)
+
+    def node_at(self, dt: float) -> float:
+        """The node voltage a shorter step of `dt` from the step's start reaches."""
+        if dt >= self.h:
+            return self.x_new[1]
+        step = _trbdf2(self.model, self.x, self.q_n, self.i_n, dt, self.span)
+        if step is None:
+            raise SimulationError("partial step failed")
+        return step[0][1]
+
+
+def _march(circuit: EdgeCircuit, tolerance: float, counts: _Counts) -> Iterator[_Step]:
+    """Accepted steps from the input step on; the consumer stops when it has what it needs.
+
+    Step-size control from TR-BDF2's local-error estimate on the node voltage (up to 60 time
+    constants; past that the node is taken never to cross).
+    """
     span = abs(circuit.v_final - circuit.v_start)
     if span == 0.0:
         raise SimulationError("no edge: start and final voltage are equal")
@@ -292,39 +409,32 @@ def simulate_edge(circuit: EdgeCircuit, tolerance: float = 2e-7) -> EdgeResult:
     t = 0.0
     t_end = 60.0 * tau
     g = _GAMMA
-    a1 = g / 2.0
-    b_g = 1.0 / (g * (2.0 - g))
-    b_n = (1.0 - g) ** 2 / (g * (2.0 - g))
-    a2 = (1.0 - g) / (2.0 - g)
     i_n, _, q_n, _ = model.evaluate(x)
-    steps = rejected = newton = 0
     sign = 1.0 if rising else -1.0
+    c_node = circuit.c_node
     while t < t_end:
-        step = _trbdf2(model, x, q_n, i_n, h, span, a1, a2, b_g, b_n)
+        step = _trbdf2(model, x, q_n, i_n, h, span)
         if step is None:
             h *= 0.25
-            rejected += 1
+            counts.rejected += 1
             if h < 1e-18 * tau:
                 raise SimulationError("step size underflow")
             continue
         x_new, q_new, i_new, i_g, its = step
-        newton += its
-        c_node = circuit.c_node
+        counts.newton += its
         est = 2.0 * _K_ERR * h * (-i_n[1] / g + i_g[1] / (g * (1.0 - g)) - i_new[1] / (1.0 - g))
         err = abs(est) / c_node
         if err > atol:
             h *= max(0.2, 0.9 * (atol / err) ** (1.0 / 3.0))
-            rejected += 1
+            counts.rejected += 1
             continue
-        steps += 1
-        if sign * (x_new[1] - circuit.threshold) >= 0.0:
-            t_cross = _refine(model, x, q_n, i_n, h, circuit.threshold, span, a1, a2, b_g, b_n)
-            return EdgeResult(t + t_cross, steps, rejected, newton)
+        counts.steps += 1
+        crosses = sign * (x_new[1] - circuit.threshold) >= 0.0
+        yield _Step(model, t, h, x, q_n, i_n, x_new, span, crosses)
         t += h
         x, q_n, i_n = x_new, q_new, i_new
         factor = 4.0 if err == 0.0 else min(4.0, 0.9 * (atol / err) ** (1.0 / 3.0))
         h = min(h * max(factor, 0.2), h_max)
-    raise SimulationError("the node never crossed the threshold")
 
 
 def _consistent(model: _Model, x: list[float], span: float) -> list[float]:
@@ -361,12 +471,9 @@ def _trbdf2(
     i_n: list[float],
     h: float,
     span: float,
-    a1: float,
-    a2: float,
-    b_g: float,
-    b_n: float,
 ) -> tuple[list[float], list[float], list[float], list[float], int] | None:
     n = model.n
+    a1, a2, b_g, b_n = _A1, _A2, _B_G, _B_N
     try:
         rhs1 = [q_n[k] - a1 * h * i_n[k] for k in range(n)]
         x_g, it1 = model.newton(x, a1 * h, rhs1, span)
@@ -387,15 +494,11 @@ def _refine(
     h: float,
     threshold: float,
     span: float,
-    a1: float,
-    a2: float,
-    b_g: float,
-    b_n: float,
 ) -> float:
     """The time within a step at which the node crosses the threshold (Illinois regula falsi)."""
     lo, f_lo = 0.0, x[1] - threshold
     hi = h
-    step = _trbdf2(model, x, q_n, i_n, h, span, a1, a2, b_g, b_n)
+    step = _trbdf2(model, x, q_n, i_n, h, span)
     if step is None:
         raise SimulationError("refinement step failed")
     f_hi = step[0][1] - threshold
@@ -404,7 +507,7 @@ def _refine(
         if f_hi == f_lo:
             break
         mid = hi - f_hi * (hi - lo) / (f_hi - f_lo)
-        step = _trbdf2(model, x, q_n, i_n, mid, span, a1, a2, b_g, b_n)
+        step = _trbdf2(model, x, q_n, i_n, mid, span)
         if step is None:
             raise SimulationError("refinement step failed")
         f_mid = step[0][1] - threshold
