@@ -115,3 +115,56 @@ def test_streaming_statistics_equal_the_direct_ones(monkeypatch: pytest.MonkeyPa
     samples = np.concatenate([tol._draw(net, 7_000 if i < 4 else 2_001, 5, i, "uniform", 3.0)
                               ["to_low"] for i in range(5)])
     assert direct.stats["to_low"].percentiles == tuple(np.percentile(samples, tol.PERCENTILES))
+
+
+@pytest.mark.parametrize(("samples", "chunk"), [(20_000, tol.CHUNK), (30_001, 7_000)])
+def test_samples_are_the_population_monte_carlo_describes(samples: int, chunk: int) -> None:
+    # The histogram drawn from monte_carlo_samples must show what monte_carlo's statistics say:
+    # same seed -> the samples' min, max, mean and 0.135 / 50 / 99.865 percentiles (numpy's
+    # linear-interpolation percentile, the definition monte_carlo documents) are its statistics.
+    net = network_from_options({"r": "4.7k", "c": "100p", "bypass": "falling"})
+    drawn = tol.monte_carlo_samples(net, samples, seed=11, chunk=chunk)
+    mc = tol.monte_carlo(net, samples, seed=11, chunk=chunk)
+    for key in tol.QUANTITIES:
+        values = drawn[key]
+        s = mc.stats[key]
+        assert values.shape == (samples,)
+        assert (float(values.min()), float(values.max())) == (s.min, s.max)
+        assert tuple(float(p) for p in np.percentile(values, tol.PERCENTILES)) == s.percentiles
+        assert float(values.mean()) == pytest.approx(s.mean, rel=1e-12)
+    # and the seed matters
+    other = tol.monte_carlo_samples(net, samples, seed=12, chunk=chunk)
+    assert not np.array_equal(other["to_high"], drawn["to_high"])
+
+
+def test_samples_match_the_streamed_statistics(monkeypatch: pytest.MonkeyPatch) -> None:
+    net = network_from_options({"r": "4.7k", "c": "100p"})
+    drawn = tol.monte_carlo_samples(net, 25_000, seed=4, chunk=6_000, distribution="normal")
+    monkeypatch.setattr(tol, "_KEEP_ALL_LIMIT", 0)
+    streamed = tol.monte_carlo(net, 25_000, seed=4, chunk=6_000, distribution="normal")
+    for key in tol.PAIR_KEYS:
+        s = streamed.stats[key]
+        assert (float(drawn[key].min()), float(drawn[key].max())) == (s.min, s.max)
+        assert np.percentile(drawn[key], tol.PERCENTILES) == pytest.approx(s.percentiles,
+                                                                            rel=1e-12)
+
+
+def test_samples_follow_the_uniform_band_of_one_resistor() -> None:
+    # uniform R in 9k..11k (10 % band): the node delay (R + 25) x 1 nF x ln(3.3 / 1.3) is uniform
+    # between its ends (Sedra & Smith STC delay; a uniform variable through a linear map)
+    net = _net(r_tol="10%")
+    drawn = tol.monte_carlo_samples(net, 40_000, seed=3)["node_rising"]
+    k = 1e-9 * math.log(3.3 / 1.3)
+    lo, hi = (9e3 + 25) * k, (11e3 + 25) * k
+    assert lo <= float(drawn.min()) and float(drawn.max()) <= hi
+    counts, _ = np.histogram(drawn, bins=10, range=(lo, hi))
+    assert counts.sum() == 40_000
+    assert int(counts.min()) > 0.9 * 4_000 and int(counts.max()) < 1.1 * 4_000
+
+
+def test_samples_refuse_an_empty_run() -> None:
+    net = _net(r_tol="10%")
+    with pytest.raises(ValueError):
+        tol.monte_carlo_samples(net, 0)
+    with pytest.raises(ValueError):
+        tol.monte_carlo_samples(net, 10, distribution="triangular")

@@ -316,6 +316,34 @@ def _draw(
     return evaluate(net, shared, high, low)
 
 
+def _chunk_sizes(samples: int, chunk: int) -> list[int]:
+    if samples < 1 or chunk < 1:
+        raise ValueError("the sample count and the chunk size must be positive")
+    return [min(chunk, samples - start) for start in range(0, samples, chunk)]
+
+
+def monte_carlo_samples(
+    net: ReferenceNetwork,
+    samples: int = DEFAULT_SAMPLES,
+    *,
+    seed: int = 1,
+    distribution: str = "uniform",
+    sigma_band: float = 3.0,
+    chunk: int = CHUNK,
+) -> dict[str, FloatArray]:
+    """The seeded samples themselves, per quantity (QUANTITIES), in draw order.
+
+    The very draws `monte_carlo` summarises for the same arguments (the same chunks of the same
+    seeded generators), so a histogram of these shows the population its statistics describe.
+    Holds every sample in memory: meant for figures, not for 10M-sample runs.
+    """
+    if distribution not in ("uniform", "normal"):
+        raise ValueError(distribution)
+    parts = [_draw(net, n, seed, i, distribution, sigma_band)
+             for i, n in enumerate(_chunk_sizes(samples, chunk))]
+    return {key: np.concatenate([p[key] for p in parts]) for key in QUANTITIES}
+
+
 def monte_carlo(
     net: ReferenceNetwork,
     samples: int = DEFAULT_SAMPLES,
@@ -329,18 +357,16 @@ def monte_carlo(
     """Seeded Monte Carlo of both channels' parts; exact percentiles in modest memory."""
     if distribution not in ("uniform", "normal"):
         raise ValueError(distribution)
-    sizes = [min(chunk, samples - start) for start in range(0, samples, chunk)]
+    sizes = _chunk_sizes(samples, chunk)
 
     def chunk_results(i: int) -> dict[str, FloatArray]:
         return _draw(net, sizes[i], seed, i, distribution, sigma_band)
 
     below = float(below_s) if below_s is not None else None
     if samples <= _KEEP_ALL_LIMIT:
-        parts = [chunk_results(i) for i in range(len(sizes))]
-        stats = {
-            key: _stats_direct(np.concatenate([p[key] for p in parts]), key, below)
-            for key in QUANTITIES
-        }
+        drawn = monte_carlo_samples(net, samples, seed=seed, distribution=distribution,
+                                    sigma_band=sigma_band, chunk=chunk)
+        stats = {key: _stats_direct(drawn[key], key, below) for key in QUANTITIES}
     else:
         stats = _stats_streaming(chunk_results, len(sizes), samples, below)
     return MonteCarloResult(samples, seed, distribution, sigma_band, below_s, stats)
