@@ -1,0 +1,428 @@
+"""The report's figures, each built from plain data (no plan, no model): SVG text.
+
+    timing_figure        the pair through one PWM period, dead times dimensioned
+    transition_figure    one transition to scale
+    analog_figure        the reference's capacitor node against the Schmitt thresholds
+    staircase_figure     a layout's quantization staircase around the chosen code
+    distribution_figure  a histogram of dead times with the window and the digital value
+    overlap_figure       where in a capture both gates were on
+
+`report` gathers the data (from the build plan, the reference network, the capture) and calls
+these; they only place it, with every coordinate computed here in Python and written by `svg`
+with fixed decimals, so the same data gives byte-identical SVG.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, replace
+from fractions import Fraction
+from typing import Any
+
+from gapforge.svg import (
+    INK,
+    PALETTE,
+    Axis,
+    Figure,
+    Style,
+    band_x,
+    dimension,
+    eng,
+    histogram,
+    legend,
+    nice_range,
+    nice_ticks,
+    step_points,
+    vline,
+    x_axis,
+    y_axis,
+)
+
+LEFT, RIGHT = 120.0, 30.0  # the timing figure's margins
+MC_BINS = 40  # histogram bars
+
+Window = tuple[Fraction | None, Fraction | None]  # a dead-time window's min and max, if any
+
+
+# ---------------------------------------------------------------------------------------------
+# 1. the pair through one PWM period
+
+
+@dataclass(frozen=True)
+class PairTiming:
+    """Times (seconds, exact) of one PWM period at 50 % commanded duty."""
+
+    period_s: Fraction
+    assumed_period: bool  # True when the design has no [pwm] section
+    command_on_s: Fraction  # the PWM command rises
+    command_off_s: Fraction  # the PWM command falls
+    to_high: tuple[Fraction, Fraction, Fraction]  # achieved, min, max
+    to_low: tuple[Fraction, Fraction, Fraction]
+
+    @property
+    def high_on_s(self) -> Fraction:
+        return self.command_on_s + self.to_high[0]
+
+    @property
+    def low_on_s(self) -> Fraction:
+        return self.command_off_s + self.to_low[0]
+
+    def turn_off_s(self, edge: str) -> Fraction:
+        """When the switch turning off before `edge` turns off (the command edge)."""
+        return self.command_on_s if edge == "to_high" else self.command_off_s
+
+
+
+def timing_figure(pt: PairTiming, prefix: str, windows: Mapping[str, Window], ident: str) -> str:
+    """Command, high-side and low-side gates through one period; gaps dimensioned.
+
+    `windows` maps each edge (to_high, to_low) to its dead-time window.
+    """
+    width, height = 1000, 330
+    xa = Axis(0.0, float(pt.period_s), LEFT, width - RIGHT)
+    fig = Figure(ident, width, height, f"Timing of {prefix} through one PWM period",
+                 "Command, high-side gate and low-side gate; dead times shaded and dimensioned.")
+    rows = {"command": 70.0, "high": 140.0, "low": 210.0}
+    amp = 30.0
+    period = float(pt.period_s)
+    on, off = float(pt.command_on_s), float(pt.command_off_s)
+    high_on, low_on = float(pt.high_on_s), float(pt.low_on_s)
+    low_wrap = low_on if low_on <= period else period
+    levels = {
+        "command": [(0.0, 0), (on, 1), (off, 0)],
+        "high": [(0.0, 0), (high_on, 1), (off, 0)],
+        "low": [(0.0, 1), (on, 0), (low_wrap, 1)],
+    }
+    styles = {"command": Style(INK, "", "none", 1.2), "high": PALETTE["high"], "low": PALETTE["low"]}
+    names = {"command": "PWM command", "high": "high-side gate", "low": "low-side gate"}
+    # dead-time intervals shaded (both gates off), tolerance bands, window edges
+    for edge, start, dead in (("to_high", on, pt.to_high), ("to_low", off, pt.to_low)):
+        end = start + float(dead[0])
+        band_x(fig, xa(start), xa(end), rows["high"] - amp - 8, rows["low"] + 8,
+               Style(INK, fill="#e9ecf1", opacity=1.0), f"gap-{edge}")
+        band_x(fig, xa(start + float(dead[1])), xa(start + float(dead[2])),
+               rows["high"] - amp - 8, rows["low"] + 8, PALETTE["tolerance"], f"tolerance-{edge}")
+        lo, hi = windows[edge]
+        for bound, name in ((lo, "min"), (hi, "max")):
+            if bound is not None:
+                vline(fig, xa(start + float(bound)), rows["command"] - amp - 10, rows["low"] + 14,
+                      PALETTE["window"], f"window-{name}-{edge}")
+    for key, y in rows.items():
+        pts = _wave(levels[key], period, xa, y, amp)
+        fig.polyline(pts, styles[key], f"gate-{key}")
+        fig.text(LEFT - 8, y - amp / 2 + 4, names[key], anchor="end", size=11, cls="row-label")
+    ticks = nice_ticks(0.0, period, 8)
+    x_axis(fig, xa, rows["low"] + 30, ticks, "s", "time in the PWM period")
+    for edge, start, dead in (("to_high", on, pt.to_high), ("to_low", off, pt.to_low)):
+        label = f"{edge} {eng(float(dead[0]), 's')}"
+        dimension(fig, xa(start), xa(start + float(dead[0])), rows["command"] - amp - 14, label,
+                  PALETTE["high"] if edge == "to_high" else PALETTE["low"], f"dim-{edge}")
+    legend(fig, LEFT, height - 14, [
+        ("high-side gate", PALETTE["high"], "line"),
+        ("low-side gate", PALETTE["low"], "line"),
+        ("dead time", Style(INK, fill="#e9ecf1"), "bar"),
+        ("clock-tolerance band", PALETTE["tolerance"], "band"),
+        ("window edges", PALETTE["window"], "line"),
+    ])
+    return fig.render()
+
+
+def _wave(changes: Sequence[tuple[float, int]], end: float, xa: Axis, y: float,
+          amp: float) -> list[tuple[float, float]]:
+    """Pixel points of a logic waveform: (time, level) changes, held until `end`."""
+    pts: list[tuple[float, float]] = []
+    for i, (t, level) in enumerate(changes):
+        yy = y - amp * level
+        if i > 0:
+            pts.append((xa(t), pts[-1][1]))
+        pts.append((xa(t), yy))
+    pts.append((xa(end), pts[-1][1]))
+    return pts
+
+
+
+def transition_figure(
+    prefix: str,
+    edge: str,
+    dead: tuple[Fraction, Fraction, Fraction],
+    requested: Fraction,
+    window: Window,
+    ident: str,
+) -> str:
+    """One transition to scale: the gate turning off at 0, the other turning on after the gap.
+
+    `dead` is the achieved dead time with its worst-case min and max over the clock tolerance.
+    """
+    achieved, amin, amax = dead
+    lo, hi = window
+    top = max(x for x in (amax, hi, lo, requested) if x is not None)
+    x_lo, x_hi = nice_range(-0.3 * float(top), 1.3 * float(top), 8)
+    width, height = 480, 330
+    xa = Axis(x_lo, x_hi, 70.0, width - 20.0)
+    fig = Figure(ident, width, height, f"{prefix} {edge} to scale",
+                 "The gate turning off at time 0, the other gate turning on after the dead time.")
+    off_key, on_key = ("low", "high") if edge == "to_high" else ("high", "low")
+    rows = {on_key: 120.0, off_key: 190.0}
+    amp = 30.0
+    if lo is not None:
+        band_x(fig, xa(float(lo)), xa(float(hi) if hi is not None else x_hi), 60, 200,
+               PALETTE["window"], f"window-{edge}")
+    band_x(fig, xa(float(amin)), xa(float(amax)), 60, 200, PALETTE["tolerance"],
+           f"tolerance-{edge}")
+    for bound, name in ((lo, "min"), (hi, "max")):
+        if bound is not None:
+            vline(fig, xa(float(bound)), 56, 204, PALETTE["window"], f"window-{name}")
+            fig.text(xa(float(bound)), 52, f"window {name}", anchor="middle", size=10,
+                     cls="window-label")
+    vline(fig, xa(float(requested)), 56, 204, PALETTE["request"], "request")
+    fig.polyline(_wave([(x_lo, 1), (0.0, 0)], x_hi, xa, rows[off_key], amp), PALETTE[off_key],
+                 f"gate-{off_key}")
+    fig.polyline(_wave([(x_lo, 0), (float(achieved), 1)], x_hi, xa, rows[on_key], amp),
+                 PALETTE[on_key], f"gate-{on_key}")
+    fig.text(66, rows[on_key] - 10, f"{on_key} on", anchor="end", size=10, cls="row-label")
+    fig.text(66, rows[off_key] - 10, f"{off_key} off", anchor="end", size=10, cls="row-label")
+    x_axis(fig, xa, 214, nice_ticks(x_lo, x_hi, 8), "s", "time from the turn-off edge")
+    dimension(fig, xa(0.0), xa(float(achieved)), 34, f"{edge} {eng(float(achieved), 's')}",
+              PALETTE[on_key], "dim")
+    legend(fig, 20, height - 18, [
+        ("request", PALETTE["request"], "line"),
+        ("window", PALETTE["window"], "band"),
+        ("clock-tolerance band", PALETTE["tolerance"], "band"),
+    ])
+    fig.text(xa(x_lo) + 2, 282,
+             f"worst case {eng(float(amin), 's')} .. {eng(float(amax), 's')}; "
+             f"requested {eng(float(requested), 's')}", size=10, cls="note")
+    return fig.render()
+
+
+
+# ---------------------------------------------------------------------------------------------
+# 2. the analog reference's node ramps
+
+
+@dataclass(frozen=True)
+class Ramp:
+    """The node voltage of one input edge at typical parts."""
+
+    edge: str
+    vdd: float
+    threshold: tuple[float, float, float]  # min, typ, max volts
+    closed_form: tuple[tuple[float, float], ...]  # (time s, volts)
+    delay_s: float  # closed form, to the typical threshold
+    simulated: tuple[tuple[float, float], ...]  # (time s, volts) threshold crossings, or ()
+    delay_sim_s: float | None
+
+
+
+def _clip(points: Sequence[tuple[float, float]], x_hi: float) -> list[tuple[float, float]]:
+    """Points up to x_hi, the last segment cut at x_hi by linear interpolation."""
+    out: list[tuple[float, float]] = []
+    for t, v in points:
+        if t <= x_hi:
+            out.append((t, v))
+            continue
+        if out:
+            t0, v0 = out[-1]
+            out.append((x_hi, v0 + (v - v0) * (x_hi - t0) / (t - t0)))
+        break
+    return out
+
+
+def analog_figure(ramp: Ramp, bypassed: bool, ident: str) -> str:
+    """Node voltage against time for one input edge, thresholds and the delay marked."""
+    delay = ramp.delay_sim_s if ramp.delay_sim_s is not None else ramp.delay_s
+    x_lo, x_hi = nice_range(0.0, 2.5 * max(delay, ramp.delay_s), 6)
+    width, height = 480, 340
+    xa = Axis(x_lo, x_hi, 80.0, width - 20.0)
+    ya = Axis(0.0, ramp.vdd, 250.0, 50.0)
+    kind = "diode-bypassed edge" if bypassed else "resistor edge"
+    title = f"Node voltage, {ramp.edge} input edge ({kind})"
+    fig = Figure(ident, width, height, title,
+                 "Capacitor node after an ideal input step, against the Schmitt threshold band.")
+    fig.text(80, 22, title, size=12, cls="figure-title", weight="bold")
+    thr_lo, thr_typ, thr_hi = ramp.threshold
+    fig.rect(xa.start, ya(thr_hi), xa.end - xa.start, ya(thr_lo) - ya(thr_hi),
+             PALETTE["threshold"].fill, "threshold-band", opacity=PALETTE["threshold"].opacity)
+    fig.line(xa.start, ya(thr_typ), xa.end, ya(thr_typ), PALETTE["threshold"], "threshold")
+    name = "VT+" if ramp.edge == "rising" else "VT-"
+    fig.text(xa.end - 4, ya(thr_typ) - 5, f"{name} typ {thr_typ:.3f} V", anchor="end", size=10,
+             cls="threshold-label")
+    y_axis(fig, ya, xa.start, nice_ticks(0.0, ramp.vdd, 5), "V", "node voltage",
+           grid_to=xa.end)
+    x_axis(fig, xa, ya.start, nice_ticks(x_lo, x_hi, 6), "s", "time from the input step")
+    cf = [(xa(t), ya(v)) for t, v in _clip(ramp.closed_form, x_hi)]
+    fig.polyline(cf, PALETTE["closed-form"], "ramp-closed-form")
+    entries = [("closed form", PALETTE["closed-form"], "line")]
+    if ramp.simulated:
+        sim = [(xa(t), ya(v)) for t, v in _clip(ramp.simulated, x_hi)]
+        fig.polyline(sim, PALETTE["simulated"], "ramp-simulated")
+        for x, y in sim[1:]:
+            fig.marker(x, y, replace(PALETTE["simulated"], marker="circle", fill="#ffffff"),
+                       "ramp-point", 3.5)
+        entries.insert(0, ("simulated (transient)", replace(PALETTE["simulated"], marker="circle",
+                                                             fill="#ffffff"), "line+marker"))
+    vline(fig, xa(delay), ya(thr_typ), ya.start, Style(INK, "3 2", "none", 1.0), "delay-mark")
+    label = f"delay {eng(delay, 's')}"
+    if ramp.delay_sim_s is not None:
+        label += f" (closed form {eng(ramp.delay_s, 's')})"
+    dimension(fig, xa(0.0), xa(delay), ya.start - 16, label, Style(INK), "dim-delay")
+    entries.append((f"{name} min..max", PALETTE["threshold"], "band"))
+    legend(fig, 20, height - 30, entries)
+    return fig.render()
+
+
+
+# ---------------------------------------------------------------------------------------------
+# 3. quantization staircases
+
+
+@dataclass(frozen=True)
+class Staircase:
+    """Achieved dead time as a function of the request, around the chosen code (exact)."""
+
+    values_s: tuple[Fraction, ...]  # representable values shown, increasing
+    breaks_s: tuple[Fraction, ...]  # request breakpoints: values_s[i] serves (breaks[i], breaks[i+1]]
+    chosen_s: Fraction
+    requested_s: Fraction
+
+
+
+def staircase_figure(
+    sc: Staircase,
+    prefix: str,
+    field_name: str,
+    edges: Sequence[str],
+    window: Sequence[Window],
+    ident: str,
+) -> str:
+    """Achieved against requested dead time for one field; `window` holds its edges' windows."""
+    x_lo, x_hi = float(sc.breaks_s[0]), float(sc.breaks_s[-1])
+    y_vals = [float(v) for v in sc.values_s]
+    y_lo, y_hi = nice_range(min(y_vals[0], x_lo), max(y_vals[-1], x_hi), 6)
+    width, height = 480, 380
+    xa = Axis(y_lo, y_hi, 90.0, width - 20.0)
+    ya = Axis(y_lo, y_hi, 290.0, 40.0)
+    label = ", ".join(edges)
+    title = f"{prefix} field {field_name} ({label})"
+    fig = Figure(ident, width, height, title,
+                 "Achieved dead time against the requested one at the chosen divider.")
+    fig.text(90, 22, title, size=12, cls="figure-title", weight="bold")
+    los = [w[0] for w in window if w[0] is not None]
+    his = [w[1] for w in window if w[1] is not None]
+    if los:
+        w_lo = float(max(los))
+        w_hi = float(min(his)) if his else y_hi
+        fig.rect(xa.start, ya(min(w_hi, y_hi)), xa.end - xa.start,
+                 ya(max(w_lo, y_lo)) - ya(min(w_hi, y_hi)), PALETTE["window"].fill, "window",
+                 opacity=PALETTE["window"].opacity)
+    y_axis(fig, ya, xa.start, nice_ticks(y_lo, y_hi, 6), "s", "achieved (nominal)",
+           grid_to=xa.end)
+    x_axis(fig, xa, ya.start, nice_ticks(y_lo, y_hi, 6), "s", "requested")
+    fig.line(xa(y_lo), ya(y_lo), xa(y_hi), ya(y_hi), Style("#b8bec8", "1 3", "none", 1.0),
+             "identity")
+    pts = step_points([float(b) for b in sc.breaks_s], y_vals, xa, ya)
+    fig.polyline(pts, Style(INK, "", "none", 1.6), "staircase")
+    for v in y_vals:
+        fig.marker(xa.start, ya(v), PALETTE["representable"], "representable", 3.5)
+    vline(fig, xa(float(sc.requested_s)), ya.end, ya.start, PALETTE["request"], "request")
+    fig.marker(xa(float(sc.requested_s)), ya(float(sc.chosen_s)), PALETTE["chosen"], "chosen", 5)
+    fig.text(xa(float(sc.requested_s)) + 8, ya(float(sc.chosen_s)) - 8,
+             f"chosen {eng(float(sc.chosen_s), 's')}", size=10, cls="chosen-label")
+    legend(fig, 20, height - 30, [
+        ("representable value", PALETTE["representable"], "marker"),
+        ("chosen", PALETTE["chosen"], "marker"),
+        ("request", PALETTE["request"], "line"),
+        ("window", PALETTE["window"], "band"),
+    ])
+    return fig.render()
+
+
+
+# ---------------------------------------------------------------------------------------------
+# 4. histograms: the reference's Monte Carlo, measured gaps; overlaps
+
+
+def _bins(values: Any, marks: Sequence[float]) -> tuple[list[float], list[int]]:
+    import numpy as np
+
+    lo = min(float(values.min()), *marks) if marks else float(values.min())
+    hi = max(float(values.max()), *marks) if marks else float(values.max())
+    lo, hi = nice_range(lo, hi, 8)
+    counts, edges = np.histogram(values, bins=MC_BINS, range=(lo, hi))
+    return [float(e) for e in edges], [int(c) for c in counts]
+
+
+def distribution_figure(
+    values: Any,
+    *,
+    edge: str,
+    window: tuple[Fraction | None, Fraction | None],
+    digital: tuple[Fraction, Fraction, Fraction] | None,
+    predicted: tuple[Fraction, Fraction] | None,
+    style: Style,
+    what: str,
+    ident: str,
+) -> str:
+    """A histogram of dead times with the window and the digital value (or the prediction)."""
+    marks = [float(x) for x in window if x is not None]
+    if digital is not None:
+        marks += [float(digital[1]), float(digital[2])]
+    if predicted is not None:
+        marks += [float(predicted[0]), float(predicted[1])]
+    edges, counts = _bins(values, marks)
+    top = max(counts) if counts else 1
+    width, height = 480, 340
+    xa = Axis(edges[0], edges[-1], 70.0, width - 20.0)
+    _, c_hi = nice_range(0.0, 1.1 * float(max(top, 1)), 5)
+    ya = Axis(0.0, c_hi, 250.0, 50.0)
+    title = f"{what}: {edge}"
+    fig = Figure(ident, width, height, title, f"Histogram of {what} with the window.")
+    fig.text(70, 22, f"{title} ({len(values)} values)", size=12, cls="figure-title",
+             weight="bold")
+    if digital is not None:
+        band_x(fig, xa(float(digital[1])), xa(float(digital[2])), ya.end, ya.start,
+               PALETTE["tolerance"], "digital-band")
+    if predicted is not None:
+        band_x(fig, xa(float(predicted[0])), xa(float(predicted[1])), ya.end, ya.start,
+               PALETTE["tolerance"], "predicted-band")
+    histogram(fig, edges, counts, xa, ya, style, "bar")
+    y_axis(fig, ya, xa.start, nice_ticks(0.0, c_hi, 5), "", "count", grid_to=xa.end)
+    x_axis(fig, xa, ya.start, nice_ticks(edges[0], edges[-1], 6), "s", "dead time")
+    for bound, name in zip(window, ("min", "max"), strict=True):
+        if bound is not None:
+            x = xa(float(bound))
+            vline(fig, x, ya.end - 6, ya.start, PALETTE["window"], f"window-{name}")
+            # min labelled above the plot, max inside it: close edges keep both labels legible
+            fig.text(x + 3, ya.end - 10 if name == "min" else ya.end + 12, f"window {name}",
+                     anchor="start", size=10, cls="window-label")
+    entries = [(what, style, "bar"), ("window", PALETTE["window"], "line")]
+    if digital is not None:
+        vline(fig, xa(float(digital[0])), ya.end, ya.start, PALETTE["digital"], "digital")
+        fig.marker(xa(float(digital[0])), ya.end, PALETTE["digital"], "digital-marker")
+        entries += [("digital value", PALETTE["digital"], "line"),
+                    ("clock-tolerance band", PALETTE["tolerance"], "band")]
+    if predicted is not None:
+        entries.append(("predicted range", PALETTE["tolerance"], "band"))
+    legend(fig, 20, height - 30, entries)
+    return fig.render()
+
+
+def overlap_figure(duration_s: Fraction, overlaps_at_s: Sequence[Fraction], ident: str) -> str:
+    """Where in the capture (`duration_s` long) each overlap (both gates on) happened."""
+    width, height = 980, 130
+    start = 0.0
+    end = float(duration_s) if duration_s > 0 else 1.0
+    times = [float(t) for t in overlaps_at_s]
+    if times:
+        start = min(start, min(times))
+        end = max(end, max(times))
+    x_lo, x_hi = nice_range(start, end, 10)
+    xa = Axis(x_lo, x_hi, 70.0, width - 20.0)
+    fig = Figure(ident, width, height, "Overlaps (both gates on) in the capture",
+                 "Each marker is one shoot-through event at its time stamp.")
+    fig.line(xa.start, 60, xa.end, 60, Style("#b8bec8", width=6.0), "capture-span")
+    for t in times:
+        fig.marker(xa(t), 48, PALETTE["overlap"], "overlap", 6)
+    fig.text(70, 22, f"{len(times)} overlap(s)", size=12, cls="figure-title", weight="bold")
+    x_axis(fig, xa, 75, nice_ticks(x_lo, x_hi, 10), "s", "capture time")
+    return fig.render()
