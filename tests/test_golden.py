@@ -71,9 +71,6 @@ def test_provenance_names_inputs_by_hash_and_has_no_timestamp(design: str) -> No
         assert text.endswith("\n") and "\r" not in text
 
 
-@pytest.mark.xfail(strict=True, reason="bug: with a user layout file the header records the "
-                   "layout path as spelt via the design's path (absolute or cwd-relative), so the "
-                   "header depends on the working directory and --check reports it stale")
 def test_user_layout_provenance_is_independent_of_how_the_design_is_named(
     tmp_path: Path,
 ) -> None:

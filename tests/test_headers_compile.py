@@ -263,9 +263,6 @@ def test_struct_flavour_compiles_and_holds_the_same_values(
                 e["to_low"]["steps"], *ps)]
 
 
-@pytest.mark.xfail(strict=True, reason="bug: a layout field named 'divider' makes the header "
-                   "define <PREFIX>_DIVIDER_CODE twice with different values (field names are not "
-                   "checked against the fixed macro names), so it does not compile")
 def test_field_names_cannot_collide_with_fixed_macros(tmp_path: Path) -> None:
     compiler = _compiler("gcc")
     (tmp_path / "collide.toml").write_text(
@@ -348,9 +345,6 @@ def test_every_layout_at_extreme_clocks_compiles_and_recomputes(
         assert proc.returncode == 0, proc.stderr
 
 
-@pytest.mark.xfail(strict=True, reason="bug: the include guard upper-cases the prefix, so two "
-                   "outputs with prefixes 'dt' and 'DT' (accepted as distinct) share the guard "
-                   "DT_H and the second header is silently skipped when both are included")
 def test_prefixes_differing_in_case_get_distinct_include_guards(tmp_path: Path) -> None:
     compiler = _compiler("gcc")
     (tmp_path / "d.toml").write_text(

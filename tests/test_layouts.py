@@ -208,7 +208,7 @@ BAD_LAYOUTS: dict[str, tuple[str, str]] = {
     "duplicate-field-name": (
         HEAD + '[[field]]\nname = "a"\nrole = "to_high"\noffset = 0\nwidth = 4\n'
         '[[field]]\nname = "a"\nrole = "to_low"\noffset = 4\nwidth = 4\n',
-        "field[0].name: field name 'a' is used more than once",
+        "field[0].name: field name 'a' is used more than once (names are compared ignoring case)",
     ),
     "field-name-not-identifier": (
         HEAD + '[[field]]\nname = "a-b"\nrole = "both"\noffset = 0\nwidth = 8\n',

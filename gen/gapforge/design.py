@@ -26,7 +26,7 @@ from typing import Any
 from gapforge.errors import GapforgeError
 from gapforge.fit import ROUNDINGS
 from gapforge.layouts import EDGES, Layout, load_layout
-from gapforge.limits import COUNTINGS, PwmSpec
+from gapforge.limits import COUNTINGS, PwmSpec, compare_counts
 from gapforge.schema import Reader, load_toml
 
 FORMAT_VERSION = 1
@@ -98,6 +98,11 @@ def load_design(path: Path) -> Design:
         counting = pwm_t.string("counting", "edge", COUNTINGS)
         assert freq is not None
         pwm = PwmSpec(freq, counting)
+        if clock is not None and not reader.problems:
+            try:
+                compare_counts(clock, pwm)
+            except GapforgeError as exc:
+                reader.problem("pwm.frequency", exc.message)
 
     reference = None
     ref_t = top.sub("reference")
@@ -159,9 +164,12 @@ def load_design(path: Path) -> Design:
         struct = t.boolean("struct", False)
         if prefix and not _MACRO.match(prefix):
             reader.problem(t.key_path("prefix"), f"{prefix!r} is not a C identifier prefix")
-        if prefix in prefixes:
-            reader.problem(t.key_path("prefix"), f"prefix {prefix!r} is used twice")
-        prefixes.add(prefix)
+        if prefix.upper() in prefixes:
+            reader.problem(
+                t.key_path("prefix"),
+                f"prefix {prefix!r} is used twice (include guards ignore case)",
+            )
+        prefixes.add(prefix.upper())
         if file and (
             Path(file).is_absolute() or ".." in Path(file).parts or not file.endswith(".h")
         ):
@@ -173,7 +181,7 @@ def load_design(path: Path) -> Design:
             continue
         is_path = target.endswith(".toml") or "/" in target
         try:
-            layout = load_layout(str(path.parent / target) if is_path else target)
+            layout = load_layout(str(path.parent / target) if is_path else target, label=target)
         except GapforgeError as exc:
             reader.problem(t.key_path("target"), exc.line())
             continue

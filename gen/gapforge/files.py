@@ -15,6 +15,12 @@ from pathlib import Path
 from gapforge.errors import GapforgeError
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def write_files(texts: Mapping[Path, str | bytes]) -> list[Path]:
     """Write every file atomically (UTF-8, '\\n' line ends). Returns the paths written."""
     staged: list[tuple[str, Path]] = []
@@ -27,18 +33,25 @@ def write_files(texts: Mapping[Path, str | bytes]) -> list[Path]:
                 raise GapforgeError(
                     f"cannot create directory: {exc.strerror}", str(directory)
                 ) from None
+            if path.is_dir():
+                raise GapforgeError("is a directory, expected a file to write", str(path))
             data = text.encode("utf-8") if isinstance(text, str) else text
             try:
                 fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)
             except OSError as exc:
                 raise GapforgeError(f"cannot write: {exc.strerror}", str(path)) from None
+            staged.append((tmp, path))
             with os.fdopen(fd, "wb") as handle:
                 handle.write(data)
                 handle.flush()
                 os.fsync(handle.fileno())
-            staged.append((tmp, path))
+            # mkstemp creates 0600; give the file the mode a plain open() would have
+            os.chmod(tmp, 0o666 & ~_umask())
         for tmp, path in staged:
-            os.replace(tmp, path)
+            try:
+                os.replace(tmp, path)
+            except OSError as exc:
+                raise GapforgeError(f"cannot write: {exc.strerror}", str(path)) from None
         return [path for _, path in staged]
     finally:
         for tmp, _ in staged:

@@ -138,7 +138,7 @@ def fit(layout: Layout, request: FitRequest, divider_code: int | None = None) ->
     if best is None:
         return _unreachable(layout, request, divider_code)
     _, d, chosen = best
-    return _result(layout, request, d, chosen)
+    return _result(layout, request, d, chosen, divider_code)
 
 
 def _choose(f: Field, request: FitRequest, target: Fraction, scale: Fraction) -> int | None:
@@ -162,7 +162,13 @@ def _edge_max(layout: Layout, request: FitRequest, edge: str, divider_code: int 
     return f.table[0][-1] * Fraction(top) / (layout.sub_steps * request.clock_hz)
 
 
-def _result(layout: Layout, request: FitRequest, d: int, chosen: dict[str, int]) -> FitResult:
+def _result(
+    layout: Layout,
+    request: FitRequest,
+    d: int,
+    chosen: dict[str, int],
+    divider_code: int | None = None,
+) -> FitResult:
     divider = layout.dividers[d]
     scale = Fraction(divider) / (layout.sub_steps * request.clock_hz)
     tol = request.clock_tol
@@ -176,7 +182,7 @@ def _result(layout: Layout, request: FitRequest, d: int, chosen: dict[str, int])
         achieved = steps * scale
         higher = values[i + 1] * scale if i + 1 < len(values) else None
         lower = values[i - 1] * scale if i > 0 else None
-        top = _edge_max(layout, request, edge, None)
+        top = _edge_max(layout, request, edge, divider_code)
         edges[edge] = EdgeFit(
             edge=edge,
             field=f.name,

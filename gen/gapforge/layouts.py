@@ -20,7 +20,7 @@ from __future__ import annotations
 import bisect
 import hashlib
 import importlib.resources
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 from pathlib import Path
 
@@ -31,6 +31,9 @@ EDGES = ("to_high", "to_low")
 ROLES = ("both", "to_high", "to_low", "divider")
 ENCODINGS = ("linear", "segmented")
 FORMAT_VERSION = 1
+# Field names whose macros (<P>_<NAME>_CODE/_SHIFT/_MASK) would collide with the header's fixed
+# macros (<P>_DIVIDER_CODE). Compared case-insensitively: macro names are upper-cased.
+RESERVED_FIELD_NAMES = frozenset({"divider"})
 
 
 @dataclass(frozen=True)
@@ -191,16 +194,23 @@ def resolve(name_or_path: str) -> Path:
 _CACHE: dict[tuple[str, str], Layout] = {}
 
 
-def load_layout(name_or_path: str) -> Layout:
-    """Load and validate a layout by built-in name or file path (cached per resolved path)."""
+def load_layout(name_or_path: str, label: str | None = None) -> Layout:
+    """Load and validate a layout by built-in name or file path (cached per resolved path).
+
+    `label` is how provenance names a user's layout file (by default the path as given); a
+    built-in is always named `targets/<name>.toml`, wherever it is installed.
+    """
     path = resolve(name_or_path)
     builtin = path.parent.resolve() == _builtin_dir().resolve()
-    label = f"targets/{path.name}" if builtin else str(path)
+    source = f"targets/{path.name}" if builtin else (label or name_or_path)
     data, raw = load_toml(path)
     key = (str(path.resolve()), hashlib.sha256(raw).hexdigest())
     if key not in _CACHE:
-        _CACHE[key] = parse_layout(data, raw, label, default_name=path.stem)
-    return _CACHE[key]
+        # problems name the file as found (builtins by their short name); provenance uses `source`
+        where = source if builtin else str(path)
+        _CACHE[key] = parse_layout(data, raw, where, default_name=path.stem)
+    cached = _CACHE[key]
+    return cached if cached.source == source else replace(cached, source=source)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -382,15 +392,23 @@ def _check_fields(
     dividers: tuple[int, ...],
     divider_field: str | None,
 ) -> None:
-    names = [f.name for f in fields]
+    names = [f.name.lower() for f in fields]
     for i, f in enumerate(fields):
         where = f"field[{i}]"
         if not f.name.isidentifier() or not f.name.isascii():
             reader.problem(
                 f"{where}.name", f"{f.name!r} must be an ASCII identifier (it names macros)"
             )
-        if names.count(f.name) > 1 and names.index(f.name) == i:
-            reader.problem(f"{where}.name", f"field name {f.name!r} is used more than once")
+        if names.count(f.name.lower()) > 1 and names.index(f.name.lower()) == i:
+            reader.problem(
+                f"{where}.name",
+                f"field name {f.name!r} is used more than once (names are compared ignoring case)",
+            )
+        if f.name.lower() in RESERVED_FIELD_NAMES:
+            reader.problem(
+                f"{where}.name",
+                f"{f.name!r} is reserved: its macros would collide with the header's own",
+            )
         if f.offset + f.width > register_bits:
             reader.problem(
                 where,

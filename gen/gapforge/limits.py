@@ -73,6 +73,24 @@ class PwmLimits:
         return sum((e.share for e in self.edges.values()), Fraction(0))
 
 
+def compare_counts(clock_hz: Fraction, spec: PwmSpec) -> int:
+    """N, the compare range 0..N: the PWM period in counts, rounded to the nearest whole count.
+
+    Raises a GapforgeError without a location (the caller names the option or key) when the
+    period is shorter than 2 counts.
+    """
+    per = 1 if spec.counting == "edge" else 2
+    ideal = clock_hz / (spec.frequency_hz * per)
+    counts = floor_fraction(ideal + Fraction(1, 2))
+    if counts < 2:
+        raise GapforgeError(
+            f"the PWM frequency {float(spec.frequency_hz):.6g} Hz gives {float(ideal):.3g} counts "
+            f"per period at the {float(clock_hz):.6g} Hz timer clock ({spec.counting}-aligned); "
+            "at least 2 are needed"
+        )
+    return counts
+
+
 def pwm_limits(result: FitResult, spec: PwmSpec) -> PwmLimits:
     """The PWM limits for a fitted result (which must have verdict ok)."""
     if not result.ok or result.divider is None:
@@ -80,13 +98,7 @@ def pwm_limits(result: FitResult, spec: PwmSpec) -> PwmLimits:
     clock = result.request.clock_hz
     per = 1 if spec.counting == "edge" else 2
     ideal = clock / (spec.frequency_hz * per)
-    counts = floor_fraction(ideal + Fraction(1, 2))
-    if counts < 2:
-        raise GapforgeError(
-            f"the PWM frequency needs {float(ideal):.3g} counts per period at this clock; at least 2"
-            " are needed",
-            "pwm frequency",
-        )
+    counts = compare_counts(clock, spec)
     period_counts = counts * per
     real = clock / period_counts
     edges: dict[str, EdgeLimits] = {}

@@ -124,6 +124,9 @@ def _parse_text(text: str, unit: str, where: str) -> Fraction:
     if not match:
         raise GapforgeError(f"{text!r} is not a number with an optional unit", where)
     number, suffix = match.groups()
+    exponent = re.search(r"[eE]([+-]?\d+)$", number)
+    if exponent and abs(int(exponent.group(1))) > 30:
+        raise GapforgeError(f"the exponent in {text!r} is out of range (at most 1e30)", where)
     multiplier = _split_suffix(suffix, unit)
     if multiplier is None:
         expected = f"{unit}" if unit else "no unit"

@@ -109,7 +109,8 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
     p = op.output.prefix
     assert fit.ok and fit.divider is not None and fit.divider_code is not None
     clock = design.clock_hz
-    clock_int = clock.numerator // clock.denominator
+    # rounded up: firmware that recomputes a dead time from the macros then errs short (safe)
+    clock_int = -(-clock.numerator // clock.denominator)
     clock_exact = clock.denominator == 1
 
     banner = [
@@ -149,7 +150,7 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
     banner += ["", *(f" {line}" for line in CAUTION)]
     if not clock_exact:
         banner.append(
-            " Note: the timer clock is not a whole number of hertz; the macro is rounded down."
+            " Note: the timer clock is not a whole number of hertz; the macro is rounded up."
         )
 
     sections: list[Section] = []

@@ -11,7 +11,7 @@ from gapforge.cli.options import Quantity, clock_options, diagram_options, emit_
 from gapforge.errors import GapforgeError
 from gapforge.fit import ROUNDINGS, FitRequest, fit
 from gapforge.layouts import load_layout
-from gapforge.limits import COUNTINGS, PwmSpec, pwm_limits
+from gapforge.limits import COUNTINGS, PwmSpec, compare_counts, pwm_limits
 from gapforge.views import CAUTION, fit_json, fit_text
 
 
@@ -83,6 +83,17 @@ def command(
         layout = load_layout(target)
     except GapforgeError as exc:
         raise exc.at("--target") if exc.where is None else exc from None
+    if divider_code is not None and not 0 <= divider_code < len(layout.dividers):
+        raise GapforgeError(
+            f"divider code {divider_code} is not one of 0..{len(layout.dividers) - 1} "
+            f"for layout {layout.name}",
+            "--divider-code",
+        )
+    if pwm is not None:
+        try:
+            compare_counts(clock, PwmSpec(pwm, counting))
+        except GapforgeError as exc:
+            raise exc.at("--pwm") from None
     result = fit(layout, FitRequest(clock, clock_tol, high, low, rounding), divider_code)
     limits = pwm_limits(result, PwmSpec(pwm, counting)) if pwm is not None and result.ok else None
     verdict = (
