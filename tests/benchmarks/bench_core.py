@@ -52,9 +52,9 @@ def wall(cmd: list[str], repeat: int = 5) -> float:
 
 def imports_numpy(args: list[str]) -> bool:
     code = (
-        "import sys\nfrom gapforge.cli import main\nsys.argv=['gapforge',*%r]\n"
+        f"import sys\nfrom gapforge.cli import main\nsys.argv=['gapforge',*{args!r}]\n"
         "try:\n    main()\nexcept SystemExit:\n    pass\n"
-        "sys.stderr.write('NUMPY=%%s' %% ('numpy' in sys.modules))\n" % (args,)
+        "sys.stderr.write('NUMPY=%s' % ('numpy' in sys.modules))\n"
     )
     out = subprocess.run([PY, "-c", code], capture_output=True, text=True, cwd=ROOT)
     return "NUMPY=True" in out.stderr
@@ -75,9 +75,10 @@ def main() -> None:
               f"imports numpy: {imports_numpy(args)}")
 
     sys.path.insert(0, str(ROOT / "gen"))
+    import tomllib
+
     from gapforge.fit import FitRequest, fit
     from gapforge.layouts import parse_layout
-    import tomllib
 
     raw = LAYOUT_16BIT_DIV4.encode()
     req = FitRequest(Fraction(160_000_000), Fraction(50, 10**6), Fraction(123456, 10**9),
