@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import difflib
 import re
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from fractions import Fraction
 from pathlib import Path
@@ -37,7 +37,8 @@ X = 2
 Z = 3
 _T = TypeVar("_T", bound=np.generic)
 
-CHUNK_BYTES = 1 << 21
+CHUNK_BYTES = 1 << 20
+_PAD = 24  # bytes before the data in the read buffer
 _MAX_TIME_DIGITS = 18
 
 _UNITS: dict[str, Fraction] = {
@@ -275,91 +276,118 @@ def select(header: Header, name: str, where: str) -> _Selection:
 # body
 
 
+class UnorderedTimes(Exception):
+    """Raised by an ordered event stream at the first timestamp that goes backwards."""
+
+
 @dataclass
 class _State:
     """What one chunk hands to the next."""
 
+    path: Path
+    place: str
     time: int = 0
     seen_time: bool = False
     in_comment: bool = False
-    line: int = 1
     backwards: int = 0
     first_backwards: str = ""
-    offset: int = 0
+    offset: int = 0  # file offset of the first byte of the current chunk
 
 
-@dataclass
-class _Collector:
-    code: bytes
-    positions: list[int]
-    times: list[npt.NDArray[np.int64]] = field(default_factory=list)
-    values: list[npt.NDArray[np.uint8]] = field(default_factory=list)
+@dataclass(frozen=True)
+class _Chunk:
+    """The decoded part of one chunk: every timestamp and the changes of each wanted key."""
+
+    prev_time: int  # the time in force before the chunk's first timestamp
+    time_count: npt.NDArray[np.intp] | None  # per token: how many timestamps up to it
+    times: npt.NDArray[np.int64]
+    picks: dict[tuple[bytes, int], tuple[npt.NDArray[np.intp], npt.NDArray[np.uint8]]]
+
+    def times_of(self, token_idx: npt.NDArray[np.intp]) -> npt.NDArray[np.int64]:
+        """The time in force at each token (the last timestamp before it)."""
+        if self.time_count is None or self.times.size == 0:
+            return np.full(token_idx.size, self.prev_time, dtype=np.int64)
+        ext = np.empty(self.times.size + 1, dtype=np.int64)
+        ext[0] = self.prev_time
+        ext[1:] = self.times
+        return ext[self.time_count[token_idx]]
 
 
-def read_vcd(
-    path: Path, names: Sequence[str], *, chunk_bytes: int = CHUNK_BYTES, where: str | None = None
-) -> VcdData:
-    """Read the changes of the named signals. Raises GapforgeError on malformed input."""
-    place = where or str(path)
-    header = read_header(path)
-    selections = [select(header, name, place) for name in names]
-    collectors: dict[bytes, _Collector] = {}
+def _keys(selections: Sequence[_Selection]) -> dict[bytes, list[int]]:
+    wanted: dict[bytes, list[int]] = {}
     for sel in selections:
-        code = sel.variable.code.encode("ascii")
-        col = collectors.setdefault(code, _Collector(code, []))
-        if sel.position not in col.positions:
-            col.positions.append(sel.position)
-    # per (code, position) the output pieces
-    pieces: dict[tuple[bytes, int], tuple[list[npt.NDArray[np.int64]], list[npt.NDArray[np.uint8]]]]
-    pieces = {(c, p): ([], []) for c, col in collectors.items() for p in col.positions}
-    state = _State(offset=header.body_offset)
+        positions = wanted.setdefault(sel.variable.code.encode("ascii"), [])
+        if sel.position not in positions:
+            positions.append(sel.position)
+    return wanted
+
+
+def _chunks(
+    path: Path, header: Header, wanted: dict[bytes, list[int]], state: _State, place: str,
+    chunk_bytes: int,
+) -> Iterator[_Chunk]:
+    """Decode the body chunk by chunk into one reused buffer (constant memory per chunk)."""
     try:
         handle = path.open("rb")
     except OSError as exc:
         raise GapforgeError(f"cannot read: {exc.strerror}", place) from None
     with handle:
         handle.seek(header.body_offset)
-        head_lines = _count_header_lines(path, header.body_offset)
-        state.line = head_lines
-        buffer = bytearray(chunk_bytes + 1)
-        buffer[0] = 0x0A  # a virtual separator before the first token
+        state.offset = header.body_offset
+        # _PAD spaces before the data: a virtual separator, and room for 8-byte loads that end
+        # at a short token near the start; one spare byte for a separator after the last token
+        buffer = bytearray(b" " * _PAD) + bytearray(chunk_bytes + 1)
         carry = 0
         while True:
-            requested = len(buffer) - 1 - carry
-            with memoryview(buffer) as whole, whole[1 + carry :] as view:
+            requested = len(buffer) - 1 - _PAD - carry
+            with memoryview(buffer) as whole, whole[_PAD + carry : len(buffer) - 1] as view:
                 got = handle.readinto(view) or 0
             eof = got < requested
-            filled = 1 + carry + got
-            if filled == 1:
+            filled = _PAD + carry + got
+            if filled == _PAD:
                 break
+            if eof:
+                buffer[filled] = 0x0A  # the final token may run to the end of the file
+                filled += 1
             arr = np.frombuffer(buffer, dtype=np.uint8, count=filled)
             cut = filled if eof else _cut(arr)
-            if cut <= 1:
+            if cut <= _PAD:
                 del arr
                 buffer.extend(bytes(len(buffer)))  # one token longer than a chunk
-                carry = filled - 1
+                carry = filled - _PAD
                 continue
-            used = _parse_chunk(arr[:cut], collectors, pieces, state, place, eof)
-            state.line += int(np.count_nonzero(arr[1:used] == 0x0A))
-            state.offset += used - 1
+            used, chunk = _parse_chunk(buffer, arr[:cut], wanted, state, eof)
             del arr
+            yield chunk
             rest = filled - used
-            buffer[1 : 1 + rest] = buffer[used:filled]
-            carry = rest
+            state.offset += used - _PAD
             if eof:
                 if rest:
                     raise GapforgeError("cannot read the end of the file", place)
                 break
-    warnings: list[str] = []
-    if state.backwards:
-        warnings.append(
-            f"{place}: {state.backwards} timestamp(s) go backwards (first at {state.first_backwards});"
-            " changes were ordered by time"
-        )
+            buffer[_PAD : _PAD + rest] = buffer[used:filled]
+            carry = rest
+
+
+def read_vcd(
+    path: Path, names: Sequence[str], *, chunk_bytes: int = CHUNK_BYTES, where: str | None = None
+) -> VcdData:
+    """Read every change of the named signals. Raises GapforgeError on malformed input."""
+    place = where or str(path)
+    header = read_header(path)
+    selections = [select(header, name, place) for name in names]
+    wanted = _keys(selections)
+    pieces: dict[tuple[bytes, int], tuple[list[npt.NDArray[np.int64]], list[npt.NDArray[np.uint8]]]]
+    pieces = {(c, p): ([], []) for c, positions in wanted.items() for p in positions}
+    state = _State(path, place)
+    for chunk in _chunks(path, header, wanted, state, place, chunk_bytes):
+        for key, (token_idx, values) in chunk.picks.items():
+            if token_idx.size:
+                pieces[key][0].append(chunk.times_of(token_idx))
+                pieces[key][1].append(values)
     signals: dict[str, SignalChanges] = {}
     for sel in selections:
-        key = (sel.variable.code.encode("ascii"), sel.position)
-        tlist, vlist = pieces[key]
+        tlist, vlist = pieces[(sel.variable.code.encode("ascii"), sel.position)]
         times = _join(tlist, np.int64)
         values = _join(vlist, np.uint8)
         if state.backwards:
@@ -368,7 +396,81 @@ def read_vcd(
             tlist[:] = [times]
             vlist[:] = [values]
         signals[sel.name] = SignalChanges(sel.name, times, values)
-    return VcdData(header.timescale_s, signals, state.time, tuple(warnings))
+    return VcdData(header.timescale_s, signals, state.time, _warnings(state, place))
+
+
+def _warnings(state: _State, place: str) -> tuple[str, ...]:
+    if not state.backwards:
+        return ()
+    return (f"{place}: {state.backwards} timestamp(s) go backwards (first at "
+            f"{state.first_backwards}); changes were ordered by time",)
+
+
+@dataclass
+class EventStream:
+    """The changes of two signals (sides 0 and 1) merged in file order, chunk by chunk.
+
+    `chunks()` raises UnorderedTimes at the first timestamp that goes backwards; then
+    `sorted_chunks()` reads the whole file and yields every change ordered by time in one chunk.
+    `end_time` and `warnings` are final once a pass has been read to the end."""
+
+    path: Path
+    header: Header
+    selections: tuple[_Selection, _Selection]
+    place: str
+    chunk_bytes: int = CHUNK_BYTES
+    end_time: int = 0
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def timescale_s(self) -> Fraction:
+        return self.header.timescale_s
+
+    def chunks(self) -> Iterator[tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8],
+                                       npt.NDArray[np.uint8]]]:
+        """(times, sides, values) per chunk, in file order; at one token side 0 comes first."""
+        keys = [(s.variable.code.encode("ascii"), s.position) for s in self.selections]
+        wanted = _keys(self.selections)
+        state = _State(self.path, self.place)
+        for chunk in _chunks(self.path, self.header, wanted, state, self.place, self.chunk_bytes):
+            if state.backwards:
+                raise UnorderedTimes(state.first_backwards)
+            tok0, val0 = chunk.picks[keys[0]]
+            tok1, val1 = chunk.picks[keys[1]]
+            if tok0.size + tok1.size == 0:
+                continue
+            token_idx = np.concatenate([tok0, tok1])
+            order = np.argsort(token_idx, kind="stable")  # two sorted runs: one linear merge
+            sides = np.empty(token_idx.size, dtype=np.uint8)
+            sides[: tok0.size] = 0
+            sides[tok0.size :] = 1
+            yield (chunk.times_of(token_idx[order]), sides[order],
+                   np.concatenate([val0, val1])[order])
+        self.end_time = state.time
+        self.warnings = ()
+
+    def sorted_chunks(self) -> Iterator[tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8],
+                                              npt.NDArray[np.uint8]]]:
+        names = [s.name for s in self.selections]
+        data = read_vcd(self.path, names, chunk_bytes=self.chunk_bytes, where=self.place)
+        first, second = data.signals[names[0]], data.signals[names[1]]
+        times = np.concatenate([first.times, second.times])
+        order = np.argsort(times, kind="stable")
+        sides = np.concatenate([np.zeros(first.times.size, dtype=np.uint8),
+                                np.ones(second.times.size, dtype=np.uint8)])
+        self.end_time = data.end_time
+        self.warnings = data.warnings
+        yield times[order], sides[order], np.concatenate([first.values, second.values])[order]
+
+
+def open_events(
+    path: Path, first: str, second: str, *, chunk_bytes: int = CHUNK_BYTES, where: str | None = None
+) -> EventStream:
+    """Read the header and select two signals; the body is read when the stream is iterated."""
+    place = where or str(path)
+    header = read_header(path)
+    selections = (select(header, first, place), select(header, second, place))
+    return EventStream(path, header, selections, place, chunk_bytes)
 
 
 def _join(parts: list[npt.NDArray[_T]], dtype: type[_T]) -> npt.NDArray[_T]:
@@ -386,11 +488,6 @@ def _join(parts: list[npt.NDArray[_T]], dtype: type[_T]) -> npt.NDArray[_T]:
     return out
 
 
-def _count_header_lines(path: Path, body_offset: int) -> int:
-    with path.open("rb") as handle:
-        return handle.read(body_offset).count(b"\n") + 1
-
-
 def _cut(arr: npt.NDArray[np.uint8]) -> int:
     """Where to end this chunk: just after the last whitespace (the final token may be partial)."""
     tail = min(arr.size, 4096)
@@ -402,133 +499,149 @@ def _cut(arr: npt.NDArray[np.uint8]) -> int:
 
 
 def _parse_chunk(
+    buffer: bytearray,
     arr: npt.NDArray[np.uint8],
-    collectors: dict[bytes, _Collector],
-    pieces: dict[tuple[bytes, int], tuple[list[npt.NDArray[np.int64]], list[npt.NDArray[np.uint8]]]],
+    wanted: dict[bytes, list[int]],
     state: _State,
-    where: str,
     last: bool,
-) -> int:
-    """Decode one chunk; returns how many bytes were used (a trailing vector value whose code is
-    in the next chunk is left for it)."""
-    ws = arr <= 32
-    step = np.diff(ws.view(np.int8))
-    starts = np.flatnonzero(step == -1) + 1
-    ends = np.flatnonzero(step == 1) + 1
-    del step
-    if ends.size < starts.size:  # the final token runs to the end of the data
-        ends = np.append(ends, arr.size)
+) -> tuple[int, _Chunk]:
+    """Decode one chunk (which ends with whitespace); returns how many bytes were used (a
+    trailing vector value whose code is in the next chunk is left for it) and the changes."""
+    # token bounds from the whitespace positions: a token lies between two whitespace bytes
+    # that are not adjacent (arr starts with padding spaces and ends with whitespace)
+    wpos = np.flatnonzero(arr <= 32)
+    gap = np.diff(wpos)
+    tok = np.flatnonzero(gap > 1)
+    del gap
+    starts = wpos[tok] + 1
+    ends = wpos[tok + 1]
+    del wpos, tok
+    used = arr.size
+    empty_picks = {(c, p): (np.zeros(0, dtype=np.intp), np.zeros(0, dtype=np.uint8))
+                   for c, ps in wanted.items() for p in ps}
+    prev_time = state.time
     if starts.size == 0:
-        return arr.size
+        return used, _Chunk(prev_time, None, np.zeros(0, np.int64), empty_picks)
     first = arr[starts]
     cls = _CLASS[first]
-    # a token right after a vector/real value is an identifier code, whatever it starts with
-    vec = (cls == _C_VECTOR) | (cls == _C_REAL)
-    if vec.any():
-        vec = _resolve_value_chain(vec)
-    used = arr.size
-    if vec[-1]:
-        if last:
-            raise GapforgeError("vector or real value without an identifier code (truncated?)",
-                                _where_at(arr, int(starts[-1]), state, where))
-        used = int(starts[-1])
-        starts, ends, cls, vec = starts[:-1], ends[:-1], cls[:-1], vec[:-1]
-        if starts.size == 0:
-            return used
-    is_code = np.zeros(starts.size, dtype=bool)
-    is_code[1:] = vec[:-1]
-    cls = np.where(is_code, np.uint8(255), cls)
-    keyword_idx = np.flatnonzero(cls == _C_KEYWORD)
+    counts = np.bincount(cls, minlength=6)
+    is_code: npt.NDArray[np.bool_] | None = None
+    if counts[_C_VECTOR] or counts[_C_REAL]:
+        # a token right after a vector/real value is an identifier code, whatever it starts with
+        vec = _resolve_value_chain((cls == _C_VECTOR) | (cls == _C_REAL))
+        if vec[-1]:
+            if last:
+                raise GapforgeError("vector or real value without an identifier code (truncated?)",
+                                    _where_at(state, int(starts[-1])))
+            used = int(starts[-1])
+            starts, ends, cls, vec, first = starts[:-1], ends[:-1], cls[:-1], vec[:-1], first[:-1]
+            if starts.size == 0:
+                return used, _Chunk(prev_time, None, np.zeros(0, np.int64), empty_picks)
+        is_code = np.zeros(starts.size, dtype=bool)
+        is_code[1:] = vec[:-1]
+        cls = np.where(is_code, np.uint8(255), cls)
+        counts = np.bincount(cls, minlength=256)
     ignore: npt.NDArray[np.bool_] | None = None
     dumpoff: list[int] = []
-    if keyword_idx.size or state.in_comment:
-        ignore, dumpoff = _keywords(arr, starts, ends, keyword_idx, state, where)
-    bad = np.flatnonzero(cls == _C_BAD)
-    if bad.size:
+    if counts[_C_KEYWORD] or state.in_comment:
+        keyword_idx = np.flatnonzero(cls == _C_KEYWORD)
+        ignore, dumpoff = _keywords(arr, starts, ends, keyword_idx, state)
+    if counts[_C_BAD]:
+        bad = np.flatnonzero(cls == _C_BAD)
         if ignore is not None:
             bad = bad[~ignore[bad]]
         if bad.size:
             pos = int(starts[bad[0]])
             token = bytes(arr[pos : min(int(ends[bad[0]]), pos + 20)])
             raise GapforgeError(f"unexpected token {token!r} in the value changes",
-                                _where_at(arr, pos, state, where))
+                                _where_at(state, pos))
     # timestamps
-    time_idx = np.flatnonzero(cls == _C_TIME)
-    if ignore is not None and time_idx.size:
-        time_idx = time_idx[~ignore[time_idx]]
-    times = _parse_times(arr, starts[time_idx], ends[time_idx], state, where)
+    is_time = cls == _C_TIME
+    if ignore is not None:
+        is_time &= ~ignore
+    time_idx = np.flatnonzero(is_time)
+    time_count = np.cumsum(is_time, dtype=np.intp)
+    del is_time
+    times = _parse_times(buffer, arr, starts[time_idx], ends[time_idx], state)
     if times.size:
-        previous = np.empty_like(times)
-        previous[0] = state.time if state.seen_time else times[0]
-        previous[1:] = times[:-1]
-        back = np.flatnonzero(times < previous)
-        if back.size:
+        back = times[1:] < times[:-1]
+        if (state.seen_time and int(times[0]) < state.time) or back.any():
+            rel = np.flatnonzero(back) + 1
+            if state.seen_time and int(times[0]) < state.time:
+                rel = np.concatenate([[0], rel])
             if not state.backwards:
-                state.first_backwards = _where_at(arr, int(starts[time_idx[back[0]]]), state, where)
-            state.backwards += int(back.size)
+                state.first_backwards = _where_at(state, int(starts[time_idx[rel[0]]]))
+            state.backwards += int(rel.size)
+        state.time = int(times[-1])
+        state.seen_time = True
     lengths = ends - starts
-    scalar = cls == _C_SCALAR
-    for code, col in collectors.items():
+    picks: dict[tuple[bytes, int], tuple[npt.NDArray[np.intp], npt.NDArray[np.uint8]]] = {}
+    scalar_by_size: dict[int, npt.NDArray[np.intp]] = {}
+    for code, positions in wanted.items():
         size = len(code)
         # scalar changes: value byte then the code in the same token
-        cand = np.flatnonzero(scalar & (lengths == size + 1))
+        if size not in scalar_by_size:
+            scalar_by_size[size] = np.flatnonzero((cls == _C_SCALAR) & (lengths == size + 1))
+        cand = scalar_by_size[size]
         for k in range(size):
             if cand.size == 0:
                 break
             cand = cand[arr[starts[cand] + 1 + k] == code[k]]
         # vector changes: the code token follows the value token
-        vcand = np.flatnonzero(is_code & (lengths == size))
-        for k in range(size):
-            if vcand.size == 0:
-                break
-            vcand = vcand[arr[starts[vcand] + k] == code[k]]
-        if vcand.size:
-            vcand = vcand[cls[vcand - 1] == _C_VECTOR]
+        token_idx = cand
+        if is_code is not None:
+            vcand = np.flatnonzero(is_code & (lengths == size))
+            for k in range(size):
+                if vcand.size == 0:
+                    break
+                vcand = vcand[arr[starts[vcand] + k] == code[k]]
+            if vcand.size:
+                vcand = vcand[cls[vcand - 1] == _C_VECTOR]
+            if vcand.size:
+                token_idx = np.concatenate([cand, vcand - 1])
         if ignore is not None:
-            cand = cand[~ignore[cand]]
-            vcand = vcand[~ignore[vcand]]
-        token_idx = np.concatenate([cand, vcand - 1]) if vcand.size else cand
+            token_idx = token_idx[~ignore[token_idx]]
         if dumpoff:
             token_idx = np.concatenate([token_idx, np.asarray(dumpoff, dtype=np.intp)])
-        if token_idx.size == 0:
-            continue
-        order = np.argsort(token_idx, kind="stable") if (vcand.size or dumpoff) else None
-        if order is not None:
-            token_idx = token_idx[order]
-        slot = np.searchsorted(time_idx, token_idx) - 1
-        if times.size:
-            at = np.where(slot >= 0, times[np.maximum(slot, 0)], state.time)
-        else:
-            at = np.full(token_idx.size, state.time, dtype=np.int64)
-        at = at.astype(np.int64, copy=False)
-        tok_start = starts[token_idx]
-        tok_end = ends[token_idx]
-        is_vec = cls[token_idx] == _C_VECTOR
-        is_off = cls[token_idx] == _C_KEYWORD
-        ndig = tok_end - tok_start - 1
-        if np.any(is_vec & (ndig < 1)):
-            bad_at = int(tok_start[np.flatnonzero(is_vec & (ndig < 1))[0]])
-            raise GapforgeError("empty vector value", _where_at(arr, bad_at, state, where))
-        for position in col.positions:
-            inside = position < ndig
-            digit_at = np.where(inside, tok_end - 1 - position, tok_start + 1)
-            # scalar tokens carry their value in the first byte
-            digit_at = np.where(is_vec, digit_at, tok_start)
-            digits = arr[np.minimum(digit_at, arr.size - 1)]
-            scalar_inside = position == 0
-            use_value = np.where(is_vec, inside, scalar_inside)
-            values = np.where(use_value, _VALUE[digits], _EXTEND[digits])
-            values = np.where(is_off, np.uint8(X), values).astype(np.uint8)
-            if np.any(values == 255):
-                bad_at = int(tok_start[np.flatnonzero(values == 255)[0]])
-                raise GapforgeError("bad digit in a vector value", _where_at(arr, bad_at, state, where))
-            tlist, vlist = pieces[(code, position)]
-            tlist.append(at.copy())
-            vlist.append(values)
-    if times.size:
-        state.time = int(times[-1])
-        state.seen_time = True
-    return used
+        if token_idx.size > cand.size or dumpoff:
+            token_idx = np.sort(token_idx, kind="stable")
+        for position in positions:
+            picks[(code, position)] = (
+                token_idx, _values(arr, starts, ends, cls, token_idx, position, state))
+    return used, _Chunk(prev_time, time_count, times, picks)
+
+
+def _values(
+    arr: npt.NDArray[np.uint8],
+    starts: npt.NDArray[np.intp],
+    ends: npt.NDArray[np.intp],
+    cls: npt.NDArray[np.uint8],
+    token_idx: npt.NDArray[np.intp],
+    position: int,
+    state: _State,
+) -> npt.NDArray[np.uint8]:
+    """The level of bit `position` (from the right) set by each change token."""
+    tok_start = starts[token_idx]
+    kind = cls[token_idx]
+    if position == 0 and not np.any(kind != _C_SCALAR):
+        return _VALUE[arr[tok_start]]  # scalar tokens carry their value in the first byte
+    tok_end = ends[token_idx]
+    is_vec = kind == _C_VECTOR
+    is_off = kind == _C_KEYWORD
+    ndig = tok_end - tok_start - 1
+    if np.any(is_vec & (ndig < 1)):
+        bad_at = int(tok_start[np.flatnonzero(is_vec & (ndig < 1))[0]])
+        raise GapforgeError("empty vector value", _where_at(state, bad_at))
+    inside = position < ndig
+    digit_at = np.where(is_vec, np.where(inside, tok_end - 1 - position, tok_start + 1), tok_start)
+    digits = arr[np.minimum(digit_at, arr.size - 1)]
+    use_value = np.where(is_vec, inside, position == 0)
+    values = np.where(use_value, _VALUE[digits], _EXTEND[digits])
+    values = np.where(is_off, np.uint8(X), values).astype(np.uint8)
+    if np.any(values == 255):
+        bad_at = int(tok_start[np.flatnonzero(values == 255)[0]])
+        raise GapforgeError("bad digit in a vector value", _where_at(state, bad_at))
+    return values
 
 
 def _resolve_value_chain(vec: npt.NDArray[np.bool_]) -> npt.NDArray[np.bool_]:
@@ -546,7 +659,6 @@ def _keywords(
     ends: npt.NDArray[np.intp],
     keyword_idx: npt.NDArray[np.intp],
     state: _State,
-    where: str,
 ) -> tuple[npt.NDArray[np.bool_], list[int]]:
     """Mark tokens inside $comment ... $end as ignored; find $dumpoff tokens."""
     marks = np.zeros(starts.size + 1, dtype=np.int32)
@@ -566,7 +678,7 @@ def _keywords(
             dumpoff.append(i)
         elif word not in _BODY_KEYWORDS:
             raise GapforgeError(f"unexpected keyword {word[:20]!r} in the value changes",
-                                _where_at(arr, int(starts[i]), state, where))
+                                _where_at(state, int(starts[i])))
     if open_at is not None:
         marks[open_at] += 1
         state.in_comment = True
@@ -576,35 +688,68 @@ def _keywords(
     return ignore, dumpoff
 
 
+_ALL = 0xFFFF_FFFF_FFFF_FFFF
+# keep the top k bytes of a little-endian 8-byte load (the k digits that end the token)
+_TOP_BYTES = [0] + [_ALL ^ ((1 << (8 * (8 - k))) - 1) for k in range(1, 9)]
+# per lane (last 8 digits, the 8 before, the rest) and per digit count 0..18: the mask
+_KEEP = np.array([[_TOP_BYTES[min(max(n - 8 * lane, 0), 8)] for n in range(19)]
+                  for lane in range(3)], dtype=np.uint64)
+_ZEROS = np.uint64(0x3030_3030_3030_3030)
+_HIGH_BITS = np.uint64(0x8080_8080_8080_8080)
+_TO_HIGH_BIT = np.uint64(0x7676_7676_7676_7676)  # a byte above 9 reaches bit 7
+
+
+def _eight_digits(
+    words: npt.NDArray[np.uint64], keep: npt.NDArray[np.uint64]
+) -> tuple[npt.NDArray[np.uint64], npt.NDArray[np.bool_]]:
+    """SWAR decimal: the bytes of each 8-byte word that `keep` keeps (the last 0..8) as a
+    number; and which words hold a byte that is not a digit."""
+    y = (words ^ _ZEROS) & keep  # digits become 0..9; bytes before the number 0
+    bad = ((y | (y + _TO_HIGH_BIT)) & _HIGH_BITS) != 0
+    # the first digit is in the lowest byte: combine pairs, then pairs of pairs, then halves
+    y = ((y * np.uint64(10)) + (y >> np.uint64(8))) & np.uint64(0x00FF_00FF_00FF_00FF)
+    y = ((y * np.uint64(100)) + (y >> np.uint64(16))) & np.uint64(0x0000_FFFF_0000_FFFF)
+    y = ((y * np.uint64(10000)) + (y >> np.uint64(32))) & np.uint64(0xFFFF_FFFF)
+    return y, bad
+
+
 def _parse_times(
+    buffer: bytearray,
     arr: npt.NDArray[np.uint8],
     starts: npt.NDArray[np.intp],
     ends: npt.NDArray[np.intp],
     state: _State,
-    where: str,
 ) -> npt.NDArray[np.int64]:
-    ndig = ends - starts - 1
+    """Decimal timestamps '#123', decoded 8 digits per unaligned 8-byte load."""
     if starts.size == 0:
         return np.zeros(0, dtype=np.int64)
-    width = int(ndig.max())
-    if width > _MAX_TIME_DIGITS or int(ndig.min()) < 1:
-        bad = int(np.flatnonzero((ndig > _MAX_TIME_DIGITS) | (ndig < 1))[0])
+    ndig = ends - starts - 1
+    longest, shortest = int(ndig.max()), int(ndig.min())
+    if longest > _MAX_TIME_DIGITS or shortest < 1:
+        bad_i = int(np.flatnonzero((ndig > _MAX_TIME_DIGITS) | (ndig < 1))[0])
         raise GapforgeError("bad timestamp (empty or more than 18 digits)",
-                            _where_at(arr, int(starts[bad]), state, where))
-    value = np.zeros(starts.size, dtype=np.int64)
-    ok = np.ones(starts.size, dtype=bool)
-    for k in range(width):
-        live = k < ndig
-        digit = arr[np.where(live, starts + 1 + k, starts)].astype(np.int64) - 48
-        ok &= ~live | ((digit >= 0) & (digit <= 9))
-        value = np.where(live, value * 10 + digit, value)
-    if not ok.all():
-        bad = int(np.flatnonzero(~ok)[0])
+                            _where_at(state, int(starts[bad_i])))
+    # every byte of the buffer as the first byte of an unaligned little-endian 8-byte word
+    words = np.ndarray((arr.size - 7,), dtype="<u8", buffer=buffer, strides=(1,))
+    value, bad = _eight_digits(words[ends - 8], _KEEP[0][ndig])
+    if longest > 8:
+        mid, bad_mid = _eight_digits(words[ends - 16], _KEEP[1][ndig])
+        value += mid * np.uint64(10**8)
+        bad |= bad_mid
+        if longest > 16:
+            top, bad_top = _eight_digits(words[ends - 24], _KEEP[2][ndig])
+            value += top * np.uint64(10**16)
+            bad |= bad_top
+    if bad.any():
+        bad_i = int(np.flatnonzero(bad)[0])
         raise GapforgeError("bad timestamp (not a decimal number)",
-                            _where_at(arr, int(starts[bad]), state, where))
-    return value
+                            _where_at(state, int(starts[bad_i])))
+    return value.view(np.int64)
 
 
-def _where_at(arr: npt.NDArray[np.uint8], pos: int, state: _State, where: str) -> str:
-    line = state.line + int(np.count_nonzero(arr[1:pos] == 0x0A))
-    return f"{where}:{line}"
+def _where_at(state: _State, pos: int) -> str:
+    """'file:line' of byte `pos` of the current chunk (counted only when an error is reported)."""
+    offset = state.offset + pos - _PAD
+    with state.path.open("rb") as handle:
+        line = handle.read(max(offset, 0)).count(b"\n") + 1
+    return f"{state.place}:{line}"
