@@ -14,12 +14,16 @@ import xml.etree.ElementTree as ET
 import zlib
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from conftest import REPO
 from gapforge.build import BuildPlan, plan_design
 from gapforge.design import load_design
-from gapforge.report import MC_SAMPLES, render_report
+from gapforge.report import MC_SAMPLES, MC_SEED, SIM_BEYOND, render_report
+from gapforge.simulate import edge_circuit, node_waveform, simulate_edge
+from gapforge.svg import eng
+from gapforge.tolerance import monte_carlo, monte_carlo_samples
 
 SVG = "{http://www.w3.org/2000/svg}"
 
@@ -228,6 +232,117 @@ def test_monte_carlo_histogram_holds_every_sample(html: str) -> None:
     origin, per_s = x_scale(root, 1e-9)
     digital = of_class(root, "line", "digital")[0]
     assert float(str(digital.get("x1"))) == pytest.approx(origin + ACHIEVED * per_s, abs=0.02)
+
+
+def drawn_curve(root: ET.Element, cls: str, seconds_per_unit: float) -> list[tuple[float, float]]:
+    """(time s, volts) of a polyline, read back through the figure's own tick marks."""
+    origin, per_s = x_scale(root, seconds_per_unit)
+    y_origin, y_per = y_scale(root, 1.0)
+    return [((x - origin) / per_s, (y - y_origin) / y_per) for x, y in polyline(root, cls)]
+
+
+def test_analog_figure_draws_the_simulated_node_waveform(plan: BuildPlan, html: str) -> None:
+    net = plan.design.reference
+    assert net is not None
+    for edge in ("rising", "falling"):
+        root = svgs(html)[f"analog-{edge}"]
+        wave = node_waveform(edge_circuit(net, edge), beyond=SIM_BEYOND)
+        origin, per_s = x_scale(root, 1e-9)
+        y_origin, y_per = y_scale(root, 1.0)
+        # the drawn vertices are the transient's samples and every sample is drawn (to the
+        # 0.01 px the SVG is written in; samples closer than that to the previous one are
+        # merged), from the step through the crossing and on to 2.5 delays
+        vertices = np.array(polyline(root, "ramp-simulated"))
+        samples = np.column_stack((origin + wave.times_s * per_s, y_origin + wave.volts * y_per))
+        gaps = np.abs(vertices[:, None, :] - samples[None, :, :]).max(axis=2)
+        assert len(vertices) > 50
+        assert float(gaps.min(axis=1).max()) <= 0.03  # each vertex is a sample
+        assert float(gaps.min(axis=0).max()) <= 0.03  # each sample is drawn
+        x_last = (vertices[-1, 0] - origin) / per_s
+        assert x_last == pytest.approx((1 + SIM_BEYOND) * wave.delay_s, rel=1e-3)
+        # the delay marked is the simulation's crossing of the typical threshold, and the
+        # crossing marker sits on it
+        delay = simulate_edge(edge_circuit(net, edge)).delay_s
+        label = of_class(root, "text", "dim-delay-label")[0].text or ""
+        assert label.startswith(f"delay {eng(delay, 's')} (closed form ")
+        mark = of_class(root, "circle", "crossing")[0]
+        assert float(str(mark.get("cx"))) == pytest.approx(origin + delay * per_s, abs=0.02)
+        threshold = edge_circuit(net, edge).threshold
+        assert float(str(mark.get("cy"))) == pytest.approx(y_origin + threshold * y_per, abs=0.02)
+        # the closed form stays as the second series
+        assert of_class(root, "polyline", "ramp-closed-form")
+
+
+def test_analog_figure_with_an_ideal_diode_draws_the_textbook_exponential(
+    tmp_path: Path,
+) -> None:
+    # Single-time-constant step response (Sedra & Smith, Microelectronic Circuits, STC circuits):
+    # V(t) = VDD (1 - exp(-t / tau)), tau = (R + Rout)(C + Cin + Cstray) = 1025 x 107 pF. With a
+    # diode that neither leaks nor has junction capacitance, the drawn simulated waveform of the
+    # resistor (rising) edge must follow it within 0.1 % of VDD.
+    design = tmp_path / "ideal.toml"
+    design.write_text(DESIGN.replace('bypass = "falling"',
+                                     'bypass = "falling"\ndiode = "IS=1e-16 N=1 CJO=0"'))
+    root = svgs(render_report(plan_design(load_design(design))))["analog-rising"]
+    tau = 1025 * 107e-12
+    drawn = drawn_curve(root, "ramp-simulated", 1e-9)
+    worst = max(abs(v - 3.3 * (1 - math.exp(-t / tau))) for t, v in drawn)
+    assert worst <= 1e-3 * 3.3
+    assert drawn[-1][0] > 2 * tau  # the waveform runs well past the 60 % threshold
+
+
+def bars(root: ET.Element) -> list[tuple[float, float, int]]:
+    """(left pixel, right pixel, count) of a histogram's bars, counts read off the y axis."""
+    _, per_count = y_scale(root, 1.0)
+    out = []
+    for b in of_class(root, "rect", "bar"):
+        x, w, h = (float(str(b.get(k))) for k in ("x", "width", "height"))
+        out.append((x, x + w, round(h / -per_count)))
+    return sorted(out)
+
+
+EPS = 0.03  # px: coordinates are written to 0.01 px and a scale read from ticks adds a little
+
+
+def bars_hold(drawn: list[tuple[float, float, int]], px: np.ndarray) -> bool:
+    """Each bar's count is the number of values (pixel positions) inside it, up to values
+    within EPS of its edges."""
+    for x0, x1, count in drawn:
+        surely = int(np.count_nonzero((px > x0 + EPS) & (px < x1 - EPS)))
+        maybe = int(np.count_nonzero((px >= x0 - EPS) & (px <= x1 + EPS)))
+        if not surely <= count <= maybe:
+            return False
+    return True
+
+
+def test_monte_carlo_histogram_is_the_population_the_statistics_describe(
+    plan: BuildPlan, html: str
+) -> None:
+    net = plan.design.reference
+    assert net is not None
+    stats = monte_carlo(net, MC_SAMPLES, seed=MC_SEED).stats
+    same = monte_carlo_samples(net, MC_SAMPLES, seed=MC_SEED)
+    other = monte_carlo_samples(net, MC_SAMPLES, seed=MC_SEED + 1)
+    for edge in ("to_high", "to_low"):
+        root = svgs(html)[f"mc-{edge}"]
+        origin, per_s = x_scale(root, 1e-9)
+        drawn = bars(root)
+        assert sum(c for _, _, c in drawn) == MC_SAMPLES
+        px_same = origin + same[edge] * per_s
+        assert bars_hold(drawn, px_same)
+        assert not bars_hold(drawn, origin + other[edge] * per_s)  # it tells populations apart
+        # monte_carlo's min and max lie in the outermost bars, and its 0.135 / 50 / 99.865 %
+        # percentiles in the bars where the cumulative count passes their rank
+        s = stats[edge]
+        first, last = drawn[0], drawn[-1]
+        assert first[0] - EPS <= origin + s.min * per_s <= first[1] + EPS
+        assert last[0] - EPS <= origin + s.max * per_s <= last[1] + EPS
+        cumulative = np.cumsum([c for _, _, c in drawn])
+        for pct, value in zip((0.135, 50.0, 99.865), s.percentiles, strict=True):
+            rank = pct / 100 * (MC_SAMPLES - 1)
+            k = int(np.searchsorted(cumulative, rank, side="right"))
+            x0, x1, _ = drawn[k]
+            assert x0 - EPS <= origin + value * per_s <= x1 + EPS
 
 
 def test_tables_carry_inputs_with_units_results_and_the_caution(html: str) -> None:

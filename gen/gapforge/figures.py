@@ -72,7 +72,6 @@ class PairTiming:
         return self.command_on_s if edge == "to_high" else self.command_off_s
 
 
-
 def timing_figure(pt: PairTiming, prefix: str, windows: Mapping[str, Window], ident: str) -> str:
     """Command, high-side and low-side gates through one period; gaps dimensioned.
 
@@ -140,7 +139,6 @@ def _wave(changes: Sequence[tuple[float, int]], end: float, xa: Axis, y: float,
     return pts
 
 
-
 def transition_figure(
     prefix: str,
     edge: str,
@@ -195,7 +193,6 @@ def transition_figure(
     return fig.render()
 
 
-
 # ---------------------------------------------------------------------------------------------
 # 2. the analog reference's node ramps
 
@@ -209,9 +206,8 @@ class Ramp:
     threshold: tuple[float, float, float]  # min, typ, max volts
     closed_form: tuple[tuple[float, float], ...]  # (time s, volts)
     delay_s: float  # closed form, to the typical threshold
-    simulated: tuple[tuple[float, float], ...]  # (time s, volts) threshold crossings, or ()
-    delay_sim_s: float | None
-
+    simulated: tuple[tuple[float, float], ...]  # (time s, volts) the transient waveform, or ()
+    delay_sim_s: float | None  # the transient's threshold crossing
 
 
 def _clip(points: Sequence[tuple[float, float]], x_hi: float) -> list[tuple[float, float]]:
@@ -225,6 +221,17 @@ def _clip(points: Sequence[tuple[float, float]], x_hi: float) -> list[tuple[floa
             t0, v0 = out[-1]
             out.append((x_hi, v0 + (v - v0) * (x_hi - t0) / (t - t0)))
         break
+    return out
+
+
+def _thin(points: Sequence[tuple[float, float]]) -> list[tuple[float, float]]:
+    """The points less any that lands on the previous kept one to the written 0.01 px (the
+    integrator's first steps are far shorter than a pixel)."""
+    out: list[tuple[float, float]] = []
+    for x, y in points:
+        if out and abs(x - out[-1][0]) < 0.005 and abs(y - out[-1][1]) < 0.005:
+            continue
+        out.append((x, y))
     return out
 
 
@@ -254,22 +261,20 @@ def analog_figure(ramp: Ramp, bypassed: bool, ident: str) -> str:
     fig.polyline(cf, PALETTE["closed-form"], "ramp-closed-form")
     entries = [("closed form", PALETTE["closed-form"], "line")]
     if ramp.simulated:
-        sim = [(xa(t), ya(v)) for t, v in _clip(ramp.simulated, x_hi)]
+        sim = _thin([(xa(t), ya(v)) for t, v in _clip(ramp.simulated, x_hi)])
         fig.polyline(sim, PALETTE["simulated"], "ramp-simulated")
-        for x, y in sim[1:]:
-            fig.marker(x, y, replace(PALETTE["simulated"], marker="circle", fill="#ffffff"),
-                       "ramp-point", 3.5)
-        entries.insert(0, ("simulated (transient)", replace(PALETTE["simulated"], marker="circle",
-                                                             fill="#ffffff"), "line+marker"))
+        entries.insert(0, ("simulated (transient)", PALETTE["simulated"], "line"))
     vline(fig, xa(delay), ya(thr_typ), ya.start, Style(INK, "3 2", "none", 1.0), "delay-mark")
     label = f"delay {eng(delay, 's')}"
     if ramp.delay_sim_s is not None:
         label += f" (closed form {eng(ramp.delay_s, 's')})"
     dimension(fig, xa(0.0), xa(delay), ya.start - 16, label, Style(INK), "dim-delay")
+    if ramp.delay_sim_s is not None:  # the simulated node meets the typical threshold here
+        fig.marker(xa(delay), ya(thr_typ), replace(PALETTE["simulated"], marker="circle",
+                                                    fill="#ffffff"), "crossing", 3.5)
     entries.append((f"{name} min..max", PALETTE["threshold"], "band"))
     legend(fig, 20, height - 30, entries)
     return fig.render()
-
 
 
 # ---------------------------------------------------------------------------------------------
@@ -284,7 +289,6 @@ class Staircase:
     breaks_s: tuple[Fraction, ...]  # request breakpoints: values_s[i] serves (breaks[i], breaks[i+1]]
     chosen_s: Fraction
     requested_s: Fraction
-
 
 
 def staircase_figure(
@@ -335,7 +339,6 @@ def staircase_figure(
         ("window", PALETTE["window"], "band"),
     ])
     return fig.render()
-
 
 
 # ---------------------------------------------------------------------------------------------

@@ -22,7 +22,7 @@ rerun is byte-identical. Returns text; only the CLI writes files.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from fractions import Fraction
 from typing import TYPE_CHECKING, Any
 
@@ -56,7 +56,7 @@ MC_SAMPLES = 20_000  # Monte Carlo samples drawn for the histogram (uniform over
 MC_SEED = 1
 STAIR_STEPS = 6  # representable values shown each side of the chosen one
 CURVE_POINTS = 80  # closed-form node ramp points per edge
-SIM_LEVELS = 11  # simulated node-ramp points per edge (one threshold crossing each)
+SIM_BEYOND = 1.5  # the simulated node waveform runs on to (1 + this) x its delay
 
 EDGE_TEXT = {
     "to_high": "to_high (low side off, then high side on)",
@@ -130,8 +130,6 @@ def pair_timing(op: OutputPlan) -> PairTiming:
     return PairTiming(period, assumed, on, on + period / 2, th, tl)
 
 
-
-
 # ---------------------------------------------------------------------------------------------
 # 2. the analog reference's node ramps
 
@@ -141,7 +139,8 @@ def node_ramps(net: ReferenceNetwork, simulate: bool = True) -> dict[str, Ramp]:
 
     The closed-form curve is the model's own delay function evaluated at many threshold levels
     (the time the node needs to reach each level), so it is the very formula the ranges come
-    from. The simulated points are separate transient runs, each to one threshold level.
+    from. The simulated curve is the transient simulation's own node waveform (its accepted
+    time points), from the input step through the threshold crossing and beyond.
     """
     import numpy as np
 
@@ -168,36 +167,24 @@ def node_ramps(net: ReferenceNetwork, simulate: bool = True) -> dict[str, Ramp]:
         sim_pts: tuple[tuple[float, float], ...] = ()
         sim_delay = None
         if simulate:
-            sim_pts, sim_delay = _simulated_ramp(net, edge, vdd)
+            sim_pts, sim_delay = _simulated_ramp(net, edge)
         ramps[edge] = Ramp(edge, vdd, (thr[0], thr[1], thr[2]), tuple(pts),
                            float(typ_delays["node_" + edge][0]), sim_pts, sim_delay)
     return ramps
 
 
 def _simulated_ramp(
-    net: ReferenceNetwork, edge: str, vdd: float
+    net: ReferenceNetwork, edge: str
 ) -> tuple[tuple[tuple[float, float], ...], float | None]:
+    """The simulated node waveform at typical parts and its delay; nothing if it fails."""
+    from gapforge import simulate
+
     try:
-        from gapforge import simulate
-    except ImportError:  # the transient simulation has not landed: closed form only
-        return (), None
-    circuit = simulate.edge_circuit(net, edge)
-    try:
-        delay = simulate.simulate_edge(circuit).delay_s
+        wave = simulate.node_waveform(simulate.edge_circuit(net, edge), beyond=SIM_BEYOND)
     except simulate.SimulationError:
         return (), None
-    start = 0.0 if edge == "rising" else vdd
-    pts = [(0.0, start)]
-    for k in range(1, SIM_LEVELS + 1):
-        level = vdd * k / (SIM_LEVELS + 1)
-        try:
-            t = simulate.simulate_edge(replace(circuit, threshold=level), tolerance=1e-5).delay_s
-        except simulate.SimulationError:
-            continue
-        pts.append((t, level))
-    pts = [pts[0], *sorted(pts[1:])]
-    return tuple(pts), delay
-
+    points = zip(wave.times_s.tolist(), wave.volts.tolist(), strict=True)
+    return tuple((float(t), float(v)) for t, v in points), wave.delay_s
 
 
 # ---------------------------------------------------------------------------------------------
@@ -237,7 +224,6 @@ def staircase(op: OutputPlan, field: Field, rounding: str) -> Staircase:
     return Staircase(tuple(value(i) for i in range(lo, hi + 1)), breaks, value(index), requested)
 
 
-
 # ---------------------------------------------------------------------------------------------
 # 4. Monte Carlo of the reference
 
@@ -246,22 +232,12 @@ def reference_samples(net: ReferenceNetwork, samples: int = MC_SAMPLES,
                       seed: int = MC_SEED) -> dict[str, Any]:
     """Seeded samples of the pair's dead times: every varying part uniform over its band.
 
-    The same distribution as `tolerance.monte_carlo`'s default (uniform positions per
-    parameter, both channels' parts independent, supply/temperature/inverter shared).
+    `tolerance.monte_carlo_samples`, the very draws `tolerance.monte_carlo` (and so
+    `gapforge analog --monte-carlo N --seed S`) summarises for the same count and seed.
     """
-    import numpy as np
+    from gapforge.tolerance import monte_carlo_samples
 
-    from gapforge.analog import CHANNEL_PARAMS, SHARED_PARAMS, spread_parameters
-    from gapforge.tolerance import evaluate
-
-    rng = np.random.default_rng(seed)
-    spread = set(spread_parameters(net))
-    shared = {n: rng.random(samples) for n in SHARED_PARAMS if n in spread}
-    shared.setdefault("vdd", np.full(samples, 0.5))
-    high = {n: rng.random(samples) for n in CHANNEL_PARAMS if n in spread}
-    low = {n: rng.random(samples) for n in CHANNEL_PARAMS if n in spread}
-    return evaluate(net, shared, high, low)
-
+    return dict(monte_carlo_samples(net, samples, seed=seed))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -491,7 +467,7 @@ def _analog_section(plan: BuildPlan) -> Section:
     figures = [
         FigureBlock(Markup(analog_figure(ramps[e], net.bypass == e, f"analog-{e}")),
                     f"{e} input edge at typical parts: "
-                    + ("simulated (transient, threshold crossings as points) and closed form."
+                    + ("simulated (transient waveform) and closed form."
                        if ramps[e].simulated else "closed form (no transient simulation)."))
         for e in ("rising", "falling")
     ]
