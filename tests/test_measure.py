@@ -105,9 +105,11 @@ def test_statistics_and_worst_instances() -> None:
     assert sum(st_h.histogram_counts) == 6
     assert st_h.std_s == pytest.approx(float(np.std(gaps)) * float(TICK))
     assert m.to_high.gaps_s.shape == (6,)
-    # the instance time stamp is where the low side turned off
-    first = m.to_high.shortest[0]
-    assert first.at_s == TICK * int(m.to_high.at_ticks[1])
+    # the instance time stamp is where the low side turned off: period k starts at
+    # 1000 + k * (55 + 300 + 300) + (sum of the earlier to_high gaps), as _build lays it out
+    starts = [1000 + k * 655 + sum(gaps[:k]) for k in range(len(gaps))]
+    assert [i.at_s for i in st_h.shortest] == [starts[1] * TICK, starts[3] * TICK]
+    assert [i.at_s for i in st_h.longest] == [starts[4] * TICK, starts[2] * TICK]
 
 
 def test_glitch_listed_and_left_out() -> None:

@@ -35,6 +35,7 @@ from __future__ import annotations
 
 import math
 import re
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from fractions import Fraction
 from pathlib import Path
@@ -71,6 +72,118 @@ class GateCapture:
     # levels before the first change (2 = unknown); an edge stream implies them
     high_initial: int = 2
     low_initial: int = 2
+
+
+# one chunk of change events of both gates in time order: times (ticks), sides (0 = high side,
+# 1 = low side) and levels (polarity applied)
+Events = tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8], npt.NDArray[np.uint8]]
+
+
+class UnorderedTimes(Exception):
+    """A stream met a timestamp that goes backwards; read it again with `sorted_chunks()`."""
+
+
+class CaptureStream:
+    """Both gate signals as change events in time order, chunk by chunk (constant memory per
+    chunk). `end` and `warnings` are final once a pass has been read to the end."""
+
+    def __init__(
+        self,
+        tick_s: Fraction,
+        source: str,
+        chunks: Callable[[], Iterator[Events]],
+        sorted_chunks: Callable[[], Iterator[Events]],
+        finished: Callable[[], tuple[int, tuple[str, ...]]],
+        *,
+        high_initial: int = 2,
+        low_initial: int = 2,
+    ) -> None:
+        self.tick_s = tick_s
+        self.source = source
+        self.high_initial = high_initial
+        self.low_initial = low_initial
+        self._chunks = chunks
+        self._sorted = sorted_chunks
+        self._finished = finished
+
+    def chunks(self) -> Iterator[Events]:
+        """Events chunk by chunk; raises UnorderedTimes where a timestamp goes backwards."""
+        return self._chunks()
+
+    def sorted_chunks(self) -> Iterator[Events]:
+        """Every event ordered by time (stable in file order), read whole."""
+        return self._sorted()
+
+    @property
+    def end(self) -> int:
+        return self._finished()[0]
+
+    @property
+    def warnings(self) -> tuple[str, ...]:
+        return self._finished()[1]
+
+
+def stream_of(capture: GateCapture) -> CaptureStream:
+    """A capture held in memory as a one-chunk stream (the high side first at equal times)."""
+
+    def one() -> Iterator[Events]:
+        times = np.concatenate([capture.high_times, capture.low_times])
+        sides = np.concatenate([np.zeros(capture.high_times.size, dtype=np.uint8),
+                                np.ones(capture.low_times.size, dtype=np.uint8)])
+        order = np.argsort(times, kind="stable")
+        yield (times[order], sides[order],
+               np.concatenate([capture.high_levels, capture.low_levels])[order])
+
+    return CaptureStream(capture.tick_s, capture.source, one, one,
+                         lambda: (capture.end, capture.warnings),
+                         high_initial=capture.high_initial, low_initial=capture.low_initial)
+
+
+_INVERT = np.array([1, 0, 2, 3], dtype=np.uint8)
+
+
+def open_capture(
+    path: Path,
+    high: str,
+    low: str,
+    *,
+    active_low_high: bool = False,
+    active_low_low: bool = False,
+    chunk_bytes: int | None = None,
+) -> CaptureStream:
+    """Open a .vcd or .csv capture as a stream: a VCD body is read chunk by chunk when the
+    stream is iterated (the header and the signal names are checked now); a CSV is read whole."""
+    if _kind(path) != "vcd":
+        return stream_of(load_capture(path, high, low, active_low_high=active_low_high,
+                                      active_low_low=active_low_low))
+    from gapforge.vcd import CHUNK_BYTES, open_events
+    from gapforge.vcd import UnorderedTimes as VcdUnordered
+
+    if high == low:
+        raise GapforgeError("--high and --low name the same signal", str(path))
+    events = open_events(path, high, low, chunk_bytes=chunk_bytes or CHUNK_BYTES)
+
+    def polarity(chunk: Events) -> Events:
+        times, sides, levels = chunk
+        if active_low_high and active_low_low:
+            levels = _INVERT[levels]
+        elif active_low_high or active_low_low:
+            levels = np.where(sides == (0 if active_low_high else 1), _INVERT[levels], levels)
+        return times, sides, levels
+
+    def ordered() -> Iterator[Events]:
+        try:
+            for chunk in events.chunks():
+                yield polarity(chunk)
+        except VcdUnordered as exc:
+            raise UnorderedTimes(str(exc)) from None
+
+    def whole() -> Iterator[Events]:
+        for chunk in events.sorted_chunks():
+            yield polarity(chunk)
+
+    return CaptureStream(events.timescale_s, str(path), ordered, whole,
+                         lambda: (events.end_time, events.warnings))
 
 
 def invert(levels: npt.NDArray[np.uint8]) -> npt.NDArray[np.uint8]:

@@ -18,14 +18,15 @@ Transitions are read from the joint state of the two gates (high side, low side)
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from fractions import Fraction
+from typing import Any, cast
 
 import numpy as np
 import numpy.typing as npt
 
-from gapforge.capture import GateCapture
+from gapforge.capture import CaptureStream, Events, GateCapture, UnorderedTimes, stream_of
 from gapforge.errors import GapforgeError
 from gapforge.quantities import ceil_fraction, floor_fraction
 
@@ -81,12 +82,12 @@ class Glitch:
 
 @dataclass(frozen=True)
 class EdgeStats:
-    """Every gap of one transition kind, with statistics."""
+    """Every gap of one transition kind (in time order, int32 ticks where they fit, else int64),
+    with statistics. Time stamps are kept only for the worst instances."""
 
     name: str
     tick_s: Fraction
-    gaps_ticks: Ints
-    at_ticks: Ints
+    gaps_ticks: npt.NDArray[np.signedinteger[Any]]
     percentiles: tuple[tuple[float, float], ...]
     histogram_edges_s: tuple[float, ...]
     histogram_counts: tuple[int, ...]
@@ -109,20 +110,20 @@ class EdgeStats:
 
     @property
     def mean_s(self) -> float | None:
-        return float(self.gaps_ticks.mean()) * float(self.tick_s) if self.count else None
+        if not self.count:
+            return None
+        return float(Fraction(int(self.gaps_ticks.sum(dtype=np.int64)), self.count) * self.tick_s)
 
     @property
     def std_s(self) -> float | None:
-        return float(self.gaps_ticks.std()) * float(self.tick_s) if self.count else None
+        if not self.count:
+            return None
+        return float(self.gaps_ticks.std(dtype=np.float64)) * float(self.tick_s)
 
     @property
     def gaps_s(self) -> Floats:
         """Gaps in seconds as floats (for plotting; judge with gaps_ticks and tick_s)."""
         return self.gaps_ticks.astype(np.float64) * float(self.tick_s)
-
-    @property
-    def at_s(self) -> Floats:
-        return self.at_ticks.astype(np.float64) * float(self.tick_s)
 
 
 @dataclass(frozen=True)
@@ -141,6 +142,7 @@ class Measurement:
     reasons: tuple[str, ...]
     notes: tuple[str, ...] = field(default=())
     warnings: tuple[str, ...] = field(default=())
+    mean_period_s: Fraction | None = None  # between successive to_high transitions
 
     def edge(self, name: str) -> EdgeStats:
         return self.to_high if name == "to_high" else self.to_low
@@ -156,7 +158,7 @@ class Measurement:
 
 
 def measure_capture(
-    capture: GateCapture,
+    capture: GateCapture | CaptureStream,
     *,
     limits: Mapping[str, Limits] | None = None,
     glitch_width_s: Fraction = Fraction(0),
@@ -164,57 +166,57 @@ def measure_capture(
     bins: int = 20,
     worst: int = 5,
 ) -> Measurement:
-    """Measure every dead time, overlap, glitch and missing edge; judge against `limits`."""
-    tick = capture.tick_s
-    where = capture.source or "capture"
-    if capture.high_times.size == 0:
-        raise GapforgeError("the high-side signal never changes in the capture (no edges)", where)
-    if capture.low_times.size == 0:
-        raise GapforgeError("the low-side signal never changes in the capture (no edges)", where)
+    """Measure every dead time, overlap, glitch and missing edge; judge against `limits`.
+
+    A CaptureStream (capture.open_capture) is measured chunk by chunk: only the gaps (int32
+    where they fit) and the worst instances are kept, not the edges. With a glitch width the
+    edges are held whole (a pulse is judged against its neighbours on one side)."""
+    stream = capture if isinstance(capture, CaptureStream) else stream_of(capture)
+    tick = stream.tick_s
     for p in percentiles:
         if not 0 <= p <= 100:
             raise GapforgeError(f"percentile {p} must be between 0 and 100", "--percentiles")
-    limits = dict(limits or {})
-    missing: list[Finding] = []
-    ht, hv = _dedupe(capture.high_times, capture.high_levels, "high", tick, missing)
-    lt, lv = _dedupe(capture.low_times, capture.low_levels, "low", tick, missing)
-    init = (capture.high_initial, capture.low_initial)
-    times, states = _joint(ht, hv, lt, lv, init)
-    overlaps = _overlaps(times, states, capture.end, tick)
-    unknown = int(np.count_nonzero(((states >> 2) >= 2) | ((states & 3) >= 2))) - (
-        1 if states.size and (((states[0] >> 2) >= 2) or ((states[0] & 3) >= 2)) else 0
-    )
-    glitches: list[Glitch] = []
     width = ceil_fraction(glitch_width_s / tick) if glitch_width_s > 0 else 0
+    try:
+        raw, kept = _run(stream, stream.chunks(), worst, width)
+    except UnorderedTimes:
+        raw, kept = _run(stream, stream.sorted_chunks(), worst, width)
+    where = stream.source or "capture"
+    if raw.count[0] == 0:
+        raise GapforgeError("the high-side signal never changes in the capture (no edges)", where)
+    if raw.count[1] == 0:
+        raise GapforgeError("the low-side signal never changes in the capture (no edges)", where)
+    glitches: list[Glitch] = []
+    clean = raw
     if width > 0:
-        ht2, hv2 = _deglitch(ht, hv, width, "high", tick, glitches)
-        lt2, lv2 = _deglitch(lt, lv, width, "low", tick, glitches)
-        if len(glitches):
-            times, states = _joint(ht2, hv2, lt2, lv2, init)
-    glitches.sort(key=lambda g: g.at_s)
-    gaps = _transitions(times, states, tick, missing)
+        assert kept is not None
+        clean = _deglitched(stream, kept, width, tick, glitches, worst)
+        glitches.sort(key=lambda g: g.at_s)
+    missing = raw.repeats + clean.lost
     missing.sort(key=lambda f: f.at_s)
-    if all(g[0].size == 0 for g in gaps.values()) and not overlaps:
+    overlaps = raw.overlaps
+    if all(clean.count_of(e) == 0 for e in EDGES) and not overlaps:
         raise GapforgeError(
             "no dead-time transitions found (no edges where one gate hands over to the other)", where
         )
+    limits = dict(limits or {})
     stats: dict[str, EdgeStats] = {}
     reasons: list[str] = []
     notes: list[str] = []
     for name in EDGES:
-        g, at = gaps[name]
+        g = clean.gaps_of(name)
         lim = limits.get(name, Limits())
         below = above = 0
         if g.size and lim.window_min_s is not None:
             below = int(np.count_nonzero(g < ceil_fraction(lim.window_min_s / tick)))
         if g.size and lim.window_max_s is not None:
             above = int(np.count_nonzero(g > floor_fraction(lim.window_max_s / tick)))
-        stats[name] = _stats(name, g, at, tick, percentiles, bins, worst, below, above)
+        stats[name] = _stats(name, g, clean.worst_of(name), tick, percentiles, bins, below, above)
         if below:
             reasons.append(f"{name}: {below} gap(s) shorter than the window minimum")
         if above:
             reasons.append(f"{name}: {above} gap(s) longer than the window maximum")
-        nonpositive = int(np.count_nonzero(g <= 0))
+        nonpositive = int(np.count_nonzero(g <= 0)) if g.size else 0
         if nonpositive and not below:
             reasons.append(f"{name}: {nonpositive} transition(s) with no dead time at all")
         st = stats[name]
@@ -232,17 +234,18 @@ def measure_capture(
         notes.append(f"{len(missing)} missing edge(s)")
     if glitches:
         notes.append(f"{len(glitches)} glitch(es) shorter than the set width")
+    unknown = raw.unknown - (1 if raw.first_unknown else 0)
     if unknown > 0:
         notes.append(f"{unknown} interval(s) with an unknown (x/z) gate level")
     has_window = any(
         lim.window_min_s is not None or lim.window_max_s is not None for lim in limits.values()
     )
     verdict = "fail" if reasons else ("pass" if has_window else "measured")
-    start = min(int(capture.high_times[0]), int(capture.low_times[0]))
+    start = raw.first_time if raw.first_time is not None else 0
     return Measurement(
-        source=capture.source,
+        source=stream.source,
         tick_s=tick,
-        duration_s=tick * (capture.end - start),
+        duration_s=tick * (raw.end - start),
         to_high=stats["to_high"],
         to_low=stats["to_low"],
         overlaps=tuple(overlaps),
@@ -253,74 +256,336 @@ def measure_capture(
         verdict=verdict,
         reasons=tuple(reasons),
         notes=tuple(notes),
-        warnings=capture.warnings,
+        warnings=stream.warnings,
+        mean_period_s=raw.mean_period(tick),
     )
 
 
-def _dedupe(
-    times: Ints, levels: npt.NDArray[np.uint8], signal: str, tick: Fraction, missing: list[Finding]
-) -> tuple[Ints, npt.NDArray[np.uint8]]:
-    """Drop changes that repeat the level; a repeated clean level means a lost edge."""
-    if levels.size < 2:
-        return times, levels
-    same = levels[1:] == levels[:-1]
-    if not same.any():
-        return times, levels
-    repeat = np.flatnonzero(same & (levels[1:] <= 1) & (times[1:] != times[:-1])) + 1
-    for i in repeat[:1000].tolist():
-        missing.append(
-            Finding(tick * int(times[i]), f"{signal} side: level {int(levels[i])} reported twice; "
-                    "an edge in between is missing")
-        )
-    keep = np.ones(levels.size, dtype=bool)
-    keep[1:] = ~same
-    return times[keep], levels[keep]
+def _run(
+    stream: CaptureStream, chunks: Iterator[Events], worst: int, width: int
+) -> tuple[_Engine, list[Events] | None]:
+    """One pass over the events; with a glitch width the events are also kept whole."""
+    engine = _Engine(stream.tick_s, (stream.high_initial, stream.low_initial), worst)
+    kept: list[Events] | None = [] if width > 0 else None
+    for chunk in chunks:
+        engine.feed(*chunk)
+        if kept is not None:
+            kept.append(chunk)
+    engine.finish(stream.end)
+    return engine, kept
 
 
-def _joint(
-    ht: Ints,
-    hv: npt.NDArray[np.uint8],
-    lt: Ints,
-    lv: npt.NDArray[np.uint8],
-    initial: tuple[int, int] = (2, 2),
-) -> tuple[Ints, npt.NDArray[np.uint8]]:
-    """Joint state (high*4 + low) after all changes at each distinct time, repeats removed.
-
-    Both inputs are sorted, so the merge is two binary searches (no sort); at equal times the
-    high-side change comes first, and only the last state at each time is kept anyway."""
-    # for each change of one side, how many changes of the other side come before it
-    low_before_high = np.searchsorted(lt, ht, side="left")
-    high_upto_low = np.searchsorted(ht, lt, side="right")
-    t = np.empty(ht.size + lt.size, dtype=np.int64)
-    state: npt.NDArray[np.uint8] = np.empty(t.size, dtype=np.uint8)
-    pos = np.arange(ht.size) + low_before_high
-    t[pos] = ht
-    low_prev = np.where(low_before_high > 0, lv[np.maximum(low_before_high - 1, 0)], initial[1])
-    state[pos] = (hv << 2) | low_prev.astype(np.uint8)
-    del pos, low_prev, low_before_high
-    pos = np.arange(lt.size) + high_upto_low
-    t[pos] = lt
-    high_prev = np.where(high_upto_low > 0, hv[np.maximum(high_upto_low - 1, 0)], initial[0])
-    state[pos] = (high_prev.astype(np.uint8) << 2) | lv
-    del pos, high_prev, high_upto_low
-    last = np.ones(t.size, dtype=bool)
-    last[:-1] = t[1:] != t[:-1]
-    t, state = t[last], state[last]
-    if t.size and initial != (2, 2):
-        # the levels before the first change, as a zero-length state at the first time
-        t = np.concatenate([t[:1], t])
-        state = np.concatenate([np.array([(initial[0] << 2) | initial[1]], dtype=np.uint8), state])
-    change = np.ones(t.size, dtype=bool)
-    change[1:] = state[1:] != state[:-1]
-    return t[change], state[change]
+def _deglitched(
+    stream: CaptureStream, kept: list[Events], width: int, tick: Fraction,
+    glitches: list[Glitch], worst: int,
+) -> _Engine:
+    """The transitions after pulses shorter than `width` ticks are taken out of each gate."""
+    times = np.concatenate([c[0] for c in kept])
+    sides = np.concatenate([c[1] for c in kept])
+    levels = np.concatenate([c[2] for c in kept])
+    per_side: list[tuple[Ints, npt.NDArray[np.uint8]]] = []
+    for side, signal in ((0, "high"), (1, "low")):
+        mine = sides == side
+        t, v = times[mine], levels[mine]
+        if v.size > 1:
+            change = np.ones(v.size, dtype=bool)
+            change[1:] = v[1:] != v[:-1]
+            t, v = t[change], v[change]
+        per_side.append(_deglitch(t, v, width, signal, tick, glitches))
+    (ht, hv), (lt, lv) = per_side
+    merged_t = np.concatenate([ht, lt])
+    order = np.argsort(merged_t, kind="stable")
+    merged_s = np.concatenate([np.zeros(ht.size, np.uint8), np.ones(lt.size, np.uint8)])
+    engine = _Engine(tick, (stream.high_initial, stream.low_initial), worst)
+    engine.feed(merged_t[order], merged_s[order], np.concatenate([hv, lv])[order])
+    engine.finish(stream.end)
+    return engine
 
 
-def _overlaps(times: Ints, states: npt.NDArray[np.uint8], end: int, tick: Fraction) -> list[Overlap]:
-    idx = np.flatnonzero(states == _BOTH)
-    out: list[Overlap] = []
-    for k in idx.tolist():
-        stop = int(times[k + 1]) if k + 1 < times.size else max(end, int(times[k]))
-        out.append(Overlap(tick * int(times[k]), tick * (stop - int(times[k]))))
+# transition patterns over three consecutive joint states a, b, c (c = 16: no next state)
+_NO_STATE = 16
+(_TH_OFF, _TH_DIRECT, _TH_BOTH, _TH_LOST, _TL_OFF, _TL_DIRECT, _TL_BOTH, _TL_LOST) = range(1, 9)
+_SIGN = np.array([0, 1, 0, -1, 0, 1, 0, -1, 0], dtype=np.int64)  # gap = (tc - tb) * sign
+
+
+def _pattern_table() -> npt.NDArray[np.uint8]:
+    table = np.zeros(1 << 14, dtype=np.uint8)
+    for a in range(16):
+        for b in range(16):
+            for c in range(_NO_STATE + 1):
+                for base, before, after, on_bit in ((0, _LOW_ON, _HIGH_ON, c >> 2),
+                                                    (4, _HIGH_ON, _LOW_ON, c & 3)):
+                    if a != before:
+                        continue
+                    cat = 0
+                    if b == _OFF and c != _NO_STATE and on_bit == 1:
+                        cat = base + 1  # through both off, then the other side turns on
+                    elif b == after:
+                        cat = base + 2  # hand-over at one instant: no dead time
+                    elif b == _BOTH and c == after:
+                        cat = base + 3  # both on for a while: minus the overlap
+                    elif b == _OFF and c == before:
+                        cat = base + 4  # the dead time ended with the same side on again
+                    table[(a << 9) | (b << 5) | c] = cat
+    return table
+
+
+_PATTERNS = _pattern_table()
+_MAX_FINDINGS = 1000  # per kind and side, as listed findings
+
+
+class _Engine:
+    """Incremental measurement over time-ordered events with carried state.
+
+    Carried from chunk to chunk: the current level and last change time of each gate, the
+    events of the last (possibly unfinished) timestamp, the last two joint states (for the
+    transition patterns and a pending overlap), the worst instances so far and the gaps."""
+
+    def __init__(self, tick: Fraction, initial: tuple[int, int], worst: int) -> None:
+        self.tick = tick
+        self.initial = initial
+        self.worst = worst
+        self.level = [initial[0], initial[1]]
+        self.last_time: list[int | None] = [None, None]
+        self.count = [0, 0]
+        self.first_time: int | None = None
+        self.end = 0
+        self.hold: Events | None = None
+        self.ctx_t = np.zeros(0, dtype=np.int64)
+        self.ctx_s = np.zeros(0, dtype=np.uint8)
+        self.started = False
+        self.unknown = 0
+        self.first_unknown = False
+        self.overlaps: list[Overlap] = []
+        self.repeats: list[Finding] = []
+        self.lost: list[Finding] = []
+        self._repeat_n = [0, 0]
+        self._lost_n = [0, 0]
+        self._gaps: dict[str, list[npt.NDArray[np.signedinteger[Any]]]] = {e: [] for e in EDGES}
+        self._n: dict[str, int] = dict.fromkeys(EDGES, 0)
+        # worst instances: (gap, order, at) of the shortest and (-gap, order, at) of the longest
+        self._short: dict[str, list[tuple[int, int, int]]] = {e: [] for e in EDGES}
+        self._long: dict[str, list[tuple[int, int, int]]] = {e: [] for e in EDGES}
+        # to_high start times: first, last and count, for the mean PWM period
+        self._period: list[int] = []
+
+    # -- input ------------------------------------------------------------------------------
+
+    def feed(self, times: Ints, sides: npt.NDArray[np.uint8], levels: npt.NDArray[np.uint8]) -> None:
+        if times.size == 0:
+            return
+        high = int(np.count_nonzero(sides == 0))
+        self.count[0] += high
+        self.count[1] += times.size - high
+        if self.first_time is None:
+            self.first_time = int(times[0])
+        if self.hold is not None:
+            times = np.concatenate([self.hold[0], times])
+            sides = np.concatenate([self.hold[1], sides])
+            levels = np.concatenate([self.hold[2], levels])
+        # the changes at the last timestamp may go on in the next chunk: keep them back
+        cut = int(np.searchsorted(times, times[-1], side="left"))
+        self.hold = (times[cut:], sides[cut:], levels[cut:])
+        if cut:
+            self._process(times[:cut], sides[:cut], levels[:cut])
+
+    def finish(self, end: int) -> None:
+        if self.hold is not None and self.hold[0].size:
+            self._process(*self.hold)
+        self.hold = None
+        last_t = int(self.ctx_t[-1]) if self.ctx_t.size else 0
+        self.end = max(end, last_t, *(t for t in self.last_time if t is not None))
+        if self.ctx_s.size == 2:
+            code = (int(self.ctx_s[0]) << 9) | (int(self.ctx_s[1]) << 5) | _NO_STATE
+            if _PATTERNS[code] in (_TH_DIRECT, _TL_DIRECT):
+                edge = "to_high" if _PATTERNS[code] == _TH_DIRECT else "to_low"
+                self._record(edge, np.zeros(1, dtype=np.int64), self.ctx_t[1:2])
+        if self.ctx_s.size and self.ctx_s[-1] == _BOTH:
+            t = int(self.ctx_t[-1])
+            self.overlaps.append(Overlap(self.tick * t, self.tick * (max(self.end, t) - t)))
+
+    # -- one batch of complete timestamps ---------------------------------------------------
+
+    def _process(self, t: Ints, side: npt.NDArray[np.uint8], lev: npt.NDArray[np.uint8]) -> None:
+        n = t.size
+        idx = np.arange(n)
+        is_high = side == 0
+        from_high = np.maximum.accumulate(np.where(is_high, idx, -1))
+        from_low = np.maximum.accumulate(np.where(is_high, -1, idx))
+        h = np.where(from_high >= 0, lev[from_high], np.uint8(self.level[0])).astype(np.uint8)
+        lo = np.where(from_low >= 0, lev[from_low], np.uint8(self.level[1])).astype(np.uint8)
+        state = cast(npt.NDArray[np.uint8], (h << 2) | lo)
+        # a change that leaves the joint state as it was repeats its side's level: if that level
+        # is clean, an edge in between was lost
+        same = np.empty(n, dtype=bool)
+        same[0] = int(state[0]) == (self.level[0] << 2) | self.level[1]
+        np.equal(state[1:], state[:-1], out=same[1:])
+        if same.any():
+            repeat = np.flatnonzero(same & (lev <= 1))
+            if repeat.size:
+                self._repeat_findings(repeat, t, is_high, lev, from_high, from_low)
+        if from_high[-1] >= 0:
+            self.last_time[0] = int(t[from_high[-1]])
+        if from_low[-1] >= 0:
+            self.last_time[1] = int(t[from_low[-1]])
+        self.level = [int(h[-1]), int(lo[-1])]
+        # the state after all changes at each distinct time
+        if n > 1:
+            last = np.empty(n, dtype=bool)
+            np.not_equal(t[1:], t[:-1], out=last[:-1])
+            last[-1] = True
+            t, state = t[last], state[last]
+        if not self.started:
+            self.started = True
+            if self.initial != (2, 2):
+                # the levels before the first change, as a zero-length state at the first time
+                self.ctx_t = t[:1].copy()
+                self.ctx_s = np.array([(self.initial[0] << 2) | self.initial[1]], dtype=np.uint8)
+                self._count_unknown(self.ctx_s, first=True)
+        change = np.empty(state.size, dtype=bool)
+        change[1:] = state[1:] != state[:-1]
+        change[0] = self.ctx_s.size == 0 or state[0] != self.ctx_s[-1]
+        if not change.all():
+            t, state = t[change], state[change]
+        if state.size == 0:
+            return
+        self._count_unknown(state, first=self.ctx_s.size == 0)
+        c0 = self.ctx_s.size
+        seq_t = np.concatenate([self.ctx_t, t]) if c0 else t
+        seq_s = np.concatenate([self.ctx_s, state]) if c0 else state
+        # overlaps whose end is now known
+        both = np.flatnonzero(seq_s[max(c0 - 1, 0) : -1] == _BOTH) + max(c0 - 1, 0)
+        for k in both.tolist():
+            start = int(seq_t[k])
+            self.overlaps.append(Overlap(self.tick * start, self.tick * (int(seq_t[k + 1]) - start)))
+        # transition patterns whose third state is now known
+        if seq_s.size >= 3:
+            code = (seq_s[:-2].astype(np.uint16) << 9) | (seq_s[1:-1].astype(np.uint16) << 5)
+            code |= seq_s[2:]
+            cat = _PATTERNS[code]
+            hit = np.flatnonzero(cat)
+            if hit.size:
+                kinds = cat[hit]
+                tb = seq_t[hit + 1]
+                gap = (seq_t[hit + 2] - tb) * _SIGN[kinds]
+                to_high = kinds < _TH_LOST
+                self._record("to_high", gap[to_high], tb[to_high])
+                to_low = (kinds > _TH_LOST) & (kinds < _TL_LOST)
+                self._record("to_low", gap[to_low], tb[to_low])
+                lost = np.flatnonzero((kinds == _TH_LOST) | (kinds == _TL_LOST))
+                for k in lost.tolist():
+                    self._lost_finding(int(kinds[k]), int(tb[k]))
+        self.ctx_t = seq_t[-2:].copy()
+        self.ctx_s = seq_s[-2:].copy()
+
+    def _count_unknown(self, states: npt.NDArray[np.uint8], first: bool) -> None:
+        unknown = ((states >> 2) >= 2) | ((states & 3) >= 2)
+        self.unknown += int(np.count_nonzero(unknown))
+        if first:
+            self.first_unknown = bool(unknown[0])
+
+    def _repeat_findings(
+        self, repeat: npt.NDArray[np.intp], t: Ints, is_high: npt.NDArray[np.bool_],
+        lev: npt.NDArray[np.uint8], from_high: npt.NDArray[np.intp],
+        from_low: npt.NDArray[np.intp],
+    ) -> None:
+        for i in repeat.tolist():
+            side = 0 if is_high[i] else 1
+            if self._repeat_n[side] >= _MAX_FINDINGS:
+                continue
+            prev_i = int((from_high if side == 0 else from_low)[i - 1]) if i else -1
+            prev_t = int(t[prev_i]) if prev_i >= 0 else self.last_time[side]
+            if prev_t is None or prev_t == int(t[i]):
+                continue
+            self._repeat_n[side] += 1
+            signal = "high" if side == 0 else "low"
+            self.repeats.append(Finding(
+                self.tick * int(t[i]),
+                f"{signal} side: level {int(lev[i])} reported twice; an edge in between is missing"))
+
+    def _lost_finding(self, kind: int, at: int) -> None:
+        side = 0 if kind == _TH_LOST else 1
+        if self._lost_n[side] >= _MAX_FINDINGS:
+            return
+        self._lost_n[side] += 1
+        other = "high" if side == 0 else "low"
+        self.lost.append(Finding(self.tick * at, f"dead time ended without the {other} side "
+                                 "turning on (its edges are missing)"))
+
+    def _record(self, edge: str, gaps: Ints, at: Ints) -> None:
+        if gaps.size == 0:
+            return
+        base = self._n[edge]
+        self._n[edge] += int(gaps.size)
+        lo, hi = int(gaps.min()), int(gaps.max())
+        fits = lo >= _INT32_MIN and hi <= _INT32_MAX
+        self._gaps[edge].append(gaps.astype(np.int32) if fits else gaps)
+        if edge == "to_high":
+            if not self._period:
+                self._period = [int(at[0]), int(at[-1]), int(at.size)]
+            else:
+                self._period[1] = int(at[-1])
+                self._period[2] += int(at.size)
+        for keep, values in ((self._short[edge], gaps), (self._long[edge], -gaps)):
+            if self.worst <= 0:
+                continue
+            if len(keep) >= self.worst:
+                bound = keep[-1][0]
+                if int(values.min()) >= bound:
+                    continue  # nothing here beats the worst kept so far (ties: earlier wins)
+                pick = np.flatnonzero(values < bound)
+                pick = pick[_extremes(values[pick], self.worst)]
+            else:
+                pick = np.asarray(_extremes(values, self.worst), dtype=np.intp)
+            keep.extend((int(values[i]), base + int(i), int(at[i])) for i in pick.tolist())
+            keep.sort()
+            del keep[self.worst :]
+
+    # -- results ----------------------------------------------------------------------------
+
+    def count_of(self, edge: str) -> int:
+        return self._n[edge]
+
+    def gaps_of(self, edge: str) -> npt.NDArray[np.signedinteger[Any]]:
+        """Every gap of one edge in time order: int32 when all fit, else int64."""
+        parts = self._gaps[edge]
+        if not parts:
+            return np.zeros(0, dtype=np.int32)
+        wide = any(p.dtype == np.int64 for p in parts)
+        if wide:
+            parts[:] = [p.astype(np.int64) for p in parts]
+        return _join(parts, np.int64 if wide else np.int32)
+
+    def worst_of(self, edge: str) -> tuple[tuple[Instance, ...], tuple[Instance, ...]]:
+        short = tuple(Instance(self.tick * at, self.tick * g) for g, _, at in self._short[edge])
+        long = tuple(Instance(self.tick * at, self.tick * -g) for g, _, at in self._long[edge])
+        return short, long
+
+    def mean_period(self, tick: Fraction) -> Fraction | None:
+        """Mean time between successive to_high transitions (None with fewer than two)."""
+        if len(self._period) < 3 or self._period[2] < 2:
+            return None
+        return tick * Fraction(self._period[1] - self._period[0], self._period[2] - 1)
+
+
+_INT32_MIN, _INT32_MAX = -(2**31), 2**31 - 1
+
+
+def _join(
+    parts: list[npt.NDArray[np.signedinteger[Any]]], dtype: type[np.signedinteger[Any]]
+) -> npt.NDArray[np.signedinteger[Any]]:
+    """Concatenate, freeing the parts one by one (peak = result + one part)."""
+    if len(parts) == 1:
+        return parts[0]
+    out = np.empty(sum(int(p.size) for p in parts), dtype=dtype)
+    at = 0
+    parts.reverse()
+    while parts:
+        part = parts.pop()
+        out[at : at + part.size] = part
+        at += part.size
+        del part
+    parts.append(out)
     return out
 
 
@@ -354,77 +619,63 @@ def _deglitch(
     return t, v
 
 
-def _transitions(
-    times: Ints, states: npt.NDArray[np.uint8], tick: Fraction, missing: list[Finding]
-) -> dict[str, tuple[Ints, Ints]]:
-    out: dict[str, tuple[Ints, Ints]] = {}
-    n = states.size
-    if n < 2:
-        empty = np.zeros(0, dtype=np.int64)
-        return {"to_high": (empty, empty), "to_low": (empty, empty)}
-    a = states[:-1]
-    b = states[1:]
-    tb = times[1:]
-    # next state after b and its time (only valid for k < n-2)
-    c = np.full(n - 1, 255, dtype=np.uint8)
-    c[:-1] = states[2:]
-    tc = np.zeros(n - 1, dtype=np.int64)
-    tc[:-1] = times[2:]
-    for name, before, after in (("to_high", _LOW_ON, _HIGH_ON), ("to_low", _HIGH_ON, _LOW_ON)):
-        turned_on = ((c >> 2) == 1) if name == "to_high" else ((c & 3) == 1)
-        through_off = np.flatnonzero((a == before) & (b == _OFF) & (c != 255) & turned_on)
-        direct = np.flatnonzero((a == before) & (b == after))
-        through_both = np.flatnonzero((a == before) & (b == _BOTH) & (c == after))
-        idx = np.concatenate([through_off, direct, through_both])
-        gap = np.concatenate([
-            tc[through_off] - tb[through_off],
-            np.zeros(direct.size, dtype=np.int64),
-            tb[through_both] - tc[through_both],
-        ])
-        order = np.argsort(idx, kind="stable")
-        out[name] = (gap[order], tb[idx][order])
-        lost = np.flatnonzero((a == before) & (b == _OFF) & (c == before))
-        other = "high" if name == "to_high" else "low"
-        for k in lost[:1000].tolist():
-            missing.append(Finding(tick * int(tb[k]), f"dead time ended without the {other} side "
-                                   "turning on (its edges are missing)"))
-    return out
-
-
 def _stats(
     name: str,
-    gaps: Ints,
-    at: Ints,
+    gaps: npt.NDArray[np.signedinteger[Any]],
+    worst: tuple[tuple[Instance, ...], tuple[Instance, ...]],
     tick: Fraction,
     percentiles: Sequence[float],
     bins: int,
-    worst: int,
     below: int,
     above: int,
 ) -> EdgeStats:
     if gaps.size == 0:
-        return EdgeStats(name, tick, gaps, at, (), (), (), (), (), below, above)
+        return EdgeStats(name, tick, gaps, (), (), (), (), (), below, above)
     fl = float(tick)
-    pct = tuple((float(p), float(np.percentile(gaps, p)) * fl) for p in percentiles)
     lo, hi = int(gaps.min()), int(gaps.max())
     nbins = max(1, min(bins, hi - lo + 1))
-    counts, edges = np.histogram(gaps, bins=nbins, range=(lo, hi + 1))
-    k = min(worst, gaps.size)
-    shortest = tuple(Instance(tick * int(at[i]), tick * int(gaps[i])) for i in _extremes(gaps, k))
-    longest = tuple(Instance(tick * int(at[i]), tick * int(gaps[i])) for i in _extremes(-gaps, k))
+    if hi - lo < _DENSE_SPAN:
+        # one pass: counts per tick value; percentiles and histogram from the counts
+        counts_per = np.bincount(gaps - lo if lo else gaps, minlength=1)
+        pct = _percentiles_from_counts(counts_per, lo, percentiles, fl)
+        counts, edges = np.histogram(np.arange(lo, hi + 1), bins=nbins, range=(lo, hi + 1),
+                                     weights=counts_per[: hi - lo + 1])
+    else:
+        pct = tuple((float(p), float(np.percentile(gaps, p)) * fl) for p in percentiles)
+        counts, edges = np.histogram(gaps, bins=nbins, range=(lo, hi + 1))
     return EdgeStats(
         name,
         tick,
         gaps,
-        at,
         pct,
         tuple(float(e) * fl for e in edges),
         tuple(int(c) for c in counts),
-        shortest,
-        longest,
+        worst[0],
+        worst[1],
         below,
         above,
     )
+
+
+_DENSE_SPAN = 1 << 20
+
+
+def _percentiles_from_counts(
+    counts: npt.NDArray[np.intp], lo: int, percentiles: Sequence[float], tick: float
+) -> tuple[tuple[float, float], ...]:
+    """numpy's default (linear) percentile of the values lo + i, each counts[i] times."""
+    cum = np.cumsum(counts)
+    n = int(cum[-1])
+    out: list[tuple[float, float]] = []
+    for p in percentiles:
+        rank = p / 100 * (n - 1)
+        below = int(np.floor(rank))
+        frac = rank - below
+        a = lo + int(np.searchsorted(cum, below, side="right"))
+        b = lo + int(np.searchsorted(cum, min(below + 1, n - 1), side="right"))
+        value = a + (b - a) * frac if frac < 0.5 else b - (b - a) * (1 - frac)
+        out.append((float(p), float(value) * tick))
+    return tuple(out)
 
 
 def _extremes(values: Ints, k: int) -> list[int]:

@@ -9,11 +9,12 @@ from typing import TYPE_CHECKING, Any
 
 import click
 
-from gapforge.cli.options import Quantity, emit_json, json_option
+from gapforge.cli.options import Quantity, diagram_options, emit_json, json_option
 from gapforge.errors import GapforgeError
 from gapforge.quantities import format_quantity, parse_quantity
 
 if TYPE_CHECKING:
+    from gapforge.capture import CaptureStream, GateCapture
     from gapforge.measure import Limits, Measurement
     from gapforge.serial_stream import SerialResult, StreamStatus
 
@@ -89,21 +90,24 @@ def build_limits(
               help="Stop the stream after this long, e.g. 10s.")
 @click.option("--idle-timeout", type=Quantity("s"), default="2s", show_default=True,
               help="Stop the stream when no data arrives for this long.")
+@diagram_options
 @json_option
 def command(capture: Path | None, high: str | None, low: str | None, active_low_high: bool,
             active_low_low: bool, design: Path | None, window: str | None, glitch: Fraction,
             percentiles: str, bins: int, worst: int, serial_url: str | None, baud: int,
             max_edges: int | None, duration: Fraction | None, idle_timeout: Fraction,
-            as_json: bool) -> None:
+            no_diagram: bool, ascii_only: bool, as_json: bool) -> None:
     """Measure every dead time in a capture (VCD or gapforge CSV) or a live serial stream.
 
     Exit 1 on any overlap (both gates on) or any gap outside the window; 2 on bad input.
+    A VCD file is read chunk by chunk in constant memory per chunk.
     """
     from gapforge.measure import measure_capture
 
     pcts = _percentiles(percentiles)
     limits = build_limits(window, design)
     stream: SerialResult | None = None
+    gate: GateCapture | CaptureStream
     if serial_url is not None:
         if capture is not None:
             raise GapforgeError("give a capture file or --serial, not both", "measure")
@@ -130,9 +134,9 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
             raise GapforgeError("name both gate signals with --high and --low", str(capture))
         if not capture.exists():
             raise GapforgeError("no such file", str(capture))
-        from gapforge.capture import load_capture
+        from gapforge.capture import open_capture
 
-        gate = load_capture(capture, high, low, active_low_high=active_low_high,
+        gate = open_capture(capture, high, low, active_low_high=active_low_high,
                             active_low_low=active_low_low)
     try:
         result = measure_capture(gate, limits=limits, glitch_width_s=glitch, percentiles=pcts,
@@ -145,7 +149,8 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
     if as_json:
         emit_json(measurement_json(result, stream))
     else:
-        click.echo(measurement_text(result, stream))
+        click.echo(measurement_text(result, stream, diagram=not no_diagram,
+                                    ascii_only=ascii_only))
     sys.exit(1 if result.failed else 0)
 
 
@@ -232,7 +237,25 @@ def _q(value: Fraction | float | None) -> str:
     return "-" if value is None else format_quantity(value, "s")
 
 
-def measurement_text(m: Measurement, stream: SerialResult | None = None) -> str:
+def measurement_diagram(m: Measurement, ascii_only: bool = False) -> str:
+    """The pair drawn with the shortest measured gap of each edge, over the measured mean
+    period when known (a sketch to look at; the numbers above are the measurement)."""
+    from gapforge.diagram import pair_diagram
+
+    to_high, to_low = m.to_high.min_s, m.to_low.min_s
+    if to_high is None or to_low is None:
+        missing = "to_high" if to_high is None else "to_low"
+        return f"(no timing diagram: no {missing} transitions measured)"
+    text = pair_diagram(to_high, to_low, m.mean_period_s, ascii_only=ascii_only)
+    lines = ["Timing (shortest measured gaps"
+             + (f", mean period {_q(m.mean_period_s)}):" if m.mean_period_s else "):"), text]
+    if to_high <= 0 or to_low <= 0:
+        lines.append("      a gap of zero or less means the gates overlap: drawn at minimum width")
+    return "\n".join(lines)
+
+
+def measurement_text(m: Measurement, stream: SerialResult | None = None, *, diagram: bool = True,
+                     ascii_only: bool = False) -> str:
     lines = [f"Capture: {m.source} (tick {_q(m.tick_s)}, {_q(m.duration_s)} long)"]
     if stream is not None:
         s = stream.status
@@ -261,6 +284,9 @@ def measurement_text(m: Measurement, stream: SerialResult | None = None) -> str:
         if st.below_window or st.above_window:
             lines.append(f"{name}: {st.below_window} below, {st.above_window} above the window")
     lines.append("")
+    if diagram:
+        lines.append(measurement_diagram(m, ascii_only))
+        lines.append("")
     if m.overlaps:
         lines.append(f"OVERLAPS (shoot-through): {len(m.overlaps)}")
         for o in m.overlaps[:10]:
