@@ -71,3 +71,40 @@ def test_binary_csv(tmp_path: Path) -> None:
     path.write_bytes(b"\x00\xff\xfe" * 100)
     with pytest.raises(GapforgeError, match="binary"):
         load_capture(path, "gh", "gl")
+
+
+def test_open_capture_streams_with_polarity(tmp_path: Path) -> None:
+    # written by pyvcd, a general-purpose VCD writer; the low side is active low
+    from vcd import VCDWriter
+
+    from gapforge.capture import open_capture
+
+    path = tmp_path / "pol.vcd"
+    with path.open("w") as handle, VCDWriter(handle, timescale="1 ns", date="invented") as w:
+        h = w.register_var("top", "gh", "wire", size=1, init=0)
+        ln = w.register_var("top", "gl_n", "wire", size=1, init=0)  # 0 = low side on
+        for k in range(30):
+            t = 500 * k + 50
+            w.change(ln, t, 1)
+            w.change(h, t + 12, 1)
+            w.change(h, t + 200, 0)
+            w.change(ln, t + 217, 0)
+    stream = open_capture(path, "gh", "gl_n", active_low_low=True, chunk_bytes=40)
+    m = measure_capture(stream)
+    assert m.to_high.gaps_ticks.tolist() == [12] * 30
+    assert m.to_low.gaps_ticks.tolist() == [17] * 30
+    assert m.duration_s == Fraction(500 * 29 + 50 + 217, 10**9)
+    whole = measure_capture(load_capture(path, "gh", "gl_n", active_low_low=True))
+    assert whole.to_low.gaps_ticks.tolist() == m.to_low.gaps_ticks.tolist()
+
+
+def test_open_capture_csv(tmp_path: Path) -> None:
+    from gapforge.capture import open_capture
+
+    path = tmp_path / "edges.csv"
+    path.write_text("time_ns,signal,level\n0,gh,0\n0,gl,1\n100,gl,0\n131.25,gh,1\n600,gh,0\n"
+                    "640.5,gl,1\n")
+    m = measure_capture(open_capture(path, "gh", "gl"))
+    assert m.to_high.min_s == Fraction(3125, 10**11)
+    with pytest.raises(GapforgeError, match="no signal 'gx'"):
+        open_capture(path, "gx", "gl")

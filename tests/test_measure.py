@@ -3,6 +3,7 @@ exact window judgement at the tick boundary."""
 
 from __future__ import annotations
 
+import itertools
 from fractions import Fraction
 
 import numpy as np
@@ -10,9 +11,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from gapforge.capture import GateCapture, make_capture
+from gapforge.capture import CaptureStream, GateCapture, make_capture, stream_of
 from gapforge.errors import GapforgeError
-from gapforge.measure import Limits, measure_capture
+from gapforge.measure import Limits, Measurement, measure_capture
 
 TICK = Fraction(1, 3 * 10**9)  # a tick that is not a decimal fraction of a second
 
@@ -161,3 +162,155 @@ def test_no_edges_is_bad_input() -> None:
     empty = make_capture(TICK, (t[:0], np.zeros(0, dtype=np.uint8)), (t, np.array([1], np.uint8)))
     with pytest.raises(GapforgeError, match="high-side signal never changes"):
         measure_capture(empty)
+
+
+# --- the incremental engine: chunking must not change any result --------------------------------
+
+def _stream(cap: GateCapture, cuts: list[int]) -> CaptureStream:
+    """The capture's events in time order, split at the given event counts (a chunked reader)."""
+    whole = next(stream_of(cap).chunks())
+    bounds = sorted({min(c, whole[0].size) for c in cuts} | {0, whole[0].size})
+
+    def chunks():  # type: ignore[no-untyped-def]
+        for a, b in itertools.pairwise(bounds):
+            yield whole[0][a:b], whole[1][a:b], whole[2][a:b]
+
+    return CaptureStream(cap.tick_s, "chunked", chunks, chunks, lambda: (cap.end, ()),
+                         high_initial=cap.high_initial, low_initial=cap.low_initial)
+
+
+def _summary(m: Measurement) -> tuple[object, ...]:
+    return (
+        m.to_high.gaps_ticks.tolist(), m.to_low.gaps_ticks.tolist(),
+        m.to_high.shortest, m.to_high.longest, m.to_low.shortest, m.to_low.longest,
+        m.to_high.percentiles, m.to_low.histogram_counts, m.overlaps, m.glitches,
+        m.missing_edges, m.unknown_intervals, m.verdict, m.reasons, m.notes, m.duration_s,
+        m.mean_period_s,
+    )
+
+
+# random event lists: (time step, side, level) with repeats, x/z, equal times and overlaps
+steps = st.sampled_from([0, 0, 0, 1, 2, 3, 7, 19, 40])  # many changes at one time
+events = st.lists(st.tuples(steps, st.booleans(), st.sampled_from([0, 1, 1, 0, 2, 3])),
+                  min_size=2, max_size=80)
+
+
+def _capture(evs: list[tuple[int, bool, int]], edges_only: bool) -> GateCapture:
+    t = 0
+    ht: list[int] = []
+    hv: list[int] = []
+    lt: list[int] = []
+    lv: list[int] = []
+    for dt, high, level in evs:
+        t += dt
+        (ht if high else lt).append(t)
+        (hv if high else lv).append(level)
+    return make_capture(TICK, (np.array(ht, np.int64), np.array(hv, np.uint8)),
+                        (np.array(lt, np.int64), np.array(lv, np.uint8)), end=t + 7,
+                        edges_only=edges_only)
+
+
+@settings(max_examples=150, deadline=None)
+@given(events, st.lists(st.integers(0, 80), max_size=8), st.booleans(),
+       st.sampled_from([0, 3, 20]))
+def test_chunked_equals_whole(evs: list[tuple[int, bool, int]], cuts: list[int],
+                              edges_only: bool, glitch: int) -> None:
+    cap = _capture(evs, edges_only)
+    if cap.high_times.size == 0 or cap.low_times.size == 0:
+        return
+    kwargs = {"glitch_width_s": glitch * TICK, "worst": 3, "percentiles": (0.0, 37.5, 100.0)}
+    try:
+        whole = measure_capture(cap, **kwargs)  # type: ignore[arg-type]
+    except GapforgeError as exc:
+        with pytest.raises(GapforgeError, match=exc.message[:20]):
+            measure_capture(_stream(cap, cuts), **kwargs)  # type: ignore[arg-type]
+        return
+    assert _summary(measure_capture(_stream(cap, cuts), **kwargs)) == _summary(whole)  # type: ignore[arg-type]
+
+
+def _reference(evs: list[tuple[int, bool, int]]) -> tuple[list[int], list[int], list[tuple[int, int]]]:
+    """A plain per-event loop over clean 0/1 edges, written from the rules in the module
+    docstring: the joint state after all changes at each time; a dead time runs from the state
+    where the outgoing gate is off to the state where the incoming gate is on."""
+    t = 0
+    joint: list[tuple[int, tuple[int, int]]] = []
+    level = {True: 2, False: 2}
+    for dt, high, value in evs:
+        t += dt
+        level[high] = value
+        state = (level[True], level[False])
+        if joint and joint[-1][0] == t:
+            joint[-1] = (t, state)
+        else:
+            joint.append((t, state))
+    states: list[tuple[int, tuple[int, int]]] = []
+    for item in joint:
+        if not states or states[-1][1] != item[1]:
+            states.append(item)
+    to_high: list[int] = []
+    to_low: list[int] = []
+    overlaps: list[tuple[int, int]] = []
+    for k, (tk, sk) in enumerate(states):
+        if sk == (1, 1) and k + 1 < len(states):
+            overlaps.append((tk, states[k + 1][0] - tk))
+        if k + 1 >= len(states):
+            continue
+        tb, b = states[k + 1]
+        c = states[k + 2] if k + 2 < len(states) else None
+        for out, before, after, incoming in ((to_high, (0, 1), (1, 0), 0), (to_low, (1, 0), (0, 1), 1)):
+            if sk != before:
+                continue
+            if b == (0, 0) and c is not None and c[1][incoming] == 1:
+                out.append(c[0] - tb)
+            elif b == after:
+                out.append(0)
+            elif b == (1, 1) and c is not None and c[1] == after:
+                out.append(tb - c[0])
+    return to_high, to_low, overlaps
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.lists(st.tuples(steps, st.booleans(), st.sampled_from([0, 1])),
+                min_size=4, max_size=80), st.lists(st.integers(0, 80), max_size=6))
+def test_against_a_per_event_loop(evs: list[tuple[int, bool, int]], cuts: list[int]) -> None:
+    cap = _capture(evs, edges_only=False)
+    expect_h, expect_l, expect_o = _reference(evs)
+    if cap.high_times.size == 0 or cap.low_times.size == 0 or not (expect_h or expect_l or expect_o):
+        return
+    m = measure_capture(_stream(cap, cuts))
+    assert m.to_high.gaps_ticks.tolist() == expect_h
+    assert m.to_low.gaps_ticks.tolist() == expect_l
+    # the last overlap may run to the end of the capture, which the reference leaves out
+    got = [(int(o.at_s / TICK), int(o.duration_s / TICK)) for o in m.overlaps]
+    assert got[: len(expect_o)] == expect_o and len(got) - len(expect_o) in (0, 1)
+
+
+def test_gaps_stored_compactly() -> None:
+    cap, _, _ = _build([(60, 300, 61, 300)] * 4)
+    m = measure_capture(cap)
+    assert m.to_high.gaps_ticks.dtype == np.int32
+    wide, _, _ = _build([(3 * 10**9, 300, 61, 300)] * 2)  # a gap beyond 2**31 ticks
+    m2 = measure_capture(wide)
+    assert m2.to_high.gaps_ticks.dtype == np.int64
+    assert m2.to_high.gaps_ticks.tolist() == [3 * 10**9] * 2
+    assert m2.to_high.min_s == 3 * 10**9 * TICK
+
+
+def test_percentiles_and_histogram_match_numpy() -> None:
+    # reference: numpy.percentile (default linear method) and numpy.histogram on the raw gaps
+    rng = np.random.default_rng(5)
+    gaps = rng.integers(-5, 400, 301).tolist()
+    cap, _, _ = _build([(g, 500, 50, 500) for g in gaps])
+    pcts = (0.0, 1.0, 12.5, 50.0, 99.0, 100.0)
+    st_h = measure_capture(cap, percentiles=pcts, bins=7).to_high
+    for (p, got), want in zip(st_h.percentiles, np.percentile(gaps, pcts), strict=True):
+        assert got == pytest.approx(float(want) * float(TICK), rel=1e-12), p
+    counts, _ = np.histogram(gaps, bins=7, range=(min(gaps), max(gaps) + 1))
+    assert st_h.histogram_counts == tuple(counts.tolist())
+    assert st_h.mean_s == pytest.approx(float(np.mean(gaps)) * float(TICK), rel=1e-12)
+
+
+def test_mean_period() -> None:
+    cap, _, _ = _build([(50, 300, 55, 300)] * 5)
+    # each period: 55 + 300 + 300 + the 50-tick to_high gap = 705 ticks
+    assert measure_capture(cap).mean_period_s == 705 * TICK

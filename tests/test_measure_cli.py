@@ -164,3 +164,55 @@ def test_serial_over_pty(tmp_path: Path) -> None:
     assert doc["stream"]["stop_reason"] == "edge count reached (120)"
     assert doc["edges"]["to_high"]["count"] == 30
     assert doc["edges"]["to_low"]["min_s"] == pytest.approx(33e-9)
+
+
+def test_timing_diagram_under_the_tables(tmp_path: Path) -> None:
+    # issue 6: the pair drawn with the shortest measured gaps over the measured mean period
+    path = _vcd(tmp_path / "ok.vcd", 30, 40)
+    args = ["measure", str(path), "--high", "gate_h", "--low", "gate_l"]
+    text = CliRunner().invoke(cli, args).output
+    lines = text.splitlines()
+    at = next(i for i, line in enumerate(lines) if line.startswith("Timing"))
+    assert "mean period 1 us" in lines[at]  # _vcd writes one period every 1000 ns
+    assert lines[at + 1].startswith("high  ") and lines[at + 2].startswith("low   ")
+    assert "to_high 30 ns" in lines[at + 4] and "to_low 40 ns" in lines[at + 4]
+    assert at > next(i for i, line in enumerate(lines) if line.startswith("to_low "))  # under
+    assert at < next(i for i, line in enumerate(lines) if line.startswith("Verdict"))
+    plain = CliRunner().invoke(cli, [*args, "--ascii"]).output
+    assert "Timing" in plain and all(ord(ch) < 128 for ch in plain.split("Caution")[0])
+    assert "\u2594" in text  # the default drawing uses block characters
+    none = CliRunner().invoke(cli, [*args, "--no-diagram"]).output
+    assert "Timing" not in none
+    assert not any(line.startswith(("high  ", "low   ")) for line in none.splitlines())
+    doc = json.loads(CliRunner().invoke(cli, [*args, "--json"]).output)
+    assert doc["verdict"] == "measured"
+
+
+def test_streamed_file_equals_the_capture_in_memory(tmp_path: Path) -> None:
+    # the CLI streams the VCD; the report path loads it whole: same measurement either way
+    from gapforge.capture import load_capture, open_capture
+    from gapforge.cli.measure_cmd import measurement_json
+    from gapforge.measure import measure_capture
+
+    path = _vcd(tmp_path / "shoot.vcd", 30, 40, overlap_at=7)
+    streamed = measure_capture(open_capture(path, "gate_h", "gate_l", chunk_bytes=64), worst=3)
+    whole = measure_capture(load_capture(path, "gate_h", "gate_l"), worst=3)
+    assert measurement_json(streamed) == measurement_json(whole)
+    assert streamed.overlaps == whole.overlaps and len(whole.overlaps) == 1
+
+
+def test_backwards_timestamps_fall_back_to_sorting(tmp_path: Path) -> None:
+    # hand-written: '#1500' comes after '#2000' (IEEE 1364-2005 18.2 has times increase; a
+    # reader should warn and order them)
+    path = tmp_path / "back.vcd"
+    path.write_text("$timescale 1ns $end $scope module top $end $var wire 1 ! gate_h $end\n"
+                    "$var wire 1 \" gate_l $end $upscope $end $enddefinitions $end\n"
+                    "#0 0! 1\"\n#1000 0\"\n#2000 0!\n#1500 1!\n#2100 1\"\n#3000 0\"\n#3025 1!\n")
+    result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low",
+                                      "gate_l", "--json"])
+    doc = json.loads(result.output)
+    assert doc["edges"]["to_high"]["count"] == 2
+    assert doc["edges"]["to_high"]["max_s"] == pytest.approx(500e-9)  # 1000 -> 1500 once sorted
+    assert doc["edges"]["to_high"]["min_s"] == pytest.approx(25e-9)  # 3000 -> 3025
+    assert doc["edges"]["to_low"]["min_s"] == pytest.approx(100e-9)
+    assert any("backwards" in w for w in doc["warnings"])

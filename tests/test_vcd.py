@@ -19,7 +19,7 @@ from hypothesis import strategies as st
 from vcd import VCDWriter
 
 from gapforge.errors import GapforgeError
-from gapforge.vcd import X, Z, read_header, read_vcd
+from gapforge.vcd import UnorderedTimes, X, Z, open_events, read_header, read_vcd
 
 CHUNKS = (7, 64, 1000, 1 << 21)
 
@@ -254,3 +254,74 @@ def test_unknown_and_ambiguous_and_wide_signals(tmp_path: Path) -> None:
         read_vcd(path, ["a.bus"])
     with pytest.raises(GapforgeError, match="outside"):
         read_vcd(path, ["a.bus[4]"])
+
+
+# --- timestamps: decoded 8 digits per load; lanes end after 8 and 16 digits -----------------------
+
+@pytest.mark.parametrize("chunk", (64, 1 << 20))
+def test_timestamps_of_every_length_from_pyvcd(tmp_path: Path, chunk: int) -> None:
+    # pyvcd writes each timestamp with Python's own int formatting: the reference value
+    times = sorted({10**k + d for k in range(18) for d in (0, 1, 7)} | {10**18 - 1, 987654321987})
+    path = tmp_path / "long.vcd"
+
+    def build(w) -> None:  # type: ignore[no-untyped-def]
+        a = w.register_var("t", "a", "wire", size=1, init=0)
+        for k, at in enumerate(times):
+            w.change(a, at, k % 2 == 0)
+
+    _write(path, "1 fs", build)
+    sig = read_vcd(path, ["t.a"], chunk_bytes=chunk).signals["t.a"]
+    assert sig.times.tolist() == [0, *times]
+    assert sig.values.tolist() == [0] + [1 - k % 2 for k in range(len(times))]
+
+
+@pytest.mark.parametrize("stamp", ["#12a4", "#1234567x", "#12345678:", "#1234567890123456-",
+                                   "#1/34567890123456789", "#12345678901234567890"])
+def test_bad_timestamp_in_every_lane(tmp_path: Path, stamp: str) -> None:
+    # hand-written: a non-digit in the last 8 digits, in the 8 before, and in the rest; too long
+    path = tmp_path / "bad.vcd"
+    path.write_text(f"$var wire 1 ! a $end $enddefinitions $end\n#1 1!\n{stamp}\n0!\n")
+    with pytest.raises(GapforgeError, match="timestamp") as info:
+        read_vcd(path, ["a"], chunk_bytes=16)
+    assert info.value.where == f"{path}:3"
+
+
+# --- the merged event stream (what `gapforge measure` reads) --------------------------------------
+
+@settings(max_examples=30, deadline=None)
+@given(st.lists(st.tuples(st.integers(0, 10**6), st.sampled_from([0, 1, "x", "z"]), st.booleans()),
+                min_size=1, max_size=50), st.integers(3, 200))
+def test_event_stream_merges_in_time_order(steps: list[tuple[int, object, bool]], chunk: int) -> None:
+    buffer = io.StringIO()
+    with VCDWriter(buffer, timescale="1 ps", date="invented") as w:
+        va = w.register_var("s", "a", "wire", size=1)
+        vb = w.register_var("s", "b", "wire", size=1)
+        t = 0
+        for dt, value, which in steps:
+            t += dt
+            w.change(va if which else vb, t, value)
+    path = Path(pytest.importorskip("tempfile").mkdtemp()) / "m.vcd"
+    path.write_text(buffer.getvalue())
+    whole = read_vcd(path, ["s.a", "s.b"])
+    stream = open_events(path, "s.a", "s.b", chunk_bytes=chunk)
+    parts = list(stream.chunks())
+    times = np.concatenate([p[0] for p in parts])
+    sides = np.concatenate([p[1] for p in parts])
+    values = np.concatenate([p[2] for p in parts])
+    assert np.all(np.diff(times) >= 0)
+    for side, name in ((0, "s.a"), (1, "s.b")):
+        assert times[sides == side].tolist() == whole.signals[name].times.tolist()
+        assert values[sides == side].tolist() == whole.signals[name].values.tolist()
+    assert stream.end_time == whole.end_time  # pyvcd leaves out changes that repeat a value
+
+
+def test_event_stream_stops_at_backwards_time(tmp_path: Path) -> None:
+    path = tmp_path / "snip.vcd"
+    path.write_text(SNIPPET)  # '#11' comes after '#12' in it
+    stream = open_events(path, "top.drv.gate_h", "gate_l", chunk_bytes=16)
+    with pytest.raises(UnorderedTimes):
+        list(stream.chunks())
+    (times, sides, _values), = list(stream.sorted_chunks())
+    assert np.all(np.diff(times) >= 0)
+    assert times[sides == 0].tolist() == [0, 5, 9, 11, 12, 20]
+    assert len(stream.warnings) == 1 and "backwards" in stream.warnings[0]
