@@ -5,12 +5,15 @@ from __future__ import annotations
 
 import itertools
 from fractions import Fraction
+from unittest import mock
 
 import numpy as np
 import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from gapforge import capture as capture_module
+from gapforge import measure as measure_module
 from gapforge.capture import CaptureStream, GateCapture, make_capture, stream_of
 from gapforge.errors import GapforgeError
 from gapforge.measure import Limits, Measurement, measure_capture
@@ -226,6 +229,10 @@ def test_chunked_equals_whole(evs: list[tuple[int, bool, int]], cuts: list[int],
             measure_capture(_stream(cap, cuts), **kwargs)  # type: ignore[arg-type]
         return
     assert _summary(measure_capture(_stream(cap, cuts), **kwargs)) == _summary(whole)  # type: ignore[arg-type]
+    # a capture in memory in time windows; gaps stored in blocks of three
+    with mock.patch.object(capture_module, "_WINDOW", 2), \
+            mock.patch.object(measure_module._GapStore, "BLOCK", 3):
+        assert _summary(measure_capture(cap, **kwargs)) == _summary(whole)  # type: ignore[arg-type]
 
 
 def _reference(evs: list[tuple[int, bool, int]]) -> tuple[list[int], list[int], list[tuple[int, int]]]:
@@ -294,6 +301,13 @@ def test_gaps_stored_compactly() -> None:
     assert m2.to_high.gaps_ticks.dtype == np.int64
     assert m2.to_high.gaps_ticks.tolist() == [3 * 10**9] * 2
     assert m2.to_high.min_s == 3 * 10**9 * TICK
+    # int32 blocks first, then a gap that does not fit: every block becomes int64
+    gaps = [60, 70, 80, 90, 100, 3 * 10**9, 50]
+    mixed, _, _ = _build([(g, 300, 61, 300) for g in gaps])
+    with mock.patch.object(measure_module._GapStore, "BLOCK", 2), \
+            mock.patch.object(capture_module, "_WINDOW", 1):
+        m3 = measure_capture(mixed)
+    assert m3.to_high.gaps_ticks.dtype == np.int64 and m3.to_high.gaps_ticks.tolist() == gaps
 
 
 def test_percentiles_and_histogram_match_numpy() -> None:

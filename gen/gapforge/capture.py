@@ -123,20 +123,41 @@ class CaptureStream:
         return self._finished()[1]
 
 
+_WINDOW = 1 << 16  # events per side and chunk when a capture in memory is streamed
+
+
 def stream_of(capture: GateCapture) -> CaptureStream:
-    """A capture held in memory as a one-chunk stream (the high side first at equal times)."""
+    """A capture held in memory (each side sorted by time) as a stream of time windows, both
+    sides merged in each (the high side first at equal times)."""
 
-    def one() -> Iterator[Events]:
-        times = np.concatenate([capture.high_times, capture.low_times])
-        sides = np.concatenate([np.zeros(capture.high_times.size, dtype=np.uint8),
-                                np.ones(capture.low_times.size, dtype=np.uint8)])
-        order = np.argsort(times, kind="stable")
-        yield (times[order], sides[order],
-               np.concatenate([capture.high_levels, capture.low_levels])[order])
+    def windows() -> Iterator[Events]:
+        ht, lt = capture.high_times, capture.low_times
+        h0 = l0 = 0
+        while h0 < ht.size or l0 < lt.size:
+            # up to the time of the window-th next change of either side, every change at it
+            ends = [int(t[i + _WINDOW]) for t, i in ((ht, h0), (lt, l0)) if i + _WINDOW < t.size]
+            if ends:
+                h1 = int(np.searchsorted(ht, min(ends), side="right"))
+                l1 = int(np.searchsorted(lt, min(ends), side="right"))
+            else:
+                h1, l1 = ht.size, lt.size
+            yield _merge(ht[h0:h1], capture.high_levels[h0:h1], lt[l0:l1],
+                         capture.low_levels[l0:l1])
+            h0, l0 = h1, l1
 
-    return CaptureStream(capture.tick_s, capture.source, one, one,
+    return CaptureStream(capture.tick_s, capture.source, windows, windows,
                          lambda: (capture.end, capture.warnings),
                          high_initial=capture.high_initial, low_initial=capture.low_initial)
+
+
+def _merge(
+    ht: npt.NDArray[np.int64], hv: npt.NDArray[np.uint8], lt: npt.NDArray[np.int64],
+    lv: npt.NDArray[np.uint8],
+) -> Events:
+    times = np.concatenate([ht, lt])
+    order = np.argsort(times, kind="stable")  # two sorted runs: one merge
+    sides = np.concatenate([np.zeros(ht.size, dtype=np.uint8), np.ones(lt.size, dtype=np.uint8)])
+    return times[order], sides[order], np.concatenate([hv, lv])[order]
 
 
 _INVERT = np.array([1, 0, 2, 3], dtype=np.uint8)

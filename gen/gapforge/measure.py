@@ -14,6 +14,13 @@ Transitions are read from the joint state of the two gates (high side, low side)
   out of the dead-time statistics.
 - a missing edge: a dead time that ends with the same gate turning on again (the other gate never
   turned on), or a level reported twice in a row (an edge between them was lost).
+
+The measurement is one incremental engine over the events of both gates in time order, fed chunk
+by chunk (a whole capture in memory is one chunk). It carries the current level of each gate, the
+changes at the last timestamp (they may go on in the next chunk) and the last two joint states,
+so a chunk boundary never changes a result. It keeps every gap (int32 ticks where they fit) but
+time stamps only for the worst instances and the overlaps. Listed findings stop at 1000 per kind
+and side.
 """
 
 from __future__ import annotations
@@ -361,7 +368,7 @@ class _Engine:
         self.lost: list[Finding] = []
         self._repeat_n = [0, 0]
         self._lost_n = [0, 0]
-        self._gaps: dict[str, list[npt.NDArray[np.signedinteger[Any]]]] = {e: [] for e in EDGES}
+        self._gaps: dict[str, _GapStore] = {e: _GapStore() for e in EDGES}
         self._n: dict[str, int] = dict.fromkeys(EDGES, 0)
         # worst instances: (gap, order, at) of the shortest and (-gap, order, at) of the longest
         self._short: dict[str, list[tuple[int, int, int]]] = {e: [] for e in EDGES}
@@ -517,9 +524,7 @@ class _Engine:
             return
         base = self._n[edge]
         self._n[edge] += int(gaps.size)
-        lo, hi = int(gaps.min()), int(gaps.max())
-        fits = lo >= _INT32_MIN and hi <= _INT32_MAX
-        self._gaps[edge].append(gaps.astype(np.int32) if fits else gaps)
+        self._gaps[edge].append(gaps)
         if edge == "to_high":
             if not self._period:
                 self._period = [int(at[0]), int(at[-1]), int(at.size)]
@@ -548,13 +553,7 @@ class _Engine:
 
     def gaps_of(self, edge: str) -> npt.NDArray[np.signedinteger[Any]]:
         """Every gap of one edge in time order: int32 when all fit, else int64."""
-        parts = self._gaps[edge]
-        if not parts:
-            return np.zeros(0, dtype=np.int32)
-        wide = any(p.dtype == np.int64 for p in parts)
-        if wide:
-            parts[:] = [p.astype(np.int64) for p in parts]
-        return _join(parts, np.int64 if wide else np.int32)
+        return self._gaps[edge].array()
 
     def worst_of(self, edge: str) -> tuple[tuple[Instance, ...], tuple[Instance, ...]]:
         short = tuple(Instance(self.tick * at, self.tick * g) for g, _, at in self._short[edge])
@@ -571,22 +570,50 @@ class _Engine:
 _INT32_MIN, _INT32_MAX = -(2**31), 2**31 - 1
 
 
-def _join(
-    parts: list[npt.NDArray[np.signedinteger[Any]]], dtype: type[np.signedinteger[Any]]
-) -> npt.NDArray[np.signedinteger[Any]]:
-    """Concatenate, freeing the parts one by one (peak = result + one part)."""
-    if len(parts) == 1:
-        return parts[0]
-    out = np.empty(sum(int(p.size) for p in parts), dtype=dtype)
-    at = 0
-    parts.reverse()
-    while parts:
-        part = parts.pop()
-        out[at : at + part.size] = part
-        at += part.size
-        del part
-    parts.append(out)
-    return out
+class _GapStore:
+    """Gaps appended into fixed-size blocks (no regrowth copies): int32 until one does not fit,
+    then int64. The final array is joined freeing each block as it is copied."""
+
+    BLOCK = 1 << 20
+
+    def __init__(self) -> None:
+        self.blocks: list[npt.NDArray[np.signedinteger[Any]]] = []
+        self.used = 0  # entries used in the last block
+        self.size = 0
+        self.wide = False
+
+    def append(self, gaps: Ints) -> None:
+        if not self.wide and (int(gaps.min()) < _INT32_MIN or int(gaps.max()) > _INT32_MAX):
+            self.wide = True
+            self.blocks = [b.astype(np.int64) for b in self.blocks]
+        at = 0
+        while at < gaps.size:
+            if not self.blocks or self.used == self.BLOCK:
+                self.blocks.append(np.empty(self.BLOCK, dtype=np.int64 if self.wide else np.int32))
+                self.used = 0
+            take = min(int(gaps.size) - at, self.BLOCK - self.used)
+            self.blocks[-1][self.used : self.used + take] = gaps[at : at + take]
+            self.used += take
+            at += take
+        self.size += int(gaps.size)
+
+    def array(self) -> npt.NDArray[np.signedinteger[Any]]:
+        if not self.blocks:
+            return np.zeros(0, dtype=np.int32)
+        if len(self.blocks) == 1:
+            only = self.blocks[0][: self.used]
+            return only.copy() if self.used < self.BLOCK // 4 else only
+        out = np.empty(self.size, dtype=self.blocks[0].dtype)
+        self.blocks.reverse()
+        at = 0
+        while self.blocks:
+            block = self.blocks.pop()
+            take = block.size if self.blocks else self.used
+            out[at : at + take] = block[:take]
+            at += take
+            del block
+        self.blocks, self.used = [out], self.size
+        return out
 
 
 def _deglitch(
@@ -636,7 +663,9 @@ def _stats(
     nbins = max(1, min(bins, hi - lo + 1))
     if hi - lo < _DENSE_SPAN:
         # one pass: counts per tick value; percentiles and histogram from the counts
-        counts_per = np.bincount(gaps - lo if lo else gaps, minlength=1)
+        counts_per = np.zeros(hi - lo + 1, dtype=np.intp)
+        for at in range(0, gaps.size, 1 << 16):  # in slices: bincount copies to intp
+            counts_per += np.bincount(gaps[at : at + (1 << 16)] - lo, minlength=hi - lo + 1)
         pct = _percentiles_from_counts(counts_per, lo, percentiles, fl)
         counts, edges = np.histogram(np.arange(lo, hi + 1), bins=nbins, range=(lo, hi + 1),
                                      weights=counts_per[: hi - lo + 1])

@@ -1,10 +1,13 @@
 """Value change dump (VCD, IEEE 1364-2005 clause 18) reader for gate captures.
 
 The header (declarations) is small and read token by token in Python. The body, which can be
-hundreds of megabytes, is read in fixed-size chunks into one reused buffer and tokenised with
-numpy: whitespace mask -> token starts/ends -> classification by first byte -> only the changes of
-the requested identifier codes are decoded. There is no per-line Python loop over the body; the
-few keyword tokens ($dumpvars, $dumpoff, $comment, ...) are handled one by one.
+hundreds of megabytes, is read in fixed-size chunks into one reused buffer and decoded with numpy:
+whitespace positions -> token bounds -> classification by first byte -> every timestamp decoded
+eight digits per unaligned 64-bit load (SWAR) -> only the changes of the requested identifier
+codes are decoded. There is no per-line Python loop over the body; the few keyword tokens
+($dumpvars, $dumpoff, $comment, ...) are handled one by one, and line numbers are counted only
+when an error is reported. `read_vcd` returns whole arrays per signal; `open_events` streams the
+changes of two signals merged in file order, chunk by chunk, for the measurement.
 
 Supported: identifier codes of one or more printable characters (starting with a digit or '$'
 too), several variables sharing one code, whitespace-separated tokens rather than lines,
@@ -576,14 +579,16 @@ def _parse_chunk(
         state.seen_time = True
     lengths = ends - starts
     picks: dict[tuple[bytes, int], tuple[npt.NDArray[np.intp], npt.NDArray[np.uint8]]] = {}
-    scalar_by_size: dict[int, npt.NDArray[np.intp]] = {}
+    scalar_by_size: dict[int, tuple[npt.NDArray[np.intp], npt.NDArray[np.uint8]]] = {}
     for code, positions in wanted.items():
         size = len(code)
         # scalar changes: value byte then the code in the same token
         if size not in scalar_by_size:
-            scalar_by_size[size] = np.flatnonzero((cls == _C_SCALAR) & (lengths == size + 1))
-        cand = scalar_by_size[size]
-        for k in range(size):
+            near = np.flatnonzero((cls == _C_SCALAR) & (lengths == size + 1))
+            scalar_by_size[size] = near, arr[starts[near] + 1]
+        cand, second = scalar_by_size[size]
+        cand = cand[second == code[0]]
+        for k in range(1, size):
             if cand.size == 0:
                 break
             cand = cand[arr[starts[cand] + 1 + k] == code[k]]
@@ -603,11 +608,15 @@ def _parse_chunk(
             token_idx = token_idx[~ignore[token_idx]]
         if dumpoff:
             token_idx = np.concatenate([token_idx, np.asarray(dumpoff, dtype=np.intp)])
-        if token_idx.size > cand.size or dumpoff:
+        only_scalar = token_idx.size == cand.size and not dumpoff
+        if not only_scalar:
             token_idx = np.sort(token_idx, kind="stable")
         for position in positions:
-            picks[(code, position)] = (
-                token_idx, _values(arr, starts, ends, cls, token_idx, position, state))
+            if only_scalar and position == 0:
+                values = _VALUE[first[token_idx]]  # a scalar token's value is its first byte
+            else:
+                values = _values(arr, starts, ends, cls, token_idx, position, state)
+            picks[(code, position)] = (token_idx, values)
     return used, _Chunk(prev_time, time_count, times, picks)
 
 
@@ -623,8 +632,6 @@ def _values(
     """The level of bit `position` (from the right) set by each change token."""
     tok_start = starts[token_idx]
     kind = cls[token_idx]
-    if position == 0 and not np.any(kind != _C_SCALAR):
-        return _VALUE[arr[tok_start]]  # scalar tokens carry their value in the first byte
     tok_end = ends[token_idx]
     is_vec = kind == _C_VECTOR
     is_off = kind == _C_KEYWORD

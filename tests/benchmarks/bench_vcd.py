@@ -13,7 +13,8 @@ per-signal change arrays to the dead times (gapforge.measure on the arrays for a
 - pywellen (compiled Rust core, `pip install pywellen`), installed only for this benchmark.
 
 Each reader runs in its own process; peak memory is the growth of that process's peak resident
-set over its baseline after imports (resource.getrusage ru_maxrss). Missing optional readers are
+set over its baseline after imports (Linux: VmHWM after resetting it through
+/proc/self/clear_refs; elsewhere resource.getrusage ru_maxrss). Missing optional readers are
 skipped and say so.
 """
 
@@ -28,6 +29,7 @@ import sys
 import tempfile
 import time
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -82,10 +84,22 @@ def _finish(tick_ps: int, high: tuple[np.ndarray, np.ndarray], low: tuple[np.nda
 
 
 def run_gapforge(path: Path) -> dict[str, object]:
+    """What `gapforge measure` does: the VCD streamed chunk by chunk into the measurement."""
+    from gapforge.capture import open_capture
+    from gapforge.measure import measure_capture
+
+    return _ours(measure_capture(open_capture(path, "bench.gate_h", "bench.gate_l")))
+
+
+def run_gapforge_whole(path: Path) -> dict[str, object]:
+    """The capture loaded whole first (load_capture, as `gapforge report --capture` does)."""
     from gapforge.capture import load_capture
     from gapforge.measure import measure_capture
 
-    m = measure_capture(load_capture(path, "bench.gate_h", "bench.gate_l"))
+    return _ours(measure_capture(load_capture(path, "bench.gate_h", "bench.gate_l")))
+
+
+def _ours(m: Any) -> dict[str, object]:
     cap_edges = int(m.to_high.count + m.to_low.count)
     return {"to_high": m.to_high.count, "to_low": m.to_low.count,
             "min_ps": [int(m.to_high.gaps_ticks.min()), int(m.to_low.gaps_ticks.min())],
@@ -146,21 +160,54 @@ def run_pywellen(path: Path) -> dict[str, object]:
     return _finish(1, high, low, end)
 
 
-RUNNERS = {"gapforge": run_gapforge, "per-line": run_lines, "pyvcd": run_pyvcd,
-           "pywellen": run_pywellen}
+RUNNERS = {"gapforge": run_gapforge, "gf-whole": run_gapforge_whole, "per-line": run_lines,
+           "pyvcd": run_pyvcd, "pywellen": run_pywellen}
+
+
+def _status_kib(key: str) -> int | None:
+    try:
+        with open("/proc/self/status") as f:
+            for line in f:
+                if line.startswith(key + ":"):
+                    return int(line.split()[1])
+    except OSError:
+        pass
+    return None
+
+
+def _peak_reset() -> int:
+    """Baseline for the peak: on Linux the peak RSS (VmHWM) is reset to the current RSS, since a
+    child started by subprocess can inherit its parent's high-water mark (ru_maxrss would then
+    hide any growth below the parent's size); elsewhere ru_maxrss."""
+    try:
+        with open("/proc/self/clear_refs", "w") as f:
+            f.write("5")
+        rss = _status_kib("VmRSS")
+        if rss is not None:
+            return rss
+    except OSError:
+        pass
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+
+
+def _peak() -> int:
+    hwm = _status_kib("VmHWM")
+    return hwm if hwm is not None else resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 
 
 def child(name: str, path: Path) -> None:
-    import gapforge.measure  # noqa: F401 - imports count towards the baseline, not the reader
+    # imports count towards the baseline, not the reader
+    import gapforge.measure
+    import gapforge.vcd  # noqa: F401
     if name == "pyvcd":
         import vcd.reader  # noqa: F401
     if name == "pywellen":
         import pywellen  # noqa: F401
-    base_kib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    base_kib = _peak_reset()
     start = time.perf_counter()
     result = RUNNERS[name](path)
     elapsed = time.perf_counter() - start
-    peak_kib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    peak_kib = _peak()
     print(json.dumps({"seconds": elapsed, "peak_mb": (peak_kib - base_kib) / 1024,
                       "result": result}))
 
@@ -214,6 +261,14 @@ def main() -> None:
                   f"{peak:>8.1f} {peak / size_mb:>9.2f} "
                   f"{sec / float(ours['seconds']):>17.2f}x  {same}")  # type: ignore[arg-type]
         print(f"gapforge result: {ref}")
+        sec = float(ours["seconds"])  # type: ignore[arg-type]
+        goals = [f"{size_mb / sec:.0f} MB/s (goal >= 100)",
+                 f"peak/file {float(ours['peak_mb']) / size_mb:.2f} (goal < 0.5)"]  # type: ignore[arg-type]
+        for reader, factor in (("per-line", 5), ("pywellen", 3)):
+            if reader in rows:
+                ratio = float(rows[reader]["seconds"]) / sec  # type: ignore[arg-type]
+                goals.append(f"{ratio:.1f}x {reader} (goal >= {factor}x)")
+        print("goals: " + "; ".join(goals))
     finally:
         if not args.keep:
             path.unlink(missing_ok=True)
