@@ -1,7 +1,7 @@
 """Shared test helpers: hypothesis profiles and ways to run the command line.
 
-Profiles: "default" (the plain `python -m pytest -q` run) and "ci" (selected with
-HYPOTHESIS_PROFILE=ci, as .ci/run does). Tests that the issue requires at >= 10,000 cases carry
+Profiles: "default" (the plain `python -m pytest -q` run, which is also what .ci/run runs) and
+"ci" (a deeper run, selected with HYPOTHESIS_PROFILE=ci). Tests that the issue requires at >= 10,000 cases carry
 their own `@settings(max_examples=10_000, deadline=None)`, so they reach that count in both runs;
 the profiles set the size of every other property test.
 """

@@ -171,7 +171,7 @@ BAD_LAYOUTS: dict[str, tuple[str, str]] = {
     "divider-zero": (
         HEAD + '[clock]\ndividers = [1, 0]\ndivider_field = "div"\n' + BOTH8
         + '[[field]]\nname = "div"\nrole = "divider"\noffset = 8\nwidth = 1\n',
-        "clock.dividers[1]: divider 0 must be a positive integer",
+        "clock.dividers[1]: divider 0 must be in 1..65536",
     ),
     "bad-role": (
         HEAD + '[[field]]\nname = "gap"\nrole = "bothh"\noffset = 0\nwidth = 8\n',
@@ -291,3 +291,19 @@ def test_targets_list_json() -> None:
     doc = json.loads(out)
     assert [d["name"] for d in doc] == list(BUILTINS)
     assert all(d["source"] == f"targets/{d['name']}.toml" for d in doc)
+
+
+def test_a_field_too_wide_to_tabulate_is_refused_at_load(tmp_path: Path) -> None:
+    # every allowed code is tabulated: a 32-bit field would need billions of entries, so the
+    # loader refuses it with a one-line error instead of running out of memory
+    path = tmp_path / "wide.toml"
+    path.write_text(
+        "# invented test layout\nformat = 1\nsummary = \"invented\"\nregister_bits = 32\n"
+        '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidth = 32\n'
+    )
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
+    assert info.value.line() == (
+        f"{path}: field[0].width: a 32-bit dead-time field is wider than the 20 bits gapforge "
+        "tabulates"
+    )

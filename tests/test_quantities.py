@@ -41,7 +41,6 @@ F = Fraction
         ("1MEG", "", F(1_000_000)),
         ("1megHz", "Hz", F(1_000_000)),
         ("2.5GHz", "Hz", F(2_500_000_000)),
-        ("10mHz", "Hz", F(1, 100)),  # milli, not mega: 10 x 1e-3
         ("20kHz", "Hz", F(20_000)),
         ("6.25ns", "s", F(1, 160_000_000)),  # 6.25e-9 = 625/1e11 = 1/160e6
         ("25ns", "s", F(1, 40_000_000)),
@@ -222,3 +221,13 @@ def test_absurd_exponent_is_refused_quickly() -> None:
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           env=env, timeout=3)
     assert proc.stdout.startswith("w: ")
+
+
+@pytest.mark.parametrize("text", ["160mhz", "160mHz", "10m"])
+def test_milli_before_hertz_is_refused(text: str) -> None:
+    # 'm' is milli: a lower-case '160mhz' would silently mean 0.16 Hz and give a header whose
+    # dead time is far too short on the real timer, so hertz refuse the milli prefix outright
+    with pytest.raises(GapforgeError) as info:
+        parse_quantity(text, "Hz", "--clock")
+    assert info.value.where == "--clock"
+    assert "write M for mega" in info.value.message

@@ -372,3 +372,28 @@ def test_each_layout_is_read_once(monkeypatch: pytest.MonkeyPatch) -> None:
     result = run(["--clocks", "50MHz:150MHz:10MHz", "--window", "90ns:1us"])
     assert result.exit_code == 0
     assert sorted(reads) == sorted(set(reads)) and len(reads) == len(builtin_names())
+
+
+def test_sweep_design_uses_the_design_tolerance_and_window() -> None:
+    # regression: `sweep --design` once ignored [timer] tolerance (2 % in this invented example)
+    # and listed a divider whose fast-clock gap fell 16 ns below the window minimum.
+    # Independent check: steps x divider / (sub_steps x f x (1 + 2 %)) >= window minimum, in
+    # exact fractions from the layout files read here with tomllib.
+    from conftest import REPO, run_cli
+
+    code, out, err = run_cli(
+        ["sweep", "--design", str(REPO / "examples" / "motor-inverter.toml"), "--clocks", "320MHz",
+         "--json"]
+    )
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["clock_tol"] == pytest.approx(0.02)
+    tol = Fraction(2, 100)
+    window_min = {"to_high": Fraction(852, 10**9), "to_low": Fraction(936, 10**9)}
+    assert doc["feasible"], "the invented example has feasible points"
+    for row in doc["feasible"]:
+        layout = tomllib.loads((REPO / "targets" / f"{row['layout']}.toml").read_text())
+        sub = layout.get("clock", {}).get("sub_steps", 1)
+        for edge, e in row["edges"].items():
+            worst = Fraction(e["steps"] * row["divider"]) / (sub * Fraction(320_000_000) * (1 + tol))
+            assert worst >= window_min[edge], (row["layout"], row["divider"], edge)

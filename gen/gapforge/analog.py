@@ -152,7 +152,9 @@ class DiodeModel:
         t = temp_c + ZERO_CELSIUS
         tn = self.tnom + ZERO_CELSIUS
         vte = self.n * K_OVER_Q * t
-        return self.is_ * math.exp((t / tn - 1.0) * self.eg / vte + self.xti / self.n * math.log(t / tn))
+        return self.is_ * math.exp(
+            (t / tn - 1.0) * self.eg / vte + self.xti / self.n * math.log(t / tn)
+        )
 
 
 # SPICE defaults for parameters the user leaves out of --diode (the usual level-1 defaults).
@@ -189,7 +191,9 @@ def parse_diode(text: object, where: str) -> DiodeModel:
         key = name.strip().upper()
         if key not in _DIODE_KEYS:
             known = ", ".join(k for k in _DIODE_KEYS if k != "CJ0")
-            raise GapforgeError(f"unknown diode parameter {name!r} (expected one of: {known})", where)
+            raise GapforgeError(
+                f"unknown diode parameter {name!r} (expected one of: {known})", where
+            )
         attr, unit, negative = _DIODE_KEYS[key]
         allow_zero = attr in ("rs", "cjo", "xti", "tnom")
         value = value.strip()
@@ -244,19 +248,31 @@ class ReferenceNetwork:
 
 @dataclass(frozen=True)
 class EdgeRange:
-    """A proven range of a time, in seconds: min rounded down and max up to 1 ps."""
+    """A range of a time, in seconds, to 1 ps.
+
+    `min_s` / `max_s` (rounded down / up) state what the network delivers, widened; `limit_min_s`
+    / `limit_max_s` (rounded up / down) are the same range narrowed, for use as limits that a
+    digital dead time must stay within (a minimum rounds up, a maximum down).
+    """
 
     min_s: Fraction
     typ_s: Fraction
     max_s: Fraction
+    limit_min_s: Fraction
+    limit_max_s: Fraction
 
 
 def edge_range(lo: float, typ: float, hi: float) -> EdgeRange:
-    """Floats to a safe exact range: min rounded DOWN, max rounded UP to 1 ps, typ nearest."""
+    """Floats to exact ranges: widened (min down, max up) and narrowed (min up, max down)."""
+    for value in (lo, typ, hi):
+        if not math.isfinite(value):
+            raise GapforgeError(f"the network gives a non-finite delay ({value})", "reference")
     return EdgeRange(
         Fraction(picoseconds_floor(Fraction(lo)), 10**12),
         Fraction(picoseconds_nearest(Fraction(typ)), 10**12),
         Fraction(picoseconds_ceil(Fraction(hi)), 10**12),
+        Fraction(picoseconds_ceil(Fraction(lo)), 10**12),
+        Fraction(picoseconds_floor(Fraction(hi)), 10**12),
     )
 
 
@@ -275,40 +291,121 @@ class Parameter:
 
 
 PARAMETERS: tuple[Parameter, ...] = (
-    Parameter("vdd", "band", "V", "3.0:3.3:3.6", "driver and Schmitt supply, min:typ:max",
-              "JESD8C.01 3.3 V supply range"),
-    Parameter("rout", "band", "ohm", "15:25:50", "driver output resistance",
-              "common practice for CMOS logic outputs, from memory"),
-    Parameter("driver_delay", "band", "s", "0", "driver propagation delay (enter the part's)",
-              "none: enter the driver's data"),
+    Parameter(
+        "vdd",
+        "band",
+        "V",
+        "3.0:3.3:3.6",
+        "driver and Schmitt supply, min:typ:max",
+        "JESD8C.01 3.3 V supply range",
+    ),
+    Parameter(
+        "rout",
+        "band",
+        "ohm",
+        "15:25:50",
+        "driver output resistance",
+        "common practice for CMOS logic outputs, from memory",
+    ),
+    Parameter(
+        "driver_delay",
+        "band",
+        "s",
+        "0",
+        "driver propagation delay (enter the part's)",
+        "none: enter the driver's data",
+    ),
     Parameter("r", "value", "ohm", None, "timing resistor"),
     Parameter("r_tol", "tolerance", "", "1%", "resistor tolerance", "E96 usual tolerance"),
-    Parameter("r_tempco", "tempco", "", "100ppm", "resistor temperature coefficient, +/- per K",
-              "common practice for thick-film resistors"),
+    Parameter(
+        "r_tempco",
+        "tempco",
+        "",
+        "100ppm",
+        "resistor temperature coefficient, +/- per K",
+        "common practice for thick-film resistors",
+    ),
     Parameter("c", "value", "F", None, "timing capacitor"),
     Parameter("c_tol", "tolerance", "", "5%", "capacitor tolerance", "common practice"),
-    Parameter("c_tempco", "tempco", "", "30ppm", "capacitor temperature coefficient, +/- per K",
-              "EIA-198 C0G"),
-    Parameter("cin", "band", "F", "3p:5p:8p", "Schmitt input capacitance",
-              "common practice, from memory"),
-    Parameter("cstray", "band", "F", "1p:2p:3p", "stray capacitance at the node",
-              "common practice, from memory"),
-    Parameter("bypass", "choice", "", "falling", "input edge the diode bypasses: rising|falling|none"),
-    Parameter("diode", "diode", "", DEFAULT_DIODE_TEXT, "SPICE diode parameters",
-              "invented generic small-signal silicon diode; SPICE defaults for the rest"),
-    Parameter("vf", "band", "V", "", "diode knee voltage for the closed form",
-              "derived from the diode model: where its current equals the resistor's"),
-    Parameter("vt_plus", "level", "V", "50%:60%:70%", "Schmitt VT+ (volts, or % / 'vdd' of VDD)",
-              "common practice for CMOS Schmitt inputs"),
-    Parameter("vt_minus", "level", "V", "30%:40%:50%", "Schmitt VT- (volts, or % / 'vdd' of VDD)",
-              "common practice for CMOS Schmitt inputs"),
-    Parameter("schmitt_delay", "band", "s", "0", "Schmitt buffer propagation delay (enter the part's)",
-              "none: enter the buffer's data"),
+    Parameter(
+        "c_tempco",
+        "tempco",
+        "",
+        "30ppm",
+        "capacitor temperature coefficient, +/- per K",
+        "EIA-198 C0G",
+    ),
+    Parameter(
+        "cin", "band", "F", "3p:5p:8p", "Schmitt input capacitance", "common practice, from memory"
+    ),
+    Parameter(
+        "cstray",
+        "band",
+        "F",
+        "1p:2p:3p",
+        "stray capacitance at the node",
+        "common practice, from memory",
+    ),
+    Parameter(
+        "bypass", "choice", "", "falling", "input edge the diode bypasses: rising|falling|none"
+    ),
+    Parameter(
+        "diode",
+        "diode",
+        "",
+        DEFAULT_DIODE_TEXT,
+        "SPICE diode parameters",
+        "invented generic small-signal silicon diode; SPICE defaults for the rest",
+    ),
+    Parameter(
+        "vf",
+        "band",
+        "V",
+        "",
+        "diode knee voltage for the closed form",
+        "derived from the diode model: where its current equals the resistor's",
+    ),
+    Parameter(
+        "vt_plus",
+        "level",
+        "V",
+        "50%:60%:70%",
+        "Schmitt VT+ (volts, or % / 'vdd' of VDD)",
+        "common practice for CMOS Schmitt inputs",
+    ),
+    Parameter(
+        "vt_minus",
+        "level",
+        "V",
+        "30%:40%:50%",
+        "Schmitt VT- (volts, or % / 'vdd' of VDD)",
+        "common practice for CMOS Schmitt inputs",
+    ),
+    Parameter(
+        "schmitt_delay",
+        "band",
+        "s",
+        "0",
+        "Schmitt buffer propagation delay (enter the part's)",
+        "none: enter the buffer's data",
+    ),
     Parameter("output_inverter", "flag", "", "false", "an inverter follows the Schmitt buffer"),
-    Parameter("inverter_delay", "band", "s", "0", "inverter propagation delay (output and pair)",
-              "none: enter the inverter's data"),
-    Parameter("temp", "band", "C", "-40:25:125", "ambient temperature, min:typ:max in C",
-              "common practice industrial range"),
+    Parameter(
+        "inverter_delay",
+        "band",
+        "s",
+        "0",
+        "inverter propagation delay (output and pair)",
+        "none: enter the inverter's data",
+    ),
+    Parameter(
+        "temp",
+        "band",
+        "C",
+        "-40:25:125",
+        "ambient temperature, min:typ:max in C",
+        "common practice industrial range",
+    ),
 )
 PARAMETER_NAMES = frozenset(p.name for p in PARAMETERS)
 
@@ -523,7 +620,9 @@ def diode_knee_voltage(diode: DiodeModel, r_ohm: float, temp_c: float) -> float:
     """
     import numpy as np
 
-    value = knee_voltage_array(diode, np.asarray([r_ohm], dtype=float), np.asarray([temp_c], dtype=float))
+    value = knee_voltage_array(
+        diode, np.asarray([r_ohm], dtype=float), np.asarray([temp_c], dtype=float)
+    )
     return float(value[0])
 
 
@@ -577,8 +676,21 @@ def node_delay(
 
 
 # The per-channel random parameters (names used by corners, RSS and Monte Carlo).
-CHANNEL_PARAMS = ("rout", "driver_delay", "r", "c", "r_tc", "c_tc", "cin", "cstray", "vf",
-                  "vt_plus", "vt_minus", "schmitt_delay", "inverter_delay")
+CHANNEL_PARAMS = (
+    "rout",
+    "driver_delay",
+    "r",
+    "c",
+    "r_tc",
+    "c_tc",
+    "cin",
+    "cstray",
+    "vf",
+    "vt_plus",
+    "vt_minus",
+    "schmitt_delay",
+    "inverter_delay",
+)
 SHARED_PARAMS = ("vdd", "temp", "pair_inverter_delay")
 # The additive propagation delays (their extremes are their band ends, no corners needed).
 DELAY_PARAMS = ("driver_delay", "schmitt_delay", "inverter_delay")
@@ -624,7 +736,9 @@ def _through(position: FloatArray, lo: float, typ: float, hi: float) -> FloatArr
     import numpy as np
 
     result: FloatArray = np.where(
-        position <= 0.5, lo + (typ - lo) * (position * 2.0), typ + (hi - typ) * (position * 2.0 - 1.0)
+        position <= 0.5,
+        lo + (typ - lo) * (position * 2.0),
+        typ + (hi - typ) * (position * 2.0 - 1.0),
     )
     return result
 
@@ -656,7 +770,9 @@ def values_at(net: ReferenceNetwork, positions: Mapping[str, FloatArray]) -> dic
         )
         pos = np.broadcast_to(np.asarray(positions.get(name, 0.5), dtype=float), shape)
         out[name] = np.where(
-            pos <= 0.5, lo_v + (typ_v - lo_v) * (pos * 2.0), typ_v + (hi_v - typ_v) * (pos * 2.0 - 1.0)
+            pos <= 0.5,
+            lo_v + (typ_v - lo_v) * (pos * 2.0),
+            typ_v + (hi_v - typ_v) * (pos * 2.0 - 1.0),
         )
     return out
 

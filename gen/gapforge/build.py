@@ -94,8 +94,9 @@ def _windows(
             for e in EDGES:
                 lo, hi = stage_window[e]
                 r = reference[e]
-                lo = r.min_s if lo is None else max(lo, r.min_s)
-                hi = r.max_s if hi is None else min(hi, r.max_s)
+                # the reference's range narrowed to 1 ps (min up, max down): safe as limits
+                lo = r.limit_min_s if lo is None else max(lo, r.limit_min_s)
+                hi = r.limit_max_s if hi is None else min(hi, r.limit_max_s)
                 window[e] = (lo, hi)
     return stage_result, reference, stage_window, window
 
@@ -124,6 +125,11 @@ def _reference_warnings(
     return out
 
 
+def design_window(design: Design) -> dict[str, Bounds] | None:
+    """The window a design's dead time must fit: its stage window within the reference's range."""
+    return _windows(design)[3]
+
+
 def plan_design(design: Design) -> BuildPlan:
     stage_result, reference, stage_window, window = _windows(design)
     warnings = tuple(_reference_warnings(reference, stage_window))
@@ -138,7 +144,7 @@ def plan_design(design: Design) -> BuildPlan:
             requested[e] = reference[e].typ_s
         elif design.source == "reference-minimum":
             assert reference is not None
-            requested[e] = reference[e].min_s
+            requested[e] = reference[e].limit_min_s  # rounded up: a request is a minimum
         else:
             assert window is not None
             lo = window[e][0]
@@ -239,7 +245,7 @@ def _plan_output(
             )
         if reference is not None:
             r = reference[e]
-            if edge.achieved_min_s < r.min_s or edge.achieved_max_s > r.max_s:
+            if edge.achieved_min_s < r.limit_min_s or edge.achieved_max_s > r.limit_max_s:
                 warnings.append(
                     f"{e}: digital range {float(edge.achieved_min_s) * 1e9:.6g}.."
                     f"{float(edge.achieved_max_s) * 1e9:.6g} ns lies outside what the reference "

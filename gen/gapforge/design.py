@@ -125,7 +125,7 @@ def load_design(path: Path) -> Design:
         both = dead_t.quantity("value", "s", required=False)
         explicit = {}
         for edge in EDGES:
-            v = dead_t.quantity(edge, "s", both, required=both is None)
+            v = dead_t.quantity(edge, "s", both, required=not dead_t.has("value"))
             explicit[edge] = v if v is not None else Fraction(0)
         if both is not None and dead_t.has("to_high") and dead_t.has("to_low"):
             reader.problem("dead_time.value", "give value, or to_high and to_low, not all three")

@@ -31,6 +31,9 @@ EDGES = ("to_high", "to_low")
 ROLES = ("both", "to_high", "to_low", "divider")
 ENCODINGS = ("linear", "segmented")
 FORMAT_VERSION = 1
+# Widest dead-time field: every allowed code is tabulated (a 20-bit field is a million entries).
+MAX_FIELD_BITS = 20
+MAX_DIVIDER = 1 << 16
 # Field names whose macros (<P>_<NAME>_CODE/_SHIFT/_MASK) would collide with the header's fixed
 # macros (<P>_DIVIDER_CODE). Compared case-insensitively: macro names are upper-cased.
 RESERVED_FIELD_NAMES = frozenset({"divider"})
@@ -266,8 +269,8 @@ def parse_layout(data: dict[str, object], raw: bytes, source: str, default_name:
         reader.problem("clock.dividers", "must list at least one divider")
         dividers = (1,)
     for i, d in enumerate(dividers):
-        if d < 1:
-            reader.problem(f"clock.dividers[{i}]", f"divider {d} must be a positive integer")
+        if not 1 <= d <= MAX_DIVIDER:
+            reader.problem(f"clock.dividers[{i}]", f"divider {d} must be in 1..{MAX_DIVIDER}")
     divider_field = clock.raw("divider_field", None)
     if divider_field is not None and not isinstance(divider_field, str):
         reader.problem("clock.divider_field", f"expected a field name, got {divider_field!r}")
@@ -343,6 +346,12 @@ def _read_field(t: Table) -> Field:
             max_code=(1 << width) - 1,
             description=t.string("description", ""),
         )
+    if width > MAX_FIELD_BITS:
+        t.reader.problem(
+            t.key_path("width"),
+            f"a {width}-bit dead-time field is wider than the {MAX_FIELD_BITS} bits gapforge tabulates",
+        )
+        width = MAX_FIELD_BITS
     encoding = t.string("encoding", "linear", ENCODINGS)
     add = t.integer("add", 0, lo=-(1 << 32), hi=1 << 32)
     min_code = t.integer("min_code", 0, lo=0, hi=(1 << width) - 1)

@@ -124,6 +124,8 @@ def _parse_text(text: str, unit: str, where: str) -> Fraction:
     if not match:
         raise GapforgeError(f"{text!r} is not a number with an optional unit", where)
     number, suffix = match.groups()
+    if unit == "Hz" and suffix in ("m", "mhz", "mHz"):
+        raise GapforgeError(f"{text!r}: 'm' means milli; write M for mega (e.g. 160MHz)", where)
     exponent = re.search(r"[eE]([+-]?\d+)$", number)
     if exponent and abs(int(exponent.group(1))) > 30:
         raise GapforgeError(f"the exponent in {text!r} is out of range (at most 1e30)", where)

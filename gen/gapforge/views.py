@@ -148,6 +148,7 @@ def fit_json(result: FitResult, limits: PwmLimits | None) -> dict[str, Any]:
             "max_worst_case_s": float(e.max_min_s),
         }
     doc["pwm"] = pwm_json(limits) if limits is not None else None
+    doc["caution"] = CAUTION
     return doc
 
 
@@ -319,6 +320,7 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
             for e, r in plan.reference.items()
         },
         "outputs": [],
+        "caution": CAUTION,
     }
     for op in plan.outputs:
         entry = fit_json(op.fit, op.limits)
@@ -329,7 +331,7 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
                 "output_verdict": op.verdict,
                 "reasons": list(op.reasons),
                 "warnings": list(op.warnings),
-            "costs": None if op.costs is None else costs_json(op.costs),
+                "costs": None if op.costs is None else costs_json(op.costs),
                 "margins": {
                     e: {
                         "low_s": _f(j.margin_low_s),
@@ -360,9 +362,7 @@ def plan_text(plan: BuildPlan) -> str:
         what = "stage window" + (" within the reference's range" if plan.reference else "")
         for e in EDGES:
             lo, hi = plan.window[e]
-            lines.append(
-                f"  {what} {e}: {_t(lo)} .. {_t(hi) if hi is not None else 'no maximum'}"
-            )
+            lines.append(f"  {what} {e}: {_t(lo)} .. {_t(hi) if hi is not None else 'no maximum'}")
     for w in plan.warnings:
         lines.append(f"warning: {w}")
     if plan.request is not None:
@@ -412,7 +412,9 @@ def costs_text(costs: Any) -> str:
     if costs.duty_lost is not None:
         parts.append(f"duty lost {float(costs.duty_lost) * 100:.4g} %")
     if costs.voltage_error_v is not None:
-        parts.append(f"average output-voltage error {format_quantity(costs.voltage_error_v, 'V', 4)}")
+        parts.append(
+            f"average output-voltage error {format_quantity(costs.voltage_error_v, 'V', 4)}"
+        )
     return "costs at the longest dead time: " + ", ".join(parts)
 
 

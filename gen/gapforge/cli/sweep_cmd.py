@@ -80,10 +80,25 @@ def sweep_json(result: Sweep, top: int | None) -> dict[str, Any]:
 
 
 CSV_COLUMNS = [
-    "rank", "feasible", "layout", "clock_hz", "divider_code", "divider",
-    "to_high_code", "to_high_achieved_s", "to_high_min_s", "to_high_max_s",
-    "to_low_code", "to_low_achieved_s", "to_low_min_s", "to_low_max_s",
-    "worst_margin_s", "worst_error_s", "register", "fields", "reason",
+    "rank",
+    "feasible",
+    "layout",
+    "clock_hz",
+    "divider_code",
+    "divider",
+    "to_high_code",
+    "to_high_achieved_s",
+    "to_high_min_s",
+    "to_high_max_s",
+    "to_low_code",
+    "to_low_achieved_s",
+    "to_low_min_s",
+    "to_low_max_s",
+    "worst_margin_s",
+    "worst_error_s",
+    "register",
+    "fields",
+    "reason",
 ]
 
 
@@ -107,8 +122,12 @@ def sweep_csv(result: Sweep, top: int | None) -> str:
             if e is None:
                 cells += ["", "", "", ""]
             else:
-                cells += [e.code, f"{float(e.achieved_s):.9g}", f"{float(e.achieved_min_s):.9g}",
-                          f"{float(e.achieved_max_s):.9g}"]
+                cells += [
+                    e.code,
+                    f"{float(e.achieved_s):.9g}",
+                    f"{float(e.achieved_min_s):.9g}",
+                    f"{float(e.achieved_max_s):.9g}",
+                ]
         cells += [
             "" if row.worst_margin_s is None else f"{float(row.worst_margin_s):.9g}",
             "" if row.worst_error_s is None else f"{float(row.worst_error_s):.9g}",
@@ -175,24 +194,72 @@ def sweep_text(result: Sweep, top: int | None) -> str:
     return "\n".join(out) + "\n"
 
 
+def _design_limits(
+    values: dict[str, Any],
+) -> tuple[dict[str, tuple[Fraction, Fraction | None]], Fraction]:
+    """The window of a design (its stage window within the reference's range) and its tolerance."""
+    from pathlib import Path
+
+    from gapforge.build import design_window
+    from gapforge.design import load_design
+
+    used = [name for name in OPTION_KEYS if values.get(name) is not None]
+    if used:
+        raise GapforgeError(
+            "give either --design or the stage options, not both", "--" + used[0].replace("_", "-")
+        )
+    design = load_design(Path(values["design"]))
+    window = design_window(design)
+    if window is None:
+        raise GapforgeError("the design has no [stage] section to give a window", str(design.path))
+    limits = {e: (lo if lo is not None else Fraction(0), hi) for e, (lo, hi) in window.items()}
+    return limits, design.clock_tol
+
+
 @click.command(name="sweep")
-@click.option("--target", "targets", multiple=True,
-              help="Layout name or .toml file (repeat). Default: every built-in layout.")
+@click.option(
+    "--target",
+    "targets",
+    multiple=True,
+    help="Layout name or .toml file (repeat). Default: every built-in layout.",
+)
 @click.option("--builtins", is_flag=True, help="Add every built-in layout to the --target list.")
-@click.option("--clocks", "clock_texts", multiple=True, required=True,
-              metavar="LIST|START:STOP:STEP",
-              help="Timer clocks: '160MHz,170MHz' or '100MHz:200MHz:5MHz' (repeatable).")
-@click.option("--clock-tol", type=Tolerance(), default="0", show_default=True,
-              help="Timer clock tolerance: '50ppm', '2%'.")
-@click.option("--window", "window_text", metavar="MIN:MAX",
-              help="The window directly for both edges ('90ns:1us'; '90ns' for no maximum), "
-              "instead of the stage options.")
+@click.option(
+    "--clocks",
+    "clock_texts",
+    multiple=True,
+    required=True,
+    metavar="LIST|START:STOP:STEP",
+    help="Timer clocks: '160MHz,170MHz' or '100MHz:200MHz:5MHz' (repeatable).",
+)
+@click.option(
+    "--clock-tol",
+    type=Tolerance(),
+    default=None,
+    help="Timer clock tolerance: '50ppm', '2%' (default: the design's, else 0).",
+)
+@click.option(
+    "--window",
+    "window_text",
+    metavar="MIN:MAX",
+    help="The window directly for both edges ('90ns:1us'; '90ns' for no maximum), "
+    "instead of the stage options.",
+)
 @stage_options
-@click.option("--rank", type=click.Choice(RANKS), default="auto", show_default=True,
-              help="Order feasible rows by worst-case margin or by quantization error "
-              "(auto: margin when the window has a maximum).")
-@click.option("--top", type=click.IntRange(min=1), default=None,
-              help=f"Show only the N best feasible rows (text default {TEXT_TOP}).")
+@click.option(
+    "--rank",
+    type=click.Choice(RANKS),
+    default="auto",
+    show_default=True,
+    help="Order feasible rows by worst-case margin or by quantization error "
+    "(auto: margin when the window has a maximum).",
+)
+@click.option(
+    "--top",
+    type=click.IntRange(min=1),
+    default=None,
+    help=f"Show only the N best feasible rows (text default {TEXT_TOP}).",
+)
 @click.option("--json", "as_json", is_flag=True, help="Print JSON.")
 @click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
 def command(**values: Any) -> None:
@@ -207,11 +274,18 @@ def command(**values: Any) -> None:
     if values["window_text"] is not None:
         used = [name for name in ["design", *OPTION_KEYS] if values.get(name) is not None]
         if used:
-            raise GapforgeError("give --window or the stage options, not both",
-                                "--" + used[0].replace("_", "-"))
+            raise GapforgeError(
+                "give --window or the stage options, not both", "--" + used[0].replace("_", "-")
+            )
         limits = _window_limits(values["window_text"])
+    elif values.get("design") is not None:
+        limits, design_tol = _design_limits(values)
+        if values["clock_tol"] is None:
+            values["clock_tol"] = design_tol
     else:
         limits = limits_of(stage_window(spec_from_options(values)))
+    if values["clock_tol"] is None:
+        values["clock_tol"] = Fraction(0)
     clocks = parse_clocks(values["clock_texts"])
     names = list(values["targets"])
     if values["builtins"] or not names:
