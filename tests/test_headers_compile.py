@@ -6,7 +6,7 @@ unsigned arithmetic, ISO C99 7.18 uint64_t) and re-packs the register word from 
 CODE/SHIFT/MASK macros; the test compares what the compiled program prints with gapforge's JSON.
 
 Compilers: the host gcc (required), clang and the 32-bit MCU cross compiler arm-none-eabi-gcc
-(-mcpu=cortex-m0 -mthumb, compile only) when present; they skip cleanly otherwise.
+(-march=armv6-m -mthumb, compile only) when present; they skip cleanly otherwise.
 """
 
 from __future__ import annotations
@@ -181,7 +181,7 @@ def test_headers_compile_for_a_32_bit_mcu(
         )
         for std in ("c99", "c11"):
             proc = subprocess.run(
-                [compiler, "-mcpu=cortex-m0", "-mthumb", f"-std={std}", *WARNINGS,
+                [compiler, "-march=armv6-m", "-mthumb", f"-std={std}", *WARNINGS,
                  "-Wno-unused-local-typedefs", "-c", str(src), "-o", str(tmp_path / "m.o")],
                 capture_output=True, text=True,
             )
@@ -339,7 +339,7 @@ def test_every_layout_at_extreme_clocks_compiles_and_recomputes(
         mcu.write_text(f'#include "{header}"\nunsigned long word(void) '
                        "{ return (unsigned long)CORNER_REGISTER"
                        " + (unsigned long)corner_dead_time_config.to_high_steps; }\n")
-        proc = subprocess.run([cross, "-mcpu=cortex-m0", "-mthumb", "-std=c99", *WARNINGS, "-c",
+        proc = subprocess.run([cross, "-march=armv6-m", "-mthumb", "-std=c99", *WARNINGS, "-c",
                                str(mcu), "-o", str(tmp_path / "mcu.o")],
                               capture_output=True, text=True)
         assert proc.returncode == 0, proc.stderr
