@@ -328,3 +328,17 @@ def test_mean_period() -> None:
     cap, _, _ = _build([(50, 300, 55, 300)] * 5)
     # each period: 55 + 300 + 300 + the 50-tick to_high gap = 705 ticks
     assert measure_capture(cap).mean_period_s == 705 * TICK
+
+
+def test_overlap_on_every_period_held_compactly() -> None:
+    # a shoot-through of 3 + (k % 5) ticks on each of 5000 periods (by construction)
+    periods = [(-(3 + k % 5), 300, 40, 300) for k in range(5000)]
+    cap, gaps_h, _ = _build(periods)
+    m = measure_capture(cap)
+    assert len(m.overlaps) == 5000 and m.overlaps.starts_ticks.dtype == np.int64
+    assert [o.duration_s for o in m.overlaps[:6]] == [(3 + k % 5) * TICK for k in range(6)]
+    assert m.overlaps[-1].duration_s == 7 * TICK  # 4999 % 5 = 4
+    assert list(m.overlaps[2:4]) == [m.overlaps[2], m.overlaps[3]]
+    assert m.overlaps == tuple(m.overlaps)  # compares equal to a tuple of the same Overlap items
+    assert m.overlap_at_s[10] == pytest.approx(float(m.overlaps[10].at_s))
+    assert m.to_high.gaps_ticks.tolist() == gaps_h and m.verdict == "fail"

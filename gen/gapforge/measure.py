@@ -28,7 +28,7 @@ from __future__ import annotations
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from fractions import Fraction
-from typing import Any, cast
+from typing import Any, cast, overload
 
 import numpy as np
 import numpy.typing as npt
@@ -77,6 +77,51 @@ class Overlap:
 
     at_s: Fraction
     duration_s: Fraction
+
+
+class Overlaps(Sequence[Overlap]):
+    """Every overlap, held as two int64 tick arrays (start, duration); an Overlap with exact
+    times is built when an item is read, so millions of them cost 16 bytes each."""
+
+    __slots__ = ("durations_ticks", "starts_ticks", "tick_s")
+    __hash__ = None  # type: ignore[assignment]
+
+    def __init__(self, tick_s: Fraction, starts_ticks: Ints, durations_ticks: Ints) -> None:
+        self.tick_s = tick_s
+        self.starts_ticks = starts_ticks
+        self.durations_ticks = durations_ticks
+
+    def __len__(self) -> int:
+        return int(self.starts_ticks.size)
+
+    @overload
+    def __getitem__(self, index: int) -> Overlap: ...
+
+    @overload
+    def __getitem__(self, index: slice) -> Overlaps: ...
+
+    def __getitem__(self, index: int | slice) -> Overlap | Overlaps:
+        if isinstance(index, slice):
+            return Overlaps(self.tick_s, self.starts_ticks[index], self.durations_ticks[index])
+        return Overlap(self.tick_s * int(self.starts_ticks[index]),
+                       self.tick_s * int(self.durations_ticks[index]))
+
+    def __eq__(self, other: object) -> bool:
+        if isinstance(other, Overlaps):
+            return (self.tick_s == other.tick_s
+                    and np.array_equal(self.starts_ticks, other.starts_ticks)
+                    and np.array_equal(self.durations_ticks, other.durations_ticks))
+        if isinstance(other, Sequence):
+            return list(self) == list(other)
+        return NotImplemented
+
+    def __repr__(self) -> str:
+        return f"Overlaps({len(self)} at tick {self.tick_s})"
+
+    @property
+    def at_s(self) -> Floats:
+        """Start times in seconds as floats (for plotting)."""
+        return self.starts_ticks.astype(np.float64) * float(self.tick_s)
 
 
 @dataclass(frozen=True)
@@ -140,7 +185,7 @@ class Measurement:
     duration_s: Fraction
     to_high: EdgeStats
     to_low: EdgeStats
-    overlaps: tuple[Overlap, ...]
+    overlaps: Overlaps  # a sequence of Overlap
     glitches: tuple[Glitch, ...]
     missing_edges: tuple[Finding, ...]
     unknown_intervals: int
@@ -157,7 +202,7 @@ class Measurement:
     @property
     def overlap_at_s(self) -> Floats:
         """Start times of every overlap in seconds (floats, for plotting)."""
-        return np.array([float(o.at_s) for o in self.overlaps], dtype=np.float64)
+        return self.overlaps.at_s
 
     @property
     def failed(self) -> bool:
@@ -201,7 +246,7 @@ def measure_capture(
         glitches.sort(key=lambda g: g.at_s)
     missing = raw.repeats + clean.lost
     missing.sort(key=lambda f: f.at_s)
-    overlaps = raw.overlaps
+    overlaps = raw.overlaps_found()
     if all(clean.count_of(e) == 0 for e in EDGES) and not overlaps:
         raise GapforgeError(
             "no dead-time transitions found (no edges where one gate hands over to the other)", where
@@ -255,7 +300,7 @@ def measure_capture(
         duration_s=tick * (raw.end - start),
         to_high=stats["to_high"],
         to_low=stats["to_low"],
-        overlaps=tuple(overlaps),
+        overlaps=overlaps,
         glitches=tuple(glitches),
         missing_edges=tuple(missing),
         unknown_intervals=max(unknown, 0),
@@ -363,7 +408,8 @@ class _Engine:
         self.started = False
         self.unknown = 0
         self.first_unknown = False
-        self.overlaps: list[Overlap] = []
+        self._ov_start: list[Ints] = []
+        self._ov_length: list[Ints] = []
         self.repeats: list[Finding] = []
         self.lost: list[Finding] = []
         self._repeat_n = [0, 0]
@@ -409,7 +455,8 @@ class _Engine:
                 self._record(edge, np.zeros(1, dtype=np.int64), self.ctx_t[1:2])
         if self.ctx_s.size and self.ctx_s[-1] == _BOTH:
             t = int(self.ctx_t[-1])
-            self.overlaps.append(Overlap(self.tick * t, self.tick * (max(self.end, t) - t)))
+            self._ov_start.append(np.array([t], dtype=np.int64))
+            self._ov_length.append(np.array([max(self.end, t) - t], dtype=np.int64))
 
     # -- one batch of complete timestamps ---------------------------------------------------
 
@@ -462,9 +509,9 @@ class _Engine:
         seq_s = np.concatenate([self.ctx_s, state]) if c0 else state
         # overlaps whose end is now known
         both = np.flatnonzero(seq_s[max(c0 - 1, 0) : -1] == _BOTH) + max(c0 - 1, 0)
-        for k in both.tolist():
-            start = int(seq_t[k])
-            self.overlaps.append(Overlap(self.tick * start, self.tick * (int(seq_t[k + 1]) - start)))
+        if both.size:
+            self._ov_start.append(seq_t[both])
+            self._ov_length.append(seq_t[both + 1] - seq_t[both])
         # transition patterns whose third state is now known
         if seq_s.size >= 3:
             code = (seq_s[:-2].astype(np.uint16) << 9) | (seq_s[1:-1].astype(np.uint16) << 5)
@@ -547,6 +594,11 @@ class _Engine:
             del keep[self.worst :]
 
     # -- results ----------------------------------------------------------------------------
+
+    def overlaps_found(self) -> Overlaps:
+        empty = np.zeros(0, dtype=np.int64)
+        return Overlaps(self.tick, np.concatenate([empty, *self._ov_start]),
+                        np.concatenate([empty, *self._ov_length]))
 
     def count_of(self, edge: str) -> int:
         return self._n[edge]
