@@ -216,3 +216,24 @@ def test_backwards_timestamps_fall_back_to_sorting(tmp_path: Path) -> None:
     assert doc["edges"]["to_high"]["min_s"] == pytest.approx(25e-9)  # 3000 -> 3025
     assert doc["edges"]["to_low"]["min_s"] == pytest.approx(100e-9)
     assert any("backwards" in w for w in doc["warnings"])
+
+
+def test_diagram_notes_an_overlapping_hand_over() -> None:
+    # built in memory: the high side turns on 4 ticks before the low side turns off
+    from fractions import Fraction
+
+    import numpy as np
+
+    from gapforge.capture import make_capture
+    from gapforge.cli.measure_cmd import measurement_diagram
+    from gapforge.measure import measure_capture
+
+    ht = np.array([0, 96, 500, 1096, 1500], dtype=np.int64)
+    hv = np.array([0, 1, 0, 1, 0], dtype=np.uint8)
+    lt = np.array([0, 100, 530, 1100, 1530], dtype=np.int64)
+    lv = np.array([1, 0, 1, 0, 1], dtype=np.uint8)
+    m = measure_capture(make_capture(Fraction(1, 10**9), (ht, hv), (lt, lv)))
+    assert m.to_high.min_s == Fraction(-4, 10**9) and m.mean_period_s == Fraction(1000, 10**9)
+    text = measurement_diagram(m, ascii_only=True)
+    assert "to_high -4 ns" in text and "to_low 30 ns" in text
+    assert "overlap" in text.splitlines()[-1]

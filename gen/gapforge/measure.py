@@ -221,8 +221,8 @@ def measure_capture(
     """Measure every dead time, overlap, glitch and missing edge; judge against `limits`.
 
     A CaptureStream (capture.open_capture) is measured chunk by chunk: only the gaps (int32
-    where they fit) and the worst instances are kept, not the edges. With a glitch width the
-    edges are held whole (a pulse is judged against its neighbours on one side)."""
+    where they fit), the overlaps and the worst instances are kept, not the edges. With a
+    glitch width the edges are held whole (each gate is filtered over its own change list)."""
     stream = capture if isinstance(capture, CaptureStream) else stream_of(capture)
     tick = stream.tick_s
     for p in percentiles:
