@@ -62,7 +62,7 @@ def test_render_is_deterministic_and_logic_free() -> None:
     assert set(a) == {"gapforge_capture_fmt.h", "gapforge_capture_fmt.c"}
     assert "#define GFCAP_COUNTER_DIGITS 8u" in a["gapforge_capture_fmt.h"]
     assert "typedef uint16_t gfcap_counter_t;" in render_capture_helper(16)["gapforge_capture_fmt.h"]
-    assert "Caution" in a["gapforge_capture_fmt.h"]
+    assert "CAUTION" in a["gapforge_capture_fmt.h"]
     for name in ("capture_fmt.h.j2", "capture_fmt.c.j2"):
         text = (Path(__file__).parents[1] / "gen/gapforge/templates" / name).read_text()
         assert "{%" not in text  # layout only: Python computes everything

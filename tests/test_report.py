@@ -348,7 +348,7 @@ def test_monte_carlo_histogram_is_the_population_the_statistics_describe(
 def test_tables_carry_inputs_with_units_results_and_the_caution(html: str) -> None:
     for text in ("160 MHz", "1 %", "93.75 ns", "92.8218 ns", "90 ns", "Margins to the window",
                  "Minimum breakdown, to_high (common practice)", "reduced voltage",
-                 "current limiting", "licensed practice prevail", "Design verdict: <strong>ok"):
+                 "current limiting", "licensed engineering practice prevail", "Design verdict: <strong>ok"):
         assert text in html, text
     assert "<script" not in html.lower()
     assert "http://" not in html.replace("http://www.w3.org/2000/svg", "")

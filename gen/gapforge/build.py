@@ -58,16 +58,9 @@ class BuildPlan:
 
 def judge(window: Bounds, achieved_min: Fraction, achieved_max: Fraction) -> EdgeJudgement:
     """Is [achieved_min, achieved_max] inside the window, and by how much?"""
-    lo, hi = window
-    if lo is not None and hi is not None and lo > hi:
-        return EdgeJudgement("empty-window", None, None)
-    m_low = achieved_min - lo if lo is not None else None
-    m_high = hi - achieved_max if hi is not None else None
-    if m_low is not None and m_low < 0:
-        return EdgeJudgement("too-short", m_low, m_high)
-    if m_high is not None and m_high < 0:
-        return EdgeJudgement("too-long", m_low, m_high)
-    return EdgeJudgement("ok", m_low, m_high)
+    from gapforge.stage import judge_bounds
+
+    return EdgeJudgement(*judge_bounds(window[0], window[1], achieved_min, achieved_max))
 
 
 def _windows(

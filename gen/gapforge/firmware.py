@@ -6,28 +6,15 @@ only lay them out. Rendering returns {file name: text}; only the CLI writes file
 
 from __future__ import annotations
 
-import jinja2
-
-from gapforge import __version__
+from gapforge import __version__, caution
 from gapforge.errors import GapforgeError
 from gapforge.serial_stream import MAX_LINE, PROTOCOL
+from gapforge.templating import environment
 
 COUNTER_TYPES = {16: "uint16_t", 32: "uint32_t", 64: "uint64_t"}
 HEADER_NAME = "gapforge_capture_fmt.h"
 SOURCE_NAME = "gapforge_capture_fmt.c"
-CAUTION = (
-    "Caution: a design aid. Verify every dead time on the bench at reduced voltage with current\n"
-    " * limiting before full power; local codes and licensed practice prevail."
-)
-
-
-def _env() -> jinja2.Environment:
-    return jinja2.Environment(
-        loader=jinja2.PackageLoader("gapforge", "templates"),
-        undefined=jinja2.StrictUndefined,
-        autoescape=False,
-        keep_trailing_newline=True,
-    )
+CAUTION = "\n * ".join(caution.LINES)  # wrapped inside a C block comment
 
 
 def render_capture_helper(counter_bits: int = 32) -> dict[str, str]:
@@ -61,7 +48,7 @@ def render_capture_helper(counter_bits: int = 32) -> dict[str, str]:
         "guard": "GAPFORGE_CAPTURE_FMT_H",
         "caution": CAUTION,
     }
-    env = _env()
+    env = environment()
     return {
         HEADER_NAME: env.get_template("capture_fmt.h.j2").render(values),
         SOURCE_NAME: env.get_template("capture_fmt.c.j2").render(values),

@@ -10,9 +10,7 @@ import re
 from dataclasses import dataclass
 from fractions import Fraction
 
-import jinja2
-
-from gapforge import __version__
+from gapforge import __version__, caution
 from gapforge.build import BuildPlan, OutputPlan
 from gapforge.layouts import EDGES
 from gapforge.quantities import (
@@ -21,14 +19,11 @@ from gapforge.quantities import (
     picoseconds_ceil,
     picoseconds_floor,
 )
+from gapforge.templating import environment
 
 HEADER_FORMAT = 1
 
-CAUTION = (
-    "CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design",
-    "aid, not a guarantee: verify every dead time on the bench at reduced voltage with current",
-    "limiting before full power. Local codes and licensed engineering practice prevail.",
-)
+CAUTION = caution.LINES
 
 
 @dataclass(frozen=True)
@@ -65,17 +60,6 @@ def c_hex(value: int, bits: int) -> str:
     digits = max(1, bits // 4)
     text = f"0x{value:0{digits}x}"
     return text + ("u" if bits <= 16 else "ul")
-
-
-def _env() -> jinja2.Environment:
-    return jinja2.Environment(
-        loader=jinja2.PackageLoader("gapforge", "templates"),
-        undefined=jinja2.StrictUndefined,
-        autoescape=False,
-        keep_trailing_newline=True,
-        trim_blocks=False,
-        lstrip_blocks=False,
-    )
 
 
 def _ns(value: Fraction) -> str:
@@ -328,7 +312,7 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
             "};",
         ]
 
-    template = _env().get_template("header.h.j2")
+    template = environment().get_template("header.h.j2")
     return template.render(
         banner=banner,
         guard=guard_name(p),

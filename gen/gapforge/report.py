@@ -26,11 +26,11 @@ from dataclasses import dataclass
 from fractions import Fraction
 from typing import TYPE_CHECKING, Any
 
-import jinja2
 from markupsafe import Markup
 
 from gapforge import __version__
 from gapforge.build import BuildPlan, OutputPlan
+from gapforge.caution import TEXT as CAUTION
 from gapforge.figures import (
     PairTiming,
     Ramp,
@@ -45,7 +45,7 @@ from gapforge.figures import (
 from gapforge.layouts import EDGES, Field
 from gapforge.quantities import format_quantity, format_tolerance
 from gapforge.svg import PALETTE
-from gapforge.views import CAUTION
+from gapforge.templating import environment
 
 if TYPE_CHECKING:
     from gapforge.analog import ReferenceNetwork
@@ -168,8 +168,15 @@ def node_ramps(net: ReferenceNetwork, simulate: bool = True) -> dict[str, Ramp]:
         sim_delay = None
         if simulate:
             sim_pts, sim_delay = _simulated_ramp(net, edge)
-        ramps[edge] = Ramp(edge, vdd, (thr[0], thr[1], thr[2]), tuple(pts),
-                           float(typ_delays["node_" + edge][0]), sim_pts, sim_delay)
+        ramps[edge] = Ramp(
+            edge,
+            vdd,
+            (thr[0], thr[1], thr[2]),
+            tuple(pts),
+            float(typ_delays["node_" + edge][0]),
+            sim_pts,
+            sim_delay,
+        )
     return ramps
 
 
@@ -228,8 +235,9 @@ def staircase(op: OutputPlan, field: Field, rounding: str) -> Staircase:
 # 4. Monte Carlo of the reference
 
 
-def reference_samples(net: ReferenceNetwork, samples: int = MC_SAMPLES,
-                      seed: int = MC_SEED) -> dict[str, Any]:
+def reference_samples(
+    net: ReferenceNetwork, samples: int = MC_SAMPLES, seed: int = MC_SEED
+) -> dict[str, Any]:
     """Seeded samples of the pair's dead times: every varying part uniform over its band.
 
     `tolerance.monte_carlo_samples`, the very draws `tolerance.monte_carlo` (and so
@@ -252,8 +260,11 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
         ("timer clock", format_quantity(d.clock_hz, "Hz", 9), "Hz"),
         ("clock tolerance", format_tolerance(d.clock_tol), "relative"),
         ("firmware clock macro", d.clock_macro, ""),
-        ("PWM frequency", "-" if d.pwm is None else format_quantity(d.pwm.frequency_hz, "Hz", 9),
-         "Hz"),
+        (
+            "PWM frequency",
+            "-" if d.pwm is None else format_quantity(d.pwm.frequency_hz, "Hz", 9),
+            "Hz",
+        ),
         ("PWM counting", "-" if d.pwm is None else d.pwm.counting + "-aligned", ""),
         ("dead time source", d.source, ""),
         ("rounding", d.rounding, ""),
@@ -267,8 +278,9 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
         (o.prefix, o.layout.name, o.layout.summary, o.file, "yes" if o.struct else "no")
         for o in d.outputs
     )
-    tables.append(TableBlock("Outputs", ("prefix", "layout", "summary", "header file", "struct"),
-                             out_rows))
+    tables.append(
+        TableBlock("Outputs", ("prefix", "layout", "summary", "header file", "struct"), out_rows)
+    )
     if d.reference is not None:
         from gapforge.analog import describe_parameters
 
@@ -276,9 +288,14 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
             (name, value, "default" if is_default else "given", source)
             for name, value, is_default, source in describe_parameters(d.reference)
         )
-        tables.append(TableBlock("Analog reference network (one channel)",
-                                 ("parameter", "value (min : typ : max)", "", "default's source"),
-                                 ref_rows, ("Every default is shown; enter your parts' data.",)))
+        tables.append(
+            TableBlock(
+                "Analog reference network (one channel)",
+                ("parameter", "value (min : typ : max)", "", "default's source"),
+                ref_rows,
+                ("Every default is shown; enter your parts' data.",),
+            )
+        )
     if d.stage is not None:
         spec = d.stage
         st_rows: list[tuple[str, ...]] = []
@@ -289,8 +306,7 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
                 (f"{side}: fall time, max", _t(s.t_fall_max), "s"),
                 (f"{side}: turn-on delay, min", _t(s.td_on_min), "s"),
                 (f"{side}: rise time", _t(s.t_rise), "s"),
-                (f"{side}: driver propagation delay", f"{_t(s.prop_min)} .. {_t(s.prop_max)}",
-                 "s"),
+                (f"{side}: driver propagation delay", f"{_t(s.prop_min)} .. {_t(s.prop_max)}", "s"),
             ]
         st_rows += [
             ("channel mismatch", _t(spec.mismatch), "s"),
@@ -301,12 +317,21 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
             ("reverse-conduction voltage", format_quantity(spec.reverse_voltage, "V"), "V"),
             ("current at to_high", format_quantity(spec.current_to_high, "A"), "A"),
             ("current at to_low", format_quantity(spec.current_to_low, "A"), "A"),
-            ("switching frequency", "-" if spec.fsw is None else format_quantity(spec.fsw, "Hz"),
-             "Hz"),
-            ("loss budget", "-" if spec.loss_budget is None
-             else format_quantity(spec.loss_budget, "W"), "W"),
-            ("bus voltage", "-" if spec.bus_voltage is None
-             else format_quantity(spec.bus_voltage, "V"), "V"),
+            (
+                "switching frequency",
+                "-" if spec.fsw is None else format_quantity(spec.fsw, "Hz"),
+                "Hz",
+            ),
+            (
+                "loss budget",
+                "-" if spec.loss_budget is None else format_quantity(spec.loss_budget, "W"),
+                "W",
+            ),
+            (
+                "bus voltage",
+                "-" if spec.bus_voltage is None else format_quantity(spec.bus_voltage, "V"),
+                "V",
+            ),
         ]
         tables.append(TableBlock("Power stage", ("input", "value", "unit"), tuple(st_rows)))
     return tables
@@ -319,34 +344,71 @@ def window_tables(plan: BuildPlan) -> list[TableBlock]:
         st = plan.stage_window[e] if plan.stage_window is not None else (None, None)
         ref = plan.reference[e] if plan.reference is not None else None
         win = _window_of(plan, e)
-        rows.append((
-            e,
-            _t(st[0]), _t(st[1]) if st[1] is not None or plan.stage_window is None else "none",
-            "-" if ref is None else f"{_t(ref.min_s)} .. {_t(ref.max_s)}",
-            _t(win[0]), _t(win[1]) if win[1] is not None or plan.window is None else "none",
-        ))
-    tables.append(TableBlock(
-        "Dead-time window", ("edge", "stage min", "stage max", "reference proven range",
-                             "window min", "window max"), tuple(rows),
-        ("The window is the power stage's window intersected with the reference's proven "
-         "range.",)))
+        rows.append(
+            (
+                e,
+                _t(st[0]),
+                _t(st[1]) if st[1] is not None or plan.stage_window is None else "none",
+                "-" if ref is None else f"{_t(ref.min_s)} .. {_t(ref.max_s)}",
+                _t(win[0]),
+                _t(win[1]) if win[1] is not None or plan.window is None else "none",
+            )
+        )
+    tables.append(
+        TableBlock(
+            "Dead-time window",
+            (
+                "edge",
+                "stage min",
+                "stage max",
+                "reference proven range",
+                "window min",
+                "window max",
+            ),
+            tuple(rows),
+            (
+                "The window is the power stage's window intersected with the reference's proven "
+                "range.",
+            ),
+        )
+    )
     if plan.stage is not None:
         for e in EDGES:
             terms = plan.stage.edges[e].breakdown
             t_rows = tuple(
-                (t.name, _t(t.value) if t.unit == "s" else f"{float(t.value):g}",
-                 "counted" if t.counted else "", t.note)
+                (
+                    t.name,
+                    _t(t.value) if t.unit == "s" else f"{float(t.value):g}",
+                    "counted" if t.counted else "",
+                    t.note,
+                )
                 for t in terms
             )
-            tables.append(TableBlock(f"Minimum breakdown, {e} (common practice)",
-                                     ("term", "value", "", "note"), t_rows))
+            tables.append(
+                TableBlock(
+                    f"Minimum breakdown, {e} (common practice)",
+                    ("term", "value", "", "note"),
+                    t_rows,
+                )
+            )
         max_terms = plan.stage.edges["to_high"].max_breakdown
         if max_terms:
-            tables.append(TableBlock(
-                "Maximum (loss budget)", ("term", "value", "", "note"),
-                tuple((t.name, _t(t.value) if t.unit == "s" else f"{float(t.value):g} {t.unit}",
-                       "", t.note) for t in max_terms),
-                (plan.stage.edges["to_high"].max_reason,)))
+            tables.append(
+                TableBlock(
+                    "Maximum (loss budget)",
+                    ("term", "value", "", "note"),
+                    tuple(
+                        (
+                            t.name,
+                            _t(t.value) if t.unit == "s" else f"{float(t.value):g} {t.unit}",
+                            "",
+                            t.note,
+                        )
+                        for t in max_terms
+                    ),
+                    (plan.stage.edges["to_high"].max_reason,),
+                )
+            )
     return tables
 
 
@@ -359,53 +421,114 @@ def result_tables(plan: BuildPlan) -> list[TableBlock]:
         for e in EDGES:
             x = f.edges[e]
             rel = x.relative_error
-            rows.append((
-                op.output.prefix, f.layout.name, e, x.field,
-                "-" if x.code is None else str(x.code),
-                _t(x.requested_s), _t(x.achieved_s), f"{_t(x.achieved_min_s)} .. {_t(x.achieved_max_s)}",
-                "-" if x.error_s is None else (
-                    _t(x.error_s) + ("" if rel is None else f" ({float(rel) * 100:+.3g} %)")),
-                _t(x.step_s), _t(x.max_s),
-            ))
+            rows.append(
+                (
+                    op.output.prefix,
+                    f.layout.name,
+                    e,
+                    x.field,
+                    "-" if x.code is None else str(x.code),
+                    _t(x.requested_s),
+                    _t(x.achieved_s),
+                    f"{_t(x.achieved_min_s)} .. {_t(x.achieved_max_s)}",
+                    "-"
+                    if x.error_s is None
+                    else (_t(x.error_s) + ("" if rel is None else f" ({float(rel) * 100:+.3g} %)")),
+                    _t(x.step_s),
+                    _t(x.max_s),
+                )
+            )
             j = op.judgements.get(e)
             win = _window_of(plan, e)
-            margins.append((
-                op.output.prefix, e, _t(win[0]), _t(win[1]),
-                "-" if j is None else _t(j.margin_low_s),
-                "-" if j is None else _t(j.margin_high_s),
-                op.verdict if j is None else j.verdict,
-            ))
+            margins.append(
+                (
+                    op.output.prefix,
+                    e,
+                    _t(win[0]),
+                    _t(win[1]),
+                    "-" if j is None else _t(j.margin_low_s),
+                    "-" if j is None else _t(j.margin_high_s),
+                    op.verdict if j is None else j.verdict,
+                )
+            )
         if op.limits is not None:
             lim = op.limits
-            pwm.append((
-                op.output.prefix, str(lim.period_counts), format_quantity(lim.real_frequency_hz, "Hz", 9),
-                f"{lim.duty_bits:.2f}", f"{_pct(lim.duty_min)} .. {_pct(lim.duty_max)}",
-                _pct(lim.edges["to_high"].share), _pct(lim.edges["to_low"].share), lim.verdict,
-            ))
+            pwm.append(
+                (
+                    op.output.prefix,
+                    str(lim.period_counts),
+                    format_quantity(lim.real_frequency_hz, "Hz", 9),
+                    f"{lim.duty_bits:.2f}",
+                    f"{_pct(lim.duty_min)} .. {_pct(lim.duty_max)}",
+                    _pct(lim.edges["to_high"].share),
+                    _pct(lim.edges["to_low"].share),
+                    lim.verdict,
+                )
+            )
     regs = tuple(
-        (op.output.prefix, op.fit.layout.name,
-         "-" if op.fit.divider is None else f"code {op.fit.divider_code} (/{op.fit.divider})",
-         _t(op.fit.step_s), ", ".join(f"{k}={v}" for k, v in op.fit.fields.items()) or "-",
-         "-" if op.fit.register is None else f"0x{op.fit.register:0{op.fit.layout.register_bits // 4}x}",
-         op.verdict)
+        (
+            op.output.prefix,
+            op.fit.layout.name,
+            "-" if op.fit.divider is None else f"code {op.fit.divider_code} (/{op.fit.divider})",
+            _t(op.fit.step_s),
+            ", ".join(f"{k}={v}" for k, v in op.fit.fields.items()) or "-",
+            "-"
+            if op.fit.register is None
+            else f"0x{op.fit.register:0{op.fit.layout.register_bits // 4}x}",
+            op.verdict,
+        )
         for op in plan.outputs
     )
     tables = [
-        TableBlock("Fitted codes", ("output", "layout", "divider", "step", "fields", "register",
-                                    "verdict"), regs),
-        TableBlock("Dead times per edge", ("output", "layout", "edge", "field", "code", "requested",
-                                           "achieved", "worst case (clock tolerance)", "error",
-                                           "step", "layout max"), tuple(rows)),
-        TableBlock("Margins to the window and verdicts",
-                   ("output", "edge", "window min", "window max", "margin low", "margin high",
-                    "verdict"), tuple(margins),
-                   ("Margins are worst case: achieved minimum over the clock tolerance minus the "
-                    "window minimum, window maximum minus the achieved maximum.",)),
+        TableBlock(
+            "Fitted codes",
+            ("output", "layout", "divider", "step", "fields", "register", "verdict"),
+            regs,
+        ),
+        TableBlock(
+            "Dead times per edge",
+            (
+                "output",
+                "layout",
+                "edge",
+                "field",
+                "code",
+                "requested",
+                "achieved",
+                "worst case (clock tolerance)",
+                "error",
+                "step",
+                "layout max",
+            ),
+            tuple(rows),
+        ),
+        TableBlock(
+            "Margins to the window and verdicts",
+            ("output", "edge", "window min", "window max", "margin low", "margin high", "verdict"),
+            tuple(margins),
+            (
+                "Margins are worst case: achieved minimum over the clock tolerance minus the "
+                "window minimum, window maximum minus the achieved maximum.",
+            ),
+        ),
     ]
     if pwm:
-        tables.append(TableBlock("PWM limits", ("output", "clocks per period", "real frequency",
-                                                "duty bits", "usable duty", "to_high share",
-                                                "to_low share", "verdict"), tuple(pwm)))
+        tables.append(
+            TableBlock(
+                "PWM limits",
+                (
+                    "output",
+                    "clocks per period",
+                    "real frequency",
+                    "duty bits",
+                    "usable duty",
+                    "to_high share",
+                    "to_low share",
+                    "verdict",
+                ),
+                tuple(pwm),
+            )
+        )
     if plan.design.stage is not None and plan.outputs:
         from gapforge.stage import stage_costs
 
@@ -415,15 +538,28 @@ def result_tables(plan: BuildPlan) -> list[TableBlock]:
                 continue
             dead = {e: _achieved(op, e)[0] for e in EDGES}
             c = stage_costs(plan.design.stage, dead)
-            cost_rows.append((
-                op.output.prefix, format_quantity(c.reverse_conduction_w, "W"),
-                format_quantity(c.recovery_w, "W"),
-                "-" if c.duty_lost is None else _pct(c.duty_lost),
-                "-" if c.voltage_error_v is None else format_quantity(c.voltage_error_v, "V"),
-            ))
-        tables.append(TableBlock("Costs of the chosen dead times",
-                                 ("output", "reverse conduction", "recovery", "duty lost",
-                                  "average output-voltage error"), tuple(cost_rows)))
+            cost_rows.append(
+                (
+                    op.output.prefix,
+                    format_quantity(c.reverse_conduction_w, "W"),
+                    format_quantity(c.recovery_w, "W"),
+                    "-" if c.duty_lost is None else _pct(c.duty_lost),
+                    "-" if c.voltage_error_v is None else format_quantity(c.voltage_error_v, "V"),
+                )
+            )
+        tables.append(
+            TableBlock(
+                "Costs of the chosen dead times",
+                (
+                    "output",
+                    "reverse conduction",
+                    "recovery",
+                    "duty lost",
+                    "average output-voltage error",
+                ),
+                tuple(cost_rows),
+            )
+        )
     return tables
 
 
@@ -437,21 +573,36 @@ def _timing_section(plan: BuildPlan) -> Section:
         if not op.fit.ok:
             continue
         pt = pair_timing(op)
-        period = ("an illustrative period (the design has no [pwm] section)" if pt.assumed_period
-                  else f"one PWM period of {_t(pt.period_s)}")
+        period = (
+            "an illustrative period (the design has no [pwm] section)"
+            if pt.assumed_period
+            else f"one PWM period of {_t(pt.period_s)}"
+        )
         windows = {e: _window_of(plan, e) for e in EDGES}
-        figures.append(FigureBlock(Markup(timing_figure(pt, op.output.prefix, windows,
-                                                        f"timing-{i}")),
-                                   f"{op.output.prefix} ({op.fit.layout.name}): {period} at 50 % "
-                                   "commanded duty. Grey: both gates off; blue-grey: the spread "
-                                   "of each turn-on over the clock tolerance; dash-dot: window "
-                                   "edges."))
+        figures.append(
+            FigureBlock(
+                Markup(timing_figure(pt, op.output.prefix, windows, f"timing-{i}")),
+                f"{op.output.prefix} ({op.fit.layout.name}): {period} at 50 % "
+                "commanded duty. Grey: both gates off; blue-grey: the spread "
+                "of each turn-on over the clock tolerance; dash-dot: window "
+                "edges.",
+            )
+        )
         for e in EDGES:
-            zoom = transition_figure(op.output.prefix, e, _achieved(op, e),
-                                     op.fit.edges[e].requested_s, windows[e], f"zoom-{i}-{e}")
-            figures.append(FigureBlock(Markup(zoom),
-                                       f"{op.output.prefix}: {EDGE_TEXT[e]}, to scale."))
-    paragraphs: tuple[str, ...] = ("Each output's gates through one PWM period, then each transition to scale.",)
+            zoom = transition_figure(
+                op.output.prefix,
+                e,
+                _achieved(op, e),
+                op.fit.edges[e].requested_s,
+                windows[e],
+                f"zoom-{i}-{e}",
+            )
+            figures.append(
+                FigureBlock(Markup(zoom), f"{op.output.prefix}: {EDGE_TEXT[e]}, to scale.")
+            )
+    paragraphs: tuple[str, ...] = (
+        "Each output's gates through one PWM period, then each transition to scale.",
+    )
     if not figures:
         paragraphs += ("No output was fitted, so there is no timing to draw.",)
     return Section("timing", "Timing diagrams", paragraphs, tuple(figures))
@@ -460,23 +611,37 @@ def _timing_section(plan: BuildPlan) -> Section:
 def _analog_section(plan: BuildPlan) -> Section:
     net = plan.design.reference
     if net is None:
-        return Section("analog", "Analog reference",
-                       ("Absent: the design has no [reference] section, so there is no analog "
-                        "network to draw.",))
+        return Section(
+            "analog",
+            "Analog reference",
+            (
+                "Absent: the design has no [reference] section, so there is no analog "
+                "network to draw.",
+            ),
+        )
     ramps = node_ramps(net)
     figures = [
-        FigureBlock(Markup(analog_figure(ramps[e], net.bypass == e, f"analog-{e}")),
-                    f"{e} input edge at typical parts: "
-                    + ("simulated (transient waveform) and closed form."
-                       if ramps[e].simulated else "closed form (no transient simulation)."))
+        FigureBlock(
+            Markup(analog_figure(ramps[e], net.bypass == e, f"analog-{e}")),
+            f"{e} input edge at typical parts: "
+            + (
+                "simulated (transient waveform) and closed form."
+                if ramps[e].simulated
+                else "closed form (no transient simulation)."
+            ),
+        )
         for e in ("rising", "falling")
     ]
     tables = []
     if plan.reference is not None:
-        rows = tuple((e, _t(r.min_s), _t(r.typ_s), _t(r.max_s))
-                     for e, r in plan.reference.items())
-        tables.append(TableBlock("Reference dead times (worst-case corners, Monte Carlo checked)",
-                                 ("edge", "min", "typ", "max"), rows))
+        rows = tuple((e, _t(r.min_s), _t(r.typ_s), _t(r.max_s)) for e, r in plan.reference.items())
+        tables.append(
+            TableBlock(
+                "Reference dead times (worst-case corners, Monte Carlo checked)",
+                ("edge", "min", "typ", "max"),
+                rows,
+            )
+        )
     try:
         from gapforge.simulate import slow_edge_over_temperature
     except ImportError:
@@ -484,15 +649,32 @@ def _analog_section(plan: BuildPlan) -> Section:
     else:
         slow = list(slow_edge_over_temperature(net))
     if slow:
-        tables.append(TableBlock(
-            "Slow edge over temperature (transient simulation, typical parts)",
-            ("input edge", "temperature", "node delay", "without diode leakage", "erosion"),
-            tuple((p.edge, f"{p.temp_c:g} C", _t(p.delay_s), _t(p.delay_no_leakage_s),
-                   f"{p.erosion * 100:.2f} %") for p in slow)))
-    return Section("analog", "Analog reference",
-                   ("The capacitor node on each input edge against the Schmitt threshold band, "
-                    "with the node delay (ideal input step to the threshold crossing) marked.",),
-                   tuple(figures), tuple(tables))
+        tables.append(
+            TableBlock(
+                "Slow edge over temperature (transient simulation, typical parts)",
+                ("input edge", "temperature", "node delay", "without diode leakage", "erosion"),
+                tuple(
+                    (
+                        p.edge,
+                        f"{p.temp_c:g} C",
+                        _t(p.delay_s),
+                        _t(p.delay_no_leakage_s),
+                        f"{p.erosion * 100:.2f} %",
+                    )
+                    for p in slow
+                ),
+            )
+        )
+    return Section(
+        "analog",
+        "Analog reference",
+        (
+            "The capacitor node on each input edge against the Schmitt threshold band, "
+            "with the node delay (ideal input step to the threshold crossing) marked.",
+        ),
+        tuple(figures),
+        tuple(tables),
+    )
 
 
 def _staircase_section(plan: BuildPlan) -> Section:
@@ -502,15 +684,25 @@ def _staircase_section(plan: BuildPlan) -> Section:
             continue
         for f in op.fit.layout.dead_time_fields:
             edges = [e for e in EDGES if op.fit.layout.edge_field(e) is f]
-            stair = staircase_figure(staircase(op, f, op.fit.request.rounding), op.output.prefix,
-                                     f.name, edges, [_window_of(plan, e) for e in edges],
-                                     f"stair-{i}-{f.name}")
-            figures.append(FigureBlock(
-                Markup(stair),
-                f"{op.output.prefix}, {op.fit.layout.name}: {op.fit.request.rounding} rounding at "
-                f"divider /{op.fit.divider} (step {_t(op.fit.step_s)}), "
-                f"{STAIR_STEPS} representable values each side of the chosen one."))
-    paragraphs: tuple[str, ...] = ("How each layout's codes turn a requested dead time into an achieved one.",)
+            stair = staircase_figure(
+                staircase(op, f, op.fit.request.rounding),
+                op.output.prefix,
+                f.name,
+                edges,
+                [_window_of(plan, e) for e in edges],
+                f"stair-{i}-{f.name}",
+            )
+            figures.append(
+                FigureBlock(
+                    Markup(stair),
+                    f"{op.output.prefix}, {op.fit.layout.name}: {op.fit.request.rounding} rounding at "
+                    f"divider /{op.fit.divider} (step {_t(op.fit.step_s)}), "
+                    f"{STAIR_STEPS} representable values each side of the chosen one.",
+                )
+            )
+    paragraphs: tuple[str, ...] = (
+        "How each layout's codes turn a requested dead time into an achieved one.",
+    )
     if not figures:
         paragraphs += ("No output was fitted, so there is no staircase to draw.",)
     return Section("quantization", "Quantization", paragraphs, tuple(figures))
@@ -519,29 +711,52 @@ def _staircase_section(plan: BuildPlan) -> Section:
 def _monte_carlo_section(plan: BuildPlan) -> Section:
     net = plan.design.reference
     if net is None:
-        return Section("monte-carlo", "Monte Carlo of the reference",
-                       ("Absent: the design has no [reference] section.",))
+        return Section(
+            "monte-carlo",
+            "Monte Carlo of the reference",
+            ("Absent: the design has no [reference] section.",),
+        )
     samples = reference_samples(net)
     first = next((op for op in plan.outputs if op.fit.ok), None)
     figures = []
     for e in EDGES:
         digital = _achieved(first, e) if first is not None else None
-        figures.append(FigureBlock(
-            Markup(distribution_figure(samples[e], edge=e, window=_window_of(plan, e),
-                                       digital=digital, predicted=None,
-                                       style=PALETTE["reference"], what="reference Monte Carlo",
-                                       ident=f"mc-{e}")),
-            f"{MC_SAMPLES} seeded samples (seed {MC_SEED}), every part uniform over its band"
-            + ("" if first is None else f"; digital value of {first.output.prefix}.")))
-    return Section("monte-carlo", "Monte Carlo of the reference",
-                   ("The analog network's dead time over its parts' tolerances, against the "
-                    "window and the digital value that replaces it.",), tuple(figures))
+        figures.append(
+            FigureBlock(
+                Markup(
+                    distribution_figure(
+                        samples[e],
+                        edge=e,
+                        window=_window_of(plan, e),
+                        digital=digital,
+                        predicted=None,
+                        style=PALETTE["reference"],
+                        what="reference Monte Carlo",
+                        ident=f"mc-{e}",
+                    )
+                ),
+                f"{MC_SAMPLES} seeded samples (seed {MC_SEED}), every part uniform over its band"
+                + ("" if first is None else f"; digital value of {first.output.prefix}."),
+            )
+        )
+    return Section(
+        "monte-carlo",
+        "Monte Carlo of the reference",
+        (
+            "The analog network's dead time over its parts' tolerances, against the "
+            "window and the digital value that replaces it.",
+        ),
+        tuple(figures),
+    )
 
 
 def _capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
     if m is None:
-        return Section("capture", "Bench capture",
-                       ("Absent: no capture was given (gapforge report --capture FILE).",))
+        return Section(
+            "capture",
+            "Bench capture",
+            ("Absent: no capture was given (gapforge report --capture FILE).",),
+        )
     figures = []
     first = next((op for op in plan.outputs if op.fit.ok), None)
     for e in EDGES:
@@ -553,28 +768,66 @@ def _capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
         if lim is not None and lim.predicted_min_s is not None and lim.predicted_max_s is not None:
             predicted = (lim.predicted_min_s, lim.predicted_max_s)
         window = (lim.window_min_s, lim.window_max_s) if lim is not None else (None, None)
-        figures.append(FigureBlock(
-            Markup(distribution_figure(stats.gaps_s, edge=e, window=window, digital=None,
-                                       predicted=predicted, style=PALETTE["measured"],
-                                       what="measured gaps", ident=f"capture-{e}")),
-            f"{stats.count} measured {e} gaps"
-            + ("" if first is None else f"; predicted range of {first.output.prefix}.")))
-    figures.append(FigureBlock(Markup(overlap_figure(m.duration_s,
-                                                     [o.at_s for o in m.overlaps], "overlaps")),
-                               "Overlaps: both gates on at once (shoot-through)."))
+        figures.append(
+            FigureBlock(
+                Markup(
+                    distribution_figure(
+                        stats.gaps_s,
+                        edge=e,
+                        window=window,
+                        digital=None,
+                        predicted=predicted,
+                        style=PALETTE["measured"],
+                        what="measured gaps",
+                        ident=f"capture-{e}",
+                    )
+                ),
+                f"{stats.count} measured {e} gaps"
+                + ("" if first is None else f"; predicted range of {first.output.prefix}."),
+            )
+        )
+    figures.append(
+        FigureBlock(
+            Markup(overlap_figure(m.duration_s, [o.at_s for o in m.overlaps], "overlaps")),
+            "Overlaps: both gates on at once (shoot-through).",
+        )
+    )
     rows = []
     for e in EDGES:
         s = m.edge(e)
-        rows.append((e, str(s.count), _t(s.min_s), _t(s.max_s), _t(s.mean_s), _t(s.std_s),
-                     str(s.below_window), str(s.above_window)))
-    tables = [TableBlock("Measured gaps", ("edge", "count", "min", "max", "mean", "std dev",
-                                           "below window", "above window"), tuple(rows))]
-    tables.append(TableBlock(
-        "Overlaps (first 50)", ("time", "duration"),
-        tuple((_t(o.at_s, 9), _t(o.duration_s)) for o in m.overlaps[:50]),
-        (f"{len(m.overlaps)} overlap(s) in total." if m.overlaps else "No overlap.",)))
-    paragraphs = (f"Capture {m.source}: {_t(m.duration_s)} at a tick of {_t(m.tick_s)}; "
-                  f"verdict {m.verdict}.", *m.reasons, *m.notes, *m.warnings)
+        rows.append(
+            (
+                e,
+                str(s.count),
+                _t(s.min_s),
+                _t(s.max_s),
+                _t(s.mean_s),
+                _t(s.std_s),
+                str(s.below_window),
+                str(s.above_window),
+            )
+        )
+    tables = [
+        TableBlock(
+            "Measured gaps",
+            ("edge", "count", "min", "max", "mean", "std dev", "below window", "above window"),
+            tuple(rows),
+        )
+    ]
+    tables.append(
+        TableBlock(
+            "Overlaps (first 50)",
+            ("time", "duration"),
+            tuple((_t(o.at_s, 9), _t(o.duration_s)) for o in m.overlaps[:50]),
+            (f"{len(m.overlaps)} overlap(s) in total." if m.overlaps else "No overlap.",),
+        )
+    )
+    paragraphs = (
+        f"Capture {m.source}: {_t(m.duration_s)} at a tick of {_t(m.tick_s)}; verdict {m.verdict}.",
+        *m.reasons,
+        *m.notes,
+        *m.warnings,
+    )
     return Section("capture", "Bench capture", paragraphs, tuple(figures), tuple(tables))
 
 
@@ -593,49 +846,60 @@ def capture_limits(plan: BuildPlan) -> dict[str, Limits]:
     return out
 
 
-def _env() -> jinja2.Environment:
-    return jinja2.Environment(
-        loader=jinja2.PackageLoader("gapforge", "templates"),
-        undefined=jinja2.StrictUndefined,
-        autoescape=True,
-        keep_trailing_newline=True,
-        trim_blocks=True,
-        lstrip_blocks=True,
-    )
-
-
 def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
     """The whole report as HTML text (self-contained: inline CSS and SVG, no scripts)."""
     d = plan.design
     warnings = [f"{op.output.prefix}: {w}" for op in plan.outputs for w in op.warnings]
     sections = [
-        Section("results", "Results, margins and verdicts",
-                (f"Verdict: {plan.verdict}.", *plan.reasons, *warnings),
-                (), tuple(result_tables(plan))),
+        Section(
+            "results",
+            "Results, margins and verdicts",
+            (f"Verdict: {plan.verdict}.", *plan.reasons, *warnings),
+            (),
+            tuple(result_tables(plan)),
+        ),
         _timing_section(plan),
         _analog_section(plan),
         _staircase_section(plan),
         _monte_carlo_section(plan),
         _capture_section(plan, capture),
-        Section("window", "Window", (
-            "Absent: the design has neither a [stage] nor a [reference] section, so there is no "
-            "window; margins are not judged.",) if plan.window is None else (),
-            (), tuple(window_tables(plan)) if plan.window is not None else ()),
-        Section("inputs", "Inputs", ("Every input the numbers come from, with its unit.",), (),
-                tuple(input_tables(plan))),
+        Section(
+            "window",
+            "Window",
+            (
+                "Absent: the design has neither a [stage] nor a [reference] section, so there is no "
+                "window; margins are not judged.",
+            )
+            if plan.window is None
+            else (),
+            (),
+            tuple(window_tables(plan)) if plan.window is not None else (),
+        ),
+        Section(
+            "inputs",
+            "Inputs",
+            ("Every input the numbers come from, with its unit.",),
+            (),
+            tuple(input_tables(plan)),
+        ),
     ]
-    verdict_class = "ok" if plan.verdict == "ok" and (capture is None or not capture.failed) \
-        else "fail"
-    return _env().get_template("report.html.j2").render(
-        title=f"gapforge design report: {d.name}",
-        design=d.label,
-        description=d.description,
-        version=__version__,
-        report_format=REPORT_FORMAT,
-        verdict=plan.verdict,
-        capture_verdict="-" if capture is None else capture.verdict,
-        verdict_class=verdict_class,
-        caution=CAUTION,
-        sections=sections,
-        toc=[(s.ident, s.title) for s in sections],
+    verdict_class = (
+        "ok" if plan.verdict == "ok" and (capture is None or not capture.failed) else "fail"
+    )
+    return (
+        environment(html=True)
+        .get_template("report.html.j2")
+        .render(
+            title=f"gapforge design report: {d.name}",
+            design=d.label,
+            description=d.description,
+            version=__version__,
+            report_format=REPORT_FORMAT,
+            verdict=plan.verdict,
+            capture_verdict="-" if capture is None else capture.verdict,
+            verdict_class=verdict_class,
+            caution=CAUTION,
+            sections=sections,
+            toc=[(s.ident, s.title) for s in sections],
+        )
     )

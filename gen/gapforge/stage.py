@@ -205,9 +205,7 @@ def stage_problems(spec: StageSpec) -> list[tuple[str, str, str]]:
     for side in SIDES:
         timing = spec.side(side)
         if timing.prop_min > timing.prop_max:
-            problems.append(
-                (side, "prop_delay", "propagation delay MIN:MAX has MIN above MAX")
-            )
+            problems.append((side, "prop_delay", "propagation delay MIN:MAX has MIN above MAX"))
     for edge in EDGES:
         on = ON_SIDE[edge]
         total = _raw_sum(spec, edge)
@@ -440,16 +438,28 @@ def stage_costs(spec: StageSpec, dead_times: dict[str, Fraction]) -> Costs:
 def judge(
     window_edge: WindowEdge, achieved_min_s: Fraction, achieved_max_s: Fraction
 ) -> tuple[str, Fraction, Fraction | None]:
+    """Verdict of a fitted dead time against one edge of a stage window (see judge_bounds)."""
+    verdict, low, high = judge_bounds(
+        window_edge.min_s, window_edge.max_s, achieved_min_s, achieved_max_s
+    )
+    assert low is not None
+    return verdict, low, high
+
+
+def judge_bounds(
+    lo: Fraction | None, hi: Fraction | None, achieved_min_s: Fraction, achieved_max_s: Fraction
+) -> tuple[str, Fraction | None, Fraction | None]:
     """Verdict of a fitted dead time (worst-case min/max over clock tolerance) against a window.
 
     Returns (verdict, margin_low_s, margin_high_s): margin_low = achieved_min - window min,
-    margin_high = window max - achieved_max (None without a maximum). Negative means violated.
+    margin_high = window max - achieved_max (None where the window has no such edge). Negative
+    means violated. Verdicts: ok, too-short, too-long, empty-window.
     """
-    low = achieved_min_s - window_edge.min_s
-    high = None if window_edge.max_s is None else window_edge.max_s - achieved_max_s
-    if window_edge.empty:
+    low = None if lo is None else achieved_min_s - lo
+    high = None if hi is None else hi - achieved_max_s
+    if lo is not None and hi is not None and hi < lo:
         return "empty-window", low, high
-    if low < 0:
+    if low is not None and low < 0:
         return "too-short", low, high
     if high is not None and high < 0:
         return "too-long", low, high

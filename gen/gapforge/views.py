@@ -8,16 +8,14 @@ from __future__ import annotations
 from fractions import Fraction
 from typing import Any
 
+from gapforge import caution
 from gapforge.build import BuildPlan, OutputPlan
 from gapforge.fit import FitResult, step_seconds
 from gapforge.layouts import EDGES, Layout, describe_codes
 from gapforge.limits import PwmLimits
 from gapforge.quantities import format_quantity, format_tolerance
 
-CAUTION = (
-    "Caution: a design aid, not a guarantee. Verify every dead time on the bench at reduced voltage "
-    "with current limiting before full power; local codes and licensed practice prevail."
-)
+CAUTION = caution.TEXT
 
 
 def _f(x: Fraction | None) -> float | None:

@@ -15,6 +15,7 @@ from typing import Any, TypeVar
 
 import click
 
+from gapforge import caution
 from gapforge.errors import GapforgeError
 from gapforge.quantities import format_quantity, parse_quantity, picoseconds_ceil
 from gapforge.schema import Reader, load_toml
@@ -31,11 +32,7 @@ from gapforge.stage import (
     stage_window,
 )
 
-CAUTION = (
-    "CAUTION: a wrong dead time destroys hardware. gapforge is a design aid: verify every dead "
-    "time on the bench at reduced voltage with current limiting before full power; local codes "
-    "and licensed practice prevail."
-)
+CAUTION = caution.TEXT
 MIN_FORMULA = (
     "minimum (common practice, no single published source): margin x (td_off,max + t_fall,max "
     "- td_on,min + driver delay max - min + mismatch + isolator skew + timer skew), rounded up "
@@ -75,21 +72,32 @@ F = TypeVar("F", bound=Callable[..., Any])
 def stage_options(func: F) -> F:
     """The power-stage options, shared by `window` and `sweep`."""
     options = [
-        click.option("--design", type=click.Path(path_type=Path), default=None,
-                     help="Read the [stage] section of this design file instead of options."),
+        click.option(
+            "--design",
+            type=click.Path(path_type=Path),
+            default=None,
+            help="Read the [stage] section of this design file instead of options.",
+        ),
         click.option("--td-off", help="Switch turn-off delay, max (both switches), e.g. 35ns."),
         click.option("--t-fall", help="Switch fall time, max, e.g. 20ns."),
         click.option("--td-on", help="Switch turn-on delay, min, e.g. 10ns."),
         click.option("--t-rise", help="Switch rise time (shown, not counted)."),
-        click.option("--prop-delay", metavar="MIN:MAX",
-                     help="Gate-driver propagation delay, min:max per channel, e.g. 20ns:45ns."),
+        click.option(
+            "--prop-delay",
+            metavar="MIN:MAX",
+            help="Gate-driver propagation delay, min:max per channel, e.g. 20ns:45ns.",
+        ),
         click.option("--mismatch", help="Driver channel mismatch not covered by MIN:MAX."),
         click.option("--isolator-skew", help="Isolator or level-shifter skew."),
         click.option("--timer-skew", help="The timer's own output skew, if known."),
         click.option("--margin", help="Margin factor (>= 1).  [default: 1.2]"),
-        click.option("--kind", type=click.Choice(KINDS), default=None,
-                     help="Reverse-conduction path: silicon or SiC body diode, GaN third quadrant."
-                     "  [default: silicon]"),
+        click.option(
+            "--kind",
+            type=click.Choice(KINDS),
+            default=None,
+            help="Reverse-conduction path: silicon or SiC body diode, GaN third quadrant."
+            "  [default: silicon]",
+        ),
         click.option("--vsd", help="Reverse-conduction voltage (default: the kind's usual top)."),
         click.option("--gate-off", help="GaN gate-off voltage, e.g. -3V (adds to the reverse V)."),
         click.option("--current", help="Load current at both transitions, signed (+ out of node)."),
@@ -108,11 +116,7 @@ def stage_options(func: F) -> F:
 def spec_from_options(values: dict[str, Any]) -> StageSpec:
     """A StageSpec from --design or from the stage options (one validation path for both)."""
     design = values.get("design")
-    given = {
-        key: values[name]
-        for name, key in OPTION_KEYS.items()
-        if values.get(name) is not None
-    }
+    given = {key: values[name] for name, key in OPTION_KEYS.items() if values.get(name) is not None}
     if design is not None:
         extra = sorted(given)
         if extra:
@@ -276,9 +280,7 @@ def window_text(
         for edge in EDGES:
             v, low, high = judged[edge]
             top = "" if high is None else f", {format_quantity(high, 's')} below the maximum"
-            out.append(
-                f"  {edge}: {v} ({format_quantity(low, 's')} above the minimum{top})"
-            )
+            out.append(f"  {edge}: {v} ({format_quantity(low, 's')} above the minimum{top})")
     out.append("")
     out.append(f"verdict: {verdict}")
     out.append(CAUTION)
@@ -308,9 +310,7 @@ def command(**values: Any) -> None:
         text = values.get(option) or values.get("dead_time")
         if text is not None:
             name = option if values.get(option) else "dead_time"
-            chosen[edge] = parse_quantity(
-                text, "s", "--" + name.replace("_", "-"), allow_zero=True
-            )
+            chosen[edge] = parse_quantity(text, "s", "--" + name.replace("_", "-"), allow_zero=True)
     judged: dict[str, tuple[str, Fraction, Fraction | None]] | None = None
     if chosen and len(chosen) != len(EDGES):
         missing = next(edge for edge in EDGES if edge not in chosen)

@@ -1,0 +1,11 @@
+"""The one safety caution every human-facing output carries (text, JSON, headers, reports)."""
+
+from __future__ import annotations
+
+# Wrapped for comments in generated C; TEXT is the same words on one line.
+LINES = (
+    "CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design",
+    "aid, not a guarantee: verify every dead time on the bench at reduced voltage with current",
+    "limiting before full power. Local codes and licensed engineering practice prevail.",
+)
+TEXT = " ".join(LINES)

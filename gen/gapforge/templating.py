@@ -1,0 +1,20 @@
+"""The Jinja2 environment for every template: loaded from the package, StrictUndefined.
+
+Templates hold layout only (loops over rows prepared in Python; no arithmetic, no conditions).
+"""
+
+from __future__ import annotations
+
+import jinja2
+
+
+def environment(*, html: bool = False) -> jinja2.Environment:
+    """C and text templates keep every newline as written; HTML escapes and trims block lines."""
+    return jinja2.Environment(
+        loader=jinja2.PackageLoader("gapforge", "templates"),
+        undefined=jinja2.StrictUndefined,
+        autoescape=html,
+        keep_trailing_newline=True,
+        trim_blocks=html,
+        lstrip_blocks=html,
+    )
