@@ -148,3 +148,49 @@ def test_design_file_problems_name_file_and_key(tmp_path: Path) -> None:
     design.write_text("[stage]\ntd_off = '35ns'\ntd_on = '1ns'\nmargn = 2\n")
     line = one_line_error(["window", "--design", str(design)])
     assert f"{design}: stage.margn:" in line and "did you mean 'margin'" in line
+
+
+def test_per_switch_options_give_separate_edges() -> None:
+    # Worked example (common-practice minimum, margin 1.2), both switches td_off 40, t_fall 15,
+    # td_on 10 ns, drivers 20..45 ns, except: high-side switch td_off 60 ns, low channel 15..30 ns.
+    # to_high (low side turns off, high side on): (40 + 15 - 10 + (30 - 20)) x 1.2 = 55 x 1.2 = 66 ns
+    # to_low (high side turns off, low side on):  (60 + 15 - 10 + (45 - 15)) x 1.2 = 95 x 1.2 = 114 ns
+    code, out, _ = run([
+        "window", "--td-off", "40ns", "--t-fall", "15ns", "--td-on", "10ns",
+        "--prop-delay", "20ns:45ns", "--high", "td_off=60ns", "--low", "prop_delay=15ns:30ns",
+        "--json",
+    ])
+    assert code == 0
+    edges = json.loads(out)["edges"]
+    assert edges["to_high"]["min_s"] == pytest.approx(66e-9, abs=1e-15)
+    assert edges["to_low"]["min_s"] == pytest.approx(114e-9, abs=1e-15)
+
+
+def test_per_switch_options_can_replace_the_shared_required_ones() -> None:
+    # td_off/td_on given for each switch instead of for both: (60 + 5 - 5) x 1.2 = 72 ns when the
+    # low side turns off, (50 + 5 - 4) x 1.2 = 61.2 ns when the high side turns off
+    code, out, _ = run([
+        "window", "--t-fall", "5ns", "--high", "td_off=50ns", "--low", "td_off=60ns",
+        "--high", "td_on=5ns", "--low", "td_on=4ns", "--json",
+    ])
+    assert code == 0
+    edges = json.loads(out)["edges"]
+    assert edges["to_high"]["min_s"] == pytest.approx(72e-9, abs=1e-15)
+    assert edges["to_low"]["min_s"] == pytest.approx(61.2e-9, abs=1e-15)
+
+
+@pytest.mark.parametrize(
+    ("args", "where"),
+    [
+        (["--high", "td_of=3ns"], "--high td_of"),
+        (["--low", "td_off"], "--low"),
+        (["--high", "td_off=-3ns"], "--high td_off"),
+    ],
+)
+def test_bad_per_switch_options_name_the_option(args: list[str], where: str) -> None:
+    from conftest import run_cli
+
+    code, _, err = run_cli(["window", "--td-off", "40ns", "--td-on", "10ns", *args])
+    assert code == 2
+    assert len(err.strip().splitlines()) == 1
+    assert err.startswith(f"gapforge: error: {where}: ")

@@ -203,7 +203,7 @@ def _design_limits(
     from gapforge.build import design_window
     from gapforge.design import load_design
 
-    used = [name for name in OPTION_KEYS if values.get(name) is not None]
+    used = [name for name in (*OPTION_KEYS, "high_side", "low_side") if values.get(name)]
     if used:
         raise GapforgeError(
             "give either --design or the stage options, not both", "--" + used[0].replace("_", "-")
@@ -272,7 +272,9 @@ def command(**values: Any) -> None:
     if values["as_json"] and values["as_csv"]:
         raise GapforgeError("give --json or --csv, not both", "--csv")
     if values["window_text"] is not None:
-        used = [name for name in ["design", *OPTION_KEYS] if values.get(name) is not None]
+        used = [
+            name for name in ("design", *OPTION_KEYS, "high_side", "low_side") if values.get(name)
+        ]
         if used:
             raise GapforgeError(
                 "give --window or the stage options, not both", "--" + used[0].replace("_", "-")

@@ -87,6 +87,21 @@ def stage_options(func: F) -> F:
             metavar="MIN:MAX",
             help="Gate-driver propagation delay, min:max per channel, e.g. 20ns:45ns.",
         ),
+        click.option(
+            "--high",
+            "high_side",
+            multiple=True,
+            metavar="KEY=VALUE",
+            help="Override one timing of the high-side switch and its driver channel (repeat): "
+            "td_off, t_fall, td_on, t_rise, prop_delay; e.g. --high td_off=150ns.",
+        ),
+        click.option(
+            "--low",
+            "low_side",
+            multiple=True,
+            metavar="KEY=VALUE",
+            help="The same for the low-side switch, e.g. --low prop_delay=20ns:40ns.",
+        ),
         click.option("--mismatch", help="Driver channel mismatch not covered by MIN:MAX."),
         click.option("--isolator-skew", help="Isolator or level-shifter skew."),
         click.option("--timer-skew", help="The timer's own output skew, if known."),
@@ -116,7 +131,13 @@ def stage_options(func: F) -> F:
 def spec_from_options(values: dict[str, Any]) -> StageSpec:
     """A StageSpec from --design or from the stage options (one validation path for both)."""
     design = values.get("design")
-    given = {key: values[name] for name, key in OPTION_KEYS.items() if values.get(name) is not None}
+    given: dict[str, Any] = {
+        key: values[name] for name, key in OPTION_KEYS.items() if values.get(name) is not None
+    }
+    for side, option in (("high", "high_side"), ("low", "low_side")):
+        pairs = values.get(option) or ()
+        if pairs:
+            given[side] = _side_table(pairs, f"--{side}")
     if design is not None:
         extra = sorted(given)
         if extra:
@@ -131,16 +152,33 @@ def spec_from_options(values: dict[str, Any]) -> StageSpec:
         spec = read_stage(stage)
         reader.finish()
         return spec
-    if given.get("td_off") is None or given.get("td_on") is None:
-        missing = "--td-off" if given.get("td_off") is None else "--td-on"
-        raise GapforgeError("required (or give --design FILE)", missing)
+    for key in ("td_off", "td_on"):
+        both_sides = all(key in given.get(side, {}) for side in ("high", "low"))
+        if given.get(key) is None and not both_sides:
+            raise GapforgeError("required (or give --design FILE)", "--" + key.replace("_", "-"))
     reader = Reader("options")
     spec = read_stage(reader.table(given, ""))
     if reader.problems:
         path, message = reader.problems[0]
-        key = path.split(".")[-1]
-        raise GapforgeError(message, "--" + key.replace("_", "-"))
+        parts = path.split(".")
+        if parts[0] in ("high", "low") and len(parts) == 2:
+            raise GapforgeError(message, f"--{parts[0]} {parts[1]}")
+        raise GapforgeError(message, "--" + parts[-1].replace("_", "-"))
     return spec
+
+
+def _side_table(pairs: tuple[str, ...], option: str) -> dict[str, str]:
+    """'td_off=150ns' pairs of a --high/--low option as a [stage.high]/[stage.low] table."""
+    table: dict[str, str] = {}
+    for pair in pairs:
+        key, sep, value = pair.partition("=")
+        key = key.strip().replace("-", "_")
+        if not sep or not key or not value.strip():
+            raise GapforgeError(f"{pair!r} is not KEY=VALUE (e.g. td_off=150ns)", option)
+        if key in table:
+            raise GapforgeError(f"{key} is given twice", option)
+        table[key] = value.strip()
+    return table
 
 
 # ---------------------------------------------------------------------------------------------
