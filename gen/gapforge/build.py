@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from fractions import Fraction
+from pathlib import Path
 from typing import Any
 
 from gapforge.design import Design, Output
@@ -271,3 +272,29 @@ def _reason(edge: str, j: EdgeJudgement, window: Bounds, amin: Fraction, amax: F
         f"{edge}: worst-case {float(amax) * 1e9:.6g} ns is above the window's maximum "
         f"{float(hi) * 1e9:.6g} ns"
     )
+
+
+Expectation = tuple[Fraction | None, Fraction | None, Fraction | None, Fraction | None]
+
+
+def capture_expectations(plan: BuildPlan) -> dict[str, Expectation]:
+    """What a bench capture is judged against, per edge: (window_min_s, window_max_s,
+    predicted_min_s, predicted_max_s). The window is the design's (None where absent); the
+    prediction is the first fitted output's achieved range over the clock tolerance.
+    """
+    first = next((op for op in plan.outputs if op.fit.ok), None)
+    out: dict[str, Expectation] = {}
+    for e in EDGES:
+        wmin, wmax = plan.window[e] if plan.window is not None else (None, None)
+        pmin = pmax = None
+        if first is not None:
+            pmin, pmax = first.fit.edges[e].achieved_min_s, first.fit.edges[e].achieved_max_s
+        out[e] = (wmin, wmax, pmin, pmax)
+    return out
+
+
+def measurement_expectations(path: Path) -> dict[str, Expectation]:
+    """capture_expectations of a design file (for `measure --design`)."""
+    from gapforge.design import load_design
+
+    return capture_expectations(plan_design(load_design(path)))

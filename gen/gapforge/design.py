@@ -214,22 +214,7 @@ def load_design(path: Path) -> Design:
 def measurement_expectations(
     path: Path,
 ) -> dict[str, tuple[Fraction | None, Fraction | None, Fraction | None, Fraction | None]]:
-    """Per edge: (window_min_s, window_max_s, predicted_min_s, predicted_max_s) for `measure`.
+    """Moved to gapforge.build.measurement_expectations (the fit layer); kept for callers."""
+    from gapforge.build import measurement_expectations as expectations
 
-    The window comes from the [stage] section (None where absent); the predicted range is the
-    first output's fitted achieved min/max over the clock tolerance.
-    """
-    from gapforge.build import plan_design
-
-    plan = plan_design(load_design(path))
-    out: dict[str, tuple[Fraction | None, Fraction | None, Fraction | None, Fraction | None]] = {}
-    first = plan.outputs[0] if plan.outputs else None
-    for edge in EDGES:
-        wmin = wmax = pmin = pmax = None
-        if plan.window is not None:
-            wmin, wmax = plan.window[edge]
-        if first is not None and first.fit.ok:
-            e = first.fit.edges[edge]
-            pmin, pmax = e.achieved_min_s, e.achieved_max_s
-        out[edge] = (wmin, wmax, pmin, pmax)
-    return out
+    return expectations(path)

@@ -833,17 +833,10 @@ def _capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
 
 def capture_limits(plan: BuildPlan) -> dict[str, Limits]:
     """What a capture is judged against: the window and the first fitted output's range."""
+    from gapforge.build import capture_expectations
     from gapforge.measure import Limits
 
-    first = next((op for op in plan.outputs if op.fit.ok), None)
-    out: dict[str, Limits] = {}
-    for e in EDGES:
-        lo, hi = _window_of(plan, e)
-        pmin = pmax = None
-        if first is not None:
-            _, pmin, pmax = _achieved(first, e)
-        out[e] = Limits(lo, hi, pmin, pmax)
-    return out
+    return {e: Limits(*x) for e, x in capture_expectations(plan).items()}
 
 
 def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
