@@ -38,9 +38,9 @@ def _exact(**over: str) -> ReferenceNetwork:
     return network_from_options(base)
 
 
-def _node(net: ReferenceNetwork, edge: str) -> float:
+def _node(net: ReferenceNetwork, edge: str, *, textbook: bool = False) -> float:
     values = values_at(net, {"vdd": A([0.5])})
-    return float(channel_edge_delays(net, values)["node_" + edge][0])
+    return float(channel_edge_delays(net, values, textbook=textbook)["node_" + edge][0])
 
 
 # -- textbook RC values (Sedra & Smith, Microelectronic Circuits, appendix on single-time-constant
@@ -80,11 +80,17 @@ def test_time_constant_includes_rout_cin_and_stray() -> None:
 # -- the bypassed edge and its knee
 
 
-def test_bypassed_edge_is_fast_when_the_threshold_lies_inside_the_diode_range() -> None:
+def test_textbook_bypassed_edge_is_fast_when_the_threshold_lies_inside_the_diode_range() -> None:
+    # the textbook two-slope form (shown for reference, not used for ranges)
     net = _exact(bypass="falling", vf="0.3V", rout="20")
     tau_fast = 20 * 1e-9
-    assert _node(net, "falling") == pytest.approx(tau_fast * math.log(3.3 / 1.155), rel=1e-9)
+    assert _node(net, "falling", textbook=True) == pytest.approx(
+        tau_fast * math.log(3.3 / 1.155), rel=1e-9)
     assert bypass_notes(net) == {}
+    # the model: the diode calibrated to a 0.3 V knee still needs its forward voltage, so the
+    # node is slower than the ideal switch through Rout, and faster than R alone
+    model = _node(net, "falling")
+    assert tau_fast * math.log(3.3 / 1.155) < model < (10e3 + 20) * 1e-9 * math.log(3.3 / 1.155)
 
 
 def test_bypassed_edge_goes_through_r_beyond_the_knee() -> None:
@@ -94,8 +100,9 @@ def test_bypassed_edge_goes_through_r_beyond_the_knee() -> None:
     tau_fast = 20 * 1e-9
     tau_slow = (10e3 + 20) * 1e-9
     expected = tau_fast * math.log(1.8 / 0.9) + tau_slow * math.log(0.9 / 0.63)
-    assert _node(net, "falling") == pytest.approx(expected, rel=1e-9)
-    assert _node(net, "falling") > 100 * tau_fast
+    assert _node(net, "falling", textbook=True) == pytest.approx(expected, rel=1e-9)
+    assert _node(net, "falling", textbook=True) > 100 * tau_fast
+    assert _node(net, "falling") > 100 * tau_fast  # the model sees the knee too
     note = bypass_notes(net)["falling"]
     assert "NOT fast" in note and "through R" in note
 
@@ -117,8 +124,9 @@ def test_knee_voltage_balances_diode_and_resistor_currents() -> None:
 
 def test_dead_times_are_the_slow_turn_on_minus_the_fast_turn_off() -> None:
     net = _exact(bypass="falling", vf="0.3V", rout="20", driver_delay="3n", schmitt_delay="5n")
-    slow = (10e3 + 20) * 1e-9 * math.log(3.3 / 1.3)
-    fast = 20 * 1e-9 * math.log(3.3 / 1.155)
+    slow = _node(net, "rising")
+    fast = _node(net, "falling")
+    assert slow == pytest.approx((10e3 + 20) * 1e-9 * math.log(3.3 / 1.3), rel=1e-3)  # RC
     result = reference_dead_times(net)
     assert set(result) == {"to_high", "to_low"}
     for rng in result.values():
@@ -132,12 +140,15 @@ def test_channel_mismatch_widens_the_pair_range() -> None:
     net = _exact(bypass="falling", vf="0.3V", rout="20", r_tol="5%")
     rng = reference_dead_times(net)["to_high"]
 
-    def slow(r: float) -> float:
-        return (r + 20) * 1e-9 * math.log(3.3 / 1.3)
+    def node(r: str, edge: str) -> float:
+        return _node(_exact(bypass="falling", vf="0.3V", rout="20", r=r), edge)
 
-    fast = 20 * 1e-9 * math.log(3.3 / 1.155)  # RS = 0: the fast edge ignores R
-    assert float(rng.min_s) == pytest.approx(slow(9500) - fast, abs=2e-12)
-    assert float(rng.max_s) == pytest.approx(slow(10500) - fast, abs=2e-12)
+    # both edges grow with R: the shortest dead time pairs the high channel's smallest R with
+    # the low channel's largest
+    assert float(rng.min_s) == pytest.approx(
+        node("9.5k", "rising") - node("10.5k", "falling"), abs=2e-12)
+    assert float(rng.max_s) == pytest.approx(
+        node("10.5k", "rising") - node("9.5k", "falling"), abs=2e-12)
 
 
 def test_ranges_round_to_the_safe_side_in_whole_picoseconds() -> None:

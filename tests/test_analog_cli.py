@@ -120,3 +120,51 @@ def test_help_does_not_import_numpy() -> None:
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           env={"PYTHONPATH": str(REPO / "gen")}, check=True)
     assert proc.stdout.strip() == "False"
+
+
+def test_model_and_simulation_are_compared_on_every_edge() -> None:
+    # the default: the charge integral agrees with the transient (well inside 10 %), while the
+    # textbook two-slope form misses the bypassed edge by about 40 % and is shown as a note
+    code, out, _ = run_cli(["analog", *NET, "--simulate", "--json"])
+    assert code == 0
+    data = json.loads(out)
+    for edge in ("rising", "falling"):
+        e = data["edges"][edge]
+        assert e["model"] == "charge integral"
+        assert abs(e["model_vs_sim"]) < 0.01
+    assert data["edges"]["falling"]["textbook_vs_sim"] < -0.3
+    assert data["simulation"]["model_warning"] is False
+    assert any(w.startswith("note: the textbook closed form") for w in data["warnings"])
+    # a tighter --model-warn than the agreement: the loud warning, on every edge that exceeds it
+    code, out, _ = run_cli(["analog", *NET, "--simulate", "--model-warn", "0.001%"])
+    assert code == 0
+    assert "WARNING: THE MODEL AND THE SIMULATION DISAGREE ON THE FALLING EDGE" in out
+    assert "more than --model-warn 0.001 %" in out
+
+
+def test_model_warn_is_checked() -> None:
+    code, _, err = run_cli(["analog", *NET, "--simulate", "--model-warn", "150%"])
+    assert code == 2 and "--model-warn" in err
+
+
+def test_rss_is_labelled_a_statistical_estimate_with_a_note_beyond_the_worst_case() -> None:
+    # GUM 4.3.7: a uniform band of half-width a has sigma = a / sqrt(3), so with a few dominant
+    # uniform bands typ +/- 3 sigma reaches past the worst-case corners; nothing is clipped
+    code, out, _ = run_cli(["analog", *NET])
+    assert code == 0
+    assert "statistical estimate (RSS, typ +/- 3 sigma)" in out
+    assert "RSS 3 sigma" not in out
+    assert "[beyond the worst case, see note]" in out and "1.73 a" in out
+    code, out, _ = run_cli(["analog", *NET, "--json"])
+    data = json.loads(out)
+    for key in ("to_high", "to_low"):
+        row = data["rss"][key]
+        assert row["beyond_worst_case"] is True
+        assert row["low_3sigma_s"] < data[key]["min_s"]  # not clipped
+        assert row["low_3sigma_s"] == pytest.approx(row["typ_s"] - 3 * row["sigma_s"])
+    # normal bands with their ends at 3 sigma: the RSS interval stays inside the corners
+    code, out, _ = run_cli(["analog", *NET, "--distribution", "normal", "--json"])
+    data = json.loads(out)
+    assert all(data["rss"][k]["beyond_worst_case"] is False for k in ("to_high", "to_low"))
+    code, out, _ = run_cli(["analog", *NET, "--distribution", "normal"])
+    assert "[beyond the worst case" not in out and "statistical estimate" in out

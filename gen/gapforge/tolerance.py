@@ -49,6 +49,12 @@ DEFAULT_SAMPLES = 100_000
 CHUNK = 250_000
 _KEEP_ALL_LIMIT = 2_000_000  # up to this many samples the results are kept and sorted directly
 _LEVELS = (0.0, 0.5, 1.0)
+# The node delay grows with every resistance and capacitance of the channel (at each node
+# voltage less current flows, or more charge must move; the tempcos act through R and C
+# linearly), so these take only their band ends in the corner search. Thresholds, the knee,
+# supply and temperature can act both ways and take min, typ and max.
+MONOTONE_PARAMS = frozenset({"rout", "r", "r_tc", "c", "c_tc", "cin", "cstray"})
+_ENDS = (0.0, 1.0)
 
 
 # --------------------------------------------------------------------------------------------
@@ -60,12 +66,14 @@ def evaluate(
     shared: Mapping[str, FloatArray],
     high: Mapping[str, FloatArray],
     low: Mapping[str, FloatArray],
+    *,
+    textbook: bool = False,
 ) -> dict[str, FloatArray]:
     """Node delays of the high channel and the pair's dead times for positions (0/0.5/1)."""
     vh = values_at(net, {**shared, **high})
     vl = values_at(net, {**shared, **low})
-    dh = channel_edge_delays(net, vh)
-    dl = channel_edge_delays(net, vl)
+    dh = channel_edge_delays(net, vh, textbook=textbook)
+    dl = channel_edge_delays(net, vl, textbook=textbook)
     pair = pair_dead_times(net, dh, dl, vh["pair_inverter_delay"])
     result = {"node_rising": dh["node_rising"], "node_falling": dh["node_falling"], **pair}
     shape = np.broadcast_shapes(*(np.shape(v) for v in (*shared.values(), *high.values(),
@@ -76,6 +84,13 @@ def evaluate(
 def typical(net: ReferenceNetwork) -> dict[str, float]:
     half = {"vdd": np.asarray([0.5])}
     result = evaluate(net, half, {}, {})
+    return {k: float(v[0]) for k, v in result.items()}
+
+
+def typical_textbook(net: ReferenceNetwork) -> dict[str, float]:
+    """The typical values by the textbook closed forms (for display beside the model)."""
+    half = {"vdd": np.asarray([0.5])}
+    result = evaluate(net, half, {}, {}, textbook=True)
     return {k: float(v[0]) for k, v in result.items()}
 
 
@@ -96,12 +111,17 @@ class WorstCase:
 def _grid(names: list[str]) -> dict[str, FloatArray]:
     if not names:
         return {}
-    mesh = np.meshgrid(*([np.asarray(_LEVELS)] * len(names)), indexing="ij")
+    levels = [np.asarray(_ENDS if n in MONOTONE_PARAMS else _LEVELS) for n in names]
+    mesh = np.meshgrid(*levels, indexing="ij")
     return {name: m.ravel() for name, m in zip(names, mesh, strict=True)}
 
 
 def corner_extremes(net: ReferenceNetwork) -> dict[str, tuple[float, float, float]]:
-    """min/typ/max over every min/typ/max combination (no Monte Carlo check)."""
+    """min/typ/max over the corners (no Monte Carlo check).
+
+    Every combination of the varying parameters' levels: min/typ/max, or only min/max for the
+    ones the delay grows with (MONOTONE_PARAMS).
+    """
     spread = set(spread_parameters(net))
     shared_names: list[str] = [n for n in ("vdd", "temp") if n in spread]
     shared = _grid(shared_names)

@@ -63,6 +63,9 @@ def _network_options(f: F) -> F:
 @click.option("--leakage-warn", default="20%", show_default=True,
               help="Warn when diode leakage at the hottest corner takes more than this share "
               "of the slow edge (with --simulate).")
+@click.option("--model-warn", default="10%", show_default=True,
+              help="Warn when the model the ranges come from and the transient simulation "
+              "differ by more than this share on any edge (with --simulate).")
 @click.option("--monte-carlo", "monte_carlo", is_flag=False, flag_value="100k", default=None,
               help="Monte Carlo samples (100k when given without a value; up to 10M).")
 @click.option("--seed", type=int, default=1, show_default=True, help="Monte Carlo seed.")
@@ -88,6 +91,7 @@ def command(
     levels: str | None,
     simulate: bool,
     leakage_warn: str,
+    model_warn: str,
     monte_carlo: str | None,
     seed: int,
     distribution: str,
@@ -116,6 +120,7 @@ def command(
         raise GapforgeError("must be greater than zero", "--sigma-band")
     below = parse_quantity(min_dead, "s", "--min-dead") if min_dead is not None else None
     warn_share = parse_tolerance(leakage_warn, "--leakage-warn")
+    model_share = parse_tolerance(model_warn, "--model-warn")
     target = parse_quantity(suggest_t, "s", "--suggest") if suggest_t is not None else None
     report = analyse(
         net,
@@ -126,6 +131,7 @@ def command(
         sigma_band=sigma_band,
         below=below,
         warn_share=warn_share,
+        model_share=model_share,
         target=target,
         suggest_for=suggest_for,
         r_series=series,
@@ -181,6 +187,7 @@ def analyse(
     sigma_band: float = 3.0,
     below: Fraction | None = None,
     warn_share: Fraction = Fraction(1, 5),
+    model_share: Fraction = Fraction(1, 10),
     target: Fraction | None = None,
     suggest_for: str = "to_high",
     r_series: str = "E96",
@@ -188,18 +195,21 @@ def analyse(
 ) -> dict[str, Any]:
     """Everything `analog` reports, as a JSON-ready dict (floats for display only)."""
     from gapforge.analog import bypass_notes, describe_parameters
-    from gapforge.tolerance import monte_carlo, rss, worst_case
+    from gapforge.tolerance import monte_carlo, rss, typical_textbook, worst_case
 
     wc = worst_case(net)
     warnings: list[str] = []
     edges: dict[str, Any] = {}
     notes = bypass_notes(net)
+    textbook = typical_textbook(net)
     for edge in EDGES:
         lo, typ, hi = wc.floats["node_" + edge]
         clo, ctyp, chi = wc.floats[edge]
         edges[edge] = {
             "bypassed": net.bypass == edge,
+            "model": "rc closed form" if net.bypass == "none" else "charge integral",
             "delay_s": typ,
+            "delay_textbook_s": textbook["node_" + edge],
             "min_s": lo,
             "max_s": hi,
             "channel": _range(clo, ctyp, chi),
@@ -246,10 +256,13 @@ def analyse(
     sums = rss(net, distribution, sigma_band)
     report["rss"] = {
         key: {
+            "method": "statistical estimate: typ +/- 3 sigma from root-sum-square "
+            "sensitivities (GUM 5.1.2); the worst case is the bound",
             "typ_s": r.typ,
             "sigma_s": r.sigma,
             "low_3sigma_s": r.low,
             "high_3sigma_s": r.high,
+            "beyond_worst_case": r.low < wc.floats[key][0] or r.high > wc.floats[key][2],
             "contributions": [
                 {"parameter": c.name, "sensitivity": c.sensitivity, "sigma": c.sigma,
                  "contribution_s": c.contribution}
@@ -283,7 +296,8 @@ def analyse(
             },
         }
     if simulate:
-        report["simulation"] = _simulation(net, float(warn_share), edges, warnings)
+        report["simulation"] = _simulation(net, float(warn_share), float(model_share), edges,
+                                           warnings)
     if target is not None:
         from gapforge.preferred import suggest
 
@@ -311,13 +325,36 @@ def analyse(
 
 
 def _simulation(
-    net: ReferenceNetwork, warn_share: float, edges: dict[str, Any], warnings: list[str]
+    net: ReferenceNetwork,
+    warn_share: float,
+    model_share: float,
+    edges: dict[str, Any],
+    warnings: list[str],
 ) -> dict[str, Any]:
     from gapforge.simulate import simulated_node_delays, slow_edge_over_temperature
 
     sim = simulated_node_delays(net)
+    model_off = False
     for edge in EDGES:
-        edges[edge]["delay_sim_s"] = sim[edge]
+        e = edges[edge]
+        e["delay_sim_s"] = sim[edge]
+        e["model_vs_sim"] = e["delay_s"] / sim[edge] - 1.0
+        e["textbook_vs_sim"] = e["delay_textbook_s"] / sim[edge] - 1.0
+        if abs(e["model_vs_sim"]) > model_share:
+            model_off = True
+            warnings.append(
+                f"WARNING: THE MODEL AND THE SIMULATION DISAGREE ON THE {edge.upper()} EDGE: "
+                f"{format_quantity(e['delay_s'], 's')} AGAINST {format_quantity(sim[edge], 's')} "
+                f"({e['model_vs_sim'] * 100:+.1f} %, more than --model-warn "
+                f"{model_share * 100:g} %). Every range, the Monte Carlo and the build window come "
+                "from the model: check this network in a circuit simulator before trusting them."
+            )
+        elif abs(e["textbook_vs_sim"]) > model_share:
+            warnings.append(
+                f"note: the textbook closed form gives {format_quantity(e['delay_textbook_s'], 's')}"
+                f" on the {edge} edge, {e['textbook_vs_sim'] * 100:+.1f} % off the simulation; the "
+                "ranges use the charge integral, which agrees with it"
+            )
     points = slow_edge_over_temperature(net)
     hottest = max(p.temp_c for p in points) if points else None
     loud = False
@@ -339,6 +376,8 @@ def _simulation(
         ],
         "leakage_warning": loud,
         "leakage_warn_share": warn_share,
+        "model_warning": model_off,
+        "model_warn_share": model_share,
     }
 
 
@@ -357,18 +396,38 @@ def render_text(report: dict[str, Any]) -> str:
     for edge in EDGES:
         e = report["edges"][edge]
         kind = "bypassed" if e["bypassed"] else "through R"
-        sim = f"   simulated {_t(e['delay_sim_s'])}" if "delay_sim_s" in e else ""
+        sim = (f"   simulated {_t(e['delay_sim_s'])} ({e['model_vs_sim'] * 100:+.2f} %)"
+               if "delay_sim_s" in e else "")
         lines.append(
             f"  {edge:<8} ({kind:<9}) typ {_t(e['delay_s'])}   range {_t(e['min_s'])} .. "
             f"{_t(e['max_s'])}{sim}"
         )
+    model = report["edges"][EDGES[0]]["model"]
+    lines.append(f"  model: {model}" + ("" if model == "rc closed form" else "; textbook closed "
+                 "form " + ", ".join(f"{edge} {_t(report['edges'][edge]['delay_textbook_s'])}"
+                                     for edge in EDGES) + " (not used: see the docs)"))
     lines += ["", "Dead times of the complementary pair (worst case over all tolerances):"]
+    beyond = []
     for key in PAIR_KEYS:
         r = report[key]
         rss_row = report["rss"][key]
         lines.append(
             f"  {key:<8} min {_t(r['min_s'])}   typ {_t(r['typ_s'])}   max {_t(r['max_s'])}"
-            f"   (RSS 3 sigma {_t(rss_row['low_3sigma_s'])} .. {_t(rss_row['high_3sigma_s'])})"
+        )
+        lines.append(
+            f"  {'':<8} statistical estimate (RSS, typ +/- 3 sigma): "
+            f"{_t(rss_row['low_3sigma_s'])} .. {_t(rss_row['high_3sigma_s'])}"
+            + ("  [beyond the worst case, see note]" if rss_row["beyond_worst_case"] else "")
+        )
+        if rss_row["beyond_worst_case"]:
+            beyond.append(key)
+    if beyond:
+        lines.append(
+            f"  note: for {', '.join(beyond)} the RSS 3-sigma interval reaches beyond the "
+            "worst-case corners. That is expected when a few uniform tolerance bands dominate: "
+            "a uniform band of half-width a has sigma a/sqrt(3) (GUM 4.3.7), so 3 sigma is 1.73 a,"
+            " past the band's own ends. The worst case is the bound; RSS is only an estimate "
+            "(nothing is clipped)."
         )
     widened = report["worst_case"]["widened_by_monte_carlo"]
     lines.append(
