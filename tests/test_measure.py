@@ -16,7 +16,7 @@ from gapforge import capture as capture_module
 from gapforge import measure as measure_module
 from gapforge.capture import CaptureStream, GateCapture, make_capture, stream_of
 from gapforge.errors import GapforgeError
-from gapforge.measure import Limits, Measurement, measure_capture
+from gapforge.measure import Glitch, Limits, Measurement, measure_capture
 
 TICK = Fraction(1, 3 * 10**9)  # a tick that is not a decimal fraction of a second
 
@@ -84,17 +84,51 @@ def test_polarity_inversion_is_transparent(
     assert m.to_low.gaps_ticks.tolist() == gaps_l
 
 
-def test_window_is_exact_at_the_tick() -> None:
-    cap, _, _ = _build([(60, 300, 61, 300)] * 3)
-    # 60 ticks of 1/3 ns = 20 ns exactly: a 20 ns minimum passes, a hair more fails
-    ok = {e: Limits(Fraction(20, 10**9), Fraction(61, 3 * 10**9)) for e in ("to_high", "to_low")}
-    assert measure_capture(cap, limits=ok).verdict == "pass"
-    tight = {"to_high": Limits(Fraction(20, 10**9) + Fraction(1, 10**18), None)}
-    m = measure_capture(cap, limits=tight)
+def test_window_judged_with_the_resolution_exactly() -> None:
+    # S3: a measured gap g may be off by less than the resolution r either way, so it passes a
+    # minimum only if g - r >= min and a maximum only if g + r <= max. Here r = 1 tick = 1/3 ns.
+    cap, _, _ = _build([(60, 300, 61, 300)] * 3)  # to_high 60 ticks (20 ns), to_low 61 ticks
+    m = measure_capture(cap, limits={e: Limits(Fraction(20, 10**9), None) for e in ("to_high",)})
+    # 60 - 1 = 59 ticks = 19.67 ns < 20 ns: not proven, although the gap reads exactly 20 ns
     assert m.verdict == "fail" and m.to_high.below_window == 3
-    high = {"to_low": Limits(None, Fraction(20, 10**9))}
-    m = measure_capture(cap, limits=high)
+    assert m.resolution_s == TICK and m.resolution_ticks == 1
+    # 59 ticks = 59/3 ns is the largest minimum that 60 ticks proves: 60 - 1 = 59 >= 59 passes
+    ok = {"to_high": Limits(Fraction(59, 3 * 10**9), None),
+          "to_low": Limits(None, Fraction(62, 3 * 10**9))}  # 61 + 1 = 62 <= 62 passes
+    assert measure_capture(cap, limits=ok).verdict == "pass"
+    # a hair more (10**-18 s) on the minimum, a hair less on the maximum: each fails
+    hair = Fraction(1, 10**18)
+    m = measure_capture(cap, limits={"to_high": Limits(Fraction(59, 3 * 10**9) + hair, None)})
+    assert m.verdict == "fail" and m.to_high.below_window == 3
+    m = measure_capture(cap, limits={"to_low": Limits(None, Fraction(62, 3 * 10**9) - hair)})
     assert m.verdict == "fail" and m.to_low.above_window == 3 and m.to_high.above_window == 0
+    assert any("gap + resolution > maximum" in r for r in m.reasons)
+
+
+def test_resolution_widened_never_narrowed() -> None:
+    cap, _, _ = _build([(60, 300, 61, 300)] * 2)
+    coarse = make_capture(TICK, (cap.high_times, cap.high_levels), (cap.low_times, cap.low_levels),
+                          end=cap.end, resolution_ticks=6)
+    lim = {"to_high": Limits(Fraction(18, 10**9), None)}  # 18 ns = 54 ticks
+    # own resolution 6 ticks: 60 - 6 = 54 >= 54 passes
+    assert measure_capture(coarse, limits=lim).verdict == "pass"
+    # widened to 2.1 ns = 6.3 ticks, rounded up to 7: 60 - 7 = 53 < 54 fails
+    wide = measure_capture(coarse, limits=lim, resolution_s=Fraction(21, 10**10))
+    assert wide.verdict == "fail" and wide.resolution_s == 7 * TICK
+    # a finer resolution than the capture's own is ignored
+    assert measure_capture(coarse, limits=lim, resolution_s=TICK).resolution_s == 6 * TICK
+    with pytest.raises(GapforgeError, match="above zero"):
+        measure_capture(coarse, resolution_s=Fraction(0))
+
+
+def test_gap_inside_the_resolution_proves_no_dead_time() -> None:
+    # a 3-tick gap read with a resolution of 4 ticks may truly be -1 tick: an overlap
+    cap, _, _ = _build([(3, 300, 50, 300)] * 2)
+    coarse = make_capture(TICK, (cap.high_times, cap.high_levels), (cap.low_times, cap.low_levels),
+                          end=cap.end, resolution_ticks=4)
+    m = measure_capture(coarse)
+    assert m.verdict == "fail" and any("no dead time proven" in r for r in m.reasons)
+    assert measure_capture(cap).verdict == "measured"  # with one tick, 3 ticks is a real gap
 
 
 def test_statistics_and_worst_instances() -> None:
@@ -116,19 +150,67 @@ def test_statistics_and_worst_instances() -> None:
     assert [i.at_s for i in st_h.longest] == [starts[4] * TICK, starts[2] * TICK]
 
 
-def test_glitch_listed_and_left_out() -> None:
-    # low side on, a 3-tick on-pulse on the high side during the low side's dead time
-    ht = np.array([0, 100, 103, 200, 500], dtype=np.int64)
+NS = Fraction(1, 10**9)
+
+
+def _s5(glitch: bool = True, dropout: bool = False) -> GateCapture:
+    """S5: low side on until 100 ns; the high side pulses on 2 ns wide 10 ns after the low
+    side turns off (at 110 ns), then turns on for real at 130 ns; off at 500, low on at 600."""
+    ht = [0, 110, 112, 130, 500] if glitch else [0, 130, 500]
+    hv = [0, 1, 0, 1, 0] if glitch else [0, 1, 0]
+    if dropout:  # the high side drops out for 2 ns while on
+        ht, hv = [*ht[:-1], 300, 302, 500], [*hv[:-1], 0, 1, 0]
+    lt, lv = [0, 100, 600], [1, 0, 1]
+    return make_capture(NS, (np.array(ht, np.int64), np.array(hv, np.uint8)),
+                        (np.array(lt, np.int64), np.array(lv, np.uint8)), end=900)
+
+
+def test_glitch_never_lengthens_a_gap() -> None:
+    window = {e: Limits(30 * NS, 200 * NS) for e in ("to_high", "to_low")}
+    raw = measure_capture(_s5(), limits=window)
+    filtered = measure_capture(_s5(), limits=window, glitch_width_s=5 * NS)
+    # the gap ends at the first on-edge, the glitch's, with or without --glitch: 110 - 100
+    for m in (raw, filtered):
+        assert m.to_high.gaps_ticks.tolist() == [10] and m.to_high.min_s == 10 * NS
+        assert m.to_low.gaps_ticks.tolist() == [100]
+        assert m.verdict == "fail" and m.to_high.below_window == 1
+    assert raw.glitch_count == 0 and raw.missing_edge_count == 1  # on, off, on: an edge lost?
+    assert filtered.glitches == (Glitch("high", 1, 110 * NS, 2 * NS, in_dead_time=True),)
+    assert filtered.glitch_count == 1 and filtered.missing_edge_count == 0  # explained
+    # a window the 10 ns gap meets (10 - 1 >= 5): the on-pulse glitch alone fails it
+    loose = {e: Limits(5 * NS, 200 * NS) for e in ("to_high", "to_low")}
+    m = measure_capture(_s5(), limits=loose, glitch_width_s=5 * NS)
+    assert m.verdict == "fail" and m.to_high.below_window == 0
+    assert m.reasons == ("1 on-pulse glitch(es): a gate briefly on (inside a dead time it ends "
+                         "the dead time early)",)
+    # without --glitch the pulse is an unexplained on-off-on: the capture proves nothing
+    assert measure_capture(_s5(), limits=loose).verdict == "inconclusive"
+    # the clean capture (no pulse) passes the 30 ns minimum: 30 - 1 >= 30 fails, 29 passes
+    clean = measure_capture(_s5(glitch=False), limits={"to_high": Limits(29 * NS, None)})
+    assert clean.to_high.gaps_ticks.tolist() == [30] and clean.verdict == "pass"
+
+
+def test_dropout_glitch_is_listed_but_harmless() -> None:
+    window = {e: Limits(20 * NS, 200 * NS) for e in ("to_high", "to_low")}
+    cap = _s5(glitch=False, dropout=True)
+    m = measure_capture(cap, limits=window, glitch_width_s=5 * NS)
+    assert m.glitches == (Glitch("high", 0, 300 * NS, 2 * NS),)
+    assert m.verdict == "pass" and m.missing_edge_count == 0
+    assert m.to_high.gaps_ticks.tolist() == [30] and m.to_low.gaps_ticks.tolist() == [100]
+    # without --glitch the dropout is an unexplained off-on: a missing edge, inconclusive
+    unfiltered = measure_capture(cap, limits=window)
+    assert unfiltered.verdict == "inconclusive" and unfiltered.missing_edge_count == 1
+    assert unfiltered.failed
+
+
+def test_zero_width_pulse_is_always_a_glitch() -> None:
+    # two changes of the high side at one time stamp (a pulse narrower than a tick)
+    ht = np.array([0, 110, 110, 130, 500], dtype=np.int64)
     hv = np.array([0, 1, 0, 1, 0], dtype=np.uint8)
-    lt = np.array([0, 50, 560], dtype=np.int64)
-    lv = np.array([1, 0, 1], dtype=np.uint8)
-    cap = make_capture(TICK, (ht, hv), (lt, lv), end=900)
-    raw = measure_capture(cap)
-    assert raw.to_high.gaps_ticks.tolist() == [50]
-    filtered = measure_capture(cap, glitch_width_s=5 * TICK)
-    assert len(filtered.glitches) == 1 and filtered.glitches[0].width_s == 3 * TICK
-    assert filtered.to_high.gaps_ticks.tolist() == [150]
-    assert filtered.to_low.gaps_ticks.tolist() == [60]
+    lt, lv = np.array([0, 100, 600], np.int64), np.array([1, 0, 1], np.uint8)
+    m = measure_capture(make_capture(NS, (ht, hv), (lt, lv)), limits={"to_high": Limits(NS)})
+    assert m.glitches == (Glitch("high", 1, 110 * NS, Fraction(0), in_dead_time=True),)
+    assert m.verdict == "fail"
 
 
 def test_glitch_overlap_is_never_hidden() -> None:
@@ -141,6 +223,54 @@ def test_glitch_overlap_is_never_hidden() -> None:
     assert m.verdict == "fail"
 
 
+def test_unknown_level_against_an_on_gate_is_a_possible_overlap() -> None:
+    # S4: high side x for 10 ns while the low side is on; low side z for 5 ns while the high
+    # side is on; later both gates unknown for 4 ns; one x on the high side while the low is off
+    ht = np.array([0, 50, 60, 130, 500, 700, 704, 750, 760], dtype=np.int64)
+    hv = np.array([0, 2, 0, 1, 0, 2, 0, 2, 0], dtype=np.uint8)
+    lt = np.array([0, 100, 300, 305, 600, 650, 700, 704], dtype=np.int64)
+    lv = np.array([1, 0, 3, 0, 1, 0, 3, 0], dtype=np.uint8)
+    m = measure_capture(make_capture(NS, (ht, hv), (lt, lv), end=900))
+    assert [(o.at_s, o.duration_s) for o in m.possible_overlaps] == [
+        (50 * NS, 10 * NS), (300 * NS, 5 * NS), (700 * NS, 4 * NS)]
+    assert len(m.overlaps) == 0 and m.verdict == "fail"  # even without a window
+    assert m.reasons[0].startswith("3 possible overlap(s)")
+    assert m.unknown_intervals == 4  # the x at 750 (low side off) is unknown but harmless
+    # the hand-over that does not pass through x is measured
+    assert m.to_high.gaps_ticks.tolist() == [30]
+
+
+def test_possible_overlap_runs_to_the_end_and_across_states() -> None:
+    # low on; high x then z (two unknown states in one run), to the end of the capture
+    ht = np.array([0, 200, 210], dtype=np.int64)
+    hv = np.array([0, 2, 3], dtype=np.uint8)
+    lt = np.array([0, 100, 150], dtype=np.int64)
+    lv = np.array([1, 0, 1], dtype=np.uint8)
+    m = measure_capture(make_capture(NS, (ht, hv), (lt, lv), end=400))
+    assert [(o.at_s, o.duration_s) for o in m.possible_overlaps] == [(200 * NS, 200 * NS)]
+
+
+def test_unknown_while_the_other_is_off_is_inconclusive_with_a_window() -> None:
+    # high x for 10 ns inside the to_low dead time: that hand-over cannot be measured
+    ht = np.array([0, 130, 500, 550, 560], dtype=np.int64)
+    hv = np.array([0, 1, 0, 2, 0], dtype=np.uint8)
+    lt, lv = np.array([0, 100, 600], np.int64), np.array([1, 0, 1], np.uint8)
+    cap = make_capture(NS, (ht, hv), (lt, lv))
+    assert measure_capture(cap).verdict == "measured"
+    m = measure_capture(cap, limits={"to_high": Limits(20 * NS, None)})
+    assert m.verdict == "inconclusive" and len(m.possible_overlaps) == 0
+    assert m.to_low.count == 0
+
+
+def test_lost_events_of_the_capture_are_missing_edges() -> None:
+    cap, _, _ = _build([(60, 300, 61, 300)] * 2)
+    lossy = make_capture(TICK, (cap.high_times, cap.high_levels), (cap.low_times, cap.low_levels),
+                         end=cap.end, lost_events=2)
+    assert measure_capture(lossy).missing_edge_count == 2
+    m = measure_capture(lossy, limits={"to_high": Limits(TICK, None)})
+    assert m.verdict == "inconclusive" and "cannot prove" in m.reasons[-1]
+
+
 def test_missing_edges() -> None:
     # low turns off, then back on without the high side ever turning on
     ht = np.array([0, 400, 600], dtype=np.int64)
@@ -149,7 +279,11 @@ def test_missing_edges() -> None:
     lv = np.array([1, 0, 1, 0, 1], dtype=np.uint8)
     m = measure_capture(make_capture(TICK, (ht, hv), (lt, lv)))
     assert len(m.missing_edges) == 1 and m.missing_edges[0].at_s == 100 * TICK
-    assert m.to_high.gaps_ticks.tolist() == [50]
+    assert m.to_high.gaps_ticks.tolist() == [50] and m.verdict == "measured"
+    # with a window set, a capture with missing edges cannot prove the dead time
+    judged = measure_capture(make_capture(TICK, (ht, hv), (lt, lv)),
+                             limits={"to_high": Limits(10 * TICK, None)})
+    assert judged.verdict == "inconclusive" and judged.failed
     # a level reported twice: the edge between is lost
     lt2 = np.array([0, 100, 350, 650], dtype=np.int64)
     lv2 = np.array([1, 0, 0, 1], dtype=np.uint8)
@@ -188,7 +322,8 @@ def _summary(m: Measurement) -> tuple[object, ...]:
         m.to_high.shortest, m.to_high.longest, m.to_low.shortest, m.to_low.longest,
         m.to_high.percentiles, m.to_low.histogram_counts, m.overlaps, m.glitches,
         m.missing_edges, m.unknown_intervals, m.verdict, m.reasons, m.notes, m.duration_s,
-        m.mean_period_s,
+        m.mean_period_s, m.possible_overlaps, m.glitch_count, m.missing_edge_count,
+        m.resolution_s,
     )
 
 
@@ -342,3 +477,72 @@ def test_overlap_on_every_period_held_compactly() -> None:
     assert m.overlaps == tuple(m.overlaps)  # compares equal to a tuple of the same Overlap items
     assert m.overlap_at_s[10] == pytest.approx(float(m.overlaps[10].at_s))
     assert m.to_high.gaps_ticks.tolist() == gaps_h and m.verdict == "fail"
+
+
+def _reference_glitches_and_possible(
+    evs: list[tuple[int, bool, int]], width: int, initial: tuple[int, int], end: int
+) -> tuple[list[Glitch], list[tuple[int, int]]]:
+    """A plain loop written from the module docstring's rules: a glitch is a clean pulse of
+    one gate shorter than `width` ticks (zero width always); a possible overlap is a run of
+    joint states with one gate x/z and the other on or x/z."""
+    t = 0
+    timed: list[tuple[int, bool, int]] = []
+    for dt, high, value in evs:
+        t += dt
+        timed.append((t, high, value))
+    # the joint state after all changes at each time
+    after: dict[int, tuple[int, int]] = {}
+    level = {True: initial[0], False: initial[1]}
+    for when, high, value in timed:
+        level[high] = value
+        after[when] = (level[True], level[False])
+    glitches: list[Glitch] = []
+    for high in (True, False):
+        changes: list[tuple[int | None, int]] = [(None, initial[0 if high else 1])]
+        for when, side, value in timed:
+            if side == high and value != changes[-1][1]:
+                changes.append((when, value))
+        for k in range(1, len(changes) - 1):
+            (_, before), (start, v), (stop, nxt) = changes[k - 1], changes[k], changes[k + 1]
+            assert start is not None and stop is not None
+            if stop - start < max(width, 1) and max(before, v, nxt) <= 1:
+                other = after[start][1 if high else 0]
+                glitches.append(Glitch("high" if high else "low", v, start * TICK,
+                                       (stop - start) * TICK, v == 1 and other == 0))
+    glitches.sort(key=lambda g: (g.at_s, g.signal))
+    states: list[tuple[int, tuple[int, int]]] = []
+    for when in sorted(after):
+        if not states or states[-1][1] != after[when]:
+            states.append((when, after[when]))
+    runs: list[tuple[int, int]] = []
+    open_at: int | None = None
+    for when, (h, lo) in states:
+        risky = h != 0 and lo != 0 and (h, lo) != (1, 1)
+        if risky and open_at is None:
+            open_at = when
+        elif not risky and open_at is not None:
+            runs.append((open_at, when - open_at))
+            open_at = None
+    if open_at is not None:
+        runs.append((open_at, max(end, t) - open_at))
+    return glitches, runs
+
+
+@settings(max_examples=150, deadline=None)
+@given(events, st.lists(st.integers(0, 80), max_size=6), st.booleans(), st.sampled_from([0, 3, 20]))
+def test_glitches_and_possible_overlaps_against_a_per_event_loop(
+    evs: list[tuple[int, bool, int]], cuts: list[int], edges_only: bool, width: int
+) -> None:
+    cap = _capture(evs, edges_only)
+    if cap.high_times.size == 0 or cap.low_times.size == 0:
+        return
+    try:
+        m = measure_capture(_stream(cap, cuts), glitch_width_s=width * TICK)
+    except GapforgeError:
+        return  # no transitions at all (checked elsewhere)
+    glitches, runs = _reference_glitches_and_possible(
+        evs, width, (cap.high_initial, cap.low_initial), cap.end)
+    assert list(m.glitches) == glitches and m.glitch_count == len(glitches)
+    assert [(int(o.at_s / TICK), int(o.duration_s / TICK)) for o in m.possible_overlaps] == runs
+    if runs:
+        assert m.verdict == "fail"

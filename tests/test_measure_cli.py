@@ -154,15 +154,19 @@ def test_serial_over_pty(tmp_path: Path) -> None:
 
     thread = threading.Thread(target=writer, daemon=True)
     thread.start()
-    proc = _run(["measure", "--serial", name, "--baud", "2000000", "--count", "120",
+    proc = _run(["measure", "--serial", name, "--baud", "2000000", "--count", "60",
                  "--idle-timeout", "5s", "--window", "20ns:40ns", "--json"])
     thread.join()
     os.close(master)
     os.close(slave)
     assert proc.returncode == 0, proc.stderr
     doc = json.loads(proc.stdout)
-    assert doc["stream"]["stop_reason"] == "edge count reached (120)"
-    assert doc["edges"]["to_high"]["count"] == 30
+    # 60 transitions: every to_high and to_low of the 30 periods (120 edges)
+    assert doc["stream"]["stop_reason"] == "transition count reached (60)"
+    assert doc["stream"]["transitions"] == 60 and doc["stream"]["edges"] == 120
+    assert doc["edges"]["to_high"]["count"] == 30 and doc["edges"]["to_low"]["count"] == 30
+    # judged with one 1 ns counter tick: 25 - 1 >= 20 and 33 + 1 <= 40
+    assert doc["resolution_s"] == pytest.approx(1e-9) and doc["verdict"] == "pass"
     assert doc["edges"]["to_low"]["min_s"] == pytest.approx(33e-9)
 
 

@@ -77,16 +77,57 @@ def _feed(port: serial.SerialBase, data: bytes) -> threading.Thread:
     return thread
 
 
-def test_loop_url_stops_after_count() -> None:
+def test_loop_url_stops_after_count_transitions() -> None:
+    # --count counts dead-time transitions (hand-overs), not edges: 25 transitions are 12 whole
+    # periods (L0 H1 H0 L1: a to_high and a to_low each) and the next L0 H1 (the 25th)
     port = serial.serial_for_url("loop://", baudrate=2_000_000, timeout=0.05)
     port.write_timeout = 2.0
     _feed(port, _lines(30, 123))
-    result = read_serial("loop://", 2_000_000, max_edges=50, idle_timeout_s=1.0, port=port)
-    assert result.stop_reason == "edge count reached (50)"
+    result = read_serial("loop://", 2_000_000, max_transitions=25, idle_timeout_s=1.0, port=port)
+    assert result.stop_reason == "transition count reached (25)"
     assert result.capture is not None
     m = measure_capture(result.capture)
-    assert result.status.edges >= 50 and m.to_low.count == 12
+    assert result.status.transitions == 25 and result.status.edges == 12 * 4 + 2
+    assert m.to_high.count + m.to_low.count == 25 and m.to_low.count == 12
     assert set(m.to_high.gaps_ticks.tolist()) == {7} and m.to_high.count == 13
+    assert result.status.partial == 0  # the lines after the stop are not read, not partial
+
+
+def test_transitions_counted_after_polarity() -> None:
+    # the same stream read with both gates active low: an "off" line is the gate turning on,
+    # so the hand-overs fall on the other edges; still one per to_high and to_low gap
+    data = _lines(10, 0)
+    plain, inverted = LineDecoder(), LineDecoder(active_low=(True, True))
+    plain.feed(data)
+    inverted.feed(data)
+    assert plain.status.transitions == 20  # L0 then H1, H0 then L1: two hand-overs per period
+    cap = inverted.capture("test", active_low_high=True, active_low_low=True)
+    assert cap is not None
+    m = measure_capture(cap)
+    assert inverted.status.transitions == m.to_high.count + m.to_low.count
+    stopped = LineDecoder(stop_after=3)
+    stopped.feed(data)
+    assert stopped.stopped == "transition count reached (3)" and stopped.status.edges == 6
+    # inverted, every hand-over overlaps: the 3rd completes when the outgoing gate turns off
+    # (edges: low on, high off [1], high on, low off [2], low on, high off [3])
+    late = LineDecoder(active_low=(True, True), stop_after=3)
+    late.feed(data)
+    assert late.stopped == "transition count reached (3)" and late.status.edges == 6
+    cap = late.capture("test", active_low_high=True, active_low_low=True)
+    assert cap is not None
+    m = measure_capture(cap)
+    assert m.to_high.count + m.to_low.count == 3 and len(m.overlaps) == 3
+
+
+def test_lost_lines_make_missing_edges_and_one_tick_resolution() -> None:
+    lines = _lines(5, 0).split(b"\n")
+    del lines[3]  # drop one edge line (the first period's H0)
+    dec = LineDecoder()
+    dec.feed(b"\n".join(lines))
+    cap = dec.capture("test")
+    assert cap is not None and cap.lost_events == 1 and cap.resolution_ticks == 1
+    m = measure_capture(cap)
+    assert m.resolution_s == Fraction(1, CLOCK) and m.missing_edge_count >= 1
 
 
 def test_loop_url_idle_timeout_reports_what_was_measured() -> None:

@@ -29,6 +29,19 @@ a directive `# sample_period: 10ns` before the header (row k is at k * period)::
 <unit> is s, ms, us, ns, ps or fs; times are decimal numbers, read exactly. Levels are 0, 1, x or
 z. In the sampled layout an edge is placed at the first sample that shows the new level, so a
 measured gap is accurate to one sample period.
+
+Resolution
+----------
+Every capture carries its resolution: how far a measured gap may be from the true one (less than
+this either way). The measurement judges a gap conservatively with it (measure.py).
+- sampled CSV: one sample period (`sample_period`); with a time column, the longest spacing
+  before any sample where a chosen signal changes (an edge lies somewhere in that spacing);
+- edge CSV: one tick, the finest decimal step of the times in the file (as written; writers
+  drop trailing zeros, so the finest step is the precision of every row);
+- VCD: one tick of the $timescale (the finest time the file can state);
+- serial stream: one counter tick (both edges of a gap are latched by the same counter).
+A logic analyser may sample more coarsely than its file's time unit: `gapforge measure
+--resolution` widens the resolution (it never narrows it).
 """
 
 from __future__ import annotations
@@ -72,6 +85,8 @@ class GateCapture:
     # levels before the first change (2 = unknown); an edge stream implies them
     high_initial: int = 2
     low_initial: int = 2
+    resolution_ticks: int = 1  # a measured gap is within this many ticks of the true gap
+    lost_events: int = 0  # edges known to be missing (a serial stream's sequence gaps)
 
 
 # one chunk of change events of both gates in time order: times (ticks), sides (0 = high side,
@@ -97,11 +112,17 @@ class CaptureStream:
         *,
         high_initial: int = 2,
         low_initial: int = 2,
+        resolution_ticks: int = 1,
+        lost_events: int = 0,
     ) -> None:
+        if resolution_ticks < 1:
+            raise ValueError("resolution_ticks must be at least 1")
         self.tick_s = tick_s
         self.source = source
         self.high_initial = high_initial
         self.low_initial = low_initial
+        self.resolution_ticks = resolution_ticks
+        self.lost_events = lost_events
         self._chunks = chunks
         self._sorted = sorted_chunks
         self._finished = finished
@@ -147,7 +168,9 @@ def stream_of(capture: GateCapture) -> CaptureStream:
 
     return CaptureStream(capture.tick_s, capture.source, windows, windows,
                          lambda: (capture.end, capture.warnings),
-                         high_initial=capture.high_initial, low_initial=capture.low_initial)
+                         high_initial=capture.high_initial, low_initial=capture.low_initial,
+                         resolution_ticks=capture.resolution_ticks,
+                         lost_events=capture.lost_events)
 
 
 def _merge(
@@ -203,8 +226,9 @@ def open_capture(
         for chunk in events.sorted_chunks():
             yield polarity(chunk)
 
+    # resolution: one tick of the $timescale
     return CaptureStream(events.timescale_s, str(path), ordered, whole,
-                         lambda: (events.end_time, events.warnings))
+                         lambda: (events.end_time, events.warnings), resolution_ticks=1)
 
 
 def invert(levels: npt.NDArray[np.uint8]) -> npt.NDArray[np.uint8]:
@@ -226,11 +250,16 @@ def make_capture(
     active_low_low: bool = False,
     warnings: tuple[str, ...] = (),
     edges_only: bool = False,
+    resolution_ticks: int = 1,
+    lost_events: int = 0,
 ) -> GateCapture:
     """Build a capture from raw levels (as recorded), applying the polarity options.
 
     `edges_only`: every change is an edge, so each signal's level before its first change is
-    the opposite of that change (a stream of edge reports)."""
+    the opposite of that change (a stream of edge reports). `resolution_ticks`: a measured gap
+    is within this many ticks of the true one (1 = one tick)."""
+    if resolution_ticks < 1:
+        raise ValueError("resolution_ticks must be at least 1")
     ht, hv = np.asarray(high[0], dtype=np.int64), np.asarray(high[1], dtype=np.uint8)
     lt, lv = np.asarray(low[0], dtype=np.int64), np.asarray(low[1], dtype=np.uint8)
     if active_low_high:
@@ -240,7 +269,8 @@ def make_capture(
     last = max(int(ht[-1]) if ht.size else 0, int(lt[-1]) if lt.size else 0)
     hi0 = int(1 - hv[0]) if edges_only and hv.size and hv[0] <= 1 else 2
     lo0 = int(1 - lv[0]) if edges_only and lv.size and lv[0] <= 1 else 2
-    return GateCapture(tick_s, ht, hv, lt, lv, max(last, end or 0), source, warnings, hi0, lo0)
+    return GateCapture(tick_s, ht, hv, lt, lv, max(last, end or 0), source, warnings, hi0, lo0,
+                       resolution_ticks, lost_events)
 
 
 def load_capture(
@@ -270,15 +300,16 @@ def load_capture(
             active_low_low=active_low_low,
             warnings=data.warnings,
         )
-    tick, signals, end = read_csv(path, [high, low])
+    csv = read_csv(path, [high, low])
     return make_capture(
-        tick,
-        signals[high],
-        signals[low],
-        end=end,
+        csv.tick_s,
+        csv.signals[high],
+        csv.signals[low],
+        end=csv.end,
         source=str(path),
         active_low_high=active_low_high,
         active_low_low=active_low_low,
+        resolution_ticks=csv.resolution_ticks,
     )
 
 
@@ -299,8 +330,18 @@ def _kind(path: Path) -> str:
 Signals = dict[str, tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8]]]
 
 
-def read_csv(path: Path, names: list[str]) -> tuple[Fraction, Signals, int]:
-    """Read a gapforge capture CSV: (tick_s, {name: (times, levels)}, end tick)."""
+@dataclass(frozen=True)
+class CsvData:
+    """A capture CSV read: the tick, {name: (times, levels)}, the end tick, the resolution."""
+
+    tick_s: Fraction
+    signals: Signals
+    end: int
+    resolution_ticks: int
+
+
+def read_csv(path: Path, names: list[str]) -> CsvData:
+    """Read a gapforge capture CSV (either layout, see the module docstring)."""
     where = str(path)
     try:
         raw = path.read_bytes()
@@ -382,7 +423,7 @@ def _check_names(names: list[str], present: list[str], where: str) -> None:
 
 def _edges(
     rows: list[tuple[int, list[str]]], names: list[str], unit: Fraction, where: str
-) -> tuple[Fraction, Signals, int]:
+) -> CsvData:
     times, denominator = _exact_times([(n, cells[0]) for n, cells in rows], where)
     present = sorted({cells[1] for _, cells in rows})
     _check_names(names, present, where)
@@ -398,7 +439,8 @@ def _edges(
             np.array([t for t, _ in sel], dtype=np.int64),
             np.array([v for _, v in sel], dtype=np.uint8),
         )
-    return unit / denominator, out, ticks[-1]
+    # resolution: one tick, the finest decimal step of the times as written
+    return CsvData(unit / denominator, out, ticks[-1], 1)
 
 
 def _samples(
@@ -409,7 +451,7 @@ def _samples(
     unit: Fraction | None,
     directives: dict[str, str],
     where: str,
-) -> tuple[Fraction, Signals, int]:
+) -> CsvData:
     from gapforge.quantities import parse_quantity
 
     first_signal = 1 if unit is not None else 0
@@ -432,11 +474,17 @@ def _samples(
         tick = parse_quantity(directives["sample_period"], "s", f"{where}: sample_period")
         ticks = list(range(len(rows)))
     out: Signals = {}
+    t = np.array(ticks, dtype=np.int64)
+    spacing = np.diff(t)  # spacing[k - 1]: from sample k - 1 to sample k
+    resolution = 1  # with a sample period: one tick is one sample period
     for name in names:
         col = first_signal + columns.index(name)
         levels = np.array([_level(cells[col], f"{where}:{n}") for n, cells in rows], dtype=np.uint8)
-        t = np.array(ticks, dtype=np.int64)
         keep = np.ones(levels.size, dtype=bool)
         keep[1:] = levels[1:] != levels[:-1]
         out[name] = (t[keep], levels[keep])
-    return tick, out, ticks[-1]
+        changed = np.flatnonzero(keep[1:])  # sample k = changed + 1 shows a new level
+        if unit is not None and changed.size:
+            # the edge lies somewhere after the sample before: the longest such spacing
+            resolution = max(resolution, int(spacing[changed].max()))
+    return CsvData(tick, out, ticks[-1], resolution)

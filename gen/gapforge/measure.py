@@ -3,24 +3,39 @@
 Every time is an integer count of capture ticks; the tick length is an exact Fraction, so a gap
 is compared with a window limit exactly. Floats appear only in statistics and plotting arrays.
 
-Transitions are read from the joint state of the two gates (high side, low side) at each change:
+Transitions are read from the joint state of the two gates (high side, low side) at each change
+(several changes at one time stamp are simultaneous: the state after all of them counts):
 - `to_high`: low side turns off, both are off (the dead time), high side turns on. The gap is the
   time both are off; 0 if one turns off as the other turns on; negative (minus the overlap
-  duration) if the high side turns on before the low side is off.
+  duration) if the high side turns on before the low side is off. The gap always ends at the
+  first on-edge, even the on-edge of a glitch: a glitch never lengthens a gap.
 - `to_low`: the same from high side on to low side on.
-- an overlap is any interval with both gates on (shoot-through), reported with its start time,
-  measured on the raw signals (glitch filtering never hides one).
-- a glitch is a pulse on one gate shorter than the set width; glitches are listed and then left
-  out of the dead-time statistics.
+- an overlap is any interval with both gates on (shoot-through), reported with its start time.
+- a possible overlap is any interval where one gate is unknown (x or z) while the other is on or
+  also unknown: it may be a shoot-through, so it fails like one.
+- a glitch is a pulse on one gate shorter than the set width (`--glitch`; a pulse of zero width,
+  two changes at one time stamp, always is one). Glitches are listed; they stay in the
+  measurement (every gap and overlap is measured on the signals as captured). An on-pulse
+  glitch fails the verdict when a window is set (inside a dead time it ends the dead time early
+  and then leaves both gates off again). A missing-edge finding that a glitch explains (a gate
+  on for a glitch and off again, or off for a glitch and on again) is not listed.
 - a missing edge: a dead time that ends with the same gate turning on again (the other gate never
-  turned on), or a level reported twice in a row (an edge between them was lost).
+  turned on), a level reported twice in a row (an edge between them was lost), or an edge the
+  capture itself reports lost (a serial stream's sequence gap). With a window set, a capture
+  with missing edges, or with an unknown level after the first known levels (a dead time
+  through x/z cannot be measured), cannot prove the dead time: the verdict is "inconclusive"
+  (exit 1) unless something fails outright.
+
+Judgement with the capture's resolution r (ticks; capture.py): a measured gap g may be off by
+less than r either way, so it passes a window minimum only if g - r >= min and a maximum only if
+g + r <= max (exact integers), and a transition with g < r has no proven dead time at all.
 
 The measurement is one incremental engine over the events of both gates in time order, fed chunk
 by chunk (a whole capture in memory is one chunk). It carries the current level of each gate, the
-changes at the last timestamp (they may go on in the next chunk) and the last two joint states,
-so a chunk boundary never changes a result. It keeps every gap (int32 ticks where they fit) but
-time stamps only for the worst instances and the overlaps. Listed findings stop at 1000 per kind
-and side.
+changes at the last timestamp (they may go on in the next chunk), the last two joint states and
+the last two level changes of each gate, so a chunk boundary never changes a result. It keeps
+every gap (int32 ticks where they fit) but time stamps only for the worst instances and the
+(possible) overlaps. Listed findings stop at 1000 per kind and side; their counts do not.
 """
 
 from __future__ import annotations
@@ -42,6 +57,10 @@ DEFAULT_PERCENTILES = (1.0, 5.0, 50.0, 95.0, 99.0)
 
 # joint state code = high * 4 + low, levels 0/1/2 (x)/3 (z)
 _OFF, _LOW_ON, _HIGH_ON, _BOTH = 0, 1, 4, 5
+# a joint state with an unknown (x/z) level
+_UNKNOWN = np.array([(s >> 2) >= 2 or (s & 3) >= 2 for s in range(16)], dtype=bool)
+# one gate unknown while the other is on or unknown: a possible shoot-through
+_RISKY = np.array([(s >> 2) != 0 and (s & 3) != 0 and s != _BOTH for s in range(16)], dtype=bool)
 
 Ints = npt.NDArray[np.int64]
 Floats = npt.NDArray[np.float64]
@@ -124,12 +143,17 @@ class Overlaps(Sequence[Overlap]):
         return self.starts_ticks.astype(np.float64) * float(self.tick_s)
 
 
+def _no_overlaps(tick: Fraction) -> Overlaps:
+    return Overlaps(tick, np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64))
+
+
 @dataclass(frozen=True)
 class Glitch:
     signal: str  # "high" or "low"
     level: int  # the level of the short pulse (1 = a short on-pulse)
     at_s: Fraction
     width_s: Fraction
+    in_dead_time: bool = False  # an on-pulse while the other gate was off
 
 
 @dataclass(frozen=True)
@@ -186,15 +210,22 @@ class Measurement:
     to_high: EdgeStats
     to_low: EdgeStats
     overlaps: Overlaps  # a sequence of Overlap
-    glitches: tuple[Glitch, ...]
-    missing_edges: tuple[Finding, ...]
+    glitches: tuple[Glitch, ...]  # listed (up to 1000 per side), in time order
+    missing_edges: tuple[Finding, ...]  # listed (up to 1000 per kind and side)
     unknown_intervals: int
     limits: Mapping[str, Limits]
-    verdict: str  # "pass", "fail" or "measured" (no window to judge against)
+    # "pass", "fail", "inconclusive" (a window is set but missing edges leave the capture
+    # unable to prove it) or "measured" (no window to judge against)
+    verdict: str
     reasons: tuple[str, ...]
     notes: tuple[str, ...] = field(default=())
     warnings: tuple[str, ...] = field(default=())
     mean_period_s: Fraction | None = None  # between successive to_high transitions
+    resolution_s: Fraction = Fraction(0)  # a measured gap is within this of the true gap
+    # intervals with one gate unknown (x/z) while the other is on or unknown
+    possible_overlaps: Overlaps = field(default_factory=lambda: _no_overlaps(Fraction(1)))
+    glitch_count: int = 0  # every glitch (the listed ones are the first 1000 per side)
+    missing_edge_count: int = 0  # every missing edge, with the capture's own lost events
 
     def edge(self, name: str) -> EdgeStats:
         return self.to_high if name == "to_high" else self.to_low
@@ -206,7 +237,12 @@ class Measurement:
 
     @property
     def failed(self) -> bool:
-        return self.verdict == "fail"
+        """Not proven: the verdict is "fail" or "inconclusive" (exit 1)."""
+        return self.verdict in ("fail", "inconclusive")
+
+    @property
+    def resolution_ticks(self) -> int:
+        return int(self.resolution_s / self.tick_s)
 
 
 def measure_capture(
@@ -217,60 +253,73 @@ def measure_capture(
     percentiles: Sequence[float] = DEFAULT_PERCENTILES,
     bins: int = 20,
     worst: int = 5,
+    resolution_s: Fraction | None = None,
 ) -> Measurement:
     """Measure every dead time, overlap, glitch and missing edge; judge against `limits`.
 
     A CaptureStream (capture.open_capture) is measured chunk by chunk: only the gaps (int32
-    where they fit), the overlaps and the worst instances are kept, not the edges. With a
-    glitch width the edges are held whole (each gate is filtered over its own change list)."""
+    where they fit), the overlaps and the worst instances are kept, not the edges.
+    `resolution_s` widens the capture's own resolution (a coarser instrument); it is rounded
+    up to whole ticks and never narrows it."""
     stream = capture if isinstance(capture, CaptureStream) else stream_of(capture)
     tick = stream.tick_s
     for p in percentiles:
         if not 0 <= p <= 100:
             raise GapforgeError(f"percentile {p} must be between 0 and 100", "--percentiles")
+    resolution = stream.resolution_ticks
+    if resolution_s is not None:
+        if resolution_s <= 0:
+            raise GapforgeError("the resolution must be above zero", "--resolution")
+        resolution = max(resolution, ceil_fraction(resolution_s / tick))  # rounded up: safe
     width = ceil_fraction(glitch_width_s / tick) if glitch_width_s > 0 else 0
     try:
-        raw, kept = _run(stream, stream.chunks(), worst, width)
+        raw = _run(stream, stream.chunks(), worst, width)
     except UnorderedTimes:
-        raw, kept = _run(stream, stream.sorted_chunks(), worst, width)
+        raw = _run(stream, stream.sorted_chunks(), worst, width)
     where = stream.source or "capture"
     if raw.count[0] == 0:
         raise GapforgeError("the high-side signal never changes in the capture (no edges)", where)
     if raw.count[1] == 0:
         raise GapforgeError("the low-side signal never changes in the capture (no edges)", where)
-    glitches: list[Glitch] = []
-    clean = raw
-    if width > 0:
-        assert kept is not None
-        clean = _deglitched(stream, kept, width, tick, glitches, worst)
-        glitches.sort(key=lambda g: g.at_s)
-    missing = raw.repeats + clean.lost
+    glitches = sorted(raw.glitches, key=lambda g: (g.at_s, g.signal))
+    missing = raw.repeats + raw.lost
     missing.sort(key=lambda f: f.at_s)
+    missing_count = raw.repeat_total + raw.lost_total + stream.lost_events
     overlaps = raw.overlaps_found()
-    if all(clean.count_of(e) == 0 for e in EDGES) and not overlaps:
+    possible = raw.possible_found()
+    if all(raw.count_of(e) == 0 for e in EDGES) and not overlaps and not possible:
         raise GapforgeError(
             "no dead-time transitions found (no edges where one gate hands over to the other)", where
         )
     limits = dict(limits or {})
+    has_window = any(
+        lim.window_min_s is not None or lim.window_max_s is not None for lim in limits.values()
+    )
     stats: dict[str, EdgeStats] = {}
     reasons: list[str] = []
     notes: list[str] = []
     for name in EDGES:
-        g = clean.gaps_of(name)
+        g = raw.gaps_of(name)
         lim = limits.get(name, Limits())
         below = above = 0
+        # conservative: the true gap is above g - resolution and below g + resolution
         if g.size and lim.window_min_s is not None:
-            below = int(np.count_nonzero(g < ceil_fraction(lim.window_min_s / tick)))
+            lowest = ceil_fraction(lim.window_min_s / tick)  # g - resolution >= lowest passes
+            below = int(np.count_nonzero(g < lowest + resolution))
         if g.size and lim.window_max_s is not None:
-            above = int(np.count_nonzero(g > floor_fraction(lim.window_max_s / tick)))
-        stats[name] = _stats(name, g, clean.worst_of(name), tick, percentiles, bins, below, above)
+            highest = floor_fraction(lim.window_max_s / tick)  # g + resolution <= highest passes
+            above = int(np.count_nonzero(g > highest - resolution))
+        stats[name] = _stats(name, g, raw.worst_of(name), tick, percentiles, bins, below, above)
         if below:
-            reasons.append(f"{name}: {below} gap(s) shorter than the window minimum")
+            reasons.append(f"{name}: {below} gap(s) not proven above the window minimum "
+                           "(gap - resolution < minimum)")
         if above:
-            reasons.append(f"{name}: {above} gap(s) longer than the window maximum")
-        nonpositive = int(np.count_nonzero(g <= 0)) if g.size else 0
-        if nonpositive and not below:
-            reasons.append(f"{name}: {nonpositive} transition(s) with no dead time at all")
+            reasons.append(f"{name}: {above} gap(s) not proven below the window maximum "
+                           "(gap + resolution > maximum)")
+        unproven = int(np.count_nonzero(g < resolution)) if g.size else 0
+        if unproven and not below:
+            reasons.append(f"{name}: {unproven} transition(s) with no dead time proven "
+                           "(gap less than the capture resolution)")
         st = stats[name]
         if lim.predicted_min_s is not None and st.min_s is not None and (
             st.min_s < lim.predicted_min_s
@@ -280,19 +329,34 @@ def measure_capture(
             st.max_s > lim.predicted_max_s
         ):
             notes.append(f"{name}: longest measured gap is above the predicted maximum")
+    if possible:
+        reasons.insert(0, f"{len(possible)} possible overlap(s): one gate unknown (x/z) while "
+                       "the other is on or unknown")
     if overlaps:
         reasons.insert(0, f"{len(overlaps)} overlap(s): both gates on (shoot-through)")
-    if missing:
-        notes.append(f"{len(missing)} missing edge(s)")
-    if glitches:
-        notes.append(f"{len(glitches)} glitch(es) shorter than the set width")
-    unknown = raw.unknown - (1 if raw.first_unknown else 0)
-    if unknown > 0:
+    if raw.glitch_on_total and has_window:
+        reasons.append(f"{raw.glitch_on_total} on-pulse glitch(es): a gate briefly on (inside a "
+                       "dead time it ends the dead time early)")
+    inconclusive: list[str] = []
+    if missing_count and has_window:
+        inconclusive.append(f"{missing_count} missing edge(s): the capture cannot prove every "
+                            "dead time")
+    elif missing_count:
+        notes.append(f"{missing_count} missing edge(s)")
+    if raw.glitch_total:
+        notes.append(f"{raw.glitch_total} glitch(es) shorter than the set width")
+    unknown = raw.unknown - (1 if raw.first_unknown else 0)  # after the first known levels
+    if unknown > 0 and has_window:
+        inconclusive.append(f"{unknown} interval(s) with an unknown (x/z) gate level: a dead "
+                            "time there cannot be measured")
+    elif unknown > 0:
         notes.append(f"{unknown} interval(s) with an unknown (x/z) gate level")
-    has_window = any(
-        lim.window_min_s is not None or lim.window_max_s is not None for lim in limits.values()
-    )
-    verdict = "fail" if reasons else ("pass" if has_window else "measured")
+    if reasons:
+        verdict = "fail"
+    elif inconclusive:
+        verdict = "inconclusive"
+    else:
+        verdict = "pass" if has_window else "measured"
     start = raw.first_time if raw.first_time is not None else 0
     return Measurement(
         source=stream.source,
@@ -306,50 +370,22 @@ def measure_capture(
         unknown_intervals=max(unknown, 0),
         limits=limits,
         verdict=verdict,
-        reasons=tuple(reasons),
+        reasons=tuple(reasons + inconclusive),
         notes=tuple(notes),
         warnings=stream.warnings,
         mean_period_s=raw.mean_period(tick),
+        resolution_s=tick * resolution,
+        possible_overlaps=possible,
+        glitch_count=raw.glitch_total,
+        missing_edge_count=missing_count,
     )
 
 
-def _run(
-    stream: CaptureStream, chunks: Iterator[Events], worst: int, width: int
-) -> tuple[_Engine, list[Events] | None]:
-    """One pass over the events; with a glitch width the events are also kept whole."""
-    engine = _Engine(stream.tick_s, (stream.high_initial, stream.low_initial), worst)
-    kept: list[Events] | None = [] if width > 0 else None
+def _run(stream: CaptureStream, chunks: Iterator[Events], worst: int, width: int) -> _Engine:
+    """One pass over the events."""
+    engine = _Engine(stream.tick_s, (stream.high_initial, stream.low_initial), worst, width)
     for chunk in chunks:
         engine.feed(*chunk)
-        if kept is not None:
-            kept.append(chunk)
-    engine.finish(stream.end)
-    return engine, kept
-
-
-def _deglitched(
-    stream: CaptureStream, kept: list[Events], width: int, tick: Fraction,
-    glitches: list[Glitch], worst: int,
-) -> _Engine:
-    """The transitions after pulses shorter than `width` ticks are taken out of each gate."""
-    times = np.concatenate([c[0] for c in kept])
-    sides = np.concatenate([c[1] for c in kept])
-    levels = np.concatenate([c[2] for c in kept])
-    per_side: list[tuple[Ints, npt.NDArray[np.uint8]]] = []
-    for side, signal in ((0, "high"), (1, "low")):
-        mine = sides == side
-        t, v = times[mine], levels[mine]
-        if v.size > 1:
-            change = np.ones(v.size, dtype=bool)
-            change[1:] = v[1:] != v[:-1]
-            t, v = t[change], v[change]
-        per_side.append(_deglitch(t, v, width, signal, tick, glitches))
-    (ht, hv), (lt, lv) = per_side
-    merged_t = np.concatenate([ht, lt])
-    order = np.argsort(merged_t, kind="stable")
-    merged_s = np.concatenate([np.zeros(ht.size, np.uint8), np.ones(lt.size, np.uint8)])
-    engine = _Engine(tick, (stream.high_initial, stream.low_initial), worst)
-    engine.feed(merged_t[order], merged_s[order], np.concatenate([hv, lv])[order])
     engine.finish(stream.end)
     return engine
 
@@ -384,6 +420,15 @@ def _pattern_table() -> npt.NDArray[np.uint8]:
 
 _PATTERNS = _pattern_table()
 _MAX_FINDINGS = 1000  # per kind and side, as listed findings
+_BEFORE = -(2**62)  # the time of the level before the capture (never part of a pulse width)
+
+
+def _other_at(
+    t: Ints, h: npt.NDArray[np.uint8], lo: npt.NDArray[np.uint8], side: int, at: int
+) -> int:
+    """The other gate's level after every change at time `at` of this batch."""
+    j = int(np.searchsorted(t, at, side="right")) - 1
+    return int(lo[j] if side == 0 else h[j])
 
 
 class _Engine:
@@ -391,12 +436,31 @@ class _Engine:
 
     Carried from chunk to chunk: the current level and last change time of each gate, the
     events of the last (possibly unfinished) timestamp, the last two joint states (for the
-    transition patterns and a pending overlap), the worst instances so far and the gaps."""
+    transition patterns and a pending overlap), the start of a pending possible overlap, the
+    last two level changes of each gate (for glitches), the worst instances so far and the
+    gaps. `width`: pulses shorter than this many ticks are glitches (zero-width ones always)."""
 
-    def __init__(self, tick: Fraction, initial: tuple[int, int], worst: int) -> None:
+    def __init__(self, tick: Fraction, initial: tuple[int, int], worst: int, width: int = 0) -> None:
         self.tick = tick
         self.initial = initial
         self.worst = worst
+        self.width = max(width, 1)
+        # glitches: per side the last two level changes (times, levels; the first seeded with
+        # the level before the capture) and the other gate's level at the last one
+        self._gl: list[tuple[Ints, npt.NDArray[np.uint8], int]] = [
+            (np.array([_BEFORE], dtype=np.int64), np.array([initial[side]], dtype=np.uint8), 2)
+            for side in (0, 1)
+        ]
+        self.glitches: list[Glitch] = []
+        self._glitch_n = [0, 0]
+        self.glitch_total = 0
+        self.glitch_on_total = 0
+        self._recent_glitches: set[tuple[int, int]] = set()  # (side, start) not yet out of reach
+        self._risk_open: int | None = None
+        self._risk_start: list[Ints] = []
+        self._risk_length: list[Ints] = []
+        self.repeat_total = 0
+        self.lost_total = 0
         self.level = [initial[0], initial[1]]
         self.last_time: list[int | None] = [None, None]
         self.count = [0, 0]
@@ -457,6 +521,11 @@ class _Engine:
             t = int(self.ctx_t[-1])
             self._ov_start.append(np.array([t], dtype=np.int64))
             self._ov_length.append(np.array([max(self.end, t) - t], dtype=np.int64))
+        if self._risk_open is not None:  # a possible overlap runs to the end of the capture
+            t = self._risk_open
+            self._risk_start.append(np.array([t], dtype=np.int64))
+            self._risk_length.append(np.array([max(self.end, t) - t], dtype=np.int64))
+            self._risk_open = None
 
     # -- one batch of complete timestamps ---------------------------------------------------
 
@@ -474,10 +543,12 @@ class _Engine:
         same = np.empty(n, dtype=bool)
         same[0] = int(state[0]) == (self.level[0] << 2) | self.level[1]
         np.equal(state[1:], state[:-1], out=same[1:])
-        if same.any():
+        any_same = bool(same.any())
+        if any_same:
             repeat = np.flatnonzero(same & (lev <= 1))
             if repeat.size:
                 self._repeat_findings(repeat, t, is_high, lev, from_high, from_low)
+        self._glitches(t, is_high, lev, same if any_same else None, h, lo)
         if from_high[-1] >= 0:
             self.last_time[0] = int(t[from_high[-1]])
         if from_low[-1] >= 0:
@@ -503,7 +574,8 @@ class _Engine:
             t, state = t[change], state[change]
         if state.size == 0:
             return
-        self._count_unknown(state, first=self.ctx_s.size == 0)
+        if self._count_unknown(state, first=self.ctx_s.size == 0) or self._risk_open is not None:
+            self._possible(t, state)
         c0 = self.ctx_s.size
         seq_t = np.concatenate([self.ctx_t, t]) if c0 else t
         seq_s = np.concatenate([self.ctx_s, state]) if c0 else state
@@ -528,15 +600,81 @@ class _Engine:
                 self._record("to_low", gap[to_low], tb[to_low])
                 lost = np.flatnonzero((kinds == _TH_LOST) | (kinds == _TL_LOST))
                 for k in lost.tolist():
-                    self._lost_finding(int(kinds[k]), int(tb[k]))
+                    kind, at = int(kinds[k]), int(tb[k])
+                    gate = 1 if kind == _TH_LOST else 0  # the gate that went off and on again
+                    # explained by a glitch: on for a glitch and off again, or off for one
+                    if ((gate, int(seq_t[hit[k]])) in self._recent_glitches
+                            or (gate, at) in self._recent_glitches):
+                        continue
+                    self._lost_finding(kind, at)
         self.ctx_t = seq_t[-2:].copy()
         self.ctx_s = seq_s[-2:].copy()
+        if self._recent_glitches:  # patterns from now on start at ctx_t[0] or later
+            self._recent_glitches = {g for g in self._recent_glitches if g[1] >= self.ctx_t[0]}
 
-    def _count_unknown(self, states: npt.NDArray[np.uint8], first: bool) -> None:
-        unknown = ((states >> 2) >= 2) | ((states & 3) >= 2)
-        self.unknown += int(np.count_nonzero(unknown))
+    def _count_unknown(self, states: npt.NDArray[np.uint8], first: bool) -> int:
+        unknown = _UNKNOWN[states]
+        count = int(np.count_nonzero(unknown))
+        self.unknown += count
         if first:
             self.first_unknown = bool(unknown[0])
+        return count
+
+    def _possible(self, t: Ints, state: npt.NDArray[np.uint8]) -> None:
+        """Runs of joint states with one gate unknown and the other on or unknown."""
+        risky = _RISKY[state]
+        before = np.empty_like(risky)
+        before[0] = self._risk_open is not None
+        before[1:] = risky[:-1]
+        starts = t[risky & ~before]
+        ends = t[~risky & before]
+        if self._risk_open is not None:
+            starts = np.concatenate([np.array([self._risk_open], dtype=np.int64), starts])
+        closed = ends.size
+        if closed:
+            self._risk_start.append(starts[:closed])
+            self._risk_length.append(ends - starts[:closed])
+        self._risk_open = int(starts[closed]) if starts.size > closed else None
+
+    def _glitches(
+        self, t: Ints, is_high: npt.NDArray[np.bool_], lev: npt.NDArray[np.uint8],
+        same: npt.NDArray[np.bool_] | None, h: npt.NDArray[np.uint8], lo: npt.NDArray[np.uint8],
+    ) -> None:
+        """Pulses shorter than the glitch width on each gate: a pulse is a level between two
+        changes of one gate, clean (0/1) and with clean levels before and after."""
+        for side, mine in ((0, is_high), (1, ~is_high)):
+            sel = np.flatnonzero(mine)
+            if same is not None:
+                sel = sel[~same[sel]]  # changes that keep the level are no edges
+            if sel.size == 0:
+                continue
+            carry_t, carry_v, carry_other = self._gl[side]
+            times = np.concatenate([carry_t, t[sel]])
+            levels = np.concatenate([carry_v, lev[sel]])
+            if times.size >= 3:
+                # pulse k (1 <= k <= size - 2) runs from change k to change k + 1
+                short = np.flatnonzero(times[2:] - times[1:-1] < self.width) + 1
+                if short.size:
+                    short = short[(levels[short] <= 1) & (levels[short - 1] <= 1)
+                                  & (levels[short + 1] <= 1)]
+                for k in short.tolist():
+                    at = int(times[k])
+                    other = carry_other if k < carry_t.size else _other_at(t, h, lo, side, at)
+                    self._glitch(side, int(levels[k]), at, int(times[k + 1]) - at, other)
+            last = int(times[-1])
+            self._gl[side] = (times[-2:].copy(), levels[-2:].copy(),
+                              _other_at(t, h, lo, side, last))
+
+    def _glitch(self, side: int, level: int, at: int, width: int, other: int) -> None:
+        self.glitch_total += 1
+        if level == 1:
+            self.glitch_on_total += 1
+        self._recent_glitches.add((side, at))
+        if self._glitch_n[side] >= _MAX_FINDINGS:
+            return
+        self._glitch_n[side] += 1
+        self.glitches.append(Glitch("high" if side == 0 else "low", level, self.tick * at,
+                                    self.tick * width, in_dead_time=level == 1 and other == 0))
 
     def _repeat_findings(
         self, repeat: npt.NDArray[np.intp], t: Ints, is_high: npt.NDArray[np.bool_],
@@ -545,11 +683,12 @@ class _Engine:
     ) -> None:
         for i in repeat.tolist():
             side = 0 if is_high[i] else 1
-            if self._repeat_n[side] >= _MAX_FINDINGS:
-                continue
             prev_i = int((from_high if side == 0 else from_low)[i - 1]) if i else -1
             prev_t = int(t[prev_i]) if prev_i >= 0 else self.last_time[side]
             if prev_t is None or prev_t == int(t[i]):
+                continue
+            self.repeat_total += 1
+            if self._repeat_n[side] >= _MAX_FINDINGS:
                 continue
             self._repeat_n[side] += 1
             signal = "high" if side == 0 else "low"
@@ -559,6 +698,7 @@ class _Engine:
 
     def _lost_finding(self, kind: int, at: int) -> None:
         side = 0 if kind == _TH_LOST else 1
+        self.lost_total += 1
         if self._lost_n[side] >= _MAX_FINDINGS:
             return
         self._lost_n[side] += 1
@@ -599,6 +739,11 @@ class _Engine:
         empty = np.zeros(0, dtype=np.int64)
         return Overlaps(self.tick, np.concatenate([empty, *self._ov_start]),
                         np.concatenate([empty, *self._ov_length]))
+
+    def possible_found(self) -> Overlaps:
+        empty = np.zeros(0, dtype=np.int64)
+        return Overlaps(self.tick, np.concatenate([empty, *self._risk_start]),
+                        np.concatenate([empty, *self._risk_length]))
 
     def count_of(self, edge: str) -> int:
         return self._n[edge]
@@ -666,36 +811,6 @@ class _GapStore:
             del block
         self.blocks, self.used = [out], self.size
         return out
-
-
-def _deglitch(
-    times: Ints,
-    levels: npt.NDArray[np.uint8],
-    width: int,
-    signal: str,
-    tick: Fraction,
-    glitches: list[Glitch],
-) -> tuple[Ints, npt.NDArray[np.uint8]]:
-    """Remove pulses shorter than `width` ticks (both of their edges), listing each one."""
-    if times.size < 3:
-        return times, levels
-    durations = times[2:] - times[1:-1]  # pulse k+1 starts at change k+1
-    clean = (levels[1:-1] <= 1) & (levels[2:] <= 1) & (levels[:-2] <= 1)
-    short = np.flatnonzero((durations < width) & clean) + 1
-    if short.size == 0:
-        return times, levels
-    for k in short.tolist():
-        glitches.append(Glitch(signal, int(levels[k]), tick * int(times[k]),
-                               tick * int(times[k + 1] - times[k])))
-    keep = np.ones(times.size, dtype=bool)
-    keep[short] = False
-    keep[short + 1] = False
-    t, v = times[keep], levels[keep]
-    if v.size > 1:
-        again = np.ones(v.size, dtype=bool)
-        again[1:] = v[1:] != v[:-1]
-        t, v = t[again], v[again]
-    return t, v
 
 
 def _stats(

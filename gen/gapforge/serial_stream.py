@@ -14,6 +14,16 @@ the reader unwraps it, which needs at least one line per wrap period (the keep-a
 for idle gates). Other lines starting with '#' are comments. Lines end with LF (CR LF is accepted).
 A second header ends the capture (the firmware restarted and its counter is no longer continuous).
 
+A transition is one hand-over from one gate to the other (a `to_high` or `to_low` dead time): a
+gate turning on when the last gate to turn on was the other one. As in the measurement, a gate
+whose first report is an off-edge was on before it (so if the other gate turned on first, that
+was a hand-over too). `read_serial(max_transitions=N)` stops right after the edge that completes
+the N-th transition - the on-edge, or, when the hand-over overlaps (the other gate still on),
+the other gate's off-edge - so a capture of clean hand-overs holds exactly N of them.
+
+The measurement takes the stream's resolution as one counter tick: both edges of a gap are
+latched by the same counter, so the gap is known to within one tick.
+
 `read_serial` works with any pyserial URL (`/dev/ttyUSB0`, `loop://`, `socket://host:port`,
 `rfc2217://host:port`) and never raises for what happens on the link: garbage, partial lines,
 timeouts or a port that disappears end the capture with a stated reason and what was measured.
@@ -48,6 +58,7 @@ class StreamStatus:
 
     lines: int = 0
     edges: int = 0
+    transitions: int = 0
     garbage: int = 0
     partial: int = 0
     lost_lines: int = 0
@@ -60,9 +71,14 @@ class StreamStatus:
 
 @dataclass
 class LineDecoder:
-    """Turns received bytes into unwrapped edge times. Pure: no I/O, fed by `feed`."""
+    """Turns received bytes into unwrapped edge times. Pure: no I/O, fed by `feed`.
+
+    `active_low` (high side, low side) is used only to count transitions; `stop_after` stops
+    the decoder right after the edge that completes that many transitions."""
 
     status: StreamStatus = field(default_factory=StreamStatus)
+    active_low: tuple[bool, bool] = (False, False)
+    stop_after: int | None = None
     times: list[int] = field(default_factory=list)
     channels: list[int] = field(default_factory=list)  # 0 = high side, 1 = low side
     levels: list[int] = field(default_factory=list)
@@ -71,6 +87,10 @@ class LineDecoder:
     _last_counter: int | None = None
     _now: int = 0
     _seq: int | None = None
+    _last_on: int | None = None  # the side that turned on last (0 high, 1 low)
+    _last_on_seen: bool = False  # _last_on turned on in the stream (not implied at the start)
+    _on: list[int | None] = field(default_factory=lambda: [None, None])  # None: no edge yet
+    _stop_at_off: int | None = None  # the count is reached: stop when this side turns off
 
     def feed(self, data: bytes) -> None:
         if self.stopped:
@@ -84,6 +104,7 @@ class LineDecoder:
         for raw in lines:
             self._line(raw.rstrip(b"\r"))
             if self.stopped:
+                self._pending = b""  # what follows the stop is not read
                 return
 
     def finish(self) -> None:
@@ -133,10 +154,37 @@ class LineDecoder:
             self._now += (counter - self._last_counter) % (1 << bits)
         self._last_counter = counter
         if edge is not None:
+            side, level = (0 if edge.group(1) == b"H" else 1), int(edge.group(2))
             self.times.append(self._now)
-            self.channels.append(0 if edge.group(1) == b"H" else 1)
-            self.levels.append(int(edge.group(2)))
+            self.channels.append(side)
+            self.levels.append(level)
             self.status.edges += 1
+            self._count_transition(side, level ^ int(self.active_low[side]))
+
+    def _count_transition(self, side: int, on: int) -> None:
+        other = 1 - side
+        first = self._on[side] is None
+        self._on[side] = on
+        if on:
+            if self._last_on == other:
+                self._transition(other if self._on[other] == 1 else None)
+            self._last_on, self._last_on_seen = side, True
+        elif first:  # this gate was on since before the stream
+            if self._last_on == other and self._last_on_seen:
+                self._transition(None)  # the other turned on while this one was still on
+            else:
+                self._last_on, self._last_on_seen = side, False
+        if not on and self._stop_at_off == side:
+            self.stopped = f"transition count reached ({self.stop_after})"
+
+    def _transition(self, overlapping: int | None) -> None:
+        """One more hand-over; `overlapping`: the outgoing gate is still on."""
+        self.status.transitions += 1
+        if self.stop_after is not None and self.status.transitions == self.stop_after:
+            if overlapping is None:
+                self.stopped = f"transition count reached ({self.stop_after})"
+            else:
+                self._stop_at_off = overlapping
 
     def _header(self, line: bytes) -> None:
         match = _HEADER.match(line)
@@ -185,6 +233,8 @@ class LineDecoder:
             active_low_low=active_low_low,
             warnings=tuple(warnings),
             edges_only=True,
+            resolution_ticks=1,  # one counter tick
+            lost_events=self.status.lost_lines,
         )
 
 
@@ -209,7 +259,7 @@ def read_serial(
     url: str,
     baud: int,
     *,
-    max_edges: int | None = None,
+    max_transitions: int | None = None,
     max_seconds: float | None = None,
     idle_timeout_s: float = 2.0,
     progress: Callable[[StreamStatus], None] | None = None,
@@ -217,13 +267,14 @@ def read_serial(
     active_low_low: bool = False,
     port: Any = None,
 ) -> SerialResult:
-    """Read edge lines until a limit, a timeout, the end of the stream or a vanished port."""
+    """Read edge lines until a limit (`max_transitions` dead-time transitions, `max_seconds`),
+    a timeout, the end of the stream or a vanished port."""
     import serial
 
-    if max_edges is not None and max_edges < 1:
+    if max_transitions is not None and max_transitions < 1:
         raise GapforgeError("must be at least 1", "--count")
     link = port if port is not None else open_port(url, baud)
-    decoder = LineDecoder()
+    decoder = LineDecoder(active_low=(active_low_high, active_low_low), stop_after=max_transitions)
     start = time.monotonic()
     last_data = start
     last_progress = 0.0
@@ -247,9 +298,6 @@ def read_serial(
                 if decoder.stopped:
                     reason = decoder.stopped
                     break
-                if max_edges is not None and decoder.status.edges >= max_edges:
-                    reason = f"edge count reached ({max_edges})"
-                    break
             elif time.monotonic() - last_data >= idle_timeout_s:
                 reason = f"no data for {idle_timeout_s:g} s (timeout)"
                 break
@@ -266,8 +314,5 @@ def read_serial(
     decoder.status.elapsed_s = time.monotonic() - start
     if progress is not None:
         progress(decoder.status)
-    if max_edges is not None and decoder.status.edges > max_edges:
-        # keep exactly the asked number of edges
-        del decoder.times[max_edges:], decoder.channels[max_edges:], decoder.levels[max_edges:]
     capture = decoder.capture(url, active_low_high=active_low_high, active_low_low=active_low_low)
     return SerialResult(capture, decoder.status, reason)

@@ -294,6 +294,7 @@ class _State:
     in_comment: bool = False
     backwards: int = 0
     first_backwards: str = ""
+    unterminated: bool = False  # the file does not end with whitespace
     offset: int = 0  # file offset of the first byte of the current chunk
 
 
@@ -350,6 +351,7 @@ def _chunks(
             if filled == _PAD:
                 break
             if eof:
+                state.unterminated = filled > _PAD and buffer[filled - 1] > 32
                 buffer[filled] = 0x0A  # the final token may run to the end of the file
                 filled += 1
             arr = np.frombuffer(buffer, dtype=np.uint8, count=filled)
@@ -403,10 +405,14 @@ def read_vcd(
 
 
 def _warnings(state: _State, place: str) -> tuple[str, ...]:
-    if not state.backwards:
-        return ()
-    return (f"{place}: {state.backwards} timestamp(s) go backwards (first at "
-            f"{state.first_backwards}); changes were ordered by time",)
+    out: list[str] = []
+    if state.backwards:
+        out.append(f"{place}: {state.backwards} timestamp(s) go backwards (first at "
+                   f"{state.first_backwards}); changes were ordered by time")
+    if state.unterminated:
+        out.append(f"{place}: the file does not end with a line break; its last value change "
+                   "or timestamp may be cut short (truncated?)")
+    return tuple(out)
 
 
 @dataclass
@@ -450,7 +456,7 @@ class EventStream:
             yield (chunk.times_of(token_idx[order]), sides[order],
                    np.concatenate([val0, val1])[order])
         self.end_time = state.time
-        self.warnings = ()
+        self.warnings = _warnings(state, self.place)
 
     def sorted_chunks(self) -> Iterator[tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8],
                                               npt.NDArray[np.uint8]]]:
@@ -558,6 +564,18 @@ def _parse_chunk(
             token = bytes(arr[pos : min(int(ends[bad[0]]), pos + 20)])
             raise GapforgeError(f"unexpected token {token!r} in the value changes",
                                 _where_at(state, pos))
+    lengths = ends - starts
+    is_scalar = cls == _C_SCALAR
+    # a scalar value is followed by its code in the same token: a bare '1' has lost its code
+    bare = np.flatnonzero(is_scalar & (lengths == 1))
+    if bare.size and ignore is not None:
+        bare = bare[~ignore[bare]]
+    if bare.size:
+        pos = int(starts[bare[0]])
+        ends_file = last and int(bare[0]) == starts.size - 1
+        raise GapforgeError(
+            f"value change {chr(arr[pos])!r} without an identifier code"
+            + (": the file ends here (truncated?)" if ends_file else ""), _where_at(state, pos))
     # timestamps
     is_time = cls == _C_TIME
     if ignore is not None:
@@ -577,14 +595,13 @@ def _parse_chunk(
             state.backwards += int(rel.size)
         state.time = int(times[-1])
         state.seen_time = True
-    lengths = ends - starts
     picks: dict[tuple[bytes, int], tuple[npt.NDArray[np.intp], npt.NDArray[np.uint8]]] = {}
     scalar_by_size: dict[int, tuple[npt.NDArray[np.intp], npt.NDArray[np.uint8]]] = {}
     for code, positions in wanted.items():
         size = len(code)
         # scalar changes: value byte then the code in the same token
         if size not in scalar_by_size:
-            near = np.flatnonzero((cls == _C_SCALAR) & (lengths == size + 1))
+            near = np.flatnonzero(is_scalar & (lengths == size + 1))
             scalar_by_size[size] = near, arr[starts[near] + 1]
         cand, second = scalar_by_size[size]
         cand = cand[second == code[0]]

@@ -73,7 +73,11 @@ def build_limits(
 @click.option("--window", default=None, help="Dead-time window MIN:MAX for both edges, e.g. "
               "20ns:80ns (overrides the design's window).")
 @click.option("--glitch", type=Quantity("s", allow_zero=True), default="0", show_default=True,
-              help="Pulses shorter than this are glitches (listed, left out of the statistics).")
+              help="Pulses shorter than this are glitches: listed, never hidden (a gap ends at "
+              "the first on-edge, glitch or not); with a window, an on-pulse glitch fails.")
+@click.option("--resolution", type=Quantity("s"), default=None,
+              help="Widen the capture's resolution to this (e.g. a logic analyser's sample "
+              "period when its file states a finer time unit); never narrows it.")
 @click.option("--percentiles", default="1,5,50,95,99", show_default=True,
               help="Percentiles to report, comma separated.")
 @click.option("--bins", type=click.IntRange(1, 1000), default=20, show_default=True,
@@ -84,8 +88,9 @@ def build_limits(
               help="Read a live stream: a port or pyserial URL (loop://, socket://h:p, rfc2217://).")
 @click.option("--baud", type=click.IntRange(1), default=115200, show_default=True,
               help="Serial baud rate.")
-@click.option("--count", "max_edges", type=click.IntRange(1), default=None,
-              help="Stop the stream after this many gate edges.")
+@click.option("--count", "max_transitions", type=click.IntRange(1), default=None,
+              help="Stop the stream after this many dead-time transitions (each to_high and "
+              "each to_low counts one).")
 @click.option("--duration", type=Quantity("s"), default=None,
               help="Stop the stream after this long, e.g. 10s.")
 @click.option("--idle-timeout", type=Quantity("s"), default="2s", show_default=True,
@@ -94,13 +99,17 @@ def build_limits(
 @json_option
 def command(capture: Path | None, high: str | None, low: str | None, active_low_high: bool,
             active_low_low: bool, design: Path | None, window: str | None, glitch: Fraction,
-            percentiles: str, bins: int, worst: int, serial_url: str | None, baud: int,
-            max_edges: int | None, duration: Fraction | None, idle_timeout: Fraction,
+            resolution: Fraction | None, percentiles: str, bins: int, worst: int,
+            serial_url: str | None, baud: int, max_transitions: int | None,
+            duration: Fraction | None, idle_timeout: Fraction,
             no_diagram: bool, ascii_only: bool, as_json: bool) -> None:
     """Measure every dead time in a capture (VCD or gapforge CSV) or a live serial stream.
 
-    Exit 1 on any overlap (both gates on) or any gap outside the window; 2 on bad input.
-    A VCD file is read chunk by chunk in constant memory per chunk.
+    Exit 1 on any overlap (both gates on), any possible overlap (one gate x/z while the other
+    is on or unknown), or any gap not proven inside the window with the capture's resolution
+    (gap - resolution >= min, gap + resolution <= max); with a window, also on an on-pulse
+    glitch or missing edges (inconclusive). Exit 2 on bad input. A VCD file is read chunk by
+    chunk in constant memory per chunk.
     """
     from gapforge.measure import measure_capture
 
@@ -114,7 +123,7 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
         from gapforge.serial_stream import read_serial
 
         stream = read_serial(
-            serial_url, baud, max_edges=max_edges,
+            serial_url, baud, max_transitions=max_transitions,
             max_seconds=None if duration is None else float(duration),
             idle_timeout_s=float(idle_timeout),
             progress=_progress if sys.stderr.isatty() else None,
@@ -140,7 +149,7 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
                             active_low_low=active_low_low)
     try:
         result = measure_capture(gate, limits=limits, glitch_width_s=glitch, percentiles=pcts,
-                                 bins=bins, worst=worst)
+                                 bins=bins, worst=worst, resolution_s=resolution)
     except GapforgeError as exc:
         if stream is not None:
             raise GapforgeError(f"{exc.message} (stream stopped: {stream.stop_reason})",
@@ -171,7 +180,7 @@ def _percentiles(text: str) -> tuple[float, ...]:
 
 def _progress(status: StreamStatus) -> None:
     click.echo(
-        f"\r{status.edges} edges, {status.lines} lines, {status.garbage} garbage, "
+        f"\r{status.transitions} transitions, {status.edges} edges, {status.lines} lines, {status.garbage} garbage, "
         f"{status.lost_lines} lost, {status.elapsed_s:.1f} s   ",
         err=True, nl=False,
     )
@@ -206,15 +215,20 @@ def measurement_json(m: Measurement, stream: SerialResult | None = None) -> dict
     doc: dict[str, Any] = {
         "source": m.source,
         "tick_s": float(m.tick_s),
+        "resolution_s": float(m.resolution_s),
         "duration_s": float(m.duration_s),
         "edges": edges,
         "overlaps": len(m.overlaps),
         "overlap_events": [{"at_s": float(o.at_s), "duration_s": float(o.duration_s)}
                            for o in m.overlaps[:100]],
-        "glitches": len(m.glitches),
+        "possible_overlaps": len(m.possible_overlaps),
+        "possible_overlap_events": [{"at_s": float(o.at_s), "duration_s": float(o.duration_s)}
+                                    for o in m.possible_overlaps[:100]],
+        "glitches": m.glitch_count,
         "glitch_events": [{"signal": g.signal, "level": g.level, "at_s": float(g.at_s),
-                           "width_s": float(g.width_s)} for g in m.glitches[:100]],
-        "missing_edges": len(m.missing_edges),
+                           "width_s": float(g.width_s), "in_dead_time": g.in_dead_time}
+                          for g in m.glitches[:100]],
+        "missing_edges": m.missing_edge_count,
         "missing_edge_events": [{"at_s": float(f.at_s), "text": f.text}
                                 for f in m.missing_edges[:100]],
         "unknown_intervals": m.unknown_intervals,
@@ -226,6 +240,7 @@ def measurement_json(m: Measurement, stream: SerialResult | None = None) -> dict
     if stream is not None:
         s = stream.status
         doc["stream"] = {"stop_reason": stream.stop_reason, "lines": s.lines, "edges": s.edges,
+                         "transitions": s.transitions,
                          "garbage": s.garbage, "partial": s.partial, "lost_lines": s.lost_lines,
                          "clock_hz": s.clock_hz, "counter_bits": s.counter_bits,
                          "elapsed_s": s.elapsed_s}
@@ -256,10 +271,12 @@ def measurement_diagram(m: Measurement, ascii_only: bool = False) -> str:
 
 def measurement_text(m: Measurement, stream: SerialResult | None = None, *, diagram: bool = True,
                      ascii_only: bool = False) -> str:
-    lines = [f"Capture: {m.source} (tick {_q(m.tick_s)}, {_q(m.duration_s)} long)"]
+    lines = [f"Capture: {m.source} (tick {_q(m.tick_s)}, resolution {_q(m.resolution_s)}, "
+             f"{_q(m.duration_s)} long)"]
     if stream is not None:
         s = stream.status
-        lines.append(f"Stream stopped: {stream.stop_reason}; {s.edges} edges, {s.lines} lines, "
+        lines.append(f"Stream stopped: {stream.stop_reason}; {s.transitions} transitions, "
+                     f"{s.edges} edges, {s.lines} lines, "
                      f"{s.garbage} garbage, {s.partial} partial, {s.lost_lines} lost")
     for warning in m.warnings:
         lines.append(f"Warning: {warning}")
@@ -283,6 +300,10 @@ def measurement_text(m: Measurement, stream: SerialResult | None = None, *, diag
             lines.append(f"{name} shortest: {worst}")
         if st.below_window or st.above_window:
             lines.append(f"{name}: {st.below_window} below, {st.above_window} above the window")
+    if any(lim.window_min_s is not None or lim.window_max_s is not None
+           for lim in m.limits.values()):
+        lines.append(f"Judged with the resolution {_q(m.resolution_s)}: a gap passes only if "
+                     "gap - resolution >= min and gap + resolution <= max.")
     lines.append("")
     if diagram:
         lines.append(measurement_diagram(m, ascii_only))
@@ -293,15 +314,25 @@ def measurement_text(m: Measurement, stream: SerialResult | None = None, *, diag
             lines.append(f"  both gates on at {_q(o.at_s)} for {_q(o.duration_s)}")
     else:
         lines.append("Overlaps (shoot-through): none")
-    lines.append(f"Glitches: {len(m.glitches)}; missing edges: {len(m.missing_edges)}")
+    if m.possible_overlaps:
+        lines.append(f"POSSIBLE OVERLAPS (one gate x/z, the other on or unknown): "
+                     f"{len(m.possible_overlaps)}")
+        for o in m.possible_overlaps[:10]:
+            lines.append(f"  unknown gate level at {_q(o.at_s)} for {_q(o.duration_s)}")
+    lines.append(f"Glitches: {m.glitch_count}; missing edges: {m.missing_edge_count}")
     for g in m.glitches[:5]:
-        lines.append(f"  glitch on the {g.signal} side at {_q(g.at_s)}, {_q(g.width_s)} wide")
+        kind = "on-pulse" if g.level == 1 else "off-pulse"
+        where = ", inside a dead time" if g.in_dead_time else ""
+        lines.append(f"  glitch ({kind}) on the {g.signal} side at {_q(g.at_s)}, "
+                     f"{_q(g.width_s)} wide{where}")
     for f in m.missing_edges[:5]:
         lines.append(f"  at {_q(f.at_s)}: {f.text}")
     for note in m.notes:
         lines.append(f"Note: {note}")
     lines.append("")
-    verdict = {"pass": "PASS", "fail": "FAIL", "measured": "MEASURED (no window to judge against)"}
+    verdict = {"pass": "PASS", "fail": "FAIL",
+               "inconclusive": "INCONCLUSIVE (the capture cannot prove every dead time)",
+               "measured": "MEASURED (no window to judge against)"}
     lines.append(f"Verdict: {verdict[m.verdict]}")
     for reason in m.reasons:
         lines.append(f"  {reason}")

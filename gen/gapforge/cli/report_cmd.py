@@ -23,7 +23,8 @@ from gapforge.errors import GapforgeError
 @click.option("--active-low-high", is_flag=True, help="The high-side signal is active low.")
 @click.option("--active-low-low", is_flag=True, help="The low-side signal is active low.")
 @click.option("--glitch", type=Quantity("s", allow_zero=True), default="0", show_default=True,
-              help="Pulses shorter than this are glitches, left out of the gap statistics.")
+              help="Pulses shorter than this are glitches: listed, never hidden (a gap ends at "
+              "the first on-edge, glitch or not); an on-pulse glitch fails the capture.")
 def command(
     design: Path,
     output: Path,
@@ -61,10 +62,11 @@ def command(
             raise GapforgeError("name both gate signals with --high and --low", "--capture")
         if not capture.is_file():
             raise GapforgeError("no such file", str(capture))
-        from gapforge.capture import load_capture
+        from gapforge.capture import open_capture
         from gapforge.measure import measure_capture
 
-        gate = load_capture(capture, high, low, active_low_high=active_low_high,
+        # streamed: a VCD is read chunk by chunk (the same measurement as a capture in memory)
+        gate = open_capture(capture, high, low, active_low_high=active_low_high,
                             active_low_low=active_low_low)
         measurement = measure_capture(gate, limits=capture_limits(plan), glitch_width_s=glitch)
     text = render_report(plan, measurement)
