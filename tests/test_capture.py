@@ -108,3 +108,68 @@ def test_open_capture_csv(tmp_path: Path) -> None:
     assert m.to_high.min_s == Fraction(3125, 10**11)
     with pytest.raises(GapforgeError, match="no signal 'gx'"):
         open_capture(path, "gx", "gl")
+
+
+# --- resolution (review S3): every capture says how far a measured gap may be off ------------
+
+NS = Fraction(1, 10**9)
+
+
+def _sampled(tmp_path: Path, gap_samples: int) -> Path:
+    """Invented: 10 ns samples; the low side turns off, `gap_samples` samples later the high
+    side turns on (so the gap reads gap_samples x 10 ns)."""
+    rows = ["0,1"] * 5 + ["0,0"] * gap_samples + ["1,0"] * 20 + ["0,0"] * 4 + ["0,1"] * 5
+    path = tmp_path / "sampled.csv"
+    path.write_text("# invented capture\n# sample_period: 10ns\ngh,gl\n" + "\n".join(rows) + "\n")
+    return path
+
+
+def test_sampled_gap_is_judged_one_sample_short(tmp_path: Path) -> None:
+    from gapforge.measure import Limits
+
+    cap = load_capture(_sampled(tmp_path, 3), "gh", "gl")
+    assert cap.resolution_ticks == 1 and cap.tick_s == 10 * NS  # one sample period
+    # the gap reads 3 x 10 ns = 30 ns, but the edges lie somewhere within the sample before
+    # each, so the true gap is above 30 - 10 = 20 ns only: a 30 ns minimum is not proven
+    m = measure_capture(cap, limits={"to_high": Limits(30 * NS, None)})
+    assert m.to_high.min_s == 30 * NS and m.resolution_s == 10 * NS
+    assert m.verdict == "fail" and m.to_high.below_window == 1
+    # 20 ns is proven: 30 - 10 >= 20
+    assert measure_capture(cap, limits={"to_high": Limits(20 * NS, None)}).verdict == "pass"
+    # the maximum likewise: 30 + 10 = 40 <= 40 ns passes, 39 ns fails
+    assert measure_capture(cap, limits={"to_high": Limits(None, 40 * NS)}).verdict == "pass"
+    assert measure_capture(cap, limits={"to_high": Limits(None, 39 * NS)}).verdict == "fail"
+
+
+def test_sampled_time_column_resolution_is_the_spacing_before_an_edge(tmp_path: Path) -> None:
+    # samples every 5 ns, except 40 ns of silence before the high side's turn-off: that edge
+    # is known only to within 40 ns (the longest spacing before a change of a chosen signal);
+    # the 100 ns before the last row changes nothing chosen (gx is not measured)
+    path = tmp_path / "timed.csv"
+    path.write_text("time_ns,gh,gl,gx\n0,0,1,0\n5,0,0,0\n10,0,0,0\n15,1,0,0\n20,1,0,0\n"
+                    "60,0,0,0\n65,0,1,0\n165,0,1,1\n")
+    cap = load_capture(path, "gh", "gl")
+    assert cap.tick_s == NS and cap.resolution_ticks == 40
+
+
+def test_edge_csv_and_vcd_resolution_is_one_tick(tmp_path: Path) -> None:
+    path = tmp_path / "edges.csv"
+    path.write_text("time_ns,signal,level\n0,gh,0\n0,gl,1\n100,gl,0\n131.25,gh,1\n600,gh,0\n"
+                    "640.5,gl,1\n")
+    cap = load_capture(path, "gh", "gl")
+    assert cap.resolution_ticks == 1 and cap.tick_s == NS / 4  # the finest decimal step
+    assert measure_capture(cap).resolution_s == NS / 4
+    from vcd import VCDWriter  # pyvcd, a general-purpose VCD writer
+
+    from gapforge.capture import open_capture
+
+    vcd_path = tmp_path / "ten.vcd"
+    with vcd_path.open("w") as handle, VCDWriter(handle, timescale="10 ns", date="invented") as w:
+        h = w.register_var("top", "gh", "wire", size=1, init=0)
+        lo = w.register_var("top", "gl", "wire", size=1, init=1)
+        w.change(lo, 10, 0)
+        w.change(h, 13, 1)
+        w.change(h, 50, 0)
+        w.change(lo, 54, 1)
+    m = measure_capture(open_capture(vcd_path, "gh", "gl"))
+    assert m.resolution_s == 10 * NS and m.to_high.min_s == 30 * NS  # one 10 ns timescale tick

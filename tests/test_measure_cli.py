@@ -241,3 +241,134 @@ def test_diagram_notes_an_overlapping_hand_over() -> None:
     text = measurement_diagram(m, ascii_only=True)
     assert "to_high -4 ns" in text and "to_low 30 ns" in text
     assert "overlap" in text.splitlines()[-1]
+
+
+# --- review S3-S5: resolution, unknown levels, glitches (VCDs written by pyvcd) --------------
+
+def _invoke(args: list[str]) -> tuple[int, dict[str, object]]:
+    result = CliRunner().invoke(cli, ["measure", *args, "--json"])
+    return result.exit_code, json.loads(result.output)
+
+
+def _s5_vcd(path: Path) -> Path:
+    # S5, invented: each period the low side turns off at t, the high side pulses on 2 ns wide
+    # 10 ns later, then turns on for real 30 ns after t; off at t + 400, low on at t + 440
+    with path.open("w") as handle, VCDWriter(handle, timescale="1 ns", date="invented") as w:
+        h = w.register_var("top", "gate_h", "wire", size=1, init=0)
+        lo = w.register_var("top", "gate_l", "wire", size=1, init=1)
+        for k in range(5):
+            t = 1000 * k + 100
+            w.change(lo, t, 0)
+            w.change(h, t + 10, 1)
+            w.change(h, t + 12, 0)
+            w.change(h, t + 30, 1)
+            w.change(h, t + 400, 0)
+            w.change(lo, t + 440, 1)
+    return path
+
+
+def test_glitch_option_never_hides_a_short_gap(tmp_path: Path) -> None:
+    path = _s5_vcd(tmp_path / "s5.vcd")
+    base = [str(path), "--high", "gate_h", "--low", "gate_l", "--window", "20ns:100ns"]
+    code, raw = _invoke(base)
+    code_g, filtered = _invoke([*base, "--glitch", "5ns"])
+    # the gap ends at the glitch's on-edge either way: 10 ns, below the 20 ns minimum
+    for exit_code, doc in ((code, raw), (code_g, filtered)):
+        assert exit_code == 1 and doc["verdict"] == "fail"
+        edges = doc["edges"]
+        assert isinstance(edges, dict)
+        assert edges["to_high"]["min_s"] == pytest.approx(10e-9)
+        assert edges["to_high"]["max_s"] == pytest.approx(10e-9)
+        assert edges["to_high"]["below_window"] == 5
+    assert raw["glitches"] == 0 and filtered["glitches"] == 5
+    events = filtered["glitch_events"]
+    assert isinstance(events, list)
+    assert events[0] == {"signal": "high", "level": 1, "at_s": pytest.approx(110e-9),
+                         "width_s": pytest.approx(2e-9), "in_dead_time": True}
+    # a window the 10 ns gap meets still fails: an on-pulse glitch inside a dead time
+    code, doc = _invoke([str(path), "--high", "gate_h", "--low", "gate_l", "--window", "5ns:",
+                         "--glitch", "5ns"])
+    assert code == 1 and any("on-pulse glitch" in r for r in doc["reasons"])  # type: ignore[attr-defined]
+
+
+def test_unknown_level_against_an_on_gate_exits_1(tmp_path: Path) -> None:
+    path = tmp_path / "x.vcd"
+    with path.open("w") as handle, VCDWriter(handle, timescale="1 ns", date="invented") as w:
+        h = w.register_var("top", "gate_h", "wire", size=1, init=0)
+        lo = w.register_var("top", "gate_l", "wire", size=1, init=1)
+        for k in range(4):
+            t = 1000 * k + 100
+            w.change(lo, t, 0)
+            w.change(h, t + 30, 1)
+            w.change(h, t + 400, 0)
+            w.change(lo, t + 440, 1)
+        w.change(h, 4500, "x")  # unknown high side while the low side is on
+        w.change(h, 4520, 0)
+        w.change(lo, 4600, "z")  # unknown low side while the high side is off: harmless
+        w.change(lo, 4610, 1)
+    args = [str(path), "--high", "gate_h", "--low", "gate_l"]
+    code, doc = _invoke(args)
+    assert code == 1 and doc["verdict"] == "fail" and doc["overlaps"] == 0
+    assert doc["possible_overlaps"] == 1
+    assert doc["possible_overlap_events"] == [{"at_s": pytest.approx(4500e-9),
+                                               "duration_s": pytest.approx(20e-9)}]
+    text = CliRunner().invoke(cli, ["measure", *args, "--no-diagram"]).output
+    assert "POSSIBLE OVERLAPS" in text and "unknown gate level at 4.5 us for 20 ns" in text
+
+
+def test_sampled_csv_judged_with_one_sample(tmp_path: Path) -> None:
+    # S3, invented: 10 ns samples, the to_high gap reads 3 samples = 30 ns, the to_low 4
+    rows = ["0,1"] * 5 + ["0,0"] * 3 + ["1,0"] * 20 + ["0,0"] * 4 + ["0,1"] * 5
+    path = tmp_path / "sampled.csv"
+    path.write_text("# invented capture\n# sample_period: 10ns\ngh,gl\n" + "\n".join(rows) + "\n")
+    args = [str(path), "--high", "gh", "--low", "gl"]
+    code, doc = _invoke([*args, "--window", "30ns:"])
+    assert code == 1 and doc["resolution_s"] == pytest.approx(10e-9)
+    assert doc["edges"]["to_high"]["min_s"] == pytest.approx(30e-9)  # type: ignore[index]
+    # 30 - 10 = 20 < 30: not proven; 30 - 10 >= 20 and 40 - 10 >= 20: proven
+    code, doc = _invoke([*args, "--window", "20ns:"])
+    assert code == 0 and doc["verdict"] == "pass"
+    text = CliRunner().invoke(cli, ["measure", *args, "--window", "20ns:", "--no-diagram"]).output
+    assert "resolution 10 ns" in text and "gap - resolution >= min" in text
+
+
+def test_resolution_option_widens(tmp_path: Path) -> None:
+    path = _vcd(tmp_path / "ok.vcd", 30, 40)
+    args = [str(path), "--high", "gate_h", "--low", "gate_l", "--window", "25ns:50ns"]
+    assert _invoke(args)[0] == 0  # 30 - 1 >= 25 and 40 + 1 <= 50
+    code, doc = _invoke([*args, "--resolution", "6ns"])  # 30 - 6 = 24 < 25
+    assert code == 1 and doc["resolution_s"] == pytest.approx(6e-9)
+    assert doc["edges"]["to_high"]["below_window"] == 20  # type: ignore[index]
+    assert doc["edges"]["to_low"]["above_window"] == 0  # type: ignore[index]  # 40 + 6 <= 50
+
+
+def test_missing_edges_with_a_window_are_inconclusive(tmp_path: Path) -> None:
+    path = tmp_path / "lost.vcd"
+    with path.open("w") as handle, VCDWriter(handle, timescale="1 ns", date="invented") as w:
+        h = w.register_var("top", "gate_h", "wire", size=1, init=0)
+        lo = w.register_var("top", "gate_l", "wire", size=1, init=1)
+        for k in range(4):
+            t = 1000 * k + 100
+            w.change(lo, t, 0)
+            if k != 2:  # period 2: the high side's edges are missing
+                w.change(h, t + 30, 1)
+                w.change(h, t + 400, 0)
+            w.change(lo, t + 440, 1)
+    args = [str(path), "--high", "gate_h", "--low", "gate_l"]
+    code, doc = _invoke(args)
+    assert code == 0 and doc["verdict"] == "measured" and doc["missing_edges"] == 1
+    code, doc = _invoke([*args, "--window", "20ns:60ns"])
+    assert code == 1 and doc["verdict"] == "inconclusive"
+    text = CliRunner().invoke(cli, ["measure", *args, "--window", "20ns:60ns"]).output
+    assert "INCONCLUSIVE" in text
+
+
+def test_truncated_value_change_is_a_one_line_error(tmp_path: Path) -> None:
+    path = _vcd(tmp_path / "cut.vcd", 30, 40)
+    with path.open("a") as handle:
+        handle.write("#20000\n1")  # the file was cut after a value, before its code
+    lines_in_file = path.read_text().count("\n") + 1
+    proc = _run(["measure", str(path), "--high", "gate_h", "--low", "gate_l"])
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr
+    assert proc.stderr.strip() == (f"gapforge: error: {path}:{lines_in_file}: value change '1' "
+                                   "without an identifier code: the file ends here (truncated?)")

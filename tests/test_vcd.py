@@ -325,3 +325,42 @@ def test_event_stream_stops_at_backwards_time(tmp_path: Path) -> None:
     assert np.all(np.diff(times) >= 0)
     assert times[sides == 0].tolist() == [0, 5, 9, 11, 12, 20]
     assert len(stream.warnings) == 1 and "backwards" in stream.warnings[0]
+
+
+@pytest.mark.parametrize("chunk", CHUNKS)
+def test_value_without_a_code(tmp_path: Path, chunk: int) -> None:
+    # Hand-written: IEEE 1364-2005 18.2 writes a scalar change as the value immediately followed
+    # by the identifier code, so a bare '1' has lost its code. At the very end of the file it is
+    # a file cut mid-token (truncated); inside the file it is malformed. Both: file:line error.
+    head = "$timescale 1ns $end $var wire 1 ! a $end $enddefinitions $end\n"
+    end = tmp_path / "end.vcd"
+    end.write_text(head + "#1 1!\n#2 0!\n#3\n1")
+    with pytest.raises(GapforgeError) as info:
+        read_vcd(end, ["a"], chunk_bytes=chunk)
+    assert info.value.where == f"{end}:5"
+    assert "without an identifier code: the file ends here (truncated?)" in info.value.message
+    inside = tmp_path / "inside.vcd"
+    inside.write_text(head + "#1 1!\n#2\nz\n#3 0!\n")
+    with pytest.raises(GapforgeError) as info:
+        read_vcd(inside, ["a"], chunk_bytes=chunk)
+    assert info.value.where == f"{inside}:4" and "truncated" not in info.value.message
+    # inside a $comment a lone digit is just text
+    comment = tmp_path / "comment.vcd"
+    comment.write_text(head + "#1 1!\n$comment 1 of 2 $end\n#2 0!\n")
+    assert read_vcd(comment, ["a"], chunk_bytes=chunk).signals["a"].times.tolist() == [1, 2]
+
+
+def test_file_without_a_final_line_break_is_warned(tmp_path: Path) -> None:
+    # Hand-written: the last token may be cut short ('#2' could have been '#25'); both the
+    # whole-file reader and the event stream say so
+    path = tmp_path / "cut.vcd"
+    path.write_text("$timescale 1ns $end $var wire 1 ! a $end $var wire 1 \" b $end "
+                    "$enddefinitions $end\n#1 1! 0\"\n#2 0!")
+    data = read_vcd(path, ["a", "b"])
+    assert data.signals["a"].times.tolist() == [1, 2]
+    assert any("does not end with a line break" in w for w in data.warnings)
+    events = open_events(path, "a", "b", chunk_bytes=7)
+    list(events.chunks())
+    assert any("truncated?" in w for w in events.warnings)
+    path.write_text(path.read_text() + "\n")
+    assert read_vcd(path, ["a", "b"]).warnings == ()
