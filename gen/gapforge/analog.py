@@ -390,7 +390,7 @@ PARAMETERS: tuple[Parameter, ...] = (
         "band",
         "V",
         "",
-        "diode knee voltage for the closed form",
+        "diode knee voltage: the diode's IS is set so it carries R's current at this voltage",
         "derived from the diode model: where its current equals the resistor's",
     ),
     Parameter(
@@ -617,10 +617,11 @@ def check_network(net: ReferenceNetwork) -> list[tuple[str, str]]:
             return problems
     if d.cjo > 0.0:
         vj_hot = _junction_potential(d, float(net.temp.max))
-        if vj_hot <= 0.05:
+        if vj_hot <= 0.05:  # the depletion-charge formula divides by VJ(T)
             problems.append(("diode", f"the junction potential VJ={d.vj:g} V falls to "
-                                      f"{vj_hot:.3g} V at {float(net.temp.max):g} C (SPICE "
-                                      "temperature scaling): give a larger VJ"))
+                                      f"{vj_hot:.3g} V (at most 50 mV) at "
+                                      f"{float(net.temp.max):g} C (SPICE temperature scaling): "
+                                      "give a larger VJ"))
             return problems
     if net.diode.bv is not None and net.diode.bv <= float(net.vdd.max):
         problems.append(("diode", f"BV={net.diode.bv:g} V must exceed the largest VDD"))
@@ -630,10 +631,11 @@ def check_network(net: ReferenceNetwork) -> list[tuple[str, str]]:
 
 
 def _junction_potential(diode: DiodeModel, temp_c: float) -> float:
-    """VJ at a temperature (the SPICE scaling; it falls with temperature)."""
-    import numpy as np
+    """VJ at a temperature (the SPICE scaling; it falls with temperature). No numpy here:
+    reading a design must not import it."""
+    from gapforge.simulate import junction
 
-    return float(junction_arrays(diode, np.asarray([temp_c])).vj[0])
+    return junction(diode, temp_c).vj
 
 
 def read_reference(table: Table) -> ReferenceNetwork:
@@ -744,6 +746,7 @@ GMIN = 1e-12  # S across the junction, as circuit simulators (and simulate.py) a
 _REF_K = 300.15  # K, reference temperature of the SPICE junction-potential scaling
 _BOLTZMANN = 1.380649e-23
 _CHARGE = 1.602176634e-19
+_BLOCK = 16_384  # samples per block of the charge integral
 QUADRATURE_NODES = 8  # Gauss-Legendre nodes per panel; tests hold it to 1e-4 of a fine sum
 
 
@@ -873,6 +876,16 @@ def diode_edge_delay(
     shape = np.broadcast_shapes(*(np.shape(a) for a in (span, distance, r, rout, c_node, temp_c)))
     span_a, distance_a, r_a, rout_a, c_a, temp_a = flat
     n = span_a.size
+    if n > _BLOCK:  # in blocks: the nodes' temporaries stay in cache
+        sat_flat = None if sat is None else np.ravel(np.broadcast_to(sat, shape))
+        parts = []
+        for k in range(0, n, _BLOCK):
+            part = slice(k, k + _BLOCK)
+            parts.append(diode_edge_delay(
+                diode, forward, span_a[part], distance_a[part], r_a[part], rout_a[part],
+                c_a[part], temp_a[part], None if sat_flat is None else sat_flat[part]))
+        blocked: FloatArray = np.concatenate(parts).reshape(shape)
+        return blocked
     j = junction_arrays(diode, temp_a)
     vte = np.broadcast_to(j.vte, (n,))
     sat_a = np.broadcast_to(j.sat, (n,)) if sat is None else np.ravel(np.broadcast_to(sat, shape))
