@@ -403,9 +403,13 @@ def render_text(report: dict[str, Any]) -> str:
             f"{_t(e['max_s'])}{sim}"
         )
     model = report["edges"][EDGES[0]]["model"]
-    lines.append(f"  model: {model}" + ("" if model == "rc closed form" else "; textbook closed "
-                 "form " + ", ".join(f"{edge} {_t(report['edges'][edge]['delay_textbook_s'])}"
-                                     for edge in EDGES) + " (not used: see the docs)"))
+    if model == "rc closed form":
+        lines.append(f"  model: {model}")
+    else:
+        textbook = ", ".join(f"{edge} {_t(report['edges'][edge]['delay_textbook_s'])}"
+                             for edge in EDGES)
+        lines.append(f"  model: {model}; textbook closed form {textbook} (not used for ranges: "
+                     "it treats the diode as a switch)")
     lines += ["", "Dead times of the complementary pair (worst case over all tolerances):"]
     beyond = []
     for key in PAIR_KEYS:
