@@ -211,7 +211,10 @@ def test_analog_ramp_follows_the_textbook_rc_charge(html: str) -> None:
     # typical VT+ = 60 % VDD is reached after tau ln(1 / 0.4) = 100.493 ns.
     tau = 1025 * 107e-12
     label = of_class(root, "text", "dim-delay-label")[0].text or ""
-    assert f"closed form {tau * math.log(2.5) * 1e9:.1f} ns" in label
+    # the model adds the diode's 1.5 pF junction, which shares charge at the step: within 0.5 %
+    # of the textbook value (100.3 ns against 100.5 ns here)
+    model_ns = float(label.split("closed form ")[1].split(" ns")[0])
+    assert model_ns == pytest.approx(tau * math.log(2.5) * 1e9, rel=0.005)
     # the closed-form curve passes 63.2121 % of VDD (1 - 1/e) at one time constant
     y_origin, y_per = y_scale(root, 1.0)
     curve = [((x - origin) / per_s, (y - y_origin) / y_per)
@@ -339,10 +342,12 @@ def test_monte_carlo_histogram_is_the_population_the_statistics_describe(
         assert last[0] - EPS <= origin + s.max * per_s <= last[1] + EPS
         cumulative = np.cumsum([c for _, _, c in drawn])
         for pct, value in zip((0.135, 50.0, 99.865), s.percentiles, strict=True):
+            # the percentile interpolates between the samples of ranks floor(rank) and
+            # ceil(rank), which may sit in neighbouring bars
             rank = pct / 100 * (MC_SAMPLES - 1)
-            k = int(np.searchsorted(cumulative, rank, side="right"))
-            x0, x1, _ = drawn[k]
-            assert x0 - EPS <= origin + value * per_s <= x1 + EPS
+            k_lo = int(np.searchsorted(cumulative, math.floor(rank), side="right"))
+            k_hi = int(np.searchsorted(cumulative, math.ceil(rank), side="right"))
+            assert drawn[k_lo][0] - EPS <= origin + value * per_s <= drawn[k_hi][1] + EPS
 
 
 def test_tables_carry_inputs_with_units_results_and_the_caution(html: str) -> None:
