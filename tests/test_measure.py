@@ -240,6 +240,25 @@ def test_unknown_level_against_an_on_gate_is_a_possible_overlap() -> None:
     assert m.to_high.gaps_ticks.tolist() == [30]
 
 
+def test_both_unknown_at_the_start_is_not_measured_but_later_it_fails() -> None:
+    # a simulator's $dumpvars x on both gates before the first known levels (at 50)
+    ht = np.array([0, 50, 130, 500], dtype=np.int64)
+    hv = np.array([2, 0, 1, 0], dtype=np.uint8)
+    lt = np.array([0, 50, 100, 600], dtype=np.int64)
+    lv = np.array([2, 1, 0, 1], dtype=np.uint8)
+    m = measure_capture(make_capture(NS, (ht, hv), (lt, lv)), limits={"to_high": Limits(NS)})
+    assert len(m.possible_overlaps) == 0 and m.verdict == "pass"
+    assert any("start of the capture" in n for n in m.notes)
+    # both unknown later (a $dumpoff): a possible overlap
+    ht2 = np.array([0, 50, 130, 500, 700, 720], dtype=np.int64)
+    hv2 = np.array([2, 0, 1, 0, 2, 0], dtype=np.uint8)
+    lt2 = np.array([0, 50, 100, 600, 700, 720], dtype=np.int64)
+    lv2 = np.array([2, 1, 0, 1, 2, 1], dtype=np.uint8)
+    m2 = measure_capture(make_capture(NS, (ht2, hv2), (lt2, lv2)))
+    assert [(o.at_s, o.duration_s) for o in m2.possible_overlaps] == [(700 * NS, 20 * NS)]
+    assert m2.verdict == "fail"
+
+
 def test_possible_overlap_runs_to_the_end_and_across_states() -> None:
     # low on; high x then z (two unknown states in one run), to the end of the capture
     ht = np.array([0, 200, 210], dtype=np.int64)
@@ -484,7 +503,8 @@ def _reference_glitches_and_possible(
 ) -> tuple[list[Glitch], list[tuple[int, int]]]:
     """A plain loop written from the module docstring's rules: a glitch is a clean pulse of
     one gate shorter than `width` ticks (zero width always); a possible overlap is a run of
-    joint states with one gate x/z and the other on or x/z."""
+    joint states with one gate x/z and the other on or x/z, except the capture's first state
+    while both are unknown (with unknown levels before the capture)."""
     t = 0
     timed: list[tuple[int, bool, int]] = []
     for dt, high, value in evs:
@@ -516,8 +536,10 @@ def _reference_glitches_and_possible(
             states.append((when, after[when]))
     runs: list[tuple[int, int]] = []
     open_at: int | None = None
-    for when, (h, lo) in states:
+    for k, (when, (h, lo)) in enumerate(states):
         risky = h != 0 and lo != 0 and (h, lo) != (1, 1)
+        if k == 0 and initial == (2, 2) and h >= 2 and lo >= 2:
+            risky = False  # nothing observed yet
         if risky and open_at is None:
             open_at = when
         elif not risky and open_at is not None:

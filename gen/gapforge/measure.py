@@ -12,7 +12,9 @@ Transitions are read from the joint state of the two gates (high side, low side)
 - `to_low`: the same from high side on to low side on.
 - an overlap is any interval with both gates on (shoot-through), reported with its start time.
 - a possible overlap is any interval where one gate is unknown (x or z) while the other is on or
-  also unknown: it may be a shoot-through, so it fails like one.
+  also unknown: it may be a shoot-through, so it fails like one. The one exception is the
+  capture's start while both gates are still unknown (a simulator's $dumpvars x before any
+  level is known): nothing is observed yet, as if the capture started later (noted).
 - a glitch is a pulse on one gate shorter than the set width (`--glitch`; a pulse of zero width,
   two changes at one time stamp, always is one). Glitches are listed; they stay in the
   measurement (every gap and overlap is measured on the signals as captured). An on-pulse
@@ -61,6 +63,7 @@ _OFF, _LOW_ON, _HIGH_ON, _BOTH = 0, 1, 4, 5
 _UNKNOWN = np.array([(s >> 2) >= 2 or (s & 3) >= 2 for s in range(16)], dtype=bool)
 # one gate unknown while the other is on or unknown: a possible shoot-through
 _RISKY = np.array([(s >> 2) != 0 and (s & 3) != 0 and s != _BOTH for s in range(16)], dtype=bool)
+_BOTH_UNKNOWN = np.array([(s >> 2) >= 2 and (s & 3) >= 2 for s in range(16)], dtype=bool)
 
 Ints = npt.NDArray[np.int64]
 Floats = npt.NDArray[np.float64]
@@ -345,6 +348,9 @@ def measure_capture(
         notes.append(f"{missing_count} missing edge(s)")
     if raw.glitch_total:
         notes.append(f"{raw.glitch_total} glitch(es) shorter than the set width")
+    if raw.leading_unknown:
+        notes.append("both gates unknown (x/z) at the start of the capture, before their first "
+                     "known levels: not measured")
     unknown = raw.unknown - (1 if raw.first_unknown else 0)  # after the first known levels
     if unknown > 0 and has_window:
         inconclusive.append(f"{unknown} interval(s) with an unknown (x/z) gate level: a dead "
@@ -457,6 +463,7 @@ class _Engine:
         self.glitch_on_total = 0
         self._recent_glitches: set[tuple[int, int]] = set()  # (side, start) not yet out of reach
         self._risk_open: int | None = None
+        self.leading_unknown = False
         self._risk_start: list[Ints] = []
         self._risk_length: list[Ints] = []
         self.repeat_total = 0
@@ -566,7 +573,8 @@ class _Engine:
                 # the levels before the first change, as a zero-length state at the first time
                 self.ctx_t = t[:1].copy()
                 self.ctx_s = np.array([(self.initial[0] << 2) | self.initial[1]], dtype=np.uint8)
-                self._count_unknown(self.ctx_s, first=True)
+                if self._count_unknown(self.ctx_s, first=True):
+                    self._possible(self.ctx_t, self.ctx_s, first=False)
         change = np.empty(state.size, dtype=bool)
         change[1:] = state[1:] != state[:-1]
         change[0] = self.ctx_s.size == 0 or state[0] != self.ctx_s[-1]
@@ -574,8 +582,9 @@ class _Engine:
             t, state = t[change], state[change]
         if state.size == 0:
             return
-        if self._count_unknown(state, first=self.ctx_s.size == 0) or self._risk_open is not None:
-            self._possible(t, state)
+        first = self.ctx_s.size == 0
+        if self._count_unknown(state, first=first) or self._risk_open is not None:
+            self._possible(t, state, first)
         c0 = self.ctx_s.size
         seq_t = np.concatenate([self.ctx_t, t]) if c0 else t
         seq_s = np.concatenate([self.ctx_s, state]) if c0 else state
@@ -620,9 +629,13 @@ class _Engine:
             self.first_unknown = bool(unknown[0])
         return count
 
-    def _possible(self, t: Ints, state: npt.NDArray[np.uint8]) -> None:
-        """Runs of joint states with one gate unknown and the other on or unknown."""
+    def _possible(self, t: Ints, state: npt.NDArray[np.uint8], first: bool) -> None:
+        """Runs of joint states with one gate unknown and the other on or unknown (not the
+        first state of the capture while both gates are unknown: nothing observed yet)."""
         risky = _RISKY[state]
+        if first and _BOTH_UNKNOWN[state[0]]:
+            risky[0] = False
+            self.leading_unknown = True
         before = np.empty_like(risky)
         before[0] = self._risk_open is not None
         before[1:] = risky[:-1]
@@ -632,8 +645,10 @@ class _Engine:
             starts = np.concatenate([np.array([self._risk_open], dtype=np.int64), starts])
         closed = ends.size
         if closed:
-            self._risk_start.append(starts[:closed])
-            self._risk_length.append(ends - starts[:closed])
+            lengths = ends - starts[:closed]
+            keep = lengths > 0  # an initial state replaced at its own time lasted no time
+            self._risk_start.append(starts[:closed][keep])
+            self._risk_length.append(lengths[keep])
         self._risk_open = int(starts[closed]) if starts.size > closed else None
 
     def _glitches(
