@@ -112,7 +112,7 @@ def test_bad_input_one_line_exit_2(tmp_path: Path, content: bytes | None, args: 
 
 
 def test_design_file(tmp_path: Path) -> None:
-    from gapforge.design import measurement_expectations
+    from gapforge.build import measurement_expectations
 
     design = ROOT / "examples" / "motor-inverter.toml"
     expected = measurement_expectations(design)

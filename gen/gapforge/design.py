@@ -209,12 +209,3 @@ def load_design(path: Path) -> Design:
         stage=stage,
         outputs=tuple(outputs),
     )
-
-
-def measurement_expectations(
-    path: Path,
-) -> dict[str, tuple[Fraction | None, Fraction | None, Fraction | None, Fraction | None]]:
-    """Moved to gapforge.build.measurement_expectations (the fit layer); kept for callers."""
-    from gapforge.build import measurement_expectations as expectations
-
-    return expectations(path)

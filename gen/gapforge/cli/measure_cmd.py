@@ -45,7 +45,7 @@ def build_limits(
 
     per_edge: dict[str, list[Fraction | None]] = {edge: [None, None, None, None] for edge in EDGES}
     if design is not None:
-        from gapforge.design import measurement_expectations
+        from gapforge.build import measurement_expectations
 
         try:
             expected = measurement_expectations(design)
