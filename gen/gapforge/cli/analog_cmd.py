@@ -26,6 +26,7 @@ from gapforge.analog import (
     ReferenceNetwork,
     network_from_options,
 )
+from gapforge.cli.options import json_option
 from gapforge.errors import GapforgeError
 from gapforge.quantities import format_quantity, parse_quantity, parse_tolerance
 
@@ -85,7 +86,7 @@ def _network_options(f: F) -> F:
               show_default=True, help="Resistor series for --suggest.")
 @click.option("--c-series", type=click.Choice(["E12", "E24", "E96"]), default="E12",
               show_default=True, help="Capacitor series for --suggest.")
-@click.option("--json", "as_json", is_flag=True, help="Print JSON instead of text.")
+@json_option
 def command(
     design: Path | None,
     levels: str | None,

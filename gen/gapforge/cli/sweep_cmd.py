@@ -10,7 +10,7 @@ from typing import Any
 
 import click
 
-from gapforge.cli.options import Tolerance
+from gapforge.cli.options import Tolerance, json_option
 from gapforge.cli.window_cmd import (
     CAUTION,
     MIN_FORMULA,
@@ -260,7 +260,7 @@ def _design_limits(
     default=None,
     help=f"Show only the N best feasible rows (text default {TEXT_TOP}).",
 )
-@click.option("--json", "as_json", is_flag=True, help="Print JSON.")
+@json_option
 @click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
 def command(**values: Any) -> None:
     """Compare layouts x timer clocks x dividers against the dead-time window.

@@ -16,6 +16,7 @@ from typing import Any, TypeVar
 import click
 
 from gapforge import caution
+from gapforge.cli.options import json_option
 from gapforge.errors import GapforgeError
 from gapforge.quantities import format_quantity, parse_quantity, picoseconds_ceil
 from gapforge.schema import Reader, load_toml
@@ -333,7 +334,7 @@ def window_text(
 @click.option("--dead-time", help="A chosen dead time for both edges: costs and verdict.")
 @click.option("--to-high", help="A chosen to_high dead time (overrides --dead-time).")
 @click.option("--to-low", help="A chosen to_low dead time (overrides --dead-time).")
-@click.option("--json", "as_json", is_flag=True, help="Print JSON.")
+@json_option
 def command(**values: Any) -> None:
     """Derive the power stage's dead-time window per edge, its breakdown and its costs.
 
