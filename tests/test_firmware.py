@@ -104,4 +104,4 @@ def test_firmware_command_writes_files(tmp_path: Path) -> None:
     assert result.exit_code == 0, result.output
     assert (tmp_path / "fw/gapforge_capture_fmt.h").read_text() == render_capture_helper(16)[
         "gapforge_capture_fmt.h"]
-    assert "Caution" in result.output
+    assert "CAUTION" in result.output

@@ -183,7 +183,7 @@ def test_timing_diagram_under_the_tables(tmp_path: Path) -> None:
     assert at > next(i for i, line in enumerate(lines) if line.startswith("to_low "))  # under
     assert at < next(i for i, line in enumerate(lines) if line.startswith("Verdict"))
     plain = CliRunner().invoke(cli, [*args, "--ascii"]).output
-    assert "Timing" in plain and all(ord(ch) < 128 for ch in plain.split("Caution")[0])
+    assert "Timing" in plain and all(ord(ch) < 128 for ch in plain.split("CAUTION")[0])
     assert "\u2594" in text  # the default drawing uses block characters
     none = CliRunner().invoke(cli, [*args, "--no-diagram"]).output
     assert "Timing" not in none

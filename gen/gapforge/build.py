@@ -279,13 +279,19 @@ Expectation = tuple[Fraction | None, Fraction | None, Fraction | None, Fraction 
 
 def capture_expectations(plan: BuildPlan) -> dict[str, Expectation]:
     """What a bench capture is judged against, per edge: (window_min_s, window_max_s,
-    predicted_min_s, predicted_max_s). The window is the design's (None where absent); the
-    prediction is the first fitted output's achieved range over the clock tolerance.
+    predicted_min_s, predicted_max_s). The window is the design's; without a [stage] window, its
+    minimum is the requested dead time (what the design says the stage needs), so a measured gap
+    shorter than the request fails. The prediction is the first fitted output's achieved range
+    over the clock tolerance.
     """
     first = next((op for op in plan.outputs if op.fit.ok), None)
     out: dict[str, Expectation] = {}
     for e in EDGES:
-        wmin, wmax = plan.window[e] if plan.window is not None else (None, None)
+        if plan.window is not None:
+            wmin, wmax = plan.window[e]
+        else:
+            wmin = plan.request.requested(e) if plan.request is not None else None
+            wmax = None
         pmin = pmax = None
         if first is not None:
             pmin, pmax = first.fit.edges[e].achieved_min_s, first.fit.edges[e].achieved_max_s

@@ -530,14 +530,11 @@ def result_tables(plan: BuildPlan) -> list[TableBlock]:
             )
         )
     if plan.design.stage is not None and plan.outputs:
-        from gapforge.stage import stage_costs
-
         cost_rows: list[tuple[str, ...]] = []
         for op in plan.outputs:
-            if not op.fit.ok:
+            if not op.fit.ok or op.costs is None:
                 continue
-            dead = {e: _achieved(op, e)[0] for e in EDGES}
-            c = stage_costs(plan.design.stage, dead)
+            c = op.costs  # the same costs `build` prints: at the longest (slow-clock) dead time
             cost_rows.append(
                 (
                     op.output.prefix,
@@ -549,7 +546,7 @@ def result_tables(plan: BuildPlan) -> list[TableBlock]:
             )
         tables.append(
             TableBlock(
-                "Costs of the chosen dead times",
+                "Costs of the chosen dead times (at their longest, slow clock)",
                 (
                     "output",
                     "reverse conduction",

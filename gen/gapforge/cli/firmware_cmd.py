@@ -6,6 +6,7 @@ from pathlib import Path
 
 import click
 
+from gapforge import caution
 from gapforge.files import write_files
 from gapforge.firmware import render_capture_helper
 
@@ -25,5 +26,4 @@ def command(out_dir: Path, counter_bits: str) -> None:
     written = write_files({out_dir / name: text for name, text in texts.items()})
     for path in written:
         click.echo(f"wrote {path}")
-    click.echo("Caution: a design aid. Verify every dead time on the bench at reduced voltage with "
-               "current limiting; local codes and licensed practice prevail.")
+    click.echo(caution.TEXT)

@@ -9,6 +9,7 @@ from typing import TYPE_CHECKING, Any
 
 import click
 
+from gapforge import caution
 from gapforge.cli.options import Quantity, diagram_options, emit_json, json_option
 from gapforge.errors import GapforgeError
 from gapforge.quantities import format_quantity, parse_quantity
@@ -18,10 +19,7 @@ if TYPE_CHECKING:
     from gapforge.measure import Limits, Measurement
     from gapforge.serial_stream import SerialResult, StreamStatus
 
-CAUTION = (
-    "Caution: a design aid, not a guarantee. Verify every dead time on the bench at reduced "
-    "voltage with current limiting before full power; local codes and licensed practice prevail."
-)
+CAUTION = caution.TEXT
 
 
 def parse_window(text: str) -> tuple[Fraction | None, Fraction | None]:
