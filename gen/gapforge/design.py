@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import hashlib
 import re
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from fractions import Fraction
 from pathlib import Path
 from typing import Any
@@ -115,19 +115,16 @@ def load_design(path: Path) -> Design:
     if stage_t is not None:
         from gapforge import stage as stage_mod
 
-        stage = stage_mod.read_stage(stage_t)
-        if pwm is not None and not reader.problems:
-            # each switch turns on and off once per PWM period: the stage switches at the PWM
-            # frequency, and the loss budget's maximum depends on it
-            if stage.fsw is None:
-                stage = replace(stage, fsw=pwm.frequency_hz)
-            elif stage.fsw != pwm.frequency_hz:
-                reader.problem(
-                    "stage.fsw",
-                    f"{float(stage.fsw):.6g} Hz differs from pwm.frequency "
-                    f"{float(pwm.frequency_hz):.6g} Hz (a half bridge switches once per PWM period;"
-                    " drop stage.fsw or make them equal)",
-                )
+        # each switch turns on and off once per PWM period: the stage switches at the PWM
+        # frequency (the default for stage.fsw), and the loss budget's maximum depends on it
+        stage = stage_mod.read_stage(stage_t, pwm.frequency_hz if pwm is not None else None)
+        if pwm is not None and not reader.problems and stage.fsw != pwm.frequency_hz:
+            reader.problem(
+                "stage.fsw",
+                f"{float(stage.fsw):.6g} Hz differs from pwm.frequency "
+                f"{float(pwm.frequency_hz):.6g} Hz (a half bridge switches once per PWM period;"
+                " drop stage.fsw or make them equal)",
+            )
 
     dead_t = top.sub("dead_time") or reader.table({}, "dead_time")
     dead_t.check_keys(_DEAD)

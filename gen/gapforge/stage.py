@@ -470,7 +470,7 @@ def judge_bounds(
 # reading the [stage] table of a design file
 
 
-def read_stage(table: Table) -> StageSpec:
+def read_stage(table: Table, default_fsw: Fraction | None = None) -> StageSpec:
     """A StageSpec from a design file's [stage] table. Problems are recorded on the Reader.
 
     Timing keys at [stage] apply to both switches; [stage.high] / [stage.low] override them for
@@ -515,7 +515,7 @@ def read_stage(table: Table) -> StageSpec:
         gate_off=gate_off if gate_off is not None else Fraction(0),
         current_to_high=i_high if i_high is not None else current,
         current_to_low=i_low if i_low is not None else current,
-        fsw=table.quantity("fsw", "Hz", required=False),
+        fsw=table.quantity("fsw", "Hz", default_fsw, required=False),
         loss_budget=table.quantity("loss_budget", "W", required=False, allow_zero=True),
         qrr=table.quantity("qrr", "C", required=False, allow_zero=True),
         bus_voltage=table.quantity("bus_voltage", "V", required=False),

@@ -1,0 +1,93 @@
+"""Regression tests for findings of the design reviews, named by issue.
+
+Each scenario is invented for the test.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from conftest import run_cli
+
+DESIGN = """# invented test design: 100 ns requested, no [stage] window
+format = 1
+[timer]
+clock = "160MHz"
+tolerance = "50ppm"
+[dead_time]
+value = "100ns"
+[[output]]
+target = "split-10bit-div4"
+prefix = "DT"
+file = "dt.h"
+"""
+
+
+def _capture(path: Path, gap_ns: int, periods: int = 5) -> None:
+    """Edge-event CSV: low off, gap, high on 400 ns, high off, gap, low on 400 ns."""
+    rows = ["time_ns,signal,level", "0,gate_h,0", "0,gate_l,1"]
+    t = 100
+    for _ in range(periods):
+        rows += [f"{t},gate_l,0", f"{t + gap_ns},gate_h,1"]
+        t += gap_ns + 400
+        rows += [f"{t},gate_h,0", f"{t + gap_ns},gate_l,1"]
+        t += gap_ns + 400
+    path.write_text("\n".join(rows) + "\n")
+
+
+def test_issue5_measure_design_without_window_fails_gaps_below_the_request(tmp_path: Path) -> None:
+    # a design that asks for 100 ns and has no [stage]: 28 ns gaps must fail (exit 1), not pass
+    # as "measured"; 28 ns + 1 ns resolution (the edge CSV's time unit) < 100 ns
+    (tmp_path / "d.toml").write_text(DESIGN)
+    _capture(tmp_path / "short.csv", 28)
+    code, out, err = run_cli(["measure", str(tmp_path / "short.csv"), "--high", "gate_h",
+                              "--low", "gate_l", "--design", str(tmp_path / "d.toml"), "--json"])
+    assert code == 1, err
+    doc = json.loads(out)
+    assert doc["verdict"] == "fail"
+    assert doc["edges"]["to_high"]["min_s"] == 28e-9
+
+
+def test_issue5_measure_design_without_window_passes_long_enough_gaps(tmp_path: Path) -> None:
+    # the control: 101 ns - 1 ns resolution = 100 ns >= the 100 ns request, so the same design
+    # passes (the fit's worst case is 100.0 ns .. 100.01 ns; there is no maximum)
+    (tmp_path / "d.toml").write_text(DESIGN)
+    _capture(tmp_path / "ok.csv", 101)
+    code, out, err = run_cli(["measure", str(tmp_path / "ok.csv"), "--high", "gate_h",
+                              "--low", "gate_l", "--design", str(tmp_path / "d.toml"), "--json"])
+    assert code == 0, err + out
+    assert json.loads(out)["verdict"] == "pass"
+
+
+def test_issue4_stage_switching_frequency_must_be_the_pwm_frequency(tmp_path: Path) -> None:
+    # a half bridge switches once per PWM period; a stage fsw of 20 kHz beside 100 kHz PWM made
+    # the loss-budget maximum five times too long
+    design = DESIGN.replace("[dead_time]", '[pwm]\nfrequency = "100kHz"\n[dead_time]').replace(
+        'value = "100ns"',
+        'source = "window"\n[stage]\ntd_off = "40ns"\ntd_on = "10ns"\nvsd = "3V"\n'
+        'current = "10A"\nfsw = "20kHz"\nloss_budget = "2W"',
+    )
+    (tmp_path / "d.toml").write_text(design)
+    code, _, err = run_cli(["build", str(tmp_path / "d.toml")])
+    assert code == 2
+    assert err.strip().splitlines() == [
+        f"gapforge: error: {tmp_path / 'd.toml'}: stage.fsw: 20000 Hz differs from pwm.frequency "
+        "100000 Hz (a half bridge switches once per PWM period; drop stage.fsw or make them equal)"
+    ]
+    assert not (tmp_path / "dt.h").exists()
+
+
+def test_issue4_stage_switching_frequency_defaults_to_the_pwm_frequency(tmp_path: Path) -> None:
+    # without stage.fsw the maximum uses the PWM frequency: 2 W / (3 V x (10 + 10) A x 100 kHz)
+    # = 333.333 ns, rounded down to 333.333 ns (1 ps)
+    design = DESIGN.replace("[dead_time]", '[pwm]\nfrequency = "100kHz"\n[dead_time]').replace(
+        'value = "100ns"',
+        'source = "window"\n[stage]\ntd_off = "40ns"\ntd_on = "10ns"\nvsd = "3V"\n'
+        'current = "10A"\nloss_budget = "2W"',
+    )
+    (tmp_path / "d.toml").write_text(design)
+    code, out, err = run_cli(["build", str(tmp_path / "d.toml"), "--json"])
+    assert code == 0, err
+    window = json.loads(out)["window"]
+    assert window["to_high"]["max_s"] == 333.333e-9
