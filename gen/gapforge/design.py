@@ -118,7 +118,12 @@ def load_design(path: Path) -> Design:
         # each switch turns on and off once per PWM period: the stage switches at the PWM
         # frequency (the default for stage.fsw), and the loss budget's maximum depends on it
         stage = stage_mod.read_stage(stage_t, pwm.frequency_hz if pwm is not None else None)
-        if pwm is not None and not reader.problems and stage.fsw != pwm.frequency_hz:
+        if (
+            pwm is not None
+            and stage.fsw is not None
+            and not reader.problems
+            and stage.fsw != pwm.frequency_hz
+        ):
             reader.problem(
                 "stage.fsw",
                 f"{float(stage.fsw):.6g} Hz differs from pwm.frequency "
