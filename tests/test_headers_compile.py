@@ -4,6 +4,9 @@ The outside check here is the C compiler itself: it, not gapforge, turns the emi
 into a dead time (STEPS x DIVIDER x 10^12 / (SUB_STEPS x TIMER_CLOCK_HZ) picoseconds in 64-bit
 unsigned arithmetic, ISO C99 7.18 uint64_t) and re-packs the register word from the field
 CODE/SHIFT/MASK macros; the test compares what the compiled program prints with gapforge's JSON.
+A second program recomputes the derived macros (worst-case dead time over the clock tolerance,
+PWM period, usable duty range by simulating one PWM period count by count) from the primitive
+ones, for both examples and for invented designs (see the comment above LIMITS_C_HELPERS).
 
 Compilers: the host gcc (required), clang and the 32-bit MCU cross compiler arm-none-eabi-gcc
 (-march=armv6-m -mthumb, compile only) when present; they skip cleanly otherwise.
@@ -16,6 +19,7 @@ import math
 import re
 import shutil
 import subprocess
+import tomllib
 from fractions import Fraction
 from pathlib import Path
 from typing import Any
@@ -365,3 +369,347 @@ def test_prefixes_differing_in_case_get_distinct_include_guards(tmp_path: Path) 
     proc = subprocess.run([compiler, "-std=c99", *WARNINGS, "-c", str(src), "-o",
                            str(tmp_path / "both.o")], capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
+
+
+# ---------------------------------------------------------------------------------------------
+# The derived macros (worst-case dead time, window, PWM period and usable duty), recomputed by
+# the C compiler from the primitive macros in 64-bit unsigned integer arithmetic (ISO C99 7.18
+# uint64_t; products wider than 64 bits are held as two 64-bit halves, below), never by gapforge.
+#
+# Worst case over the clock tolerance (common practice, reference-facts.md "Clock tolerance"):
+# N counts last N / (f (1 + tol)) at the fastest clock and N / (f (1 - tol)) at the slowest, so
+#     min_ps = floor(STEPS x DIVIDER x 10^12 x 10^9 / (SUB_STEPS x TIMER_CLOCK_HZ x (10^9 + PPB)))
+#     max_ps =  ceil(STEPS x DIVIDER x 10^12 x 10^9 / (SUB_STEPS x TIMER_CLOCK_HZ x (10^9 - PPB))).
+#
+# The bound on the comparison. The header's ACHIEVED_MIN/MAX_PS come from the exact tolerance t;
+# CLOCK_TOL_PPB is t x 10^9 rounded up, so the C program uses t' = PPB / 10^9 with
+# t <= t' < t + 10^-9. A larger tolerance only widens the worst case, so the recomputed values
+# can only be more pessimistic: recomputed min <= macro min, recomputed max >= macro max. How far?
+# With T the exact nominal dead time in ps:
+#     T/(1+t) - T/(1+t') = T (t'-t) / ((1+t)(1+t'))  < T x 10^-9
+#     T/(1-t') - T/(1-t) = T (t'-t) / ((1-t)(1-t'))  < T x 10^-9 / (1-t')^2
+# so while T x 10^-9 / (1-t')^2 < 1 ps (for t' <= 5 %: T below about 0.9 ms; the test asserts
+# it) the exact values move by less than one picosecond, and after floor / ceil
+#     macro_min - 1 <= recomputed_min <= macro_min,   macro_max <= recomputed_max <= macro_max + 1,
+# with equality on both when t x 10^9 is a whole number (PPB exact). Any difference in the other
+# direction (a header claiming a shorter minimum than its own inputs give, or a longer maximum)
+# fails the test, and so does a difference of more than 1 ps.
+#
+# PWM (common practice for a counting timer): edge-aligned up-counting repeats every N counts
+# (compare range 0..N), centre-aligned up/down counting every 2N; N is the PWM period in counts
+# rounded to the nearest whole count (gapforge.limits; ties round up). The usable duty is found by
+# simulation, not a formula: for every compare value c in 0..N the program walks one period count
+# by count (edge: counter = t; centre: counter = t on the way up, 2N - 1 - t on the way down, so
+# each count is one tick), commands the high side while counter < c and the low side otherwise,
+# and finds the shortest run of each command in the period (runs wrap around the period end). An
+# output produces a pulse when that run, in sub-steps, exceeds the dead time before its turn-on:
+# run x SUB_STEPS > dead steps x DIVIDER (to_high delays the high side, to_low the low side). The
+# first and last c giving both pulses must equal DUTY_MIN/MAX_COUNTS, with every c between them
+# also giving both (one contiguous range).
+
+LIMITS_C_HELPERS = r"""
+typedef struct { uint64_t hi, lo; } u128;
+
+static u128 mul64(uint64_t a, uint64_t b) {
+    uint64_t a0 = a & 0xffffffffull, a1 = a >> 32, b0 = b & 0xffffffffull, b1 = b >> 32;
+    uint64_t p00 = a0 * b0, p01 = a0 * b1, p10 = a1 * b0, p11 = a1 * b1;
+    uint64_t mid = (p00 >> 32) + (p01 & 0xffffffffull) + (p10 & 0xffffffffull);
+    u128 r;
+    r.lo = (p00 & 0xffffffffull) | (mid << 32);
+    r.hi = p11 + (p01 >> 32) + (p10 >> 32) + (mid >> 32);
+    return r;
+}
+
+static int ge128(u128 a, u128 b) { return a.hi != b.hi ? a.hi > b.hi : a.lo >= b.lo; }
+
+static u128 sub128(u128 a, u128 b) {
+    u128 r;
+    r.lo = a.lo - b.lo;
+    r.hi = a.hi - b.hi - (a.lo < b.lo ? 1u : 0u);
+    return r;
+}
+
+/* floor(n / d) by shift and subtract; *exact is 1 when the remainder is 0. d < 2^127. */
+static u128 div128(u128 n, u128 d, int *exact) {
+    u128 q = {0u, 0u}, r = {0u, 0u};
+    int i;
+    for (i = 127; i >= 0; --i) {
+        uint64_t bit = i >= 64 ? (n.hi >> (i - 64)) & 1u : (n.lo >> i) & 1u;
+        r.hi = (r.hi << 1) | (r.lo >> 63);
+        r.lo = (r.lo << 1) | bit;
+        if (ge128(r, d)) {
+            r = sub128(r, d);
+            if (i >= 64) q.hi |= (uint64_t)1u << (i - 64); else q.lo |= (uint64_t)1u << i;
+        }
+    }
+    *exact = (r.hi == 0u && r.lo == 0u);
+    return q;
+}
+
+/* worst-case dead time in ps: floor at the fastest clock (fast = 1), ceil at the slowest */
+static void worst_ps(uint64_t steps, int fast, const char *edge) {
+    uint64_t counts = steps * (uint64_t)DIVIDER;
+    uint64_t tol = fast ? 1000000000ull + (uint64_t)TOL_PPB : 1000000000ull - (uint64_t)TOL_PPB;
+    u128 num, den, q;
+    int exact;
+    if (counts > 18446744ull) { printf("%s overflow 1\n", edge); return; } /* x 10^12 fits */
+    num = mul64(counts * 1000000000000ull, 1000000000ull);
+    den = mul64((uint64_t)SUB_STEPS * (uint64_t)TIMER_CLOCK_HZ, tol);
+    q = div128(num, den, &exact);
+    if (!fast && !exact) {
+        q.lo += 1u;
+        if (q.lo == 0u) q.hi += 1u;
+    }
+    printf("%s %s_rec_hi %llu\n", edge, fast ? "min" : "max", (unsigned long long)q.hi);
+    printf("%s %s_rec %llu\n", edge, fast ? "min" : "max", (unsigned long long)q.lo);
+}
+
+/* 1 when the high side is commanded on at count t of the period, compare value c */
+static int high_cmd(uint64_t t, uint64_t c) {
+#if CENTER
+    uint64_t counter = t < COMPARE ? t : 2u * COMPARE - 1u - t;
+#else
+    uint64_t counter = t;
+#endif
+    return counter < c;
+}
+
+/* shortest run of `level` in one period (wrapping); 0 when there is no edge at all */
+static uint64_t shortest_run(uint64_t c, int level) {
+    uint64_t t, best = 0u;
+    for (t = 0u; t < PERIOD; ++t) {
+        uint64_t prev = t == 0u ? PERIOD - 1u : t - 1u;
+        if ((high_cmd(t, c) == level) && (high_cmd(prev, c) != level)) {
+            uint64_t n = 0u, u = t;
+            while (n < PERIOD && high_cmd(u, c) == level) {
+                ++n;
+                u = u + 1u == PERIOD ? 0u : u + 1u;
+            }
+            if (best == 0u || n < best) best = n;
+        }
+    }
+    return best;
+}
+
+static int pulse(uint64_t run, uint64_t dead_steps) {
+    return run * (uint64_t)SUB_STEPS > dead_steps * (uint64_t)DIVIDER;
+}
+"""
+
+
+def _limits_program(header: Path, prefix: str, pwm_hz: Fraction) -> str:
+    """A C99 program printing the derived macros next to their recomputation from primitives."""
+    p = prefix
+    lines = [
+        "#include <stdio.h>",
+        "#include <stdint.h>",
+        f'#include "{header}"',
+        f"#define DIVIDER {p}_DIVIDER",
+        f"#define SUB_STEPS {p}_SUB_STEPS",
+        f"#define TIMER_CLOCK_HZ {p}_TIMER_CLOCK_HZ",
+        f"#define TOL_PPB {p}_CLOCK_TOL_PPB",
+        f"#define CENTER {p}_PWM_COUNTING_CENTER",
+        f"#define COMPARE ((uint64_t){p}_PWM_COMPARE_COUNTS)",
+        f"#define PERIOD ((uint64_t){p}_PWM_PERIOD_COUNTS)",
+        # the PWM frequency as an exact fraction, from the test (not a macro of the header)
+        f"#define PWM_NUM {pwm_hz.numerator}ull",
+        f"#define PWM_DEN {pwm_hz.denominator}ull",
+        LIMITS_C_HELPERS,
+        "int main(void) {",
+        "    uint64_t per = CENTER ? 2u : 1u, c, first = 0u, last = 0u, count = 0u;",
+        # nearest whole count: floor(F / (f x per) + 1/2) = floor((2 F den + num per) / (2 num per))
+        "    uint64_t nearest = (2u * (uint64_t)TIMER_CLOCK_HZ * PWM_DEN + PWM_NUM * per)"
+        " / (2u * PWM_NUM * per);",
+        '    printf("tol_ppb %llu\\n", (unsigned long long)TOL_PPB);',
+        '    printf("center %llu\\n", (unsigned long long)CENTER);',
+        '    printf("compare %llu\\n", (unsigned long long)COMPARE);',
+        '    printf("period %llu\\n", (unsigned long long)PERIOD);',
+        '    printf("period_rec %llu\\n", (unsigned long long)(nearest * per));',
+        '    printf("compare_rec %llu\\n", (unsigned long long)nearest);',
+    ]
+    for edge in ("TO_HIGH", "TO_LOW"):
+        e = edge.lower()
+        lines += [
+            f'    worst_ps((uint64_t){p}_{edge}_STEPS, 1, "{e}");',
+            f'    worst_ps((uint64_t){p}_{edge}_STEPS, 0, "{e}");',
+            f'    printf("{e} min_macro %llu\\n", (unsigned long long){p}_{edge}_ACHIEVED_MIN_PS);',
+            f'    printf("{e} max_macro %llu\\n", (unsigned long long){p}_{edge}_ACHIEVED_MAX_PS);',
+        ]
+        for side in ("MIN", "MAX"):
+            macro = f"{p}_WINDOW_{edge}_{side}_PS"
+            lines += [
+                f"#ifdef {macro}",
+                f'    printf("window {e} {side.lower()} %llu\\n", (unsigned long long){macro});',
+                "#endif",
+            ]
+    lines += [
+        "    for (c = 0u; c <= COMPARE; ++c) {",
+        f"        int high = pulse(shortest_run(c, 1), (uint64_t){p}_TO_HIGH_STEPS);",
+        f"        int low = pulse(shortest_run(c, 0), (uint64_t){p}_TO_LOW_STEPS);",
+        "        if (high && low) {",
+        "            if (count == 0u) first = c;",
+        "            last = c;",
+        "            ++count;",
+        "        }",
+        "    }",
+        '    printf("duty_first %llu\\n", (unsigned long long)first);',
+        '    printf("duty_last %llu\\n", (unsigned long long)last);',
+        '    printf("duty_count %llu\\n", (unsigned long long)count);',
+        f'    printf("duty_min_macro %llu\\n", (unsigned long long){p}_DUTY_MIN_COUNTS);',
+        f'    printf("duty_max_macro %llu\\n", (unsigned long long){p}_DUTY_MAX_COUNTS);',
+        "    return 0;",
+        "}",
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def _local_quantity(text: str, units: dict[str, Fraction]) -> Fraction:
+    """A number with one of `units` as suffix, parsed here (not by gapforge) into a Fraction."""
+    text = text.strip()
+    for suffix in sorted(units, key=len, reverse=True):
+        if suffix and text.endswith(suffix):
+            return Fraction(text[: -len(suffix)].strip()) * units[suffix]
+    return Fraction(text) * units.get("", Fraction(1))
+
+
+def _hz(text: str) -> Fraction:
+    return _local_quantity(text, {"GHz": Fraction(10**9), "MHz": Fraction(10**6),
+                                  "kHz": Fraction(10**3), "Hz": Fraction(1)})
+
+
+def _tol(text: str) -> Fraction:
+    return _local_quantity(text, {"ppm": Fraction(1, 10**6), "%": Fraction(1, 100),
+                                  "": Fraction(1)})
+
+
+def _json_fraction(value: float) -> Fraction:
+    # the shortest decimal that round-trips the JSON float: exact for the decimal values a
+    # design states, and within 1e-16 relative of a computed one (nowhere near a whole ps here)
+    return Fraction(repr(value))
+
+
+def _check_limits(design_file: Path, out: Path, doc: dict[str, Any], tmp_path: Path) -> int:
+    """Compile and run the limits program for every output of a built design; returns how
+    many outputs were checked."""
+    compiler = _compiler("gcc")
+    design = tomllib.loads(design_file.read_text())
+    clock = _hz(design["timer"]["clock"])
+    assert clock.denominator == 1, "the invented designs keep a whole-hertz clock"
+    tol = _tol(design["timer"].get("tolerance", "0"))
+    ppb = math.ceil(tol * 10**9)
+    tol_c = Fraction(ppb, 10**9)  # what the C program uses
+    pwm_text = _hz(design["pwm"]["frequency"])
+    for entry in doc["outputs"]:
+        pwm_hz = _json_fraction(entry["pwm"]["requested_hz"])
+        assert pwm_hz == pwm_text  # the JSON states the design's frequency
+        header = out / entry["file"]
+        src = tmp_path / f"limits_{entry['prefix']}.c"
+        exe = tmp_path / f"limits_{entry['prefix']}"
+        src.write_text(_limits_program(header, entry["prefix"], pwm_hz))
+        proc = subprocess.run([compiler, "-std=c99", *WARNINGS, "-O1", str(src), "-o", str(exe)],
+                              capture_output=True, text=True)
+        assert proc.returncode == 0, proc.stderr
+        run = subprocess.run([str(exe)], capture_output=True, text=True, check=True, timeout=60)
+        v = _parse(run.stdout)
+        where = f"{design_file.name} {entry['prefix']}"
+
+        assert v["tol_ppb"] == ppb, where
+        exact = tol * 10**9 == ppb
+        slack = 0 if exact else 1
+        for edge in ("to_high", "to_low"):
+            assert f"{edge} overflow" not in v, where
+            assert v[f"{edge} min_rec_hi"] == 0 and v[f"{edge} max_rec_hi"] == 0, where
+            steps = entry["edges"][edge]["steps"]
+            nominal_ps = Fraction(steps * entry["divider"] * 10**12, entry["sub_steps"] * clock)
+            # the precondition of the 1-ps bound (see the comment above LIMITS_C_HELPERS)
+            assert nominal_ps * (tol_c - tol) / (1 - tol_c) ** 2 < 1, where
+            rec_min, macro_min = v[f"{edge} min_rec"], v[f"{edge} min_macro"]
+            rec_max, macro_max = v[f"{edge} max_rec"], v[f"{edge} max_macro"]
+            assert macro_min - slack <= rec_min <= macro_min, (where, edge, rec_min, macro_min)
+            assert macro_max <= rec_max <= macro_max + slack, (where, edge, rec_max, macro_max)
+            assert rec_min <= rec_max
+
+        center = entry["pwm"]["counting"] == "center"
+        assert v["center"] == int(center), where
+        assert v["compare"] == v["compare_rec"], where
+        assert v["period"] == v["period_rec"] == v["compare"] * (2 if center else 1), where
+        # the rounding C did is the nearest whole count: |N x f x per - F| <= f x per / 2
+        per = 2 if center else 1
+        assert abs(v["compare"] * pwm_hz * per - clock) <= pwm_hz * per / 2, where
+
+        assert v["duty_count"] > 0, where
+        assert v["duty_first"] == v["duty_min_macro"], (where, v)
+        assert v["duty_last"] == v["duty_max_macro"], (where, v)
+        assert v["duty_count"] == v["duty_last"] - v["duty_first"] + 1, where
+
+        window = doc.get("window")
+        for edge in ("to_high", "to_low"):
+            lo = None if window is None else window[edge]["min_s"]
+            hi = None if window is None else window[edge]["max_s"]
+            if window is None:
+                assert f"window {edge} min" not in v and f"window {edge} max" not in v, where
+                continue
+            # min rounded up to whole ps, max rounded down (the safe side of each)
+            assert v[f"window {edge} min"] == math.ceil(_json_fraction(lo or 0.0) * 10**12), where
+            if hi is None:
+                assert f"window {edge} max" not in v, where
+            else:
+                assert v[f"window {edge} max"] == math.floor(_json_fraction(hi) * 10**12), where
+    return len(doc["outputs"])
+
+
+def test_derived_macros_of_the_examples_recomputed_in_c(
+    built: tuple[Path, list[dict[str, Any]]], tmp_path: Path
+) -> None:
+    out, _ = built
+    checked = 0
+    for design in DESIGNS:
+        code, stdout, stderr = run_cli(
+            ["build", str(EXAMPLES / f"{design}.toml"), "--out", str(out), "--json"]
+        )
+        assert code == 0, stderr
+        doc = json.loads(stdout)
+        assert doc["window"] is not None  # both examples carry a [stage] window
+        checked += _check_limits(EXAMPLES / f"{design}.toml", out, doc, tmp_path)
+    assert checked == 3
+
+
+STAGE_TOML = (
+    '[stage]\nkind = "silicon"\ntd_off = "60ns"\nt_fall = "20ns"\ntd_on = "15ns"\n'
+    'prop_delay = "20ns:35ns"\nmargin = 1.2\nvsd = "1V"\ncurrent = "5A"\nloss_budget = "0.2W"\n'
+)
+
+INVENTED = {
+    # name: (clock, tolerance, pwm, counting, dead-time lines, target); every design invented
+    "edge-whole-period-tol0": ("100MHz", "0%", "100kHz", "edge", 'value = "150ns"',
+                               "split-10bit-div4"),
+    "edge-fractional-period-5pct-window": ("100MHz", "5%", "30kHz", "edge",
+                                           'source = "window"', "split-9bit-subclock"),
+    "center-fractional-period-odd-ppb": ("170MHz", "12.3456789ppm", "48kHz", "center",
+                                         'value = "400ns"', "shared-8bit-segmented"),
+    "center-subclock-asymmetric-tol0": ("150MHz", "0", "75kHz", "center",
+                                        'to_high = "33.3ns"\nto_low = "51ns"',
+                                        "split-9bit-subclock"),
+    "edge-short-period-asymmetric-5pct": ("64MHz", "5%", "2.1MHz", "edge",
+                                          'to_high = "100ns"\nto_low = "140ns"',
+                                          "split-10bit-div4"),
+}
+
+
+@pytest.mark.parametrize("name", sorted(INVENTED))
+def test_derived_macros_of_invented_designs_recomputed_in_c(name: str, tmp_path: Path) -> None:
+    clock, tol, pwm, counting, dead, target = INVENTED[name]
+    design_file = tmp_path / f"{name}.toml"
+    design_file.write_text(
+        f"# invented test design ({name})\nformat = 1\n"
+        f'[timer]\nclock = "{clock}"\ntolerance = "{tol}"\n'
+        f'[pwm]\nfrequency = "{pwm}"\ncounting = "{counting}"\n'
+        f"[dead_time]\n{dead}\n"
+        + (STAGE_TOML if "window" in dead else "")
+        + f'[[output]]\ntarget = "{target}"\nprefix = "INV"\nfile = "inv.h"\n'
+    )
+    code, stdout, stderr = run_cli(["build", str(design_file), "--out", str(tmp_path), "--json"])
+    assert code == 0, stdout + stderr
+    doc = json.loads(stdout)
+    assert _check_limits(design_file, tmp_path, doc, tmp_path) == 1
