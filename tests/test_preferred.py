@@ -1,14 +1,25 @@
-"""IEC 60063 preferred values and R/C suggestions."""
+"""IEC 60063 preferred values and R/C suggestions (never an unsafe pair)."""
 
 from __future__ import annotations
 
+import re
+import shutil
+import subprocess
+from dataclasses import replace
 from fractions import Fraction
+from pathlib import Path
 
 import pytest
 
-from gapforge.analog import network_from_options
+from gapforge.analog import (
+    DEFAULT_DIODE_TEXT,
+    network_from_options,
+    parse_diode,
+    reference_dead_times,
+)
 from gapforge.errors import GapforgeError
-from gapforge.preferred import E12, E24, E96, nearest, series_values, suggest
+from gapforge.preferred import E12, E24, E96, SERIES, nearest, series_values, suggest
+from gapforge.simulate import EdgeCircuit, spice_netlist
 from gapforge.tolerance import typical
 
 
@@ -40,18 +51,170 @@ def test_series_values_and_nearest() -> None:
 def test_suggestions_hit_the_target_and_are_ranked_by_error() -> None:
     net = network_from_options({"r": "4.7k", "c": "100p"})
     target = Fraction(150, 10**9)
-    pairs = suggest(net, target)
-    assert pairs
+    found = suggest(net, target, rank="typical")
+    pairs = found.pairs
+    assert pairs and found.rank == "typical"
     errors = [abs(p.error) for p in pairs]
     assert errors == sorted(errors)
     assert errors[0] < 0.01
     for p in pairs:
         # the reported typical value is the model's, for that pair
-        from dataclasses import replace
-
         assert typical(replace(net, r=p.r, c=p.c))["to_high"] == pytest.approx(p.typ_s)
         assert p.ranges["to_high"].min_s <= Fraction(p.typ_s) <= p.ranges["to_high"].max_s
         assert p.r in series_values("E96", p.r, p.r) and p.c in series_values("E12", p.c, p.c)
+
+
+# The README example: 4.7k / 100p network, falling edge bypassed, VT+ 2.0 V, VT- 1.0 V, asking
+# for 300 ns. Ranked by typical error alone, 121 ohm / 3.9 nF came sixth although its worst-case
+# dead time is -39.9 ns (an overlap).
+README = {"vdd": "3.3", "r": "4.7k", "c": "100p", "bypass": "falling", "vt_plus": "2.0",
+          "vt_minus": "1.0"}
+TARGET = Fraction(300, 10**9)
+UNSAFE_PAIR = (Fraction(121), Fraction(39, 10**10))
+
+
+def test_readme_example_never_proposes_a_pair_that_can_overlap() -> None:
+    net = network_from_options(README)
+    for rank in ("worst-case", "typical"):
+        found = suggest(net, TARGET, rank=rank)
+        assert len(found.pairs) == 6
+        for p in found.pairs:
+            assert p.safe and not p.unsafe
+            for key in ("to_high", "to_low"):
+                assert p.ranges[key].min_s > 0
+                # the pair's range is the one the reference check (corners + Monte Carlo) gives
+                assert p.ranges[key] == reference_dead_times(replace(net, r=p.r, c=p.c))[key]
+        assert UNSAFE_PAIR not in [(p.r, p.c) for p in found.pairs]
+        rejected = {(p.r, p.c): p for p in found.rejected}
+        bad = rejected[UNSAFE_PAIR]
+        assert not bad.safe
+        assert bad.ranges["to_high"].min_s == Fraction(-39915, 10**12)
+        assert any("to_high worst-case minimum -39.915 ns is not positive" in u for u in bad.unsafe)
+        # the unsafe pair's typical value is closer to the target than most proposed ones: it
+        # was dropped for its worst case, not for missing the target
+        assert abs(bad.error) < 0.005
+
+
+def test_rank_worst_case_orders_by_the_farthest_end_of_the_range() -> None:
+    net = network_from_options(README)
+    found = suggest(net, TARGET)  # worst-case is the default
+    assert found.rank == "worst-case"
+    worst = [p.worst_error for p in found.pairs]
+    assert worst == sorted(worst)
+    for p in found.pairs:
+        r = p.ranges["to_high"]
+        expected = max(TARGET - r.min_s, r.max_s - TARGET) / TARGET
+        assert p.worst_error == pytest.approx(float(expected), abs=1e-5)  # the range is in ps
+    # ranked by worst case, the best pair's whole range stays nearer the target than the
+    # typical ranking's first pair's
+    by_typical = suggest(net, TARGET, rank="typical").pairs[0]
+    assert found.pairs[0].worst_error <= by_typical.worst_error
+
+
+def test_min_dead_drops_pairs_whose_worst_case_falls_below_it() -> None:
+    net = network_from_options(README)
+    floor = Fraction(255, 10**9)
+    found = suggest(net, TARGET, min_dead_s=floor, rank="typical")
+    assert found.pairs
+    for p in found.pairs:
+        assert p.ranges["to_high"].min_s >= floor and p.ranges["to_low"].min_s >= floor
+    below = [p for p in found.rejected if p.ranges["to_high"].min_s > 0]
+    assert below, "some positive but too short pairs are rejected"
+    assert all("below the minimum dead time 255 ns" in " ".join(p.unsafe) for p in below)
+    # without the floor those pairs were offered: the floor really filtered
+    unfiltered = {(p.r, p.c) for p in suggest(net, TARGET, rank="typical").pairs}
+    assert unfiltered & {(p.r, p.c) for p in below}
+
+
+def test_no_safe_pair_leaves_an_empty_list_and_every_candidate_rejected() -> None:
+    net = network_from_options(README)
+    found = suggest(net, TARGET, min_dead_s=TARGET * 2)
+    assert found.pairs == ()
+    assert len(found.rejected) == found.candidates > 0
+
+
+# ngspice (the general-purpose circuit simulator, `ngspice -b`) confirms the README example's
+# overlap: at -40 C the high channel's resistor edge with its fastest parts (R 121 ohm -1 % and
+# -100 ppm/K, C 3.9 nF -5 % and -30 ppm/K plus the smallest Cin and stray, Rout 15 ohm) against
+# the low channel's bypassed edge with its slowest (+1 %, +5 %, +100 / +30 ppm/K, largest Cin
+# and stray, Rout 50 ohm), the default diode. Recorded with ngspice-39 from these netlists
+# (a 1 ps ramp, 0.5 ns steps: 0.1 % of the delay).
+_SPICE_MODEL = (".model dmod D(IS=4e-09 N=1.9 RS=0.6 CJO=1.5e-12 VJ=0.7 M=0.4 EG=1.11 XTI=3 "
+                "TNOM=27 FC=0.5 BV=75)")
+CORNER_NETLISTS = {
+    "slow": ("* gapforge reference network edge (generated)\n"
+             ".options reltol=1e-6 abstol=1e-15 vntol=1e-9 chgtol=1e-20 method=gear\n"
+             ".options temp=-40 tnom=27\nV1 s 0 PWL(0 0 1e-12 3.3)\nRout s a 15\n"
+             "R1 a n 119.011365\nC1 n 0 3.70177525e-09\nD1 n a dmod\n" + _SPICE_MODEL + "\n"
+             ".tran 5e-10 1.5e-06 0 5e-10\n.meas tran tcross WHEN v(n)=2 RISE=1\n.end\n"),
+    "fast": ("* gapforge reference network edge (generated)\n"
+             ".options reltol=1e-6 abstol=1e-15 vntol=1e-9 chgtol=1e-20 method=gear\n"
+             ".options temp=-40 tnom=27\nV1 s 0 PWL(0 3.3 1e-12 0)\nRout s a 50\n"
+             "R1 a n 123.004365\nC1 n 0 4.11398525e-09\nD1 n a dmod\n" + _SPICE_MODEL + "\n"
+             ".tran 5e-10 1.5e-06 0 5e-10\n.meas tran tcross WHEN v(n)=1 FALL=1\n.end\n"),
+}
+NGSPICE_TCROSS_S = {"slow": 4.62111e-07, "fast": 5.01988e-07}
+RAMP_S = 1e-12
+
+
+def _corner_circuits() -> dict[str, EdgeCircuit]:
+    diode = parse_diode(DEFAULT_DIODE_TEXT, "diode")
+    dt = 65.0  # -40 C against the 25 C at which R and C are specified
+    r_lo, r_hi = 121 * 0.99 * (1 - 100e-6 * dt), 121 * 1.01 * (1 + 100e-6 * dt)
+    c_lo = 3.9e-9 * 0.95 * (1 - 30e-6 * dt) + 3e-12 + 1e-12
+    c_hi = 3.9e-9 * 1.05 * (1 + 30e-6 * dt) + 8e-12 + 3e-12
+    return {
+        "slow": EdgeCircuit(0.0, 3.3, 15.0, r_lo, c_lo, diode, True, -40.0, 2.0),
+        "fast": EdgeCircuit(3.3, 0.0, 50.0, r_hi, c_hi, diode, True, -40.0, 1.0),
+    }
+
+
+def _ngspice_dead_time(tcross: dict[str, float]) -> float:
+    # to_high = the high side's delayed turn-on minus the low side's turn-off (no propagation
+    # delays in this network); each crossing less half the ramp (an ideal step's equivalent)
+    return (tcross["slow"] - RAMP_S / 2) - (tcross["fast"] - RAMP_S / 2)
+
+
+def test_readme_unsafe_pair_overlaps_in_ngspice_recorded() -> None:
+    for name, circuit in _corner_circuits().items():
+        assert spice_netlist(circuit, RAMP_S, 5e-10, 1.5e-6) == CORNER_NETLISTS[name]
+    reference = _ngspice_dead_time(NGSPICE_TCROSS_S)
+    assert reference < -35e-9  # ngspice: -39.88 ns, the outputs overlap
+    net = network_from_options(README)
+    model_min = reference_dead_times(replace(net, r=UNSAFE_PAIR[0], c=UNSAFE_PAIR[1]))
+    # the worst case is the minimum over all corners, so at most this corner's value, and the
+    # model agrees with ngspice at the corner within 1 ns
+    assert float(model_min["to_high"].min_s) <= reference + 1e-9
+    assert float(model_min["to_high"].min_s) == pytest.approx(reference, abs=1e-9)
+
+
+@pytest.mark.skipif(shutil.which("ngspice") is None, reason="ngspice not installed")
+def test_readme_unsafe_pair_overlaps_in_ngspice_live(tmp_path: Path) -> None:
+    live: dict[str, float] = {}
+    for name, text in CORNER_NETLISTS.items():
+        path = tmp_path / f"{name}.cir"
+        path.write_text(text)
+        proc = subprocess.run(["ngspice", "-b", str(path)], capture_output=True, text=True,
+                              timeout=120, check=False)
+        match = re.search(r"^tcross\s*=\s*([-+0-9.eE]+)", proc.stdout, re.M)
+        assert match, proc.stdout + proc.stderr
+        live[name] = float(match.group(1))
+        assert live[name] == pytest.approx(NGSPICE_TCROSS_S[name], rel=1e-4)
+    assert _ngspice_dead_time(live) < -35e-9
+
+
+def test_series_values_match_a_plain_walk_over_every_decade() -> None:
+    # the walk starts near the low end; the result must equal a walk from 1e-15 upwards
+    for series, (mantissas, unit) in SERIES.items():
+        for low, high in ((Fraction(10, 10**12), Fraction(100, 10**9)), (Fraction(99), Fraction(1001)),
+                          (Fraction(1, 10**15), Fraction(1, 10**13)), (Fraction(4700), Fraction(4700))):
+            plain = sorted(
+                Fraction(m, unit) * Fraction(10) ** e
+                for e in range(-15, 8)
+                for m in mantissas
+                if low <= Fraction(m, unit) * Fraction(10) ** e <= high
+            )
+            assert series_values(series, low, high) == plain
 
 
 def test_unreachable_target_is_a_user_error() -> None:

@@ -5,17 +5,23 @@ differ from round(10^(i/n)) in places (E24 in eight), so a formula would give va
 stocks. E96 happens to equal its formula; the tests check both facts.
 
 `suggest` is for designs that keep an analog fallback: for each capacitor of the chosen series it
-finds the resistor that gives the wanted typical dead time, takes the series values either side,
-ranks the pairs by their error and shows each pair's range under the network's tolerances.
+finds the resistor that gives the wanted typical dead time and takes the series values either
+side. Every candidate carries its worst-case pair range under the network's tolerances; a pair
+whose worst-case minimum is not positive (an overlap) or below the wanted minimum is never
+proposed, only listed as rejected with the reason. The rest are ranked by the worst case (the
+range's farthest end from the target) or by the typical error.
 """
 
 from __future__ import annotations
 
+import math
+from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from fractions import Fraction
 
 from gapforge.analog import PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
 from gapforge.errors import GapforgeError
+from gapforge.quantities import format_quantity
 
 # Mantissas in units of 0.1 (E12, E24) and 0.01 (E96).
 E12: tuple[int, ...] = (10, 12, 15, 18, 22, 27, 33, 39, 47, 56, 68, 82)
@@ -48,7 +54,8 @@ def series_values(series: str, low: Fraction, high: Fraction) -> list[Fraction]:
         raise GapforgeError(f"unknown series {series!r} (expected one of: {', '.join(SERIES)})")
     mantissas, unit = SERIES[series]
     out: list[Fraction] = []
-    exponent = -15
+    # from the decade below `low` (a decade's values all lie within 1x..10x of its scale)
+    exponent = max(-15, math.floor(math.log10(float(low))) - 1) if low > 0 else -15
     while True:
         scale = Fraction(10) ** exponent
         if scale > high:
@@ -69,13 +76,60 @@ def nearest(series: str, value: Fraction) -> tuple[Fraction, Fraction]:
     return below, above
 
 
+RANKINGS = ("worst-case", "typical")
+
+
 @dataclass(frozen=True)
 class Suggestion:
     r: Fraction
     c: Fraction
     typ_s: float  # the wanted dead time's typical value with this pair
-    error: float  # relative to the target
-    ranges: dict[str, EdgeRange]  # to_high / to_low over the network's tolerances
+    error: float  # typical, relative to the target
+    ranges: dict[str, EdgeRange]  # to_high / to_low, worst case over the network's tolerances
+    worst_error: float  # the wanted dead time's worst-case range: farthest end from the target
+    unsafe: tuple[str, ...] = ()  # why the pair must not be used; empty = safe
+
+    @property
+    def safe(self) -> bool:
+        return not self.unsafe
+
+
+@dataclass(frozen=True)
+class Suggestions:
+    pairs: tuple[Suggestion, ...]  # safe pairs, best first (at most `count`)
+    rejected: tuple[Suggestion, ...]  # every unsafe pair, smallest typical error first
+    candidates: int  # pairs evaluated
+    rank: str  # 'worst-case' or 'typical'
+
+
+def _unsafe_reasons(
+    ranges: Mapping[str, EdgeRange], min_dead_s: Fraction | None
+) -> tuple[str, ...]:
+    reasons: list[str] = []
+    for key in PAIR_KEYS:
+        low = ranges[key].min_s  # rounded down: the safe side of a minimum
+        if low <= 0:
+            reasons.append(f"{key} worst-case minimum {format_quantity(low, 's')} is not "
+                           "positive (both outputs on together)")
+        elif min_dead_s is not None and low < min_dead_s:
+            reasons.append(f"{key} worst-case minimum {format_quantity(low, 's')} is below the "
+                           f"minimum dead time {format_quantity(min_dead_s, 's')}")
+    return tuple(reasons)
+
+
+def _make(
+    r: Fraction,
+    c: Fraction,
+    extremes: Mapping[str, tuple[float, float, float]],
+    key: str,
+    target: float,
+    min_dead_s: Fraction | None,
+) -> Suggestion:
+    ranges = {k: edge_range(*extremes[k]) for k in PAIR_KEYS}
+    lo, typ, hi = extremes[key]
+    worst = max(target - lo, hi - target) / target
+    return Suggestion(r, c, typ, typ / target - 1.0, ranges, worst,
+                      _unsafe_reasons(ranges, min_dead_s))
 
 
 def suggest(
@@ -88,41 +142,73 @@ def suggest(
     r_limits: tuple[Fraction, Fraction] = (Fraction(100), Fraction(10**6)),
     c_limits: tuple[Fraction, Fraction] = (Fraction(10, 10**12), Fraction(100, 10**9)),
     count: int = 6,
-) -> list[Suggestion]:
-    """R/C pairs from the series giving the wanted typical dead time, best first."""
-    from gapforge.tolerance import corner_extremes, typical
+    rank: str = "worst-case",
+    min_dead_s: Fraction | None = None,
+) -> Suggestions:
+    """Safe R/C pairs from the series giving the wanted typical dead time, best first.
+
+    For each capacitor the resistor giving the target (a secant step: the typical dead time is
+    close to affine in R) and the series values either side are the candidates. Every
+    candidate's worst-case pair range comes from the corners (all candidates in one vectorised
+    evaluation); a pair is unsafe when either dead time's worst-case minimum is <= 0 or below
+    `min_dead_s`, and unsafe pairs are never proposed (they are returned in `rejected`).
+    `rank` 'worst-case' orders by the farthest end of the wanted dead time's worst-case range
+    from the target (the pair whose whole range hugs the target first), 'typical' by the typical
+    error. The pairs proposed are then checked like `analog.reference_dead_times` (corners
+    against a seeded Monte Carlo); a pair the check widens into unsafe is rejected too.
+    """
+    from gapforge.analog import REFERENCE_CHECK_SAMPLES
+    from gapforge.tolerance import corner_extremes_for_parts, typical_for_parts, worst_case
 
     if key not in PAIR_KEYS:
         raise GapforgeError(f"unknown dead time {key!r}", "--suggest")
+    if rank not in RANKINGS:
+        raise GapforgeError(f"unknown ranking {rank!r} (expected one of: {', '.join(RANKINGS)})",
+                            "--suggest-rank")
     if target_s <= 0:
         raise GapforgeError("the wanted dead time must be greater than zero", "--suggest")
-
-    def typ_of(r: Fraction, c: Fraction) -> float:
-        return typical(replace(net, r=r, c=c))[key]
-
-    pairs: dict[tuple[Fraction, Fraction], float] = {}
     target = float(target_s)
-    for c in series_values(c_series, *c_limits):
-        # typ is close to affine in R: two evaluations and a secant step find the resistor
-        r1, r2 = Fraction(1000), Fraction(100000)
-        t1, t2 = typ_of(r1, c), typ_of(r2, c)
-        if t2 <= t1:
+    caps = series_values(c_series, *c_limits)
+    r1, r2 = Fraction(1000), Fraction(100000)
+    t1 = typical_for_parts(net, [(r1, c) for c in caps])[key]
+    t2 = typical_for_parts(net, [(r2, c) for c in caps])[key]
+    candidates: dict[tuple[Fraction, Fraction], None] = {}
+    for c, a, b in zip(caps, t1, t2, strict=True):
+        if not b > a:
             continue
-        r_est = float(r1) + (target - t1) * float(r2 - r1) / (t2 - t1)
+        r_est = float(r1) + (target - float(a)) * float(r2 - r1) / float(b - a)
         if not float(r_limits[0]) / 2 <= r_est <= float(r_limits[1]) * 2:
             continue
         for r in nearest(r_series, Fraction(r_est).limit_denominator(10**6)):
             if r_limits[0] <= r <= r_limits[1]:
-                pairs[(r, c)] = typ_of(r, c)
-    if not pairs:
+                candidates[(r, c)] = None
+    if not candidates:
         raise GapforgeError(
             "no resistor/capacitor pair within the series limits reaches that dead time",
             "--suggest",
         )
-    ranked = sorted(pairs.items(), key=lambda kv: (abs(kv[1] / target - 1.0), kv[0][1]))[:count]
-    out: list[Suggestion] = []
-    for (r, c), typ in ranked:
-        extremes = corner_extremes(replace(net, r=r, c=c))
-        ranges = {k: edge_range(*extremes[k]) for k in PAIR_KEYS}
-        out.append(Suggestion(r, c, typ, typ / target - 1.0, ranges))
-    return out
+    parts = list(candidates)
+    extremes = corner_extremes_for_parts(net, parts)
+    made = [_make(r, c, ext, key, target, min_dead_s)
+            for (r, c), ext in zip(parts, extremes, strict=True)]
+
+    def order(s: Suggestion) -> tuple[float, float, Fraction]:
+        first = s.worst_error if rank == "worst-case" else abs(s.error)
+        second = abs(s.error) if rank == "worst-case" else s.worst_error
+        return (first, second, s.c)
+
+    made.sort(key=order)
+    chosen: list[Suggestion] = []
+    rejected: list[Suggestion] = []
+    for s in made:
+        if not s.safe or len(chosen) >= count:
+            if not s.safe:
+                rejected.append(s)
+            continue
+        checked = worst_case(replace(net, r=s.r, c=s.c), check_samples=REFERENCE_CHECK_SAMPLES)
+        confirmed = _make(s.r, s.c, checked.floats, key, target, min_dead_s)
+        (chosen if confirmed.safe else rejected).append(confirmed)
+    chosen.sort(key=order)
+    # the rejected closest to the target first: the ones a typical ranking would have offered
+    rejected.sort(key=lambda s: (abs(s.error), s.c))
+    return Suggestions(tuple(chosen), tuple(rejected), len(parts), rank)

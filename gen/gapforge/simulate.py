@@ -29,6 +29,7 @@ from gapforge.analog import (
     ZERO_CELSIUS,
     DiodeModel,
     ReferenceNetwork,
+    SlowEdgePoint,
 )
 
 if TYPE_CHECKING:
@@ -571,21 +572,11 @@ def simulated_node_delays(net: ReferenceNetwork, temp_c: float | None = None) ->
     return {e: simulate_edge(edge_circuit(net, e, temp_c)).delay_s for e in ("rising", "falling")}
 
 
-@dataclass(frozen=True)
-class SlowEdgePoint:
-    temp_c: float
-    edge: str
-    delay_s: float  # with the diode as modelled
-    delay_no_leakage_s: float  # the same with the diode's leakage removed (capacitance kept)
-
-    @property
-    def erosion(self) -> float:
-        """The share of the delay that leakage takes away (0 = none, 1 = all)."""
-        return 1.0 - self.delay_s / self.delay_no_leakage_s
-
-
 def slow_edge_over_temperature(net: ReferenceNetwork) -> list[SlowEdgePoint]:
-    """The slow (resistor) edges' node delays at the temperature band's min, typ and max."""
+    """The slow (resistor) edges' node delays at the temperature band's min, typ and max.
+
+    The transient counterpart of `analog.slow_edge_leakage` (same points, same parts).
+    """
     points: list[SlowEdgePoint] = []
     for edge in net.slow_edges():
         for temp in sorted({float(t) for t in (net.temp.min, net.temp.typ, net.temp.max)}):

@@ -18,8 +18,8 @@ Every parameter is handled as a position: 0 = its min, 0.5 = typ, 1 = max (see a
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Mapping
-from dataclasses import dataclass
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, replace
 from fractions import Fraction
 
 import numpy as np
@@ -122,7 +122,70 @@ def corner_extremes(net: ReferenceNetwork) -> dict[str, tuple[float, float, floa
     Every combination of the varying parameters' levels: min/typ/max, or only min/max for the
     ones the delay grows with (MONOTONE_PARAMS).
     """
-    spread = set(spread_parameters(net))
+    return corner_extremes_for_parts(net, [(net.r, net.c)])[0]
+
+
+def _part_values(
+    net: ReferenceNetwork,
+    positions: Mapping[str, FloatArray],
+    parts: Sequence[tuple[Fraction, Fraction]],
+) -> dict[str, FloatArray]:
+    """`values_at` for every (R, C) of `parts` at once: a leading axis, one row per pair.
+
+    R and C take each pair's own band (the network's tolerances around the pair's values),
+    computed as `values_at` computes them for `replace(net, r=r, c=c)`, so a row equals that
+    network's values exactly.
+    """
+    values = dict(values_at(net, positions))
+    shape = np.broadcast_shapes(*(np.shape(v) for v in values.values()))
+    lead = (len(parts),) + (1,) * len(shape)
+    for name, bands in (
+        ("r", [replace(net, r=r).r_band().floats() for r, _ in parts]),
+        ("c", [replace(net, c=c).c_band().floats() for _, c in parts]),
+    ):
+        table = np.asarray(bands, dtype=float)
+        lo, typ, hi = (table[:, k].reshape(lead) for k in range(3))
+        pos = positions.get(name)
+        if pos is None or bool(np.all(lo == hi)):
+            values[name] = typ
+        else:
+            values[name] = _through_arrays(np.asarray(pos, dtype=float)[None], lo, typ, hi)
+    full = (len(parts), *shape)
+    return {k: np.broadcast_to(v, full) for k, v in values.items()}
+
+
+def _through_arrays(position: FloatArray, lo: FloatArray, typ: FloatArray,
+                    hi: FloatArray) -> FloatArray:
+    """`analog._through` with per-row band ends (the same arithmetic, element by element)."""
+    result: FloatArray = np.where(
+        position <= 0.5,
+        lo + (typ - lo) * (position * 2.0),
+        typ + (hi - typ) * (position * 2.0 - 1.0),
+    )
+    return result
+
+
+def typical_for_parts(
+    net: ReferenceNetwork, parts: Sequence[tuple[Fraction, Fraction]]
+) -> dict[str, FloatArray]:
+    """`typical(replace(net, r=r, c=c))` for every (R, C) of `parts`, as arrays, in one go."""
+    values = _part_values(net, {"vdd": np.asarray([0.5])}, parts)
+    delays = channel_edge_delays(net, values)
+    pair = pair_dead_times(net, delays, delays, values["pair_inverter_delay"])
+    result = {"node_rising": delays["node_rising"], "node_falling": delays["node_falling"], **pair}
+    return {k: np.broadcast_to(v, values["vdd"].shape)[:, 0] for k, v in result.items()}
+
+
+def corner_extremes_for_parts(
+    net: ReferenceNetwork, parts: Sequence[tuple[Fraction, Fraction]]
+) -> list[dict[str, tuple[float, float, float]]]:
+    """`corner_extremes(replace(net, r=r, c=c))` for every (R, C) of `parts`, in one evaluation.
+
+    One evaluation of all pairs' corners costs little more than one pair's (the charge integral
+    is vectorised), which lets `preferred.suggest` check every candidate's worst case.
+    """
+    spread = set(spread_parameters(net))  # R and C spread by tolerance, whatever their value
+    count = len(parts)
     shared_names: list[str] = [n for n in ("vdd", "temp") if n in spread]
     shared = _grid(shared_names)
     n_shared = len(next(iter(shared.values()))) if shared else 1
@@ -143,24 +206,21 @@ def corner_extremes(net: ReferenceNetwork) -> dict[str, tuple[float, float, floa
             positions[name] = np.tile(arr, n_shared).reshape(n_shared, n_local)
         if not positions:
             positions = {"vdd": np.full((1, 1), 0.5)}
-        values = values_at(net, positions)
+        values = _part_values(net, positions, parts)
         node = channel_edge_delays(net, values, (edge,))["node_" + edge]
-        node = np.broadcast_to(node, (n_shared, n_local))
-        node_lo[edge] = node.min(axis=1)
-        node_hi[edge] = node.max(axis=1)
-    typ = typical(net)
+        node = np.broadcast_to(node, (count, n_shared, n_local))
+        node_lo[edge] = node.min(axis=2)
+        node_hi[edge] = node.max(axis=2)
+    typ = typical_for_parts(net, parts)
     inv_lo, _, inv_hi = bands["pair_inverter_delay"]
-    result: dict[str, tuple[float, float, float]] = {}
+    fixed_typ = sum(bands[n][1] for n in DELAY_PARAMS)
+    results: list[dict[str, tuple[float, float, float]]] = [{} for _ in parts]
     for edge in EDGES:
-        result["node_" + edge] = (
-            float(node_lo[edge].min()), typ["node_" + edge], float(node_hi[edge].max())
-        )
-        fixed_typ = sum(bands[n][1] for n in DELAY_PARAMS)
-        result[edge] = (
-            float(node_lo[edge].min()) + fixed_lo,
-            typ["node_" + edge] + fixed_typ,
-            float(node_hi[edge].max()) + fixed_hi,
-        )
+        lo_e, hi_e = node_lo[edge].min(axis=1), node_hi[edge].max(axis=1)
+        for k, result in enumerate(results):
+            t = float(typ["node_" + edge][k])
+            result["node_" + edge] = (float(lo_e[k]), t, float(hi_e[k]))
+            result[edge] = (float(lo_e[k]) + fixed_lo, t + fixed_typ, float(hi_e[k]) + fixed_hi)
     roles = pair_roles(net)
     for key in PAIR_KEYS:
         hi_edge, lo_edge = roles[key]
@@ -172,8 +232,10 @@ def corner_extremes(net: ReferenceNetwork) -> dict[str, tuple[float, float, floa
             # low turns on (inverter + delayed), high turns off
             lo_val = inv_lo + node_lo[lo_edge] + fixed_lo - (node_hi[hi_edge] + fixed_hi)
             hi_val = inv_hi + node_hi[lo_edge] + fixed_hi - (node_lo[hi_edge] + fixed_lo)
-        result[key] = (float(lo_val.min()), typ[key], float(hi_val.max()))
-    return result
+        lows, highs = lo_val.min(axis=1), hi_val.max(axis=1)
+        for k, result in enumerate(results):
+            result[key] = (float(lows[k]), float(typ[key][k]), float(highs[k]))
+    return results
 
 
 def worst_case(
