@@ -231,3 +231,16 @@ def test_milli_before_hertz_is_refused(text: str) -> None:
         parse_quantity(text, "Hz", "--clock")
     assert info.value.where == "--clock"
     assert "write M for mega" in info.value.message
+
+
+def test_limits_are_displayed_cut_toward_the_safe_side() -> None:
+    from gapforge.quantities import format_bound
+
+    # 27.732988 ns as a guaranteed minimum shows 27.7329 ns (cut down), never 27.733 ns;
+    # as a maximum it shows 27.733 ns (cut up); exact values stay as they are
+    v = Fraction(27732988, 10**15)
+    assert format_bound(v, "s", "down") == "27.7329 ns"
+    assert format_bound(v, "s", "up") == "27.733 ns"
+    assert format_bound(Fraction(852, 10**9), "s", "down") == "852 ns"
+    assert format_bound(Fraction(1, 3 * 10**6), "s", "up") == "333.334 ns"
+    assert format_bound(Fraction(1, 3 * 10**6), "s", "down") == "333.333 ns"

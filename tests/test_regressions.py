@@ -91,3 +91,25 @@ def test_issue4_stage_switching_frequency_defaults_to_the_pwm_frequency(tmp_path
     assert code == 0, err
     window = json.loads(out)["window"]
     assert window["to_high"]["max_s"] == 333.333e-9
+
+
+def test_issue2_fit_json_carries_the_nearest_and_zero_tolerance_warnings(tmp_path: Path) -> None:
+    # 20 ns at 64 MHz +/- 5 % with nearest rounding: 20e-9 x 64e6 = 1.28 counts, nearest 1 count
+    # = 15.625 ns, at the fast clock 15.625 / 1.05 = 14.881 ns < 20 ns
+    code, out, err = run_cli(["fit", "--clock", "64MHz", "--clock-tol", "5%", "--dead-time",
+                              "20ns", "--target", "shared-8bit-linear", "--rounding", "nearest",
+                              "--json"])
+    assert code == 0, err
+    warnings = json.loads(out)["warnings"]
+    assert any("14.881 ns at the fast clock, below the 20 ns requested" in w for w in warnings)
+    code, out, _ = run_cli(["fit", "--clock", "64MHz", "--dead-time", "20ns", "--target",
+                            "shared-8bit-linear", "--json"])
+    assert code == 0
+    assert any("clock tolerance is 0" in w for w in json.loads(out)["warnings"])
+
+
+def test_issue2_fit_refuses_a_zero_dead_time() -> None:
+    code, _, err = run_cli(["fit", "--clock", "64MHz", "--dead-time", "0", "--target",
+                            "shared-8bit-linear"])
+    assert code == 2
+    assert "--dead-time" in err and "greater than zero" in err

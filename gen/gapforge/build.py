@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from gapforge.design import Design, Output
-from gapforge.fit import FitRequest, FitResult, fit
+from gapforge.fit import FitRequest, FitResult, fit, fit_warnings
 from gapforge.layouts import EDGES
 from gapforge.limits import PwmLimits, pwm_limits
 
@@ -127,6 +127,10 @@ def design_window(design: Design) -> dict[str, Bounds] | None:
 def plan_design(design: Design) -> BuildPlan:
     stage_result, reference, stage_window, window = _windows(design)
     warnings = tuple(_reference_warnings(reference, stage_window))
+    if design.clock_tol == 0:
+        warnings += (
+            "the clock tolerance is 0 ([timer] tolerance): 'safe' covers a perfect clock only",
+        )
     reasons: list[str] = []
     requested: dict[str, Fraction] = {}
     for e in EDGES:
@@ -222,6 +226,7 @@ def _plan_output(
                 )
         return OutputPlan(output, result, None, {}, "unreachable", tuple(reasons), ())
     limits = pwm_limits(result, design.pwm) if design.pwm is not None else None
+    warnings.extend(w for w in fit_warnings(result) if not w.startswith("the clock tolerance"))
     verdict = "ok"
     for e in EDGES:
         edge = result.edges[e]
@@ -232,11 +237,6 @@ def _plan_output(
             if j.verdict != "ok" and verdict == "ok":
                 verdict = j.verdict
                 reasons.append(_reason(e, j, window[e], edge.achieved_min_s, edge.achieved_max_s))
-        if edge.below_request_worst_case:
-            warnings.append(
-                f"{e}: nearest rounding gives {float(edge.achieved_min_s) * 1e9:.6g} ns at the fast "
-                f"clock, below the {float(edge.requested_s) * 1e9:.6g} ns requested"
-            )
         if reference is not None:
             r = reference[e]
             if edge.achieved_min_s < r.limit_min_s or edge.achieved_max_s > r.limit_max_s:

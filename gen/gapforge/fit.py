@@ -257,3 +257,23 @@ def unreachable_edges(result: FitResult) -> list[str]:
         if e.requested_s > limit:
             out.append(edge)
     return out
+
+
+def fit_warnings(result: FitResult) -> list[str]:
+    """What a fitted result must warn about (text and JSON alike)."""
+    out: list[str] = []
+    if result.request.clock_tol == 0:
+        out.append(
+            "the clock tolerance is 0: 'safe' covers a perfect clock only; give the real "
+            "tolerance (crystal tens of ppm, on-chip RC oscillator percents)"
+        )
+    for edge in EDGES:
+        e = result.edges[edge]
+        if e.below_request_worst_case:
+            assert e.achieved_min_s is not None
+            out.append(
+                f"{edge}: nearest rounding gives {float(e.achieved_min_s) * 1e9:.6g} ns at the fast "
+                f"clock, below the {float(e.requested_s) * 1e9:.6g} ns requested; use safe rounding "
+                "for a guaranteed minimum"
+            )
+    return out

@@ -196,6 +196,30 @@ def format_quantity(value: Fraction | float | int, unit: str, digits: int = 5) -
     return f"{_trim(scaled, digits)} {prefix}{unit}".strip()
 
 
+def format_bound(value: Fraction, unit: str, toward: str, digits: int = 6) -> str:
+    """A limit for display, cut to `digits` significant digits toward the safe side, exactly.
+
+    toward="down" for a guaranteed minimum (27.732988 ns shows as 27.7329 ns, never 27.733 ns),
+    "up" for a maximum.
+    """
+    if value == 0:
+        return f"0 {unit}".strip()
+    exp3 = int(math.floor(math.log10(abs(float(value))) / 3) * 3)
+    exp3 = max(-15, min(12, exp3))
+    scaled = value / Fraction(10) ** exp3
+    whole = len(str(abs(floor_fraction(scaled)))) if abs(scaled) >= 1 else 1
+    decimals = max(0, digits - whole)
+    steps = scaled * 10**decimals
+    cut = floor_fraction(steps) if toward == "down" else ceil_fraction(steps)
+    sign = "-" if cut < 0 else ""
+    whole_part, frac_part = divmod(abs(cut), 10**decimals)
+    text = f"{sign}{whole_part}"
+    if decimals and frac_part:
+        text += "." + f"{frac_part:0{decimals}d}".rstrip("0")
+    prefix = dict(_OUT_PREFIXES)[exp3]
+    return f"{text} {prefix}{unit}".strip()
+
+
 def fraction_json(value: Fraction) -> float:
     """A seconds value as a JSON number (display only; exact values stay in Fractions)."""
     return float(value)

@@ -10,10 +10,10 @@ from typing import Any
 
 from gapforge import caution
 from gapforge.build import BuildPlan, OutputPlan
-from gapforge.fit import FitResult, step_seconds
+from gapforge.fit import FitResult, fit_warnings, step_seconds
 from gapforge.layouts import EDGES, Layout, describe_codes
 from gapforge.limits import PwmLimits
-from gapforge.quantities import format_quantity, format_tolerance
+from gapforge.quantities import format_bound, format_quantity, format_tolerance
 
 CAUTION = caution.TEXT
 
@@ -24,6 +24,16 @@ def _f(x: Fraction | None) -> float | None:
 
 def _t(x: Fraction | None) -> str:
     return "-" if x is None else format_quantity(x, "s", 6)
+
+
+def _down(x: Fraction | None) -> str:
+    """A guaranteed minimum for display: cut toward shorter, never rounded up past the truth."""
+    return "-" if x is None else format_bound(x, "s", "down")
+
+
+def _up(x: Fraction | None) -> str:
+    """A maximum (or a required minimum) for display: cut toward longer."""
+    return "-" if x is None else format_bound(x, "s", "up")
 
 
 def table(headers: list[str], rows: list[list[str]]) -> str:
@@ -146,6 +156,7 @@ def fit_json(result: FitResult, limits: PwmLimits | None) -> dict[str, Any]:
             "max_worst_case_s": float(e.max_min_s),
         }
     doc["pwm"] = pwm_json(limits) if limits is not None else None
+    doc["warnings"] = fit_warnings(result) if result.ok else []
     doc["caution"] = CAUTION
     return doc
 
@@ -202,7 +213,7 @@ def fit_text(result: FitResult, limits: PwmLimits | None) -> str:
                 _t(e.requested_s),
                 "-" if e.code is None else str(e.code),
                 _t(e.achieved_s),
-                f"{_t(e.achieved_min_s)} .. {_t(e.achieved_max_s)}",
+                f"{_down(e.achieved_min_s)} .. {_up(e.achieved_max_s)}",
                 "-"
                 if e.error_s is None
                 else f"{format_quantity(e.error_s, 's', 4)} ({float(rel) * 100:+.3g} %)"
@@ -236,20 +247,15 @@ def fit_text(result: FitResult, limits: PwmLimits | None) -> str:
         fields = ", ".join(f"{k}={v}" for k, v in result.fields.items())
         digits = result.layout.register_bits // 4
         lines.append(f"fields: {fields}; register 0x{result.register:0{digits}x}")
-        for edge in EDGES:
-            e = result.edges[edge]
-            if e.below_request_worst_case:
-                lines.append(
-                    f"warning: {edge} is below the request at the fast clock "
-                    "(nearest rounding); use --rounding safe for a guaranteed minimum"
-                )
+        lines += [f"warning: {w}" for w in fit_warnings(result)]
     else:
         for edge in EDGES:
             e = result.edges[edge]
             if e.requested_s > e.max_min_s:
                 lines.append(
-                    f"unreachable: {edge} request {_t(e.requested_s)} is above the maximum "
-                    f"{_t(e.max_s)} ({_t(e.max_min_s)} at the fast clock)"
+                    f"unreachable: {edge} request {_t(e.requested_s)} is longer than the layout "
+                    f"can guarantee: at most {_down(e.max_min_s)} at the fast clock "
+                    f"({_t(e.max_s)} nominal)"
                 )
     if limits is not None:
         lines.append("")
@@ -360,7 +366,9 @@ def plan_text(plan: BuildPlan) -> str:
         what = "stage window" + (" within the reference's range" if plan.reference else "")
         for e in EDGES:
             lo, hi = plan.window[e]
-            lines.append(f"  {what} {e}: {_t(lo)} .. {_t(hi) if hi is not None else 'no maximum'}")
+            lines.append(
+                f"  {what} {e}: {_up(lo)} .. {_down(hi) if hi is not None else 'no maximum'}"
+            )
     for w in plan.warnings:
         lines.append(f"warning: {w}")
     if plan.request is not None:
@@ -439,7 +447,7 @@ def _output_rows(op: OutputPlan) -> list[list[str]]:
                 e,
                 "-" if x.code is None else str(x.code),
                 _t(x.achieved_s),
-                f"{_t(x.achieved_min_s)} .. {_t(x.achieved_max_s)}",
+                f"{_down(x.achieved_min_s)} .. {_up(x.achieved_max_s)}",
                 margin,
                 op.verdict if e == "to_high" else "",
             ]

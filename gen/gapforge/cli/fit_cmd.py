@@ -19,19 +19,19 @@ from gapforge.views import CAUTION, fit_json, fit_text
 @clock_options
 @click.option(
     "--dead-time",
-    type=Quantity("s", allow_zero=True),
+    type=Quantity("s"),
     default=None,
     help="Dead time for both edges, e.g. 25ns.",
 )
 @click.option(
     "--to-high",
-    type=Quantity("s", allow_zero=True),
+    type=Quantity("s"),
     default=None,
     help="Gap before the high-side output turns on (overrides --dead-time).",
 )
 @click.option(
     "--to-low",
-    type=Quantity("s", allow_zero=True),
+    type=Quantity("s"),
     default=None,
     help="Gap before the low-side output turns on (overrides --dead-time).",
 )
