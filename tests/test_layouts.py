@@ -282,7 +282,7 @@ def test_targets_show_json_at_a_clock() -> None:
     for row, div in zip(doc["ranges"], (1, 2, 4, 8), strict=True):
         assert row["divider"] == div
         assert row["step_s"] == div / 2.56e9
-        assert row["max_s"] == pytest.approx(511 * div / 2.56e9, rel=1e-15)
+        assert row["edges"]["to_high"]["max_s"] == pytest.approx(511 * div / 2.56e9, rel=1e-15)
 
 
 def test_targets_list_json() -> None:
@@ -307,3 +307,24 @@ def test_a_field_too_wide_to_tabulate_is_refused_at_load(tmp_path: Path) -> None
         f"{path}: field[0].width: a 32-bit dead-time field is wider than the 20 bits gapforge "
         "tabulates"
     )
+
+
+def test_targets_show_gives_each_edge_its_own_range_and_lists_reserved_codes(tmp_path: Path) -> None:
+    # an invented asymmetric layout: 8-bit to_high, 4-bit to_low with codes 0 and 15 reserved;
+    # at 100 MHz (10 ns steps) to_high reaches 255 x 10 ns = 2.55 us, to_low 14 x 10 ns = 140 ns
+    from conftest import run_cli
+
+    path = tmp_path / "asym.toml"
+    path.write_text(
+        "# invented test layout\nformat = 1\nsummary = \"invented\"\nregister_bits = 16\n"
+        '[[field]]\nname = "rise"\nrole = "to_high"\noffset = 0\nwidth = 8\n'
+        '[[field]]\nname = "fall"\nrole = "to_low"\noffset = 8\nwidth = 4\nreserved = [0, 15]\n'
+    )
+    code, out, err = run_cli(["targets", "show", str(path), "--clock", "100MHz", "--json"])
+    assert code == 0, err
+    edges = json.loads(out)["ranges"][0]["edges"]
+    assert edges["to_high"]["max_s"] == pytest.approx(2.55e-6, rel=1e-12)
+    assert edges["to_low"]["max_s"] == pytest.approx(140e-9, rel=1e-12)
+    assert edges["to_low"]["min_s"] == pytest.approx(10e-9, rel=1e-12)
+    code, out, _ = run_cli(["targets", "show", str(path)])
+    assert "reserved 0, 15" in out

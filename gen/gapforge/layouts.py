@@ -507,6 +507,26 @@ def describe_codes(f: Field) -> str:
     """A short human description of a field's encoding (for `targets show`)."""
     if f.role == "divider":
         return f"divider code, {f.width} bits"
+    return _describe_encoding(f) + _describe_reserved(f)
+
+
+def _describe_reserved(f: Field) -> str:
+    if not f.reserved:
+        return ""
+    runs: list[str] = []
+    codes = sorted(f.reserved)
+    start = prev = codes[0]
+    for code in [*codes[1:], None]:
+        if code is not None and code == prev + 1:
+            prev = code
+            continue
+        runs.append(str(start) if start == prev else f"{start}..{prev}")
+        if code is not None:
+            start = prev = code
+    return f"; reserved {', '.join(runs)}"
+
+
+def _describe_encoding(f: Field) -> str:
     if f.encoding == "linear":
         add = f" + {f.add}" if f.add > 0 else (f" - {-f.add}" if f.add < 0 else "")
         return f"steps = code{add}, codes {f.min_code}..{f.max_code}"

@@ -80,9 +80,17 @@ def layout_json(layout: Layout, clock_hz: Fraction | None = None) -> dict[str, A
                 "divider_code": d,
                 "divider": div,
                 "step_s": float(step_seconds(layout, clock_hz, div)),
-                "max_s": float(
-                    layout.edge_field("to_high").table[0][-1] * step_seconds(layout, clock_hz, div)
-                ),
+                "edges": {
+                    e: {
+                        "min_s": float(
+                            layout.edge_field(e).table[0][0] * step_seconds(layout, clock_hz, div)
+                        ),
+                        "max_s": float(
+                            layout.edge_field(e).table[0][-1] * step_seconds(layout, clock_hz, div)
+                        ),
+                    }
+                    for e in EDGES
+                },
             }
             for d, div in enumerate(layout.dividers)
         ]
@@ -106,12 +114,20 @@ def layout_text(layout: Layout, clock_hz: Fraction | None = None) -> str:
         lines.append("")
         lines.append(f"At {format_quantity(clock_hz, 'Hz', 9)}:")
         rows = []
+        edges = ("to_high",) if layout.shared else EDGES
         for d, div in enumerate(layout.dividers):
             step = step_seconds(layout, clock_hz, div)
-            lo = layout.edge_field("to_high").table[0][0] * step
-            hi = layout.edge_field("to_high").table[0][-1] * step
-            rows.append([str(d), str(div), _t(step), _t(lo), _t(hi)])
-        lines.append(table(["code", "divider", "step", "shortest", "longest"], rows))
+            row = [str(d), str(div), _t(step)]
+            for e in edges:
+                values = layout.edge_field(e).table[0]
+                row += [_t(values[0] * step), _t(values[-1] * step)]
+            rows.append(row)
+        heads = (
+            ["shortest", "longest"]
+            if layout.shared
+            else ["to_high shortest", "to_high longest", "to_low shortest", "to_low longest"]
+        )
+        lines.append(table(["code", "divider", "step", *heads], rows))
     return "\n".join(lines)
 
 
