@@ -113,3 +113,24 @@ def test_issue2_fit_refuses_a_zero_dead_time() -> None:
                             "shared-8bit-linear"])
     assert code == 2
     assert "--dead-time" in err and "greater than zero" in err
+
+
+def test_issue3_reference_minimum_that_is_not_positive_is_bad_input(tmp_path: Path) -> None:
+    # the invented GaN example's old network has a worst-case pair dead time below zero (its
+    # diode-bypassed edge can outlast the slow one); reproducing that "minimum" must be refused
+    # with the key named, not fail later as an anonymous negative dead time
+    import re
+
+    from conftest import EXAMPLES
+
+    text = (EXAMPLES / "gan-buck.toml").read_text()
+    text = re.sub(r"\n\[stage\].*?(?=\n# The invented analog)", "", text, flags=re.S)
+    text = re.sub(r'source = "window"[^\n]*', 'source = "reference-minimum"', text)
+    (tmp_path / "d.toml").write_text(text)
+    code, _, err = run_cli(["build", str(tmp_path / "d.toml"), "--out", str(tmp_path)])
+    assert code == 2
+    line = err.strip()
+    assert "\n" not in line
+    assert line.startswith(f"gapforge: error: {tmp_path / 'd.toml'}: dead_time.source: ")
+    assert "not positive" in line
+    assert not (tmp_path / "out").exists()

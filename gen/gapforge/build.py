@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from gapforge.design import Design, Output
+from gapforge.errors import GapforgeError
 from gapforge.fit import FitRequest, FitResult, fit, fit_warnings
 from gapforge.layouts import EDGES
 from gapforge.limits import PwmLimits, pwm_limits
@@ -143,6 +144,13 @@ def plan_design(design: Design) -> BuildPlan:
         elif design.source == "reference-minimum":
             assert reference is not None
             requested[e] = reference[e].limit_min_s  # rounded up: a request is a minimum
+            if requested[e] <= 0:
+                raise GapforgeError(
+                    f"the reference network's worst-case {e} dead time is "
+                    f"{float(requested[e]) * 1e9:.6g} ns, not positive (its outputs can overlap), "
+                    "so it cannot set the dead time; give an explicit value or a [stage] window",
+                    f"{design.path}: dead_time.source",
+                )
         else:
             assert window is not None
             lo = window[e][0]
