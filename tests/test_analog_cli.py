@@ -45,14 +45,93 @@ def test_text_output_carries_the_caution_and_shows_defaults() -> None:
     assert "* rout" in out and "Monte Carlo (2000 samples" in out
 
 
-def test_hot_schottky_warns_loudly() -> None:
-    diode = "IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5 EG=0.69 XTI=2"
-    code, out, _ = run_cli(["analog", "--r", "47k", "--c", "100p", "--diode", diode,
-                            "--simulate", "--json"])
+HOT = ["--r", "47k", "--c", "100p", "--diode", "IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5 EG=0.69 XTI=2"]
+
+
+def test_hot_schottky_warns_loudly_and_exits_1() -> None:
+    # the dead time vanishes on a hot board: a limit violated, not a note
+    code, out, _ = run_cli(["analog", *HOT, "--simulate", "--json"])
     data = json.loads(out)
     assert data["simulation"]["leakage_warning"] is True
+    assert data["leakage"]["warning"] is True
     assert any("DIODE LEAKAGE AT 125 C" in w for w in data["warnings"])
+    assert data["limit_violated"] is True
+    assert code == 1
+
+
+def test_leakage_is_checked_without_simulate_and_respects_leakage_warn() -> None:
+    code, out, _ = run_cli(["analog", *HOT])
+    assert code == 1
+    assert "DIODE LEAKAGE AT 125 C TAKES 95 %" in out
+    assert "simulated" not in out  # the model did it, no transient was run
+    code, out, _ = run_cli(["analog", *HOT, "--leakage-warn", "99%"])
+    assert code == 0 and "DIODE LEAKAGE" not in out
+
+
+def test_help_documents_exit_1_for_leakage() -> None:
+    code, out, _ = run_cli(["analog", "--help"])
     assert code == 0
+    flat = " ".join(out.split())
+    assert "Exit 1" in flat and "hot board" in flat and "--leakage-warn" in flat
+
+
+def test_analog_warns_in_the_words_build_repeats() -> None:
+    from gapforge.analog import network_from_options, reference_findings
+
+    for args, raw in ((HOT, {"r": "47k", "c": "100p", "diode": HOT[-1]}),
+                      ([*NET, "--bypass", "rising"], {"r": "4.7k", "c": "100p",
+                                                       "bypass": "rising"})):
+        _, out, _ = run_cli(["analog", *args, "--json"])
+        warnings = json.loads(out)["warnings"]
+        findings = reference_findings(network_from_options(raw))
+        assert findings and all(f in warnings for f in findings)
+
+
+def test_caution_is_the_shared_text() -> None:
+    from gapforge import caution
+
+    _, out, _ = run_cli(["analog", *NET, "--json"])
+    assert json.loads(out)["caution"] == caution.TEXT
+    _, text, _ = run_cli(["analog", *NET])
+    assert text.count(caution.TEXT) == 2
+
+
+README_SUGGEST = ["--vdd", "3.3", "--r", "4.7k", "--c", "100p", "--bypass", "falling",
+                  "--vt-plus", "2.0", "--vt-minus", "1.0", "--suggest", "300ns"]
+
+
+def test_readme_suggest_example_offers_only_safe_pairs() -> None:
+    code, out, _ = run_cli(["analog", *README_SUGGEST, "--json"])
+    assert code == 0
+    sg = json.loads(out)["suggestions"]
+    assert sg["rank"] == "worst-case" and len(sg["pairs"]) == 6
+    for pair in sg["pairs"]:
+        assert pair["safe"] is True
+        assert pair["to_high"]["min_s"] > 0 and pair["to_low"]["min_s"] > 0
+    offered = {(p["r_ohm"], p["c_f"]) for p in sg["pairs"]}
+    assert (121.0, 3.9e-9) not in offered
+    bad = next(p for p in sg["rejected"] if (p["r_ohm"], p["c_f"]) == (121.0, 3.9e-9))
+    assert bad["safe"] is False and bad["to_high"]["min_s"] == pytest.approx(-39.915e-9)
+    # the text shows each pair's worst case and names the rejected pair as unsafe
+    code, text, _ = run_cli(["analog", *README_SUGGEST, "--suggest-rank", "typical"])
+    assert code == 0
+    assert "ranked by the typical error" in text and "worst case to_high" in text
+    unsafe = text[text.index("not proposed, UNSAFE"):]
+    assert "R    121 ohm  C   3.9 nF" in unsafe and "-39.915 ns is not positive" in unsafe
+
+
+def test_suggest_with_min_dead_and_no_safe_pair_exits_1() -> None:
+    # the network itself (worst case 410.8 ns) meets --min-dead; the suggestions are filtered
+    code, out, _ = run_cli(["analog", *README_SUGGEST, "--min-dead", "255n", "--json"])
+    data = json.loads(out)
+    pairs = data["suggestions"]["pairs"]
+    assert pairs and all(p[k]["min_s"] >= 255e-9 for p in pairs for k in ("to_high", "to_low"))
+    assert any("below the minimum dead time 255 ns" in " ".join(p["unsafe"])
+               for p in data["suggestions"]["rejected"])
+    assert code == 0
+    code, out, _ = run_cli(["analog", *README_SUGGEST[:-1], "30ns", "--min-dead", "100n"])
+    assert code == 1
+    assert "--suggest: none of the" in out
 
 
 def test_wrong_orientation_exits_1() -> None:

@@ -168,3 +168,27 @@ def test_samples_refuse_an_empty_run() -> None:
         tol.monte_carlo_samples(net, 0)
     with pytest.raises(ValueError):
         tol.monte_carlo_samples(net, 10, distribution="triangular")
+
+
+def test_corners_of_many_pairs_equal_each_pair_on_its_own() -> None:
+    # preferred.suggest checks every candidate's worst case in one evaluation: each row must be
+    # that pair's own corner search (to rounding: the batch sums in another order)
+    from dataclasses import replace
+
+    for raw in ({"r": "4.7k", "c": "100p"},
+                {"r": "4.7k", "c": "100p", "bypass": "rising", "output_inverter": "true",
+                 "vf": "0.3:0.4:0.5", "inverter_delay": "1n:2n:4n"},
+                {**BASE, "r": "10k", "c": "1n", "r_tol": "0"}):
+        net = network_from_options(raw)
+        parts = [(Fraction(121), Fraction(39, 10**10)), (net.r, net.c),
+                 (Fraction(22000), Fraction(47, 10**12))]
+        many = tol.corner_extremes_for_parts(net, parts)
+        typ = tol.typical_for_parts(net, parts)
+        for k, (r, c) in enumerate(parts):
+            alone = replace(net, r=r, c=c)
+            single = tol.corner_extremes(alone)
+            assert many[k].keys() == single.keys()
+            for key, values in single.items():
+                assert many[k][key] == pytest.approx(values, rel=1e-12, abs=1e-21)
+            for key, value in tol.typical(alone).items():
+                assert float(typ[key][k]) == pytest.approx(value, rel=1e-12)

@@ -19,6 +19,7 @@ import click
 
 from gapforge.analog import (
     CAUTION,
+    DEFAULT_LEAKAGE_SHARE,
     EDGES,
     LEVEL_PRESETS,
     PAIR_KEYS,
@@ -28,6 +29,7 @@ from gapforge.analog import (
 )
 from gapforge.cli.options import json_option
 from gapforge.errors import GapforgeError
+from gapforge.preferred import RANKINGS
 from gapforge.quantities import format_quantity, parse_quantity, parse_tolerance
 
 F = TypeVar("F", bound=Callable[..., Any])
@@ -61,9 +63,10 @@ def _network_options(f: F) -> F:
 @click.option("--simulate", is_flag=True,
               help="Add the transient simulation (SPICE-style diode) and the slow edge over "
               "temperature.")
-@click.option("--leakage-warn", default="20%", show_default=True,
-              help="Warn when diode leakage at the hottest corner takes more than this share "
-              "of the slow edge (with --simulate).")
+@click.option("--leakage-warn", default=f"{int(DEFAULT_LEAKAGE_SHARE * 100)}%", show_default=True,
+              help="Warn, and exit 1, when diode leakage at the hottest temperature takes more "
+              "than this share of a slow edge: the dead time vanishes on a hot board (typical "
+              "parts; the charge-integral model always, the transient as well with --simulate).")
 @click.option("--model-warn", default="10%", show_default=True,
               help="Warn when the model the ranges come from and the transient simulation "
               "differ by more than this share on any edge (with --simulate).")
@@ -82,6 +85,10 @@ def _network_options(f: F) -> F:
               help="Propose preferred-value R/C pairs for this typical dead time.")
 @click.option("--suggest-for", type=click.Choice(list(PAIR_KEYS)), default="to_high",
               show_default=True, help="Which dead time --suggest aims at.")
+@click.option("--suggest-rank", type=click.Choice(list(RANKINGS)), default="worst-case",
+              show_default=True, help="Rank --suggest pairs by their worst-case range (its "
+              "farthest end from the target) or by their typical error. Pairs whose worst-case "
+              "dead time is not positive or below --min-dead are never proposed.")
 @click.option("--series", type=click.Choice(["E12", "E24", "E96"]), default="E96",
               show_default=True, help="Resistor series for --suggest.")
 @click.option("--c-series", type=click.Choice(["E12", "E24", "E96"]), default="E12",
@@ -100,6 +107,7 @@ def command(
     min_dead: str | None,
     suggest_t: str | None,
     suggest_for: str,
+    suggest_rank: str,
     series: str,
     c_series: str,
     as_json: bool,
@@ -109,8 +117,11 @@ def command(
 
     Times are from an ideal input step. A dead time is the delayed turn-on of one output minus
     the undelayed turn-off of the other on the same input edge: to_high before the high side
-    turns on, to_low before the low side does. Exit 1 when a worst-case dead time is not
-    positive or falls below --min-dead.
+    turns on, to_low before the low side does.
+
+    Exit 1 when a worst-case dead time is not positive (the network can overlap) or falls below
+    --min-dead, when diode leakage at the hottest temperature takes more than --leakage-warn of
+    a slow edge (the dead time vanishes on a hot board), or when --suggest finds no safe pair.
     """
     raw = {k: v for k, v in network.items() if v is not None}
     if levels is not None:
@@ -135,6 +146,7 @@ def command(
         model_share=model_share,
         target=target,
         suggest_for=suggest_for,
+        suggest_rank=suggest_rank,
         r_series=series,
         c_series=c_series,
     )
@@ -187,15 +199,22 @@ def analyse(
     distribution: str = "uniform",
     sigma_band: float = 3.0,
     below: Fraction | None = None,
-    warn_share: Fraction = Fraction(1, 5),
+    warn_share: Fraction = DEFAULT_LEAKAGE_SHARE,
     model_share: Fraction = Fraction(1, 10),
     target: Fraction | None = None,
     suggest_for: str = "to_high",
+    suggest_rank: str = "worst-case",
     r_series: str = "E96",
     c_series: str = "E12",
 ) -> dict[str, Any]:
     """Everything `analog` reports, as a JSON-ready dict (floats for display only)."""
-    from gapforge.analog import bypass_notes, describe_parameters
+    from gapforge.analog import (
+        bypass_notes,
+        describe_parameters,
+        hottest_leakage_warnings,
+        overlap_finding,
+        slow_edge_leakage,
+    )
     from gapforge.tolerance import monte_carlo, rss, typical_textbook, worst_case
 
     wc = worst_case(net)
@@ -217,7 +236,6 @@ def analyse(
         }
         if edge in notes:
             edges[edge]["note"] = notes[edge]
-            warnings.append(notes[edge])
     report: dict[str, Any] = {
         "caution": CAUTION,
         "parameters": {
@@ -241,19 +259,32 @@ def analyse(
             "min_ps": int(rng.min_s * 10**12),
             "max_ps": int(rng.max_s * 10**12),
         }
-        if rng.min_s <= 0:
+        overlap = overlap_finding(net, key, rng)
+        if overlap is not None:
             limit_violated = True
-            warnings.append(
-                f"{key}: the worst-case dead time is {format_quantity(rng.min_s, 's')}, not "
-                "positive: both outputs can be on together (check the diode orientation and the "
-                "output inverter)"
-            )
+            warnings.append(overlap)
         if below is not None and rng.min_s < below:
             limit_violated = True
             warnings.append(
                 f"{key}: the worst-case minimum {format_quantity(rng.min_s, 's')} is below "
                 f"--min-dead {format_quantity(below, 's')}"
             )
+    # the same findings, in the same words, as analog.reference_findings gives every build
+    leakage_points = slow_edge_leakage(net)
+    leakage = hottest_leakage_warnings(leakage_points, warn_share, "model")
+    warnings += leakage
+    warnings += [notes[e] for e in EDGES if e in notes]
+    limit_violated = limit_violated or bool(leakage)
+    report["leakage"] = {
+        "method": "charge-integral model, typical parts, with and without the diode's leakage",
+        "slow_edge_over_temperature": [
+            {"temp_c": p.temp_c, "edge": p.edge, "delay_s": p.delay_s,
+             "delay_no_leakage_s": p.delay_no_leakage_s, "leakage_erosion": p.erosion}
+            for p in leakage_points
+        ],
+        "warning": bool(leakage),
+        "warn_share": float(warn_share),
+    }
     sums = rss(net, distribution, sigma_band)
     report["rss"] = {
         key: {
@@ -297,41 +328,63 @@ def analyse(
             },
         }
     if simulate:
-        report["simulation"] = _simulation(net, float(warn_share), float(model_share), edges,
-                                           warnings)
+        report["simulation"] = _simulation(net, warn_share, float(model_share), edges, warnings,
+                                           bool(leakage))
+        limit_violated = limit_violated or report["simulation"]["leakage_warning"]
     if target is not None:
         from gapforge.preferred import suggest
 
+        found = suggest(net, target, key=suggest_for, r_series=r_series, c_series=c_series,
+                        rank=suggest_rank, min_dead_s=below)
         report["suggestions"] = {
             "target_s": float(target),
             "dead_time": suggest_for,
             "r_series": r_series,
             "c_series": c_series,
-            "pairs": [
-                {
-                    "r_ohm": float(s.r),
-                    "c_f": float(s.c),
-                    "typ_s": s.typ_s,
-                    "error": s.error,
-                    **{k: {"min_s": float(v.min_s), "max_s": float(v.max_s)}
-                       for k, v in s.ranges.items()},
-                }
-                for s in suggest(net, target, key=suggest_for, r_series=r_series,
-                                 c_series=c_series)
-            ],
+            "rank": found.rank,
+            "min_dead_s": float(below) if below is not None else None,
+            "candidates": found.candidates,
+            "pairs": [_suggestion(s) for s in found.pairs],
+            "rejected": [_suggestion(s) for s in found.rejected],
         }
+        if not found.pairs:
+            limit_violated = True
+            warnings.append(
+                f"--suggest: none of the {found.candidates} preferred pairs near "
+                f"{format_quantity(target, 's')} is safe over the tolerances (every one's "
+                "worst-case dead time is not positive"
+                + (" or below --min-dead" if below is not None else "") + ")"
+            )
     report["warnings"] = warnings
     report["limit_violated"] = limit_violated
     return report
 
 
+def _suggestion(s: Any) -> dict[str, Any]:
+    """One preferred pair as JSON (a preferred.Suggestion)."""
+    return {
+        "r_ohm": float(s.r),
+        "c_f": float(s.c),
+        "typ_s": s.typ_s,
+        "error": s.error,
+        "worst_error": s.worst_error,
+        "safe": s.safe,
+        "unsafe": list(s.unsafe),
+        **{k: {"min_s": float(v.min_s), "typ_s": float(v.typ_s), "max_s": float(v.max_s)}
+           for k, v in s.ranges.items()},
+    }
+
+
 def _simulation(
     net: ReferenceNetwork,
-    warn_share: float,
+    warn_share: Fraction,
     model_share: float,
     edges: dict[str, Any],
     warnings: list[str],
+    model_warned: bool,
 ) -> dict[str, Any]:
+    """The transient results; its leakage warning is added unless the model's already was."""
+    from gapforge.analog import hottest_leakage_warnings
     from gapforge.simulate import simulated_node_delays, slow_edge_over_temperature
 
     sim = simulated_node_delays(net)
@@ -357,17 +410,10 @@ def _simulation(
                 "ranges use the charge integral, which agrees with it"
             )
     points = slow_edge_over_temperature(net)
-    hottest = max(p.temp_c for p in points) if points else None
-    loud = False
-    for p in points:
-        if p.temp_c == hottest and p.erosion > warn_share:
-            loud = True
-            warnings.append(
-                f"WARNING: DIODE LEAKAGE AT {p.temp_c:g} C TAKES {p.erosion * 100:.0f} % OF THE "
-                f"SLOW {p.edge.upper()} EDGE ({format_quantity(p.delay_no_leakage_s, 's')} -> "
-                f"{format_quantity(p.delay_s, 's')}): THE DEAD TIME SHRINKS ON A HOT BOARD. "
-                "Choose a lower-leakage diode or a smaller R."
-            )
+    loud_lines = hottest_leakage_warnings(points, warn_share, "simulation")
+    loud = bool(loud_lines)
+    if not model_warned:
+        warnings += loud_lines
     return {
         "method": "TR-BDF2 with Newton, SPICE level-1 diode, typical parts",
         "slow_edge_over_temperature": [
@@ -376,7 +422,7 @@ def _simulation(
             for p in points
         ],
         "leakage_warning": loud,
-        "leakage_warn_share": warn_share,
+        "leakage_warn_share": float(warn_share),
         "model_warning": model_off,
         "model_warn_share": model_share,
     }
@@ -384,6 +430,44 @@ def _simulation(
 
 def _t(value: float) -> str:
     return format_quantity(value, "s", 4)
+
+
+def _pair_text(s: dict[str, Any]) -> str:
+    return f"R {format_quantity(s['r_ohm'], 'ohm'):>10}  C {format_quantity(s['c_f'], 'F'):>8}"
+
+
+def _suggestion_lines(sg: dict[str, Any]) -> list[str]:
+    """The preferred pairs: each with its worst-case dead times; unsafe ones named, not offered."""
+    ranked = ("the farthest end of the worst-case range from the target"
+              if sg["rank"] == "worst-case" else "the typical error")
+    floor = (f" and at least --min-dead {_t(sg['min_dead_s'])}"
+             if sg["min_dead_s"] is not None else "")
+    lines = [
+        "",
+        f"Preferred pairs for {sg['dead_time']} = {_t(sg['target_s'])} (R from {sg['r_series']}, "
+        f"C from {sg['c_series']}; worst case over all tolerances, positive{floor}; ranked by "
+        f"{ranked}):",
+    ]
+    for s in sg["pairs"]:
+        lines.append(
+            f"  {_pair_text(s)}  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %)   worst case "
+            f"to_high {_t(s['to_high']['min_s'])} .. {_t(s['to_high']['max_s'])}   to_low "
+            f"{_t(s['to_low']['min_s'])} .. {_t(s['to_low']['max_s'])}"
+        )
+    if not sg["pairs"]:
+        lines.append("  none: every candidate is unsafe (see below)")
+    rejected = sg["rejected"]
+    if rejected:
+        lines.append(
+            f"  not proposed, UNSAFE: {len(rejected)} of {sg['candidates']} candidate pairs"
+            + (", the best ranked:" if len(rejected) > 3 else ":")
+        )
+        for s in rejected[:3]:
+            lines.append(
+                f"    {_pair_text(s)}  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %): "
+                f"{'; '.join(s['unsafe'])}"
+            )
+    return lines
 
 
 def render_text(report: dict[str, Any]) -> str:
@@ -452,6 +536,18 @@ def render_text(report: dict[str, Any]) -> str:
                 f"  {key:<12} min {_t(s['min_s'])}  0.135 % {_t(s['p0_135_s'])}  50 % "
                 f"{_t(s['p50_s'])}  99.865 % {_t(s['p99_865_s'])}  max {_t(s['max_s'])}{share}"
             )
+    leak = report["leakage"]
+    if leak["slow_edge_over_temperature"]:
+        hottest = max(p["temp_c"] for p in leak["slow_edge_over_temperature"])
+        lines += ["", f"Diode leakage at the hottest temperature (model, typical parts; warn above "
+                  f"{leak['warn_share'] * 100:g} %):"]
+        for p in leak["slow_edge_over_temperature"]:
+            if p["temp_c"] == hottest:
+                lines.append(
+                    f"  {p['edge']:<8} {p['temp_c']:>6g} C  {_t(p['delay_s'])}  (without leakage "
+                    f"{_t(p['delay_no_leakage_s'])}, leakage takes "
+                    f"{p['leakage_erosion'] * 100:.1f} %)"
+                )
     if "simulation" in report:
         lines += ["", "Slow edge over temperature (simulated, typical parts):"]
         for p in report["simulation"]["slow_edge_over_temperature"]:
@@ -460,19 +556,7 @@ def render_text(report: dict[str, Any]) -> str:
                 f"{_t(p['delay_no_leakage_s'])}, leakage takes {p['leakage_erosion'] * 100:.1f} %)"
             )
     if "suggestions" in report:
-        sg = report["suggestions"]
-        lines += [
-            "",
-            f"Preferred pairs for {sg['dead_time']} = {_t(sg['target_s'])} "
-            f"(R from {sg['r_series']}, C from {sg['c_series']}):",
-        ]
-        for s in sg["pairs"]:
-            lines.append(
-                f"  R {format_quantity(s['r_ohm'], 'ohm'):>10}  C {format_quantity(s['c_f'], 'F'):>8}"
-                f"  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %)   to_high "
-                f"{_t(s['to_high']['min_s'])} .. {_t(s['to_high']['max_s'])}   to_low "
-                f"{_t(s['to_low']['min_s'])} .. {_t(s['to_low']['max_s'])}"
-            )
+        lines += _suggestion_lines(report["suggestions"])
     if report["warnings"]:
         lines.append("")
         lines += [f"! {w}" for w in report["warnings"]]
