@@ -4,7 +4,9 @@ The key property is checked independently of gapforge's layout model and fit eng
 files are read here with tomllib, register codes are decoded with a decoder written in this file,
 and worst-case dead times are recomputed with the clock-tolerance rule of common practice
 (N counts / (f_clk x (1 + tol)) is the shortest gap, / (1 - tol) the longest;
-reference-facts.md, "Clock tolerance"). Scenarios are invented.
+reference-facts.md, "Clock tolerance"). With a PWM, every row is also checked against the PWM by
+trying every compare value of one period (common practice for a counting timer; see the comment
+above pwm_counts). Scenarios are invented.
 """
 
 from __future__ import annotations
@@ -26,7 +28,8 @@ from hypothesis import strategies as st
 from gapforge.cli import cli
 from gapforge.errors import GapforgeError
 from gapforge.layouts import builtin_names, load_layout
-from gapforge.sweep import parse_clocks, sweep
+from gapforge.limits import PwmSpec
+from gapforge.sweep import Limits, parse_clocks, sweep
 
 NS = Fraction(1, 10**9)
 MHZ = Fraction(10**6)
@@ -397,3 +400,184 @@ def test_sweep_design_uses_the_design_tolerance_and_window() -> None:
         for edge, e in row["edges"].items():
             worst = Fraction(e["steps"] * row["divider"]) / (sub * Fraction(320_000_000) * (1 + tol))
             assert worst >= window_min[edge], (row["layout"], row["divider"], edge)
+
+
+# ---------------------------------------------------------------------------------------------
+# the PWM (issue 4 review: a row could be "feasible" yet fail `build`)
+#
+# Independent arithmetic, common practice for a counting timer: edge-aligned up-counting repeats
+# every N timer counts and a compare value c (0..N) commands the high side on for c counts, the
+# low side for N - c; centre-aligned up/down counting repeats every 2N counts with 2c and 2(N - c).
+# N is the PWM period in counts rounded to the nearest whole count. A dead time of d counts
+# (steps x divider / sub_steps) delays its output's turn-on, so an output pulses only when its
+# on-command lasts longer than d. A row fits the PWM when every dead time is under half a period
+# and some c in 0..N gives a pulse on both outputs (found here by trying every c).
+
+
+def pwm_counts(clock: Fraction, frequency: Fraction, counting: str) -> int:
+    per = 2 if counting == "center" else 1
+    return math.floor(clock / (frequency * per) + Fraction(1, 2))
+
+
+def dead_counts(raw: RawLayout, steps: int, divider: int) -> Fraction:
+    return Fraction(steps * divider, raw.sub_steps)
+
+
+def fits_pwm(row: Any, frequency: Fraction, counting: str) -> bool:
+    raw = RAW[row.layout]
+    per = 2 if counting == "center" else 1
+    n = pwm_counts(row.clock_hz, frequency, counting)
+    if n < 2:
+        return False
+    d_high = dead_counts(raw, row.edges["to_high"].steps, row.divider)
+    d_low = dead_counts(raw, row.edges["to_low"].steps, row.divider)
+    if max(d_high, d_low) * 2 >= n * per:  # at least half a period
+        return False
+    return any(per * c > d_high and per * (n - c) > d_low for c in range(n + 1))
+
+
+def shortest_safe_steps(row: Any, tol: Fraction, limits: Limits, edge: str) -> int:
+    """The fewest steps of the row's field whose fast-clock gap meets the window minimum(s)."""
+    raw = RAW[row.layout]
+    per_step = Fraction(row.divider) / (raw.sub_steps * row.clock_hz)
+    f = raw.edge_field(edge)
+    edges = [e for e in ("to_high", "to_low") if raw.edge_field(e) is f]  # a shared field
+    need = max(math.ceil(limits[e][0] * (1 + tol) / per_step) for e in edges)
+    return min(s for s in all_steps(raw, f) if s >= need)
+
+
+def test_worked_example_rows_that_fit_the_window_but_not_the_pwm() -> None:
+    limits = {e: (90 * NS, 300 * NS) for e in ("to_high", "to_low")}
+    pwm = PwmSpec(Fraction(4_750_000), "edge")
+    # 100 MHz / 4.75 MHz = 21.05 counts -> N = 21 (half a period: 10.5 counts).
+    # safe codes for 90 ns: /1 9 x 10 ns = 90 ns (9 counts); /2 5 x 20 ns = 100 ns (10 counts);
+    # /4 3 x 40 ns = 120 ns (12 counts); /8 2 x 80 ns = 160 ns (16 counts): all inside 90..300 ns
+    plain = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits)
+    assert sorted(r.divider for r in plain.feasible) == [1, 2, 4, 8]
+    result = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits, pwm=pwm)
+    # /1: 9 counts; a pulse on both outputs needs c > 9 and 21 - c > 9: c = 10 or 11
+    assert [r.divider for r in result.feasible] == [1]
+    ok = result.feasible[0]
+    assert ok.pwm is not None
+    assert (ok.pwm.compare_counts, ok.pwm.duty_min_counts, ok.pwm.duty_max_counts) == (21, 10, 11)
+    reasons = {r.divider: r.reason for r in result.infeasible}
+    # /2: 10 counts is under half of 21, but c > 10 and 21 - c > 10 leave no whole c
+    assert reasons[2].startswith("pwm: no commanded duty gives a pulse on both outputs")
+    # /4: 12 counts and /8: 16 counts are at least half of 21 (57.1 % and 76.2 %)
+    assert reasons[4].startswith("pwm: a dead time of 57.14 % of the PWM period")
+    assert reasons[8].startswith("pwm: a dead time of 76.19 % of the PWM period")
+    for divider in (2, 4, 8):
+        assert "4.75 MHz edge-aligned PWM, 21 counts per period" in reasons[divider]
+    for row in result.infeasible:  # the window alone is met: only the PWM fails
+        assert all(e.verdict == "ok" for e in row.edges.values())
+        assert not fits_pwm(row, pwm.frequency_hz, "edge")
+    assert fits_pwm(ok, pwm.frequency_hz, "edge")
+
+
+def test_worked_example_center_aligned_and_too_slow_a_clock() -> None:
+    limits = {e: (90 * NS, 300 * NS) for e in ("to_high", "to_low")}
+    pwm = PwmSpec(Fraction(4_000_000), "center")
+    # 100 MHz / (2 x 4 MHz) = 12.5 -> N = 13 (ties up), period 26 counts.
+    # /2 (10 counts): 2c > 10 and 2(13 - c) > 10: c = 6, 7; /4 (12 counts): c > 6 and c < 7: none
+    # 10 MHz / 8 MHz = 1.25 counts: fewer than the 2 a period needs, on every divider
+    result = sweep(layouts("split-10bit-div4"), [10 * MHZ, 100 * MHZ], Fraction(0), limits,
+                   pwm=pwm)
+    by = {(r.clock_hz, r.divider): r for r in (*result.feasible, *result.infeasible)}
+    row = by[(100 * MHZ, 2)]
+    assert row.feasible and row.pwm is not None
+    assert (row.pwm.period_counts, row.pwm.duty_min_counts, row.pwm.duty_max_counts) == (26, 6, 7)
+    assert by[(100 * MHZ, 4)].reason.startswith("pwm: no commanded duty")
+    for divider in (1, 2, 4, 8):
+        assert by[(10 * MHZ, divider)].reason.startswith("pwm: the PWM frequency")
+        assert "at least 2 are needed" in by[(10 * MHZ, divider)].reason
+
+
+@settings(deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(
+    windows(),
+    st.integers(5, 500),
+    st.lists(st.integers(0, 100), min_size=1, max_size=2, unique=True),
+    st.integers(0, 500),
+    st.integers(2, 300),
+    st.integers(-49, 49),
+    st.sampled_from(["edge", "center"]),
+)
+def test_every_feasible_row_fits_the_pwm(
+    limits: dict[str, tuple[Fraction, Fraction | None]],
+    base_mhz: int,
+    extra_pct: list[int],
+    tol_bp: int,
+    n: int,
+    offset_pct: int,
+    counting: str,
+) -> None:
+    tol = Fraction(tol_bp, 10_000)  # 0 .. 5 %
+    base = Fraction(base_mhz * 10**6)
+    clocks = [base * (100 + x) / 100 for x in extra_pct]  # within a factor of 2 of each other
+    per = 2 if counting == "center" else 1
+    # a PWM frequency giving about n counts (+/- 0.49) at the base clock
+    frequency = base / (per * (n + Fraction(offset_pct, 100)))
+    result = sweep(layouts(*builtin_names()), clocks, tol, limits, pwm=PwmSpec(frequency, counting))
+    for row in result.feasible:
+        check_row_fits(row, tol, limits)
+        assert fits_pwm(row, frequency, counting), row
+        assert row.pwm is not None
+        assert row.pwm.compare_counts == pwm_counts(row.clock_hz, frequency, counting)
+    for row in result.infeasible:
+        if row.reason.startswith(("unreachable", "too-long", "empty window")):
+            assert no_code_fits(row, tol, limits), row
+        if "pwm: " in row.reason:
+            assert not row.edges or not fits_pwm(row, frequency, counting), row
+            # the fit is the shortest safe code: any shorter one misses the window minimum, and
+            # a longer one only lengthens the dead time, so no code of this point fits the PWM
+            for edge, e in row.edges.items():
+                assert e.steps == shortest_safe_steps(row, tol, limits, edge), (row, edge)
+        assert row.reason.startswith(("unreachable", "too-long", "empty window", "pwm: ")), row
+
+
+def test_cli_pwm_options_and_json() -> None:
+    args = ["--clocks", "100MHz", "--window", "90ns:300ns", "--target", "split-10bit-div4"]
+    data = json.loads(run([*args, "--pwm", "4.75MHz", "--json"]).stdout)
+    assert data["pwm"] == {"frequency_hz": 4_750_000.0, "counting": "edge"}
+    assert [r["divider"] for r in data["feasible"]] == [1]
+    assert data["feasible"][0]["pwm"]["duty_min_counts"] == 10
+    assert all(r["reason"].startswith("pwm: ") for r in data["infeasible"])
+    rows = list(csv.DictReader(io.StringIO(run([*args, "--pwm", "4.75MHz", "--csv"]).stdout)))
+    first = rows[0]  # the one feasible row comes first
+    assert (first["divider"], first["duty_min_counts"], first["duty_max_counts"]) == ("1", "10", "11")
+    # without --pwm nothing about the PWM is checked, and the text says so
+    plain = run(args)
+    assert plain.exit_code == 0 and "PWM: not checked" in plain.stdout
+    # nothing fits a 20 MHz edge-aligned PWM (5 counts): exit 1
+    result = run([*args, "--pwm", "20MHz"])
+    assert result.exit_code == 1 and "at least half a period" in result.stdout
+
+
+def test_cli_design_pwm_is_the_default_and_options_override_it() -> None:
+    from conftest import REPO, run_cli
+
+    design = str(REPO / "examples" / "gan-buck.toml")  # invented: 500 kHz centre-aligned
+    code, out, err = run_cli(["sweep", "--design", design, "--clocks", "160MHz", "--json"])
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["pwm"] == {"frequency_hz": 500_000.0, "counting": "center"}
+    # 160 MHz / (2 x 500 kHz) = 160 compare counts
+    assert {r["pwm"]["compare_counts"] for r in doc["feasible"]} == {160}
+    code, out, err = run_cli(["sweep", "--design", design, "--clocks", "160MHz", "--counting",
+                              "edge", "--json"])
+    assert code == 0, err
+    doc = json.loads(out)
+    assert doc["pwm"]["counting"] == "edge"
+    assert {r["pwm"]["compare_counts"] for r in doc["feasible"]} == {320}  # 160 MHz / 500 kHz
+    # 20 MHz edge-aligned: 8 counts; the window minimum 27.6 ns is 4.4 counts, over half
+    code, out, err = run_cli(["sweep", "--design", design, "--clocks", "160MHz", "--pwm",
+                              "20MHz", "--counting", "edge"])
+    assert code == 1 and "pwm: a dead time of" in out
+
+
+def test_cli_counting_without_a_pwm_is_an_error() -> None:
+    result = CliRunner().invoke(cli, ["sweep", "--clocks", "100MHz", "--window", "90ns",
+                                      "--counting", "center"])
+    assert isinstance(result.exception, GapforgeError), result.output
+    line = result.exception.line()
+    assert line.startswith("--counting") and "--pwm" in line and "\n" not in line

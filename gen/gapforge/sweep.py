@@ -2,7 +2,9 @@
 
 For every point the window's minimum is requested with `safe` rounding (the smallest value whose
 worst case, at the fastest clock, is still >= the minimum); the point is feasible when the
-achieved worst case at the slowest clock is still <= the window's maximum on both edges.
+achieved worst case at the slowest clock is still <= the window's maximum on both edges and,
+when a PWM is given, the fitted dead time also fits the PWM (gapforge.limits: less than half a
+period, and some commanded duty still gives a pulse on both outputs) -- the checks `build` makes.
 Feasible points are ranked by worst-case margin to the window (the smaller of the two distances,
 over both edges, after quantization and clock tolerance), then by quantization error; every
 infeasible point carries the reason it fails.
@@ -19,6 +21,7 @@ from fractions import Fraction
 from gapforge.errors import GapforgeError
 from gapforge.fit import FitRequest, fit
 from gapforge.layouts import Layout
+from gapforge.limits import PwmSpec, compare_counts, pwm_limits
 from gapforge.quantities import format_quantity, parse_quantity
 from gapforge.stage import EDGES, Window, WindowEdge, judge
 
@@ -43,6 +46,18 @@ class RowEdge:
 
 
 @dataclass(frozen=True)
+class RowPwm:
+    """The PWM limits of a point's fitted dead time (gapforge.limits.PwmLimits, condensed)."""
+
+    compare_counts: int  # N: compare range 0..N
+    period_counts: int
+    duty_min_counts: int
+    duty_max_counts: int
+    max_share: Fraction  # the larger dead time as a share of the PWM period
+    verdict: str
+
+
+@dataclass(frozen=True)
 class SweepRow:
     layout: str
     clock_hz: Fraction
@@ -55,6 +70,7 @@ class SweepRow:
     edges: dict[str, RowEdge]
     worst_margin_s: Fraction | None
     worst_error_s: Fraction | None
+    pwm: RowPwm | None = None
 
 
 @dataclass(frozen=True)
@@ -66,6 +82,7 @@ class Sweep:
     infeasible: tuple[SweepRow, ...]  # in layout, clock, divider order
     layouts: tuple[str, ...]
     clocks: tuple[Fraction, ...]
+    pwm: PwmSpec | None = None
 
     @property
     def points(self) -> int:
@@ -118,8 +135,10 @@ def sweep(
     clock_tol: Fraction,
     limits: Limits,
     rank: str = "auto",
+    pwm: PwmSpec | None = None,
 ) -> Sweep:
-    """Every layout x clock x divider code, judged against the window limits per edge."""
+    """Every layout x clock x divider code, judged against the window limits per edge and, with
+    `pwm`, against the PWM limits of the fitted dead time."""
     if rank not in RANKS:
         raise GapforgeError(f"rank must be one of {', '.join(RANKS)}", "--rank")
     if not 0 <= clock_tol < 1:
@@ -134,8 +153,14 @@ def sweep(
     empty = [e for e in EDGES if window[e].empty]
     feasible: list[SweepRow] = []
     infeasible: list[SweepRow] = []
+    # a clock too slow for the PWM (under 2 counts per period) fails on every layout and divider
+    pwm_problem = {clock: _pwm_problem(clock, pwm) for clock in clocks} if pwm else {}
     for layout in layouts:
         for clock in clocks:
+            if pwm_problem.get(clock):
+                for d, divider in enumerate(layout.dividers):
+                    infeasible.append(_bare(layout, clock, d, divider, pwm_problem[clock]))
+                continue
             if empty:
                 reason = "empty window on " + ", ".join(
                     f"{e} ({_t(limits[e][0])} > {_t(limits[e][1] or Fraction(0))})" for e in empty
@@ -151,7 +176,7 @@ def sweep(
                 rounding="safe",
             )
             for d, divider in enumerate(layout.dividers):
-                row = _point(layout, clock, d, divider, request, window)
+                row = _point(layout, clock, d, divider, request, window, pwm)
                 (feasible if row.feasible else infeasible).append(row)
     if rank == "margin":
         feasible.sort(key=lambda r: (-_num(r.worst_margin_s), _num(r.worst_error_s), _order(r)))
@@ -165,7 +190,20 @@ def sweep(
         infeasible=tuple(infeasible),
         layouts=tuple(layout.name for layout in layouts),
         clocks=tuple(clocks),
+        pwm=pwm,
     )
+
+
+def _pwm_problem(clock: Fraction, pwm: PwmSpec) -> str:
+    try:
+        compare_counts(clock, pwm)
+    except GapforgeError as exc:
+        return f"pwm: {exc.message}"
+    return ""
+
+
+def _pwm_text(spec: PwmSpec) -> str:
+    return f"{format_quantity(spec.frequency_hz, 'Hz', 8)} {spec.counting}-aligned PWM"
 
 
 def _num(value: Fraction | None) -> Fraction:
@@ -191,6 +229,7 @@ def _point(
     divider: int,
     request: FitRequest,
     window: dict[str, WindowEdge],
+    pwm: PwmSpec | None,
 ) -> SweepRow:
     result = fit(layout, request, d)
     if result.verdict != "ok":
@@ -238,6 +277,21 @@ def _point(
             )
         elif verdict != "ok":
             reasons.append(f"{verdict}: {edge}")
+    row_pwm = None
+    if pwm is not None:
+        lim = pwm_limits(result, pwm)
+        row_pwm = RowPwm(
+            compare_counts=lim.counts,
+            period_counts=lim.period_counts,
+            duty_min_counts=lim.duty_min_counts,
+            duty_max_counts=lim.duty_max_counts,
+            max_share=max(e.share for e in lim.edges.values()),
+            verdict=lim.verdict,
+        )
+        if lim.verdict != "ok":
+            reasons.append(
+                f"pwm: {lim.reason} ({_pwm_text(pwm)}, {lim.period_counts} counts per period)"
+            )
     return SweepRow(
         layout=layout.name,
         clock_hz=clock,
@@ -250,4 +304,5 @@ def _point(
         edges=edges,
         worst_margin_s=min(margins),
         worst_error_s=max(errors),
+        pwm=row_pwm,
     )

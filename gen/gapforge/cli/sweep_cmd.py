@@ -10,7 +10,7 @@ from typing import Any
 
 import click
 
-from gapforge.cli.options import Tolerance, json_option
+from gapforge.cli.options import Quantity, Tolerance, json_option
 from gapforge.cli.window_cmd import (
     CAUTION,
     MIN_FORMULA,
@@ -20,6 +20,7 @@ from gapforge.cli.window_cmd import (
 )
 from gapforge.errors import GapforgeError
 from gapforge.layouts import builtin_names, load_layout
+from gapforge.limits import COUNTINGS, PwmSpec
 from gapforge.quantities import format_quantity, format_tolerance
 from gapforge.stage import EDGES, parse_span, stage_window
 from gapforge.sweep import RANKS, Sweep, SweepRow, limits_of, parse_clocks, sweep
@@ -44,6 +45,16 @@ def _row_json(row: SweepRow, rank: int | None) -> dict[str, Any]:
         "worst_margin_s": _f(row.worst_margin_s),
         "worst_error_s": _f(row.worst_error_s),
         "reason": row.reason,
+        "pwm": None
+        if row.pwm is None
+        else {
+            "compare_counts": row.pwm.compare_counts,
+            "period_counts": row.pwm.period_counts,
+            "duty_min_counts": row.pwm.duty_min_counts,
+            "duty_max_counts": row.pwm.duty_max_counts,
+            "max_share": float(row.pwm.max_share),
+            "verdict": row.pwm.verdict,
+        },
         "edges": {
             edge: {
                 "code": e.code,
@@ -68,6 +79,9 @@ def sweep_json(result: Sweep, top: int | None) -> dict[str, Any]:
             edge: {"min_s": float(lo), "max_s": _f(hi)} for edge, (lo, hi) in result.limits.items()
         },
         "clock_tol": float(result.clock_tol),
+        "pwm": None
+        if result.pwm is None
+        else {"frequency_hz": float(result.pwm.frequency_hz), "counting": result.pwm.counting},
         "rank_by": result.rank,
         "layouts": list(result.layouts),
         "clocks_hz": [float(c) for c in result.clocks],
@@ -98,6 +112,9 @@ CSV_COLUMNS = [
     "worst_error_s",
     "register",
     "fields",
+    "pwm_compare_counts",
+    "duty_min_counts",
+    "duty_max_counts",
     "reason",
 ]
 
@@ -133,6 +150,9 @@ def sweep_csv(result: Sweep, top: int | None) -> str:
             "" if row.worst_error_s is None else f"{float(row.worst_error_s):.9g}",
             "" if row.register is None else row.register,
             ";".join(f"{k}={v}" for k, v in row.fields.items()),
+            "" if row.pwm is None else row.pwm.compare_counts,
+            "" if row.pwm is None else row.pwm.duty_min_counts,
+            "" if row.pwm is None else row.pwm.duty_max_counts,
             row.reason,
         ]
         writer.writerow(cells)
@@ -151,6 +171,13 @@ def sweep_text(result: Sweep, top: int | None) -> str:
         for edge, (lo, hi) in result.limits.items()
     )
     out.append(f"Window: {window}; clock tolerance {format_tolerance(result.clock_tol)}")
+    if result.pwm is None:
+        out.append("PWM: not checked (give --pwm F, or a design with a [pwm] section)")
+    else:
+        out.append(
+            f"PWM: {format_quantity(result.pwm.frequency_hz, 'Hz', 8)} "
+            f"{result.pwm.counting}-aligned; a row must leave a pulse on both outputs"
+        )
     out.append(
         f"{result.points} points ({len(result.layouts)} layouts x {len(result.clocks)} clocks x "
         f"dividers): {len(result.feasible)} feasible, ranked by "
@@ -196,8 +223,9 @@ def sweep_text(result: Sweep, top: int | None) -> str:
 
 def _design_limits(
     values: dict[str, Any],
-) -> tuple[dict[str, tuple[Fraction, Fraction | None]], Fraction]:
-    """The window of a design (its stage window within the reference's range) and its tolerance."""
+) -> tuple[dict[str, tuple[Fraction, Fraction | None]], Fraction, PwmSpec | None]:
+    """The window of a design (its stage window within the reference's range), its tolerance
+    and its PWM."""
     from pathlib import Path
 
     from gapforge.build import design_window
@@ -213,7 +241,21 @@ def _design_limits(
     if window is None:
         raise GapforgeError("the design has no [stage] section to give a window", str(design.path))
     limits = {e: (lo if lo is not None else Fraction(0), hi) for e, (lo, hi) in window.items()}
-    return limits, design.clock_tol
+    return limits, design.clock_tol, design.pwm
+
+
+def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | None:
+    """--pwm and --counting, each overriding its part of the design's [pwm] section."""
+    frequency: Fraction | None = values["pwm"]
+    counting = values["counting"]
+    if design_pwm is not None:
+        frequency = frequency if frequency is not None else design_pwm.frequency_hz
+        counting = counting if counting is not None else design_pwm.counting
+    if frequency is None:
+        if counting is not None:
+            raise GapforgeError("needs --pwm F (or a design with a [pwm] section)", "--counting")
+        return None
+    return PwmSpec(frequency, counting if counting is not None else "edge")
 
 
 @click.command(name="sweep")
@@ -247,6 +289,20 @@ def _design_limits(
 )
 @stage_options
 @click.option(
+    "--pwm",
+    type=Quantity("Hz"),
+    default=None,
+    help="PWM frequency: rows whose dead time does not fit the PWM are infeasible "
+    "(default: the design's [pwm], else not checked).",
+)
+@click.option(
+    "--counting",
+    type=click.Choice(COUNTINGS),
+    default=None,
+    help="PWM counting: edge-aligned up, or center-aligned up/down "
+    "(default: the design's, else edge).",
+)
+@click.option(
     "--rank",
     type=click.Choice(RANKS),
     default="auto",
@@ -266,11 +322,13 @@ def command(**values: Any) -> None:
     """Compare layouts x timer clocks x dividers against the dead-time window.
 
     Each point asks for the window minimum with safe rounding and checks the worst case at the
-    slow clock against the window maximum. Exit 1 when no point is feasible. A design aid:
+    slow clock against the window maximum and, with a PWM, that the dead time is under half a
+    period and leaves a pulse on both outputs. Exit 1 when no point is feasible. A design aid:
     verify on the bench at reduced voltage with current limiting.
     """
     if values["as_json"] and values["as_csv"]:
         raise GapforgeError("give --json or --csv, not both", "--csv")
+    design_pwm: PwmSpec | None = None
     if values["window_text"] is not None:
         used = [
             name for name in ("design", *OPTION_KEYS, "high_side", "low_side") if values.get(name)
@@ -281,13 +339,14 @@ def command(**values: Any) -> None:
             )
         limits = _window_limits(values["window_text"])
     elif values.get("design") is not None:
-        limits, design_tol = _design_limits(values)
+        limits, design_tol, design_pwm = _design_limits(values)
         if values["clock_tol"] is None:
             values["clock_tol"] = design_tol
     else:
         limits = limits_of(stage_window(spec_from_options(values)))
     if values["clock_tol"] is None:
         values["clock_tol"] = Fraction(0)
+    pwm = _pwm_spec(values, design_pwm)
     clocks = parse_clocks(values["clock_texts"])
     names = list(values["targets"])
     if values["builtins"] or not names:
@@ -302,7 +361,7 @@ def command(**values: Any) -> None:
         if layout.name not in seen:
             seen.add(layout.name)
             layouts.append(layout)
-    result = sweep(layouts, clocks, values["clock_tol"], limits, values["rank"])
+    result = sweep(layouts, clocks, values["clock_tol"], limits, values["rank"], pwm)
     top = values["top"]
     if values["as_json"]:
         click.echo(json.dumps(sweep_json(result, top), indent=2))
