@@ -28,6 +28,13 @@ grid of networks (1.8 / 3.3 / 5 V, small and large R and C, both orientations, 2
 that the dead-time range always contains the simulated one. `gapforge analog --simulate` warns
 loudly when model and simulation still differ by more than --model-warn on any edge.
 
+`reference_findings` gives the one-line warnings every output built from the network repeats
+(`analog` prints the same lines and exits 1 on the first two): a dead time whose worst-case
+minimum is <= 0 (the network itself can shoot through), diode leakage taking more than a share
+of a slow edge at the hottest temperature (`slow_edge_leakage`: the charge integral with and
+without the leakage, typical parts, a few milliseconds; it agrees with the transient within 1 %),
+and a bypassed edge whose threshold lies inside the diode's knee.
+
 Every parameter is a `Band` (min/typ/max); the same table of parameters (`PARAMETERS`) feeds the
 design file's `[reference]` section and the `gapforge analog` options, so they cannot drift apart.
 numpy is imported only inside the functions that evaluate arrays.
