@@ -134,3 +134,14 @@ def test_issue3_reference_minimum_that_is_not_positive_is_bad_input(tmp_path: Pa
     assert line.startswith(f"gapforge: error: {tmp_path / 'd.toml'}: dead_time.source: ")
     assert "not positive" in line
     assert not (tmp_path / "out").exists()
+
+
+def test_issue3_build_repeats_the_reference_networks_own_dangers() -> None:
+    # the invented GaN example's old analog network reaches a negative worst-case dead time;
+    # `analog` exits 1 for it, and `build` must say so too (as a warning: the digital fit is ok)
+    from conftest import EXAMPLES
+
+    code, out, err = run_cli(["build", str(EXAMPLES / "gan-buck.toml"), "--check", "--json"])
+    assert code == 0, err
+    warnings = json.loads(out)["warnings"]
+    assert any("analog reference itself can shoot through" in w for w in warnings)

@@ -128,6 +128,11 @@ def design_window(design: Design) -> dict[str, Bounds] | None:
 def plan_design(design: Design) -> BuildPlan:
     stage_result, reference, stage_window, window = _windows(design)
     warnings = tuple(_reference_warnings(reference, stage_window))
+    if design.reference is not None and reference is not None:
+        from gapforge.analog import reference_findings
+
+        # the old network's own dangers (overlap at a corner, hot-board leakage) repeated here
+        warnings = (*reference_findings(design.reference, reference), *warnings)
     if design.clock_tol == 0:
         warnings += (
             "the clock tolerance is 0 ([timer] tolerance): 'safe' covers a perfect clock only",
