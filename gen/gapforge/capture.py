@@ -57,15 +57,8 @@ import numpy as np
 import numpy.typing as npt
 
 from gapforge.errors import GapforgeError
+from gapforge.quantities import TIME_UNITS
 
-_UNITS: dict[str, Fraction] = {
-    "s": Fraction(1),
-    "ms": Fraction(1, 10**3),
-    "us": Fraction(1, 10**6),
-    "ns": Fraction(1, 10**9),
-    "ps": Fraction(1, 10**12),
-    "fs": Fraction(1, 10**15),
-}
 _LEVELS = {"0": 0, "1": 1, "x": 2, "X": 2, "z": 3, "Z": 3}
 _DECIMAL = re.compile(r"^[+]?(\d+(\.\d*)?|\.\d+)$")
 
@@ -382,12 +375,12 @@ def read_csv(path: Path, names: list[str]) -> CsvData:
     time_unit: Fraction | None = None
     if header[0].startswith("time_"):
         unit = header[0][5:]
-        if unit not in _UNITS:
+        if unit not in TIME_UNITS:
             raise GapforgeError(
-                f"time column {header[0]!r}: unit must be one of {', '.join(_UNITS)}",
+                f"time column {header[0]!r}: unit must be one of {', '.join(TIME_UNITS)}",
                 f"{where}:{header_line}",
             )
-        time_unit = _UNITS[unit]
+        time_unit = TIME_UNITS[unit]
     if time_unit is not None and header[1:] == ["signal", "level"]:
         return _edges(rows, names, time_unit, where)
     return _samples(rows, header, header_line, names, time_unit, directives, where)

@@ -44,6 +44,16 @@ UNITS: dict[str, tuple[str, ...]] = {
     "": (),
 }
 
+# Time units written in capture files (VCD timescales, CSV time columns), exactly.
+TIME_UNITS: dict[str, Fraction] = {
+    "s": Fraction(1),
+    "ms": Fraction(1, 10**3),
+    "us": Fraction(1, 10**6),
+    "ns": Fraction(1, 10**9),
+    "ps": Fraction(1, 10**12),
+    "fs": Fraction(1, 10**15),
+}
+
 _NUMBER = re.compile(r"^\s*([+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?)\s*(.*?)\s*$")
 
 _OUT_PREFIXES = [

@@ -35,6 +35,7 @@ import numpy as np
 import numpy.typing as npt
 
 from gapforge.errors import GapforgeError
+from gapforge.quantities import TIME_UNITS
 
 X = 2
 Z = 3
@@ -44,14 +45,6 @@ CHUNK_BYTES = 1 << 20
 _PAD = 24  # bytes before the data in the read buffer
 _MAX_TIME_DIGITS = 18
 
-_UNITS: dict[str, Fraction] = {
-    "s": Fraction(1),
-    "ms": Fraction(1, 10**3),
-    "us": Fraction(1, 10**6),
-    "ns": Fraction(1, 10**9),
-    "ps": Fraction(1, 10**12),
-    "fs": Fraction(1, 10**15),
-}
 
 # first-byte classes of body tokens
 _C_BAD, _C_SCALAR, _C_VECTOR, _C_REAL, _C_TIME, _C_KEYWORD = 0, 1, 2, 3, 4, 5
@@ -141,7 +134,7 @@ def _parse_timescale(words: list[str], where: str) -> Fraction:
             f"bad $timescale {' '.join(words)!r} (expected 1, 10 or 100 and s, ms, us, ns, ps, fs)",
             where,
         )
-    return int(match.group(1)) * _UNITS[match.group(2)]
+    return int(match.group(1)) * TIME_UNITS[match.group(2)]
 
 
 _REF = re.compile(r"^(?P<name>[^\[]+?)(?:\[(?P<msb>-?\d+)(?::(?P<lsb>-?\d+))?\])?$")
