@@ -145,3 +145,23 @@ def test_issue3_build_repeats_the_reference_networks_own_dangers() -> None:
     assert code == 0, err
     warnings = json.loads(out)["warnings"]
     assert any("analog reference itself can shoot through" in w for w in warnings)
+
+
+def test_issue4_sweep_pwm_is_the_switching_frequency() -> None:
+    # with stage options, --pwm supplies the switching frequency: the maximum is
+    # 1 W / (1 V x (10 + 10) A x 100 kHz) = 500 ns (it would be 2.5 us at a wrong 20 kHz)
+    base = ["sweep", "--td-off", "40ns", "--td-on", "10ns", "--vsd", "1V", "--current", "10A",
+            "--loss-budget", "1W", "--clocks", "100MHz", "--json"]
+    code, out, err = run_cli([*base, "--pwm", "100kHz"])
+    assert code == 0, err
+    assert json.loads(out)["window"]["to_high"]["max_s"] == 500e-9
+    code, _, err = run_cli([*base, "--pwm", "100kHz", "--fsw", "20kHz"])
+    assert code == 2 and err.startswith("gapforge: error: --fsw: ")
+
+
+def test_issue4_sweep_refuses_a_pwm_other_than_the_designs() -> None:
+    from conftest import EXAMPLES
+
+    code, _, err = run_cli(["sweep", "--design", str(EXAMPLES / "gan-buck.toml"), "--pwm",
+                            "400kHz", "--clocks", "160MHz"])
+    assert code == 2 and err.startswith("gapforge: error: --pwm: ")

@@ -569,9 +569,15 @@ def test_cli_design_pwm_is_the_default_and_options_override_it() -> None:
     doc = json.loads(out)
     assert doc["pwm"]["counting"] == "edge"
     assert {r["pwm"]["compare_counts"] for r in doc["feasible"]} == {320}  # 160 MHz / 500 kHz
-    # 20 MHz edge-aligned: 8 counts; the window minimum 27.6 ns is 4.4 counts, over half
-    code, out, err = run_cli(["sweep", "--design", design, "--clocks", "160MHz", "--pwm",
-                              "20MHz", "--counting", "edge"])
+    # a --pwm other than the design's would not match the window derived for the design's own
+    # switching frequency: refused
+    code, _, err = run_cli(["sweep", "--design", design, "--clocks", "160MHz", "--pwm",
+                            "20MHz", "--counting", "edge"])
+    assert code == 2 and err.startswith("gapforge: error: --pwm: ")
+    # the same window given directly: 20 MHz edge-aligned is 8 counts; the window minimum
+    # 27.6 ns is 4.4 counts, over half a period
+    code, out, err = run_cli(["sweep", "--window", "27.6ns:29.687ns", "--clocks", "160MHz",
+                              "--pwm", "20MHz", "--counting", "edge"])
     assert code == 1 and "pwm: a dead time of" in out
 
 

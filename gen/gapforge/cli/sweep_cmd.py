@@ -342,8 +342,24 @@ def command(**values: Any) -> None:
         limits, design_tol, design_pwm = _design_limits(values)
         if values["clock_tol"] is None:
             values["clock_tol"] = design_tol
+        if (
+            design_pwm is not None
+            and values["pwm"] is not None
+            and values["pwm"] != design_pwm.frequency_hz
+        ):
+            # the design's window maximum was computed for its own switching frequency
+            raise GapforgeError(
+                "differs from the design's [pwm] frequency, for which its window was derived; "
+                "edit the design instead",
+                "--pwm",
+            )
     else:
-        limits = limits_of(stage_window(spec_from_options(values)))
+        # a half bridge switches once per PWM period: --pwm is the stage's switching frequency
+        spec = spec_from_options(values, values["pwm"])
+        if values["pwm"] is not None and spec.fsw is not None and spec.fsw != values["pwm"]:
+            raise GapforgeError("differs from --pwm (a half bridge switches once per PWM period)",
+                                "--fsw")
+        limits = limits_of(stage_window(spec))
     if values["clock_tol"] is None:
         values["clock_tol"] = Fraction(0)
     pwm = _pwm_spec(values, design_pwm)

@@ -129,7 +129,7 @@ def stage_options(func: F) -> F:
     return func
 
 
-def spec_from_options(values: dict[str, Any]) -> StageSpec:
+def spec_from_options(values: dict[str, Any], default_fsw: Fraction | None = None) -> StageSpec:
     """A StageSpec from --design or from the stage options (one validation path for both)."""
     design = values.get("design")
     given: dict[str, Any] = {
@@ -158,7 +158,7 @@ def spec_from_options(values: dict[str, Any]) -> StageSpec:
         if given.get(key) is None and not both_sides:
             raise GapforgeError("required (or give --design FILE)", "--" + key.replace("_", "-"))
     reader = Reader("options")
-    spec = read_stage(reader.table(given, ""))
+    spec = read_stage(reader.table(given, ""), default_fsw)
     if reader.problems:
         path, message = reader.problems[0]
         parts = path.split(".")
