@@ -8,21 +8,14 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-from gapforge.analog import (
-    EdgeRange,
-    ReferenceNetwork,
-    bypass_notes,
-    channel_edge_delays,
-    diode_knee_voltage,
-    network_from_options,
-    node_delay,
-    parse_diode,
-    read_reference,
-    reference_dead_times,
-    values_at,
-)
-from gapforge.errors import GapforgeError
-from gapforge.schema import Reader
+from gapforge.analog.closed_form import diode_knee_voltage, node_delay
+from gapforge.analog.corners import channel_edge_delays, values_at
+from gapforge.analog.describe import bypass_notes
+from gapforge.analog.network import EdgeRange, ReferenceNetwork, parse_diode
+from gapforge.analog.parameters import network_from_options, read_reference
+from gapforge.analog.tolerance import reference_dead_times
+from gapforge.base.errors import GapforgeError
+from gapforge.base.schema import Reader
 
 A = np.asarray
 
@@ -153,7 +146,7 @@ def test_channel_mismatch_widens_the_pair_range() -> None:
 
 def test_ranges_round_to_the_safe_side_in_whole_picoseconds() -> None:
     net = network_from_options({"r": "4.7k", "c": "100p"})
-    from gapforge.tolerance import worst_case
+    from gapforge.analog.tolerance import worst_case
 
     wc = worst_case(net)
     for key, rng in reference_dead_times(net).items():

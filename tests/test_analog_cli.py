@@ -76,7 +76,8 @@ def test_help_documents_exit_1_for_leakage() -> None:
 
 
 def test_analog_warns_in_the_words_build_repeats() -> None:
-    from gapforge.analog import network_from_options, reference_findings
+    from gapforge.analog.findings import reference_findings
+    from gapforge.analog.parameters import network_from_options
 
     for args, raw in ((HOT, {"r": "47k", "c": "100p", "diode": HOT[-1]}),
                       ([*NET, "--bypass", "rising"], {"r": "4.7k", "c": "100p",
@@ -88,7 +89,7 @@ def test_analog_warns_in_the_words_build_repeats() -> None:
 
 
 def test_caution_is_the_shared_text() -> None:
-    from gapforge import caution
+    from gapforge.base import caution
 
     _, out, _ = run_cli(["analog", *NET, "--json"])
     assert json.loads(out)["caution"] == caution.TEXT

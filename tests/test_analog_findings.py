@@ -8,16 +8,12 @@ from fractions import Fraction
 
 import pytest
 
-from gapforge.analog import (
-    DEFAULT_LEAKAGE_SHARE,
-    network_from_options,
-    reference_dead_times,
-    reference_findings,
-    slow_edge_leakage,
-    without_leakage,
-)
-from gapforge.quantities import format_quantity
-from gapforge.simulate import slow_edge_over_temperature
+from gapforge.analog.findings import reference_findings, slow_edge_leakage, without_leakage
+from gapforge.analog.network import DEFAULT_LEAKAGE_SHARE
+from gapforge.analog.parameters import network_from_options
+from gapforge.analog.simulate import slow_edge_over_temperature
+from gapforge.analog.tolerance import reference_dead_times
+from gapforge.base.quantities import format_quantity
 
 SCHOTTKY = "IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5 EG=0.69 XTI=2"  # the example
 GOOD = {"r": "4.7k", "c": "100p"}  # the default network: falling edge bypassed, silicon diode

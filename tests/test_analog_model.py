@@ -2,7 +2,7 @@
 
 Issue 3 review: the textbook two-slope closed form underestimated the bypassed edge (2.51 ns
 against 4.26 ns simulated for 4.7k / 100p), which overestimates the dead time. The ranges now
-come from the charge integral (analog.diode_edge_delay); these tests hold it to ngspice's recorded
+come from the charge integral (diode_edge_delay); these tests hold it to ngspice's recorded
 results and to the transient over a grid of networks.
 """
 
@@ -15,20 +15,16 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-import gapforge.analog as analog
+import gapforge.analog.diode_edge as diode_edge_module
 from conftest import run_cli
-from gapforge.analog import (
-    ReferenceNetwork,
-    diode_edge_delay,
-    junction_arrays,
-    network_from_options,
-    pair_dead_times,
-    parse_diode,
-    reference_dead_times,
-)
-from gapforge.errors import GapforgeError
-from gapforge.schema import Reader
-from gapforge.simulate import EdgeCircuit, junction, simulated_node_delays
+from gapforge.analog.corners import pair_dead_times
+from gapforge.analog.diode_edge import diode_edge_delay, junction_arrays
+from gapforge.analog.network import ReferenceNetwork, parse_diode
+from gapforge.analog.parameters import network_from_options, read_reference
+from gapforge.analog.simulate import EdgeCircuit, junction, simulated_node_delays
+from gapforge.analog.tolerance import reference_dead_times
+from gapforge.base.errors import GapforgeError
+from gapforge.base.schema import Reader
 
 SPICE = Path(__file__).resolve().parent / "spice"
 RESULTS = json.loads((SPICE / "results.json").read_text())
@@ -99,7 +95,7 @@ def test_quadrature_is_converged(monkeypatch: pytest.MonkeyPatch) -> None:
         diode = parse_diode(text, "x")
         for forward in (True, False):
             ours = diode_edge_delay(diode, forward, *args)
-            monkeypatch.setattr(analog, "QUADRATURE_NODES", 120)
+            monkeypatch.setattr(diode_edge_module, "QUADRATURE_NODES", 120)
             fine = diode_edge_delay(diode, forward, *args)
             monkeypatch.undo()
             live = fine > 0  # 0: the junction's charge sharing alone passes the threshold
@@ -167,7 +163,7 @@ def test_reference_range_contains_the_simulated_dead_time(
 def test_the_textbook_form_overstated_the_dead_time() -> None:
     # Regression, issue 3 review: 4.7k / 100p, default parts. The textbook bypassed edge was
     # 2.51 ns against 4.26 ns simulated; its dead time exceeded the transient's.
-    from gapforge.tolerance import typical, typical_textbook
+    from gapforge.analog.tolerance import typical, typical_textbook
 
     net = network_from_options({"r": "4.7k", "c": "100p", "temp": "27"})
     simulated = _simulated_pair(net)["to_high"]
@@ -180,7 +176,7 @@ def test_corners_hold_the_monte_carlo_extremes() -> None:
     # ECSS-Q-HB-30-01A: extreme-value corners can miss a non-monotonic extreme. The corner
     # search takes only the band ends of the resistances and capacitances; a large Monte Carlo
     # must stay inside (default network with the low-voltage knee biting at 1.8 V).
-    from gapforge.tolerance import QUANTITIES, corner_extremes, monte_carlo
+    from gapforge.analog.tolerance import QUANTITIES, corner_extremes, monte_carlo
 
     for over in ({}, {"levels": "jedec-1v8", "diode": "IS=1e-9 N=1.9 RS=1 CJO=3p"}):
         net = network_from_options({"r": "4.7k", "c": "100p", **over})
@@ -218,7 +214,7 @@ def test_bad_physical_input_is_one_line_exit_2(args: list[str], where: str, text
 
 def test_bad_temperature_in_a_design_names_the_key() -> None:
     reader = Reader("design.toml")
-    analog.read_reference(reader.table({"r": "4.7k", "c": "100p", "temp": "-300"}, "reference"))
+    read_reference(reader.table({"r": "4.7k", "c": "100p", "temp": "-300"}, "reference"))
     assert dict(reader.problems)["reference.temp"].startswith("temperature outside")
     with pytest.raises(GapforgeError):
         reader.finish()

@@ -7,9 +7,9 @@ from pathlib import Path
 
 import pytest
 
-from gapforge.capture import load_capture
-from gapforge.errors import GapforgeError
-from gapforge.measure import measure_capture
+from gapforge.base.errors import GapforgeError
+from gapforge.bench.capture import load_capture
+from gapforge.bench.measure import measure_capture
 
 
 def test_edge_events_exact_decimal_times(tmp_path: Path) -> None:
@@ -77,7 +77,7 @@ def test_open_capture_streams_with_polarity(tmp_path: Path) -> None:
     # written by pyvcd, a general-purpose VCD writer; the low side is active low
     from vcd import VCDWriter
 
-    from gapforge.capture import open_capture
+    from gapforge.bench.capture import open_capture
 
     path = tmp_path / "pol.vcd"
     with path.open("w") as handle, VCDWriter(handle, timescale="1 ns", date="invented") as w:
@@ -99,7 +99,7 @@ def test_open_capture_streams_with_polarity(tmp_path: Path) -> None:
 
 
 def test_open_capture_csv(tmp_path: Path) -> None:
-    from gapforge.capture import open_capture
+    from gapforge.bench.capture import open_capture
 
     path = tmp_path / "edges.csv"
     path.write_text("time_ns,signal,level\n0,gh,0\n0,gl,1\n100,gl,0\n131.25,gh,1\n600,gh,0\n"
@@ -125,7 +125,7 @@ def _sampled(tmp_path: Path, gap_samples: int) -> Path:
 
 
 def test_sampled_gap_is_judged_one_sample_short(tmp_path: Path) -> None:
-    from gapforge.measure import Limits
+    from gapforge.bench.measure import Limits
 
     cap = load_capture(_sampled(tmp_path, 3), "gh", "gl")
     assert cap.resolution_ticks == 1 and cap.tick_s == 10 * NS  # one sample period
@@ -161,7 +161,7 @@ def test_edge_csv_and_vcd_resolution_is_one_tick(tmp_path: Path) -> None:
     assert measure_capture(cap).resolution_s == NS / 4
     from vcd import VCDWriter  # pyvcd, a general-purpose VCD writer
 
-    from gapforge.capture import open_capture
+    from gapforge.bench.capture import open_capture
 
     vcd_path = tmp_path / "ten.vcd"
     with vcd_path.open("w") as handle, VCDWriter(handle, timescale="10 ns", date="invented") as w:

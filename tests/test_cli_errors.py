@@ -353,8 +353,8 @@ def test_output_path_that_is_a_directory_is_bad_input_and_writes_nothing(tmp_pat
 
 
 def test_write_files_is_all_or_nothing_when_a_directory_cannot_be_made(tmp_path: Path) -> None:
-    from gapforge.errors import GapforgeError
-    from gapforge.files import write_files
+    from gapforge.base.errors import GapforgeError
+    from gapforge.base.files import write_files
 
     (tmp_path / "a.h").write_text(SENTINEL)
     (tmp_path / "blocked").write_text("a file, not a directory\n")
@@ -366,7 +366,7 @@ def test_write_files_is_all_or_nothing_when_a_directory_cannot_be_made(tmp_path:
 
 
 def test_write_files_writes_utf8_with_newlines(tmp_path: Path) -> None:
-    from gapforge.files import write_files
+    from gapforge.base.files import write_files
 
     target = tmp_path / "sub" / "x.h"
     assert write_files({target: "/* \u00b5s */\n"}) == [target]

@@ -10,10 +10,10 @@ from pathlib import Path
 import pytest
 from click.testing import CliRunner
 
+from gapforge.bench.measure import measure_capture
+from gapforge.bench.serial_stream import LineDecoder
 from gapforge.cli import cli
-from gapforge.firmware import render_capture_helper
-from gapforge.measure import measure_capture
-from gapforge.serial_stream import LineDecoder
+from gapforge.outputs.firmware import render_capture_helper
 
 CC = shutil.which("gcc") or shutil.which("cc")
 FLAGS = ["-std=c99", "-Wall", "-Wextra", "-Wpedantic", "-Werror", "-Wconversion"]
@@ -64,7 +64,7 @@ def test_render_is_deterministic_and_logic_free() -> None:
     assert "typedef uint16_t gfcap_counter_t;" in render_capture_helper(16)["gapforge_capture_fmt.h"]
     assert "CAUTION" in a["gapforge_capture_fmt.h"]
     for name in ("capture_fmt.h.j2", "capture_fmt.c.j2"):
-        text = (Path(__file__).parents[1] / "gen/gapforge/templates" / name).read_text()
+        text = (Path(__file__).parents[1] / "gen/gapforge/outputs/templates" / name).read_text()
         assert "{%" not in text  # layout only: Python computes everything
 
 

@@ -1,4 +1,4 @@
-"""The quantization engine (gapforge.fit): worked examples with the arithmetic beside them, and
+"""The quantization engine (gapforge.timer.fit): worked examples with the arithmetic beside them, and
 properties checked against an independent brute-force enumeration.
 
 Dead time from N steps is N x divider / (sub_steps x f_clk); the fast clock, f_clk x (1 + tol),
@@ -19,8 +19,8 @@ from hypothesis import example, given, settings
 from hypothesis import strategies as st
 
 from conftest import BUILTINS, run_cli
-from gapforge.fit import FitRequest, FitResult, fit, unreachable_edges
-from gapforge.layouts import EDGES, Layout, load_layout
+from gapforge.timer.fit import FitRequest, FitResult, fit, unreachable_edges
+from gapforge.timer.layouts import EDGES, Layout, load_layout
 
 F = Fraction
 NS = F(1, 10**9)
@@ -548,8 +548,8 @@ def test_user_layouts_validate_and_fit_like_brute_force(
 ) -> None:
     import tomllib
 
-    from gapforge.errors import GapforgeError
-    from gapforge.layouts import parse_layout
+    from gapforge.base.errors import GapforgeError
+    from gapforge.timer.layouts import parse_layout
 
     text, ok = spec
     try:

@@ -59,7 +59,7 @@ def built(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, list[dict[str
 
 
 def _layout_fields(entry: dict[str, Any]) -> list[str]:
-    from gapforge.layouts import load_layout
+    from gapforge.timer.layouts import load_layout
 
     return [f.name for f in load_layout(entry["target"]).fields]
 
@@ -303,7 +303,7 @@ def test_every_layout_at_extreme_clocks_compiles_and_recomputes(
 ) -> None:
     """Large counts (16-bit layout at 1 MHz: tens of milliseconds, > 2^32 ps) and tiny ones
     must keep their literal suffixes right on the host and on a 32-bit MCU."""
-    from gapforge.layouts import load_layout
+    from gapforge.timer.layouts import load_layout
 
     compiler = _compiler("gcc")
     clock, pwm, share = CORNERS[corner]
@@ -397,7 +397,7 @@ def test_prefixes_differing_in_case_get_distinct_include_guards(tmp_path: Path) 
 #
 # PWM (common practice for a counting timer): edge-aligned up-counting repeats every N counts
 # (compare range 0..N), centre-aligned up/down counting every 2N; N is the PWM period in counts
-# rounded to the nearest whole count (gapforge.limits; ties round up). The usable duty is found by
+# rounded to the nearest whole count (gapforge.timer.limits; ties round up). The usable duty is found by
 # simulation, not a formula: for every compare value c in 0..N the program walks one period count
 # by count (edge: counter = t; centre: counter = t on the way up, 2N - 1 - t on the way down, so
 # each count is one tick), commands the high side while counter < c and the low side otherwise,

@@ -1,4 +1,4 @@
-"""Timer layouts as data (gapforge.layouts): the built-ins load and round-trip over their whole
+"""Timer layouts as data (gapforge.timer.layouts): the built-ins load and round-trip over their whole
 code space; bad layout files are refused with one message naming the file and the key path.
 """
 
@@ -10,8 +10,8 @@ from pathlib import Path
 import pytest
 
 from conftest import BUILTINS, run_cli
-from gapforge.errors import GapforgeError
-from gapforge.layouts import Layout, builtin_names, load_layout
+from gapforge.base.errors import GapforgeError
+from gapforge.timer.layouts import Layout, builtin_names, load_layout
 
 
 def test_every_builtin_is_listed_and_loads() -> None:

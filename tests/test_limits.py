@@ -1,4 +1,4 @@
-"""PWM edge-case limits (gapforge.limits): worked examples with the arithmetic beside them.
+"""PWM edge-case limits (gapforge.timer.limits): worked examples with the arithmetic beside them.
 
 Counting conventions (common practice, from memory): edge-aligned up-counting repeats every N
 timer clocks; centre-aligned up/down counting takes 2N clocks per period, the compare value c
@@ -17,10 +17,10 @@ from fractions import Fraction
 import pytest
 
 from conftest import run_cli
-from gapforge.errors import GapforgeError
-from gapforge.fit import FitRequest, FitResult, fit
-from gapforge.layouts import EDGES, load_layout
-from gapforge.limits import PwmSpec, pwm_limits
+from gapforge.base.errors import GapforgeError
+from gapforge.timer.fit import FitRequest, FitResult, fit
+from gapforge.timer.layouts import EDGES, load_layout
+from gapforge.timer.limits import PwmSpec, pwm_limits
 
 F = Fraction
 NS = F(1, 10**9)

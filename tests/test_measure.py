@@ -12,11 +12,11 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from gapforge import capture as capture_module
-from gapforge import measure as measure_module
-from gapforge.capture import CaptureStream, GateCapture, make_capture, stream_of
-from gapforge.errors import GapforgeError
-from gapforge.measure import Glitch, Limits, Measurement, measure_capture
+from gapforge.base.errors import GapforgeError
+from gapforge.bench import capture as capture_module
+from gapforge.bench import measure as measure_module
+from gapforge.bench.capture import CaptureStream, GateCapture, make_capture, stream_of
+from gapforge.bench.measure import Glitch, Limits, Measurement, measure_capture
 
 TICK = Fraction(1, 3 * 10**9)  # a tick that is not a decimal fraction of a second
 

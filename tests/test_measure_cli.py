@@ -112,7 +112,7 @@ def test_bad_input_one_line_exit_2(tmp_path: Path, content: bytes | None, args: 
 
 
 def test_design_file(tmp_path: Path) -> None:
-    from gapforge.build import measurement_expectations
+    from gapforge.pipeline.build import measurement_expectations
 
     design = ROOT / "examples" / "motor-inverter.toml"
     expected = measurement_expectations(design)
@@ -194,9 +194,9 @@ def test_timing_diagram_under_the_tables(tmp_path: Path) -> None:
 
 def test_streamed_file_equals_the_capture_in_memory(tmp_path: Path) -> None:
     # the CLI streams the VCD; the report path loads it whole: same measurement either way
-    from gapforge.capture import load_capture, open_capture
+    from gapforge.bench.capture import load_capture, open_capture
+    from gapforge.bench.measure import measure_capture
     from gapforge.cli.measure_cmd import measurement_json
-    from gapforge.measure import measure_capture
 
     path = _vcd(tmp_path / "shoot.vcd", 30, 40, overlap_at=7)
     streamed = measure_capture(open_capture(path, "gate_h", "gate_l", chunk_bytes=64), worst=3)
@@ -228,9 +228,9 @@ def test_diagram_notes_an_overlapping_hand_over() -> None:
 
     import numpy as np
 
-    from gapforge.capture import make_capture
+    from gapforge.bench.capture import make_capture
+    from gapforge.bench.measure import measure_capture
     from gapforge.cli.measure_cmd import measurement_diagram
-    from gapforge.measure import measure_capture
 
     ht = np.array([0, 96, 500, 1096, 1500], dtype=np.int64)
     hv = np.array([0, 1, 0, 1, 0], dtype=np.uint8)

@@ -11,16 +11,12 @@ from pathlib import Path
 
 import pytest
 
-from gapforge.analog import (
-    DEFAULT_DIODE_TEXT,
-    network_from_options,
-    parse_diode,
-    reference_dead_times,
-)
-from gapforge.errors import GapforgeError
-from gapforge.preferred import E12, E24, E96, SERIES, nearest, series_values, suggest
-from gapforge.simulate import EdgeCircuit, spice_netlist
-from gapforge.tolerance import typical
+from gapforge.analog.network import DEFAULT_DIODE_TEXT, parse_diode
+from gapforge.analog.parameters import network_from_options
+from gapforge.analog.preferred import E12, E24, E96, SERIES, nearest, series_values, suggest
+from gapforge.analog.simulate import EdgeCircuit, spice_netlist
+from gapforge.analog.tolerance import reference_dead_times, typical
+from gapforge.base.errors import GapforgeError
 
 
 def test_e24_differs_from_the_rounding_formula_in_eight_places() -> None:

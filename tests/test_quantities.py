@@ -1,4 +1,4 @@
-"""Engineering notation in and out, exact inside (gapforge.quantities).
+"""Engineering notation in and out, exact inside (gapforge.base.quantities).
 
 Expected values are exact fractions worked out by hand from the SI prefixes (BIPM, The
 International System of Units, 9th ed., 2019, table 7: p = 1e-12, n = 1e-9, u = 1e-6, m = 1e-3,
@@ -15,8 +15,8 @@ from fractions import Fraction
 import pytest
 
 from conftest import REPO
-from gapforge.errors import GapforgeError
-from gapforge.quantities import (
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import (
     format_quantity,
     format_tolerance,
     parse_quantity,
@@ -211,8 +211,8 @@ def test_picoseconds_round_toward_the_safe_side() -> None:
 def test_absurd_exponent_is_refused_quickly() -> None:
     # run in a child process so a hang costs 3 s, not the suite
     code = (
-        "from gapforge.errors import GapforgeError\n"
-        "from gapforge.quantities import parse_quantity\n"
+        "from gapforge.base.errors import GapforgeError\n"
+        "from gapforge.base.quantities import parse_quantity\n"
         "try:\n    parse_quantity('1e999999999', 'Hz', 'w')\n"
         "except GapforgeError as exc:\n    print(exc.line())\n"
     )
@@ -234,7 +234,7 @@ def test_milli_before_hertz_is_refused(text: str) -> None:
 
 
 def test_limits_are_displayed_cut_toward_the_safe_side() -> None:
-    from gapforge.quantities import format_bound
+    from gapforge.base.quantities import format_bound
 
     # 27.732988 ns as a guaranteed minimum shows 27.7329 ns (cut down), never 27.733 ns;
     # as a maximum it shows 27.733 ns (cut up); exact values stay as they are

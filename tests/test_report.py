@@ -18,12 +18,12 @@ import numpy as np
 import pytest
 
 from conftest import REPO
-from gapforge.build import BuildPlan, plan_design
-from gapforge.design import load_design
-from gapforge.report import MC_SAMPLES, MC_SEED, SIM_BEYOND, render_report
-from gapforge.simulate import edge_circuit, node_waveform, simulate_edge
-from gapforge.svg import eng
-from gapforge.tolerance import monte_carlo, monte_carlo_samples
+from gapforge.analog.simulate import edge_circuit, node_waveform, simulate_edge
+from gapforge.analog.tolerance import monte_carlo, monte_carlo_samples
+from gapforge.outputs.report import MC_SAMPLES, MC_SEED, SIM_BEYOND, render_report
+from gapforge.outputs.svg import eng
+from gapforge.pipeline.build import BuildPlan, plan_design
+from gapforge.pipeline.design import load_design
 
 SVG = "{http://www.w3.org/2000/svg}"
 
@@ -135,7 +135,7 @@ def polyline(root: ET.Element, cls: str) -> list[tuple[float, float]]:
 
 
 # --- numbers worked by hand for the design above ------------------------------------------------
-# Stage minimum (common practice formula, see gapforge.stage): (35 + 20 - 10 + (45 - 20) + 5) ns
+# Stage minimum (common practice formula, see gapforge.stage.window): (35 + 20 - 10 + (45 - 20) + 5) ns
 # x 1.2 = 90 ns. Timer step 1 / 160 MHz = 6.25 ns; safe rounding needs k x 6.25 ns / 1.01 >= 90 ns,
 # k >= 14.544, so k = 15 -> 93.75 ns, worst case 93.75 / 1.01 = 92.8218 ns .. 93.75 / 0.99.
 STEP = 6.25e-9

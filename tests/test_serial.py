@@ -11,8 +11,8 @@ from fractions import Fraction
 import pytest
 import serial
 
-from gapforge.measure import measure_capture
-from gapforge.serial_stream import LineDecoder, open_port, read_serial
+from gapforge.bench.measure import measure_capture
+from gapforge.bench.serial_stream import LineDecoder, open_port, read_serial
 
 CLOCK = 100_000_000  # 10 ns ticks
 

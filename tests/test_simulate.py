@@ -7,8 +7,9 @@ import math
 import numpy as np
 import pytest
 
-from gapforge.analog import DiodeModel, network_from_options, parse_diode
-from gapforge.simulate import (
+from gapforge.analog.network import DiodeModel, parse_diode
+from gapforge.analog.parameters import network_from_options
+from gapforge.analog.simulate import (
     EdgeCircuit,
     junction,
     node_waveform,

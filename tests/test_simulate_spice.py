@@ -18,8 +18,8 @@ from pathlib import Path
 
 import pytest
 
-from gapforge.analog import parse_diode
-from gapforge.simulate import EdgeCircuit, simulate_edge, spice_netlist
+from gapforge.analog.network import parse_diode
+from gapforge.analog.simulate import EdgeCircuit, simulate_edge, spice_netlist
 
 SPICE = Path(__file__).resolve().parent / "spice"
 RESULTS = json.loads((SPICE / "results.json").read_text())

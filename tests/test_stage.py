@@ -1,4 +1,4 @@
-"""The power-stage window and costs (gapforge.stage), checked against worked arithmetic.
+"""The power-stage window and costs (gapforge.stage.window), checked against worked arithmetic.
 
 Every scenario here is invented. The minimum-dead-time sum is common practice (no single
 published source; see /work/shared/reference-facts.md). The inverter voltage error is the
@@ -15,9 +15,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from gapforge.errors import GapforgeError
-from gapforge.schema import Reader
-from gapforge.stage import (
+from gapforge.base.errors import GapforgeError
+from gapforge.base.schema import Reader
+from gapforge.stage.window import (
     StageSpec,
     SwitchTiming,
     judge,

@@ -7,7 +7,7 @@ import xml.etree.ElementTree as ET
 
 import pytest
 
-from gapforge.svg import (
+from gapforge.outputs.svg import (
     PALETTE,
     Axis,
     Figure,

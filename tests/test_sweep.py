@@ -1,4 +1,4 @@
-"""`gapforge sweep` (gapforge.sweep): layouts x clocks x dividers against a dead-time window.
+"""`gapforge sweep` (gapforge.timer.sweep): layouts x clocks x dividers against a dead-time window.
 
 The key property is checked independently of gapforge's layout model and fit engine: the layout
 files are read here with tomllib, register codes are decoded with a decoder written in this file,
@@ -25,11 +25,11 @@ from click.testing import CliRunner
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from gapforge.base.errors import GapforgeError
 from gapforge.cli import cli
-from gapforge.errors import GapforgeError
-from gapforge.layouts import builtin_names, load_layout
-from gapforge.limits import PwmSpec
-from gapforge.sweep import Limits, parse_clocks, sweep
+from gapforge.timer.layouts import builtin_names, load_layout
+from gapforge.timer.limits import PwmSpec
+from gapforge.timer.sweep import Limits, parse_clocks, sweep
 
 NS = Fraction(1, 10**9)
 MHZ = Fraction(10**6)
@@ -41,7 +41,7 @@ TARGETS = Path(__file__).resolve().parents[1] / "targets"
 
 
 class RawLayout:
-    """A layout file read straight from TOML, decoded without gapforge.layouts."""
+    """A layout file read straight from TOML, decoded without gapforge.timer.layouts."""
 
     def __init__(self, path: Path) -> None:
         data = tomllib.loads(path.read_text(encoding="utf-8"))
@@ -362,7 +362,7 @@ def test_cli_bad_input(args: list[str], where: str) -> None:
 
 
 def test_each_layout_is_read_once(monkeypatch: pytest.MonkeyPatch) -> None:
-    import gapforge.layouts as layouts_mod
+    import gapforge.timer.layouts as layouts_mod
 
     reads: list[str] = []
     original = layouts_mod.load_toml

@@ -8,8 +8,8 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-import gapforge.tolerance as tol
-from gapforge.analog import network_from_options
+import gapforge.analog.tolerance as tol
+from gapforge.analog.parameters import network_from_options
 
 BASE = {"vdd": "3.3", "rout": "25", "cin": "0", "cstray": "0", "r_tempco": "0", "c_tempco": "0",
         "temp": "25", "vt_plus": "2.0V", "vt_minus": "1.3V", "bypass": "none", "c_tol": "0"}

@@ -18,8 +18,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from vcd import VCDWriter
 
-from gapforge.errors import GapforgeError
-from gapforge.vcd import UnorderedTimes, X, Z, open_events, read_header, read_vcd
+from gapforge.base.errors import GapforgeError
+from gapforge.bench.vcd import UnorderedTimes, X, Z, open_events, read_header, read_vcd
 
 CHUNKS = (7, 64, 1000, 1 << 21)
 

@@ -39,7 +39,7 @@ def test_wheel_installs_and_finds_its_layouts(tmp_path: Path) -> None:
         names = set(whl.namelist())
     for name in BUILTINS:
         assert f"gapforge/targets/{name}.toml" in names
-    assert "gapforge/templates/header.h.j2" in names
+    assert "gapforge/outputs/templates/header.h.j2" in names
 
     venv = tmp_path / "venv"
     subprocess.run([sys.executable, "-m", "venv", "--system-site-packages", str(venv)],

@@ -134,7 +134,7 @@ def test_bad_input_is_one_line_exit_2_in_a_subprocess() -> None:
     ],
 )
 def test_bad_options(args: list[str], where: str, words: str) -> None:
-    from gapforge.errors import GapforgeError
+    from gapforge.base.errors import GapforgeError
 
     result = CliRunner().invoke(cli, ["window", *args])
     assert isinstance(result.exception, GapforgeError), result.output

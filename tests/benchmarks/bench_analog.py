@@ -15,9 +15,10 @@ import time
 
 import numpy as np
 
-from gapforge.analog import channel_edge_delays, network_from_options, values_at
-from gapforge.simulate import EdgeCircuit, edge_circuit, simulate_edge
-from gapforge.tolerance import monte_carlo
+from gapforge.analog.corners import channel_edge_delays, values_at
+from gapforge.analog.parameters import network_from_options
+from gapforge.analog.simulate import EdgeCircuit, edge_circuit, simulate_edge
+from gapforge.analog.tolerance import monte_carlo
 
 N = 1_000_000
 

@@ -84,8 +84,8 @@ def main() -> None:
     sys.path.insert(0, str(ROOT / "gen"))
     import tomllib
 
-    from gapforge.fit import FitRequest, fit
-    from gapforge.layouts import parse_layout
+    from gapforge.timer.fit import FitRequest, fit
+    from gapforge.timer.layouts import parse_layout
 
     raw = LAYOUT_16BIT_DIV4.encode()
     req = FitRequest(Fraction(160_000_000), Fraction(50, 10**6), Fraction(123456, 10**9),

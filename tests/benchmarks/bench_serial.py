@@ -19,7 +19,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "gen"))
 
-from gapforge.serial_stream import LineDecoder, open_port, read_serial  # noqa: E402
+from gapforge.bench.serial_stream import LineDecoder, open_port, read_serial  # noqa: E402
 
 LINE_RATE = 2_000_000 / 10  # bytes/s at 2 Mbaud, 8N1
 PERIODS = 100_000  # 4 edges and 2 transitions each

@@ -20,8 +20,8 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "gen"))
 
-from gapforge.layouts import builtin_names, load_layout  # noqa: E402
-from gapforge.sweep import parse_clocks, sweep  # noqa: E402
+from gapforge.timer.layouts import builtin_names, load_layout  # noqa: E402
+from gapforge.timer.sweep import parse_clocks, sweep  # noqa: E402
 
 BUDGET_S = 2.0
 CLOCKS = "50MHz:249MHz:1MHz"  # 200 clocks

@@ -5,7 +5,7 @@
 Writes an invented half-bridge capture (two gates, 1 ps timescale, 10 us period, dead times
 30-60 ns, four edges per period; about 150 MB for 2 million periods) to a temporary file that is
 deleted afterwards (never commit it), then times each reader end to end - from the file to
-per-signal change arrays to the dead times (gapforge.measure on the arrays for all of them):
+per-signal change arrays to the dead times (gapforge.bench.measure on the arrays for all of them):
 
 - `wc -l` on the same file: the I/O floor;
 - a plain per-line Python parser;
@@ -72,8 +72,8 @@ def _finish(tick_ps: int, high: tuple[np.ndarray, np.ndarray], low: tuple[np.nda
             end: int) -> dict[str, object]:
     from fractions import Fraction
 
-    from gapforge.capture import make_capture
-    from gapforge.measure import measure_capture
+    from gapforge.bench.capture import make_capture
+    from gapforge.bench.measure import measure_capture
 
     cap = make_capture(Fraction(tick_ps, 10**12), high, low, end=end)
     m = measure_capture(cap)
@@ -85,16 +85,16 @@ def _finish(tick_ps: int, high: tuple[np.ndarray, np.ndarray], low: tuple[np.nda
 
 def run_gapforge(path: Path) -> dict[str, object]:
     """What `gapforge measure` does: the VCD streamed chunk by chunk into the measurement."""
-    from gapforge.capture import open_capture
-    from gapforge.measure import measure_capture
+    from gapforge.bench.capture import open_capture
+    from gapforge.bench.measure import measure_capture
 
     return _ours(measure_capture(open_capture(path, "bench.gate_h", "bench.gate_l")))
 
 
 def run_gapforge_whole(path: Path) -> dict[str, object]:
     """The capture loaded whole first (load_capture, as `gapforge report --capture` does)."""
-    from gapforge.capture import load_capture
-    from gapforge.measure import measure_capture
+    from gapforge.bench.capture import load_capture
+    from gapforge.bench.measure import measure_capture
 
     return _ours(measure_capture(load_capture(path, "bench.gate_h", "bench.gate_l")))
 
@@ -197,8 +197,8 @@ def _peak() -> int:
 
 def child(name: str, path: Path) -> None:
     # imports count towards the baseline, not the reader
-    import gapforge.measure
-    import gapforge.vcd  # noqa: F401
+    import gapforge.bench.measure
+    import gapforge.bench.vcd  # noqa: F401
     if name == "pyvcd":
         import vcd.reader  # noqa: F401
     if name == "pywellen":

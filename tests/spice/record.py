@@ -21,8 +21,8 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parents[1] / "gen"))
 
-from gapforge.analog import parse_diode  # noqa: E402
-from gapforge.simulate import EdgeCircuit, simulate_edge, spice_netlist  # noqa: E402
+from gapforge.analog.network import parse_diode  # noqa: E402
+from gapforge.analog.simulate import EdgeCircuit, simulate_edge, spice_netlist  # noqa: E402
 
 SCHOTTKY = "IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5 EG=0.69 XTI=2"  # the example
 SCHOTTKY_NO_CJ = "IS=1e-6 N=1.05 RS=1 CJO=0 VJ=0.4 M=0.5 EG=0.69 XTI=2"

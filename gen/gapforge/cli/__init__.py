@@ -15,7 +15,7 @@ from typing import Any
 import click
 
 from gapforge import __version__
-from gapforge.errors import GapforgeError
+from gapforge.base.errors import GapforgeError
 
 # command name -> (module, one-line help). Order is the order shown in --help.
 COMMANDS: dict[str, tuple[str, str]] = {

@@ -17,20 +17,18 @@ from typing import Any, TypeVar
 
 import click
 
-from gapforge.analog import (
+from gapforge.analog.network import (
     CAUTION,
     DEFAULT_LEAKAGE_SHARE,
     EDGES,
-    LEVEL_PRESETS,
     PAIR_KEYS,
-    PARAMETERS,
     ReferenceNetwork,
-    network_from_options,
 )
+from gapforge.analog.parameters import LEVEL_PRESETS, PARAMETERS, network_from_options
+from gapforge.analog.preferred import RANKINGS
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import format_quantity, parse_quantity, parse_tolerance
 from gapforge.cli.options import json_option
-from gapforge.errors import GapforgeError
-from gapforge.preferred import RANKINGS
-from gapforge.quantities import format_quantity, parse_quantity, parse_tolerance
 
 F = TypeVar("F", bound=Callable[..., Any])
 
@@ -161,8 +159,8 @@ def command(
 def _load(design: Path | None, raw: dict[str, object]) -> ReferenceNetwork:
     if design is None:
         return network_from_options(raw)
-    from gapforge.analog import read_reference
-    from gapforge.schema import Reader, load_toml
+    from gapforge.analog.parameters import read_reference
+    from gapforge.base.schema import Reader, load_toml
 
     data, _ = load_toml(design)
     reader = Reader(str(design))
@@ -208,14 +206,13 @@ def analyse(
     c_series: str = "E12",
 ) -> dict[str, Any]:
     """Everything `analog` reports, as a JSON-ready dict (floats for display only)."""
-    from gapforge.analog import (
-        bypass_notes,
-        describe_parameters,
+    from gapforge.analog.describe import bypass_notes, describe_parameters
+    from gapforge.analog.findings import (
         hottest_leakage_warnings,
         overlap_finding,
         slow_edge_leakage,
     )
-    from gapforge.tolerance import monte_carlo, rss, typical_textbook, worst_case
+    from gapforge.analog.tolerance import monte_carlo, rss, typical_textbook, worst_case
 
     wc = worst_case(net)
     warnings: list[str] = []
@@ -332,7 +329,7 @@ def analyse(
                                            bool(leakage))
         limit_violated = limit_violated or report["simulation"]["leakage_warning"]
     if target is not None:
-        from gapforge.preferred import suggest
+        from gapforge.analog.preferred import suggest
 
         found = suggest(net, target, key=suggest_for, r_series=r_series, c_series=c_series,
                         rank=suggest_rank, min_dead_s=below)
@@ -384,8 +381,8 @@ def _simulation(
     model_warned: bool,
 ) -> dict[str, Any]:
     """The transient results; its leakage warning is added unless the model's already was."""
-    from gapforge.analog import hottest_leakage_warnings
-    from gapforge.simulate import simulated_node_delays, slow_edge_over_temperature
+    from gapforge.analog.findings import hottest_leakage_warnings
+    from gapforge.analog.simulate import simulated_node_delays, slow_edge_over_temperature
 
     sim = simulated_node_delays(net)
     model_off = False

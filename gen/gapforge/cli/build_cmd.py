@@ -7,12 +7,12 @@ from pathlib import Path
 
 import click
 
-from gapforge.build import plan_design
+from gapforge.base.files import write_files
 from gapforge.cli.options import diagram_options, emit_json, json_option
-from gapforge.design import load_design
-from gapforge.files import write_files
-from gapforge.render import render_headers
-from gapforge.views import CAUTION, plan_json, plan_text
+from gapforge.outputs.header import render_headers
+from gapforge.outputs.views import CAUTION, plan_json, plan_text
+from gapforge.pipeline.build import plan_design
+from gapforge.pipeline.design import load_design
 
 
 @click.command()
@@ -50,7 +50,7 @@ def command(
     else:
         click.echo(plan_text(plan))
         if not no_diagram and plan.outputs and plan.outputs[0].fit.ok:
-            from gapforge.diagram import pair_diagram_for_fit
+            from gapforge.outputs.diagram import pair_diagram_for_fit
 
             first = plan.outputs[0]
             click.echo("")

@@ -6,9 +6,9 @@ from pathlib import Path
 
 import click
 
-from gapforge import caution
-from gapforge.files import write_files
-from gapforge.firmware import render_capture_helper
+from gapforge.base import caution
+from gapforge.base.files import write_files
+from gapforge.outputs.firmware import render_capture_helper
 
 
 @click.command()

@@ -7,12 +7,12 @@ from fractions import Fraction
 
 import click
 
+from gapforge.base.errors import GapforgeError
 from gapforge.cli.options import Quantity, clock_options, diagram_options, emit_json, json_option
-from gapforge.errors import GapforgeError
-from gapforge.fit import ROUNDINGS, FitRequest, fit
-from gapforge.layouts import load_layout
-from gapforge.limits import COUNTINGS, PwmSpec, compare_counts, pwm_limits
-from gapforge.views import CAUTION, fit_json, fit_text
+from gapforge.outputs.views import CAUTION, fit_json, fit_text
+from gapforge.timer.fit import ROUNDINGS, FitRequest, fit
+from gapforge.timer.layouts import load_layout
+from gapforge.timer.limits import COUNTINGS, PwmSpec, compare_counts, pwm_limits
 
 
 @click.command()
@@ -108,7 +108,7 @@ def command(
     else:
         click.echo(fit_text(result, limits))
         if not no_diagram and result.ok:
-            from gapforge.diagram import pair_diagram_for_fit
+            from gapforge.outputs.diagram import pair_diagram_for_fit
 
             click.echo("")
             click.echo(pair_diagram_for_fit(result, limits, ascii_only=ascii_only))

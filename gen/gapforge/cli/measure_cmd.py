@@ -9,15 +9,15 @@ from typing import TYPE_CHECKING, Any
 
 import click
 
-from gapforge import caution
+from gapforge.base import caution
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import format_quantity, parse_quantity
 from gapforge.cli.options import Quantity, diagram_options, emit_json, json_option
-from gapforge.errors import GapforgeError
-from gapforge.quantities import format_quantity, parse_quantity
 
 if TYPE_CHECKING:
-    from gapforge.capture import CaptureStream, GateCapture
-    from gapforge.measure import Limits, Measurement
-    from gapforge.serial_stream import SerialResult, StreamStatus
+    from gapforge.bench.capture import CaptureStream, GateCapture
+    from gapforge.bench.measure import Limits, Measurement
+    from gapforge.bench.serial_stream import SerialResult, StreamStatus
 
 CAUTION = caution.TEXT
 
@@ -39,11 +39,11 @@ def parse_window(text: str) -> tuple[Fraction | None, Fraction | None]:
 def build_limits(
     window: str | None, design: Path | None
 ) -> dict[str, Limits]:
-    from gapforge.measure import EDGES, Limits
+    from gapforge.bench.measure import EDGES, Limits
 
     per_edge: dict[str, list[Fraction | None]] = {edge: [None, None, None, None] for edge in EDGES}
     if design is not None:
-        from gapforge.build import measurement_expectations
+        from gapforge.pipeline.build import measurement_expectations
 
         try:
             expected = measurement_expectations(design)
@@ -109,7 +109,7 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
     glitch or missing edges (inconclusive). Exit 2 on bad input. A VCD file is read chunk by
     chunk in constant memory per chunk.
     """
-    from gapforge.measure import measure_capture
+    from gapforge.bench.measure import measure_capture
 
     pcts = _percentiles(percentiles)
     limits = build_limits(window, design)
@@ -118,7 +118,7 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
     if serial_url is not None:
         if capture is not None:
             raise GapforgeError("give a capture file or --serial, not both", "measure")
-        from gapforge.serial_stream import read_serial
+        from gapforge.bench.serial_stream import read_serial
 
         stream = read_serial(
             serial_url, baud, max_transitions=max_transitions,
@@ -141,7 +141,7 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
             raise GapforgeError("name both gate signals with --high and --low", str(capture))
         if not capture.exists():
             raise GapforgeError("no such file", str(capture))
-        from gapforge.capture import open_capture
+        from gapforge.bench.capture import open_capture
 
         gate = open_capture(capture, high, low, active_low_high=active_low_high,
                             active_low_low=active_low_low)
@@ -253,7 +253,7 @@ def _q(value: Fraction | float | None) -> str:
 def measurement_diagram(m: Measurement, ascii_only: bool = False) -> str:
     """The pair drawn with the shortest measured gap of each edge, over the measured mean
     period when known (a sketch to look at; the numbers above are the measurement)."""
-    from gapforge.diagram import pair_diagram
+    from gapforge.outputs.diagram import pair_diagram
 
     to_high, to_low = m.to_high.min_s, m.to_low.min_s
     if to_high is None or to_low is None:

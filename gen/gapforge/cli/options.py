@@ -9,8 +9,8 @@ from typing import Any, TypeVar
 
 import click
 
-from gapforge.errors import GapforgeError
-from gapforge.quantities import parse_quantity, parse_tolerance
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import parse_quantity, parse_tolerance
 
 F = TypeVar("F", bound=Callable[..., Any])
 

@@ -8,8 +8,8 @@ from pathlib import Path
 
 import click
 
+from gapforge.base.errors import GapforgeError
 from gapforge.cli.options import Quantity
-from gapforge.errors import GapforgeError
 
 
 @click.command()
@@ -44,11 +44,11 @@ def command(
     a failing design shows why it fails. Bad input writes nothing and
     exits 2. Rerunning on the same inputs gives a byte-identical file.
     """
-    from gapforge.build import plan_design
-    from gapforge.design import load_design
-    from gapforge.files import write_files
-    from gapforge.report import capture_limits, render_report
-    from gapforge.views import CAUTION
+    from gapforge.base.files import write_files
+    from gapforge.outputs.report import capture_limits, render_report
+    from gapforge.outputs.views import CAUTION
+    from gapforge.pipeline.build import plan_design
+    from gapforge.pipeline.design import load_design
 
     if output.suffix.lower() not in (".html", ".htm"):
         raise GapforgeError("the report is HTML: give a file name ending in .html", "--output")
@@ -62,8 +62,8 @@ def command(
             raise GapforgeError("name both gate signals with --high and --low", "--capture")
         if not capture.is_file():
             raise GapforgeError("no such file", str(capture))
-        from gapforge.capture import open_capture
-        from gapforge.measure import measure_capture
+        from gapforge.bench.capture import open_capture
+        from gapforge.bench.measure import measure_capture
 
         # streamed: a VCD is read chunk by chunk (the same measurement as a capture in memory)
         gate = open_capture(capture, high, low, active_low_high=active_low_high,

@@ -10,6 +10,8 @@ from typing import Any
 
 import click
 
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import format_quantity, format_tolerance
 from gapforge.cli.options import Quantity, Tolerance, json_option
 from gapforge.cli.window_cmd import (
     CAUTION,
@@ -18,12 +20,10 @@ from gapforge.cli.window_cmd import (
     spec_from_options,
     stage_options,
 )
-from gapforge.errors import GapforgeError
-from gapforge.layouts import builtin_names, load_layout
-from gapforge.limits import COUNTINGS, PwmSpec
-from gapforge.quantities import format_quantity, format_tolerance
-from gapforge.stage import EDGES, parse_span, stage_window
-from gapforge.sweep import RANKS, Sweep, SweepRow, limits_of, parse_clocks, sweep
+from gapforge.stage.window import EDGES, parse_span, stage_window
+from gapforge.timer.layouts import builtin_names, load_layout
+from gapforge.timer.limits import COUNTINGS, PwmSpec
+from gapforge.timer.sweep import RANKS, Sweep, SweepRow, limits_of, parse_clocks, sweep
 
 TEXT_TOP = 20
 
@@ -228,8 +228,8 @@ def _design_limits(
     and its PWM."""
     from pathlib import Path
 
-    from gapforge.build import design_window
-    from gapforge.design import load_design
+    from gapforge.pipeline.build import design_window
+    from gapforge.pipeline.design import load_design
 
     used = [name for name in (*OPTION_KEYS, "high_side", "low_side") if values.get(name)]
     if used:

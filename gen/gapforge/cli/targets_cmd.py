@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import click
 
+from gapforge.base.errors import GapforgeError
 from gapforge.cli.options import Quantity, emit_json, json_option
-from gapforge.errors import GapforgeError
-from gapforge.layouts import builtin_names, load_layout
-from gapforge.views import layout_json, layout_text, table
+from gapforge.outputs.views import layout_json, layout_text, table
+from gapforge.timer.layouts import builtin_names, load_layout
 
 
 @click.group(invoke_without_command=True)

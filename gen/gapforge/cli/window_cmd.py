@@ -15,12 +15,12 @@ from typing import Any, TypeVar
 
 import click
 
-from gapforge import caution
+from gapforge.base import caution
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import format_quantity, parse_quantity, picoseconds_ceil
+from gapforge.base.schema import Reader, load_toml
 from gapforge.cli.options import json_option
-from gapforge.errors import GapforgeError
-from gapforge.quantities import format_quantity, parse_quantity, picoseconds_ceil
-from gapforge.schema import Reader, load_toml
-from gapforge.stage import (
+from gapforge.stage.window import (
     EDGES,
     KINDS,
     Costs,

@@ -19,9 +19,9 @@ from collections.abc import Mapping
 from dataclasses import dataclass, replace
 from fractions import Fraction
 
-from gapforge.analog import PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
-from gapforge.errors import GapforgeError
-from gapforge.quantities import format_quantity
+from gapforge.analog.network import PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import format_quantity
 
 # Mantissas in units of 0.1 (E12, E24) and 0.01 (E96).
 E12: tuple[int, ...] = (10, 12, 15, 18, 22, 27, 33, 39, 47, 56, 68, 82)
@@ -157,8 +157,8 @@ def suggest(
     error. The pairs proposed are then checked like `analog.reference_dead_times` (corners
     against a seeded Monte Carlo); a pair the check widens into unsafe is rejected too.
     """
-    from gapforge.analog import REFERENCE_CHECK_SAMPLES
-    from gapforge.tolerance import corner_extremes_for_parts, typical_for_parts, worst_case
+    from gapforge.analog.corners import REFERENCE_CHECK_SAMPLES
+    from gapforge.analog.tolerance import corner_extremes_for_parts, typical_for_parts, worst_case
 
     if key not in PAIR_KEYS:
         raise GapforgeError(f"unknown dead time {key!r}", "--suggest")

@@ -14,11 +14,11 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
-from gapforge.design import Design, Output
-from gapforge.errors import GapforgeError
-from gapforge.fit import FitRequest, FitResult, fit, fit_warnings
-from gapforge.layouts import EDGES
-from gapforge.limits import PwmLimits, pwm_limits
+from gapforge.base.errors import GapforgeError
+from gapforge.pipeline.design import Design, Output
+from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
+from gapforge.timer.layouts import EDGES
+from gapforge.timer.limits import PwmLimits, pwm_limits
 
 VERDICTS = ("ok", "unreachable", "empty-window", "too-short", "too-long")
 
@@ -60,7 +60,7 @@ class BuildPlan:
 
 def judge(window: Bounds, achieved_min: Fraction, achieved_max: Fraction) -> EdgeJudgement:
     """Is [achieved_min, achieved_max] inside the window, and by how much?"""
-    from gapforge.stage import judge_bounds
+    from gapforge.stage.window import judge_bounds
 
     return EdgeJudgement(*judge_bounds(window[0], window[1], achieved_min, achieved_max))
 
@@ -73,11 +73,11 @@ def _windows(
     stage_window: dict[str, Bounds] | None = None
     window: dict[str, Bounds] | None = None
     if design.reference is not None:
-        from gapforge.analog import reference_dead_times
+        from gapforge.analog.tolerance import reference_dead_times
 
         reference = reference_dead_times(design.reference)
     if design.stage is not None:
-        from gapforge.stage import stage_window as derive
+        from gapforge.stage.window import stage_window as derive
 
         stage_result = derive(design.stage)
         stage_window = {
@@ -129,7 +129,7 @@ def plan_design(design: Design) -> BuildPlan:
     stage_result, reference, stage_window, window = _windows(design)
     warnings = tuple(_reference_warnings(reference, stage_window))
     if design.reference is not None and reference is not None:
-        from gapforge.analog import reference_findings
+        from gapforge.analog.findings import reference_findings
 
         # the old network's own dangers (overlap at a corner, hot-board leakage) repeated here
         warnings = (*reference_findings(design.reference, reference), *warnings)
@@ -263,7 +263,7 @@ def _plan_output(
         reasons.append(limits.reason)
     costs = None
     if design.stage is not None:
-        from gapforge.stage import stage_costs
+        from gapforge.stage.window import stage_costs
 
         longest = {e: result.edges[e].achieved_max_s for e in EDGES}
         costs = stage_costs(design.stage, longest)  # type: ignore[arg-type]
@@ -314,6 +314,6 @@ def capture_expectations(plan: BuildPlan) -> dict[str, Expectation]:
 
 def measurement_expectations(path: Path) -> dict[str, Expectation]:
     """capture_expectations of a design file (for `measure --design`)."""
-    from gapforge.design import load_design
+    from gapforge.pipeline.design import load_design
 
     return capture_expectations(plan_design(load_design(path)))

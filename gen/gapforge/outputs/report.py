@@ -29,9 +29,9 @@ from typing import TYPE_CHECKING, Any
 from markupsafe import Markup
 
 from gapforge import __version__
-from gapforge.build import BuildPlan, OutputPlan
-from gapforge.caution import TEXT as CAUTION
-from gapforge.figures import (
+from gapforge.base.caution import TEXT as CAUTION
+from gapforge.base.quantities import format_quantity, format_tolerance
+from gapforge.outputs.figures import (
     PairTiming,
     Ramp,
     Staircase,
@@ -42,14 +42,14 @@ from gapforge.figures import (
     timing_figure,
     transition_figure,
 )
-from gapforge.layouts import EDGES, Field
-from gapforge.quantities import format_quantity, format_tolerance
-from gapforge.svg import PALETTE
-from gapforge.templating import environment
+from gapforge.outputs.svg import PALETTE
+from gapforge.outputs.templating import environment
+from gapforge.pipeline.build import BuildPlan, OutputPlan
+from gapforge.timer.layouts import EDGES, Field
 
 if TYPE_CHECKING:
-    from gapforge.analog import ReferenceNetwork
-    from gapforge.measure import Limits, Measurement
+    from gapforge.analog.network import ReferenceNetwork
+    from gapforge.bench.measure import Limits, Measurement
 
 REPORT_FORMAT = 1
 MC_SAMPLES = 20_000  # Monte Carlo samples drawn for the histogram (uniform over every band)
@@ -144,7 +144,7 @@ def node_ramps(net: ReferenceNetwork, simulate: bool = True) -> dict[str, Ramp]:
     """
     import numpy as np
 
-    from gapforge.analog import channel_edge_delays, values_at
+    from gapforge.analog.corners import channel_edge_delays, values_at
 
     vdd = float(net.vdd.typ)
     n = CURVE_POINTS
@@ -184,7 +184,7 @@ def _simulated_ramp(
     net: ReferenceNetwork, edge: str
 ) -> tuple[tuple[tuple[float, float], ...], float | None]:
     """The simulated node waveform at typical parts and its delay; nothing if it fails."""
-    from gapforge import simulate
+    from gapforge.analog import simulate
 
     try:
         wave = simulate.node_waveform(simulate.edge_circuit(net, edge), beyond=SIM_BEYOND)
@@ -243,7 +243,7 @@ def reference_samples(
     `tolerance.monte_carlo_samples`, the very draws `tolerance.monte_carlo` (and so
     `gapforge analog --monte-carlo N --seed S`) summarises for the same count and seed.
     """
-    from gapforge.tolerance import monte_carlo_samples
+    from gapforge.analog.tolerance import monte_carlo_samples
 
     return dict(monte_carlo_samples(net, samples, seed=seed))
 
@@ -282,7 +282,7 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
         TableBlock("Outputs", ("prefix", "layout", "summary", "header file", "struct"), out_rows)
     )
     if d.reference is not None:
-        from gapforge.analog import describe_parameters
+        from gapforge.analog.describe import describe_parameters
 
         ref_rows = tuple(
             (name, value, "default" if is_default else "given", source)
@@ -640,7 +640,7 @@ def _analog_section(plan: BuildPlan) -> Section:
             )
         )
     try:
-        from gapforge.simulate import slow_edge_over_temperature
+        from gapforge.analog.simulate import slow_edge_over_temperature
     except ImportError:
         slow: list[Any] = []
     else:
@@ -830,8 +830,8 @@ def _capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
 
 def capture_limits(plan: BuildPlan) -> dict[str, Limits]:
     """What a capture is judged against: the window and the first fitted output's range."""
-    from gapforge.build import capture_expectations
-    from gapforge.measure import Limits
+    from gapforge.bench.measure import Limits
+    from gapforge.pipeline.build import capture_expectations
 
     return {e: Limits(*x) for e, x in capture_expectations(plan).items()}
 

@@ -17,10 +17,10 @@ import math
 from dataclasses import dataclass
 from fractions import Fraction
 
-from gapforge.errors import GapforgeError
-from gapforge.fit import FitResult
-from gapforge.layouts import EDGES
-from gapforge.quantities import ceil_fraction, floor_fraction
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import ceil_fraction, floor_fraction
+from gapforge.timer.fit import FitResult
+from gapforge.timer.layouts import EDGES
 
 COUNTINGS = ("edge", "center")
 

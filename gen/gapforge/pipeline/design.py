@@ -5,7 +5,7 @@
     [pwm]        frequency, counting = "edge" | "center"
     [dead_time]  value (both edges) or to_high / to_low, rounding, source
     [reference]  the analog RC-diode-Schmitt network (read by gapforge.analog)
-    [stage]      the power stage's timing and costs (read by gapforge.stage)
+    [stage]      the power stage's timing and costs (read by gapforge.stage.window)
     [[output]]   target (built-in name or layout file), prefix, file, struct
 
 `source` says where the dead time to reproduce comes from: "explicit" (the values given),
@@ -23,11 +23,11 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
-from gapforge.errors import GapforgeError
-from gapforge.fit import ROUNDINGS
-from gapforge.layouts import EDGES, Layout, load_layout
-from gapforge.limits import COUNTINGS, PwmSpec, compare_counts
-from gapforge.schema import Reader, load_toml
+from gapforge.base.errors import GapforgeError
+from gapforge.base.schema import Reader, load_toml
+from gapforge.timer.fit import ROUNDINGS
+from gapforge.timer.layouts import EDGES, Layout, load_layout
+from gapforge.timer.limits import COUNTINGS, PwmSpec, compare_counts
 
 FORMAT_VERSION = 1
 SOURCES = ("explicit", "reference-typical", "reference-minimum", "window")
@@ -66,8 +66,8 @@ class Design:
     dead_time: dict[str, Fraction] | None  # explicit values, per edge
     rounding: str
     source: str
-    reference: Any  # gapforge.analog.ReferenceNetwork or None
-    stage: Any  # gapforge.stage.StageSpec or None
+    reference: Any  # gapforge.analog.network.ReferenceNetwork or None
+    stage: Any  # gapforge.stage.window.StageSpec or None
     outputs: tuple[Output, ...]
 
 
@@ -107,13 +107,13 @@ def load_design(path: Path) -> Design:
     reference = None
     ref_t = top.sub("reference")
     if ref_t is not None:
-        from gapforge import analog
+        from gapforge.analog.parameters import read_reference
 
-        reference = analog.read_reference(ref_t)
+        reference = read_reference(ref_t)
     stage = None
     stage_t = top.sub("stage")
     if stage_t is not None:
-        from gapforge import stage as stage_mod
+        from gapforge.stage import window as stage_mod
 
         # each switch turns on and off once per PWM period: the stage switches at the PWM
         # frequency (the default for stage.fsw), and the loss budget's maximum depends on it

@@ -11,7 +11,7 @@ import jinja2
 def environment(*, html: bool = False) -> jinja2.Environment:
     """C and text templates keep every newline as written; HTML escapes and trims block lines."""
     return jinja2.Environment(
-        loader=jinja2.PackageLoader("gapforge", "templates"),
+        loader=jinja2.PackageLoader("gapforge.outputs", "templates"),
         undefined=jinja2.StrictUndefined,
         autoescape=html,
         keep_trailing_newline=True,

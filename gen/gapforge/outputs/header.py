@@ -10,16 +10,17 @@ import re
 from dataclasses import dataclass
 from fractions import Fraction
 
-from gapforge import __version__, caution
-from gapforge.build import BuildPlan, OutputPlan
-from gapforge.layouts import EDGES
-from gapforge.quantities import (
+from gapforge import __version__
+from gapforge.base import caution
+from gapforge.base.quantities import (
     format_quantity,
     format_tolerance,
     picoseconds_ceil,
     picoseconds_floor,
 )
-from gapforge.templating import environment
+from gapforge.outputs.templating import environment
+from gapforge.pipeline.build import BuildPlan, OutputPlan
+from gapforge.timer.layouts import EDGES
 
 HEADER_FORMAT = 1
 

@@ -3,7 +3,7 @@
 For every point the window's minimum is requested with `safe` rounding (the smallest value whose
 worst case, at the fastest clock, is still >= the minimum); the point is feasible when the
 achieved worst case at the slowest clock is still <= the window's maximum on both edges and,
-when a PWM is given, the fitted dead time also fits the PWM (gapforge.limits: less than half a
+when a PWM is given, the fitted dead time also fits the PWM (gapforge.timer.limits: less than half a
 period, and some commanded duty still gives a pulse on both outputs) -- the checks `build` makes.
 Feasible points are ranked by worst-case margin to the window (the smaller of the two distances,
 over both edges, after quantization and clock tolerance), then by quantization error; every
@@ -18,12 +18,12 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 
-from gapforge.errors import GapforgeError
-from gapforge.fit import FitRequest, fit
-from gapforge.layouts import Layout
-from gapforge.limits import PwmSpec, compare_counts, pwm_limits
-from gapforge.quantities import format_quantity, parse_quantity
-from gapforge.stage import EDGES, Window, WindowEdge, judge
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import format_quantity, parse_quantity
+from gapforge.stage.window import EDGES, Window, WindowEdge, judge
+from gapforge.timer.fit import FitRequest, fit
+from gapforge.timer.layouts import Layout
+from gapforge.timer.limits import PwmSpec, compare_counts, pwm_limits
 
 RANKS = ("auto", "margin", "error")
 MAX_CLOCKS = 100_000
@@ -47,7 +47,7 @@ class RowEdge:
 
 @dataclass(frozen=True)
 class RowPwm:
-    """The PWM limits of a point's fitted dead time (gapforge.limits.PwmLimits, condensed)."""
+    """The PWM limits of a point's fitted dead time (gapforge.timer.limits.PwmLimits, condensed)."""
 
     compare_counts: int  # N: compare range 0..N
     period_counts: int

@@ -18,9 +18,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from fractions import Fraction
 
-from gapforge.errors import GapforgeError
-from gapforge.layouts import EDGES, Field, Layout
-from gapforge.quantities import ceil_fraction
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import ceil_fraction
+from gapforge.timer.layouts import EDGES, Field, Layout
 
 ROUNDINGS = ("safe", "nearest")
 

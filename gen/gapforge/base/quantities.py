@@ -11,7 +11,7 @@ import math
 import re
 from fractions import Fraction
 
-from gapforge.errors import GapforgeError
+from gapforge.base.errors import GapforgeError
 
 # SI prefixes accepted on input. 'M' is mega and 'm' is milli; 'meg' is accepted for mega too.
 PREFIXES: dict[str, Fraction] = {

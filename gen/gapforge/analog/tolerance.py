@@ -25,22 +25,19 @@ from fractions import Fraction
 import numpy as np
 import numpy.typing as npt
 
-from gapforge.analog import (
+from gapforge.analog.corners import (
     CHANNEL_PARAMS,
     DELAY_PARAMS,
-    EDGES,
-    PAIR_KEYS,
+    REFERENCE_CHECK_SAMPLES,
     SHARED_PARAMS,
-    EdgeRange,
-    ReferenceNetwork,
     channel_edge_delays,
-    edge_range,
     pair_dead_times,
     pair_roles,
     parameter_bands,
     spread_parameters,
     values_at,
 )
+from gapforge.analog.network import EDGES, PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
 
 FloatArray = npt.NDArray[np.float64]
 QUANTITIES = ("node_rising", "node_falling", "to_high", "to_low")
@@ -546,3 +543,18 @@ def _bin_index(values: FloatArray, lo: float, hi: float, bins: int) -> npt.NDArr
 def _bin_counts(values: FloatArray, lo: float, hi: float, bins: int) -> npt.NDArray[np.int64]:
     counts: npt.NDArray[np.int64] = np.bincount(_bin_index(values, lo, hi, bins), minlength=bins)
     return counts
+
+
+def reference_dead_times(net: ReferenceNetwork) -> dict[str, EdgeRange]:
+    """Worst-case dead-time ranges of the complementary pair over all tolerances.
+
+    Keys 'to_high' and 'to_low'. Corners over the min/typ/max combinations of both channels'
+    independent parts and the shared supply, temperature and pair inverter (band ends only for
+    the resistances and capacitances, which the delay grows with), checked against a seeded
+    Monte Carlo of REFERENCE_CHECK_SAMPLES so a non-monotonic response is not missed (the range
+    is widened if the Monte Carlo finds a value outside it). Min rounded down and max up to
+    1 ps. With a diode the edges come from the charge integral, which bounds the bypassed edge
+    from above, so the range does not overstate the dead time (see the module docstring).
+    """
+    result = worst_case(net, check_samples=REFERENCE_CHECK_SAMPLES)
+    return {key: result.pair[key] for key in PAIR_KEYS}

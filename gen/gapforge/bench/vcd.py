@@ -34,8 +34,8 @@ from typing import TypeVar
 import numpy as np
 import numpy.typing as npt
 
-from gapforge.errors import GapforgeError
-from gapforge.quantities import TIME_UNITS
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import TIME_UNITS
 
 X = 2
 Z = 3

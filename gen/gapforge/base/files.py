@@ -12,7 +12,7 @@ import tempfile
 from collections.abc import Mapping
 from pathlib import Path
 
-from gapforge.errors import GapforgeError
+from gapforge.base.errors import GapforgeError
 
 
 def _umask() -> int:

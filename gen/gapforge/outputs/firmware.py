@@ -6,10 +6,11 @@ only lay them out. Rendering returns {file name: text}; only the CLI writes file
 
 from __future__ import annotations
 
-from gapforge import __version__, caution
-from gapforge.errors import GapforgeError
-from gapforge.serial_stream import MAX_LINE, PROTOCOL
-from gapforge.templating import environment
+from gapforge import __version__
+from gapforge.base import caution
+from gapforge.base.errors import GapforgeError
+from gapforge.bench.serial_stream import MAX_LINE, PROTOCOL
+from gapforge.outputs.templating import environment
 
 COUNTER_TYPES = {16: "uint16_t", 32: "uint32_t", 64: "uint64_t"}
 HEADER_NAME = "gapforge_capture_fmt.h"

@@ -24,8 +24,8 @@ from dataclasses import dataclass, field, replace
 from functools import cached_property
 from pathlib import Path
 
-from gapforge.errors import GapforgeError
-from gapforge.schema import Reader, Table, load_toml
+from gapforge.base.errors import GapforgeError
+from gapforge.base.schema import Reader, Table, load_toml
 
 EDGES = ("to_high", "to_low")
 ROLES = ("both", "to_high", "to_low", "divider")
@@ -166,7 +166,7 @@ def _builtin_dir() -> Path:
     packaged = importlib.resources.files("gapforge") / "targets"
     if packaged.is_dir():
         return Path(str(packaged))
-    return Path(__file__).resolve().parents[2] / "targets"
+    return Path(__file__).resolve().parents[3] / "targets"
 
 
 def builtin_names() -> list[str]:

@@ -8,12 +8,12 @@ from __future__ import annotations
 from fractions import Fraction
 from typing import Any
 
-from gapforge import caution
-from gapforge.build import BuildPlan, OutputPlan
-from gapforge.fit import FitResult, fit_warnings, step_seconds
-from gapforge.layouts import EDGES, Layout, describe_codes
-from gapforge.limits import PwmLimits
-from gapforge.quantities import format_bound, format_quantity, format_tolerance
+from gapforge.base import caution
+from gapforge.base.quantities import format_bound, format_quantity, format_tolerance
+from gapforge.pipeline.build import BuildPlan, OutputPlan
+from gapforge.timer.fit import FitResult, fit_warnings, step_seconds
+from gapforge.timer.layouts import EDGES, Layout, describe_codes
+from gapforge.timer.limits import PwmLimits
 
 CAUTION = caution.TEXT
 

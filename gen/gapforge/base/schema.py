@@ -15,8 +15,8 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
-from gapforge.errors import GapforgeError
-from gapforge.quantities import parse_quantity, parse_tolerance
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import parse_quantity, parse_tolerance
 
 
 def load_toml(path: Path) -> tuple[dict[str, Any], bytes]:

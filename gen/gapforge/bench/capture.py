@@ -56,8 +56,8 @@ from pathlib import Path
 import numpy as np
 import numpy.typing as npt
 
-from gapforge.errors import GapforgeError
-from gapforge.quantities import TIME_UNITS
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import TIME_UNITS
 
 _LEVELS = {"0": 0, "1": 1, "x": 2, "X": 2, "z": 3, "Z": 3}
 _DECIMAL = re.compile(r"^[+]?(\d+(\.\d*)?|\.\d+)$")
@@ -193,8 +193,8 @@ def open_capture(
     if _kind(path) != "vcd":
         return stream_of(load_capture(path, high, low, active_low_high=active_low_high,
                                       active_low_low=active_low_low))
-    from gapforge.vcd import CHUNK_BYTES, open_events
-    from gapforge.vcd import UnorderedTimes as VcdUnordered
+    from gapforge.bench.vcd import CHUNK_BYTES, open_events
+    from gapforge.bench.vcd import UnorderedTimes as VcdUnordered
 
     if high == low:
         raise GapforgeError("--high and --low name the same signal", str(path))
@@ -277,7 +277,7 @@ def load_capture(
     """Read a .vcd or .csv capture (by suffix; otherwise by the first bytes)."""
     kind = _kind(path)
     if kind == "vcd":
-        from gapforge.vcd import read_vcd
+        from gapforge.bench.vcd import read_vcd
 
         if high == low:
             raise GapforgeError("--high and --low name the same signal", str(path))
@@ -445,7 +445,7 @@ def _samples(
     directives: dict[str, str],
     where: str,
 ) -> CsvData:
-    from gapforge.quantities import parse_quantity
+    from gapforge.base.quantities import parse_quantity
 
     first_signal = 1 if unit is not None else 0
     columns = header[first_signal:]

@@ -33,9 +33,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from fractions import Fraction
 
-from gapforge.errors import GapforgeError
-from gapforge.quantities import ceil_fraction, floor_fraction, format_quantity
-from gapforge.schema import Table
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import ceil_fraction, floor_fraction, format_quantity
+from gapforge.base.schema import Table
 
 EDGES = ("to_high", "to_low")
 SIDES = ("high", "low")
@@ -555,7 +555,7 @@ def _read_timing(table: Table, side: Table | None) -> SwitchTiming:
 
 def parse_span(text: object, where: str) -> tuple[Fraction, Fraction]:
     """'MIN:MAX' propagation delays in seconds ('20ns:35ns'); one value means MIN = MAX."""
-    from gapforge.quantities import parse_quantity
+    from gapforge.base.quantities import parse_quantity
 
     if not isinstance(text, str):
         value = parse_quantity(text, "s", where, allow_zero=True)

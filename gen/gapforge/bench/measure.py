@@ -50,9 +50,9 @@ from typing import Any, cast, overload
 import numpy as np
 import numpy.typing as npt
 
-from gapforge.capture import CaptureStream, Events, GateCapture, UnorderedTimes, stream_of
-from gapforge.errors import GapforgeError
-from gapforge.quantities import ceil_fraction, floor_fraction
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import ceil_fraction, floor_fraction
+from gapforge.bench.capture import CaptureStream, Events, GateCapture, UnorderedTimes, stream_of
 
 EDGES = ("to_high", "to_low")
 DEFAULT_PERCENTILES = (1.0, 5.0, 50.0, 95.0, 99.0)

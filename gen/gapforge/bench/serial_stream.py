@@ -41,8 +41,8 @@ from typing import Any
 
 import numpy as np
 
-from gapforge.capture import GateCapture, make_capture
-from gapforge.errors import GapforgeError
+from gapforge.base.errors import GapforgeError
+from gapforge.bench.capture import GateCapture, make_capture
 
 PROTOCOL = 1
 MAX_LINE = 96

@@ -8,9 +8,9 @@ from __future__ import annotations
 
 from fractions import Fraction
 
-from gapforge.fit import FitResult
-from gapforge.limits import PwmLimits
-from gapforge.quantities import format_quantity
+from gapforge.base.quantities import format_quantity
+from gapforge.timer.fit import FitResult
+from gapforge.timer.limits import PwmLimits
 
 WIDTH = 64
 MIN_GAP = 4

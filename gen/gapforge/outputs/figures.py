@@ -19,7 +19,7 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import Any
 
-from gapforge.svg import (
+from gapforge.outputs.svg import (
     INK,
     PALETTE,
     Axis,
