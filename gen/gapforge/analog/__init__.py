@@ -1,4 +1,13 @@
-"""The analog reference network: what an RC-diode-Schmitt dead-time network really delivers.
+"""The analog reference: what an RC-diode-Schmitt dead-time network really delivers.
+
+Owns the network's data model (`network`: values with bands, the SPICE diode model; `junction`:
+the diode at a temperature), the parameter table and its reading (`parameters`), the closed forms
+(`closed_form`), the diode charge integral (`diode_edge`), the pair's evaluation (`corners`),
+tolerance analysis (`tolerance`), transient simulation (`simulate`), preferred values
+(`preferred`), the network's findings (`findings`) and its display text (`describe`). Imports
+only base. Never imports timer, stage, bench, pipeline, outputs or cli. Inside, the data model stands
+below everything that evaluates it: `network` imports no other module of this package, `junction`
+only `network`.
 
 One channel: a CMOS driver (supply VDD, output resistance Rout, propagation delay) drives a
 resistor R bridged by a fast diode into a capacitor C (plus the Schmitt input capacitance Cin and a
