@@ -266,6 +266,15 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
             )
         )
 
+    adaptive_checks: list[Check] = []
+    adaptive_lines: list[str] = []
+    if op.adaptive is not None:  # issue 12: the current-indexed table
+        from gapforge.outputs.adaptive_header import adaptive_parts
+
+        rows, conditions, adaptive_lines = adaptive_parts(op.adaptive, p)
+        sections.append(_section("Dead time by load current", rows))
+        adaptive_checks = [Check(c, m) for c, m in conditions]
+
     checks = [
         Check(
             f"defined(GAPFORGE_FORMAT_REQUIRED) && (GAPFORGE_FORMAT_REQUIRED != {p}_FORMAT_VERSION)",
@@ -292,6 +301,7 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
         )
     )
 
+    checks += adaptive_checks
     struct_lines: list[str] = []
     if op.output.struct:
         low = p.lower()
@@ -319,7 +329,7 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
         guard=guard_name(p),
         sections=sections,
         checks=checks,
-        struct_lines=struct_lines,
+        struct_lines=struct_lines + adaptive_lines,
     )
 
 

@@ -362,6 +362,11 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
                 },
             }
         )
+        if op.adaptive is not None:
+            from gapforge.outputs.adaptive_view import model_json, table_json
+
+            entry["adaptive"] = table_json(op.adaptive.table)
+            entry["adaptive_model"] = model_json(op.adaptive)
         doc["outputs"].append(entry)
     return doc
 
@@ -416,6 +421,11 @@ def plan_text(plan: BuildPlan) -> str:
             lines.append(f"warning: {op.output.prefix}: {w}")
         if op.costs is not None:
             lines.append(f"{op.output.prefix}: " + costs_text(op.costs))
+        if op.adaptive is not None:
+            from gapforge.outputs.adaptive_view import adaptive_text
+
+            lines.append("")
+            lines.append(adaptive_text(op.output.prefix, op.adaptive))
         if op.limits is not None:
             lines.append("")
             lines.append(f"{op.output.prefix}: " + pwm_text(op.limits))

@@ -42,6 +42,7 @@ class OutputPlan:
     reasons: tuple[str, ...]
     warnings: tuple[str, ...]
     costs: Any = None  # stage.Costs at the slow-clock (longest) dead times, with a [stage]
+    adaptive: Any = None  # pipeline.adaptive_plan.AdaptivePlan, with an [adaptive] section
 
 
 @dataclass(frozen=True)
@@ -267,8 +268,17 @@ def _plan_output(
 
         longest = {e: result.edges[e].achieved_max_s for e in EDGES}
         costs = stage_costs(design.stage, longest)  # type: ignore[arg-type]
+    adaptive = None
+    if design.adaptive is not None and window is not None:
+        from gapforge.pipeline.adaptive_plan import plan_adaptive
+
+        adaptive = plan_adaptive(
+            design.adaptive, design.stage, result, window, limits, str(design.path)
+        )
+        warnings.extend(adaptive.notes)
     return OutputPlan(
-        output, result, limits, judgements, verdict, tuple(reasons), tuple(warnings), costs
+        output, result, limits, judgements, verdict, tuple(reasons), tuple(warnings), costs,
+        adaptive,
     )
 
 

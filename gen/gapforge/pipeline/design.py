@@ -34,6 +34,7 @@ SOURCES = ("explicit", "reference-typical", "reference-minimum", "window")
 
 _TOP = frozenset(
     {"format", "name", "description", "timer", "pwm", "dead_time", "reference", "stage", "output"}
+    | {"adaptive"}
 )
 _TIMER = frozenset({"clock", "tolerance", "clock_macro"})
 _PWM = frozenset({"frequency", "counting"})
@@ -69,6 +70,7 @@ class Design:
     reference: Any  # gapforge.analog.network.ReferenceNetwork or None
     stage: Any  # gapforge.stage.window.StageSpec or None
     outputs: tuple[Output, ...]
+    adaptive: Any = None  # gapforge.stage.adaptive.AdaptiveSpec or None ([adaptive])
 
 
 def load_design(path: Path) -> Design:
@@ -130,6 +132,10 @@ def load_design(path: Path) -> Design:
                 f"{float(pwm.frequency_hz):.6g} Hz (a half bridge switches once per PWM period;"
                 " drop stage.fsw or make them equal)",
             )
+
+    from gapforge.stage.adaptive import read_adaptive
+
+    adaptive = read_adaptive(top, stage)
 
     dead_t = top.sub("dead_time") or reader.table({}, "dead_time")
     dead_t.check_keys(_DEAD)
@@ -222,4 +228,5 @@ def load_design(path: Path) -> Design:
         reference=reference,
         stage=stage,
         outputs=tuple(outputs),
+        adaptive=adaptive,
     )

@@ -60,6 +60,8 @@ ON_SIDE = {"to_high": "high", "to_low": "low"}
 
 # Keys of the [stage] table.
 TIMING_KEYS = frozenset({"td_off", "t_fall", "td_on", "t_rise", "prop_delay"})
+# qoss (output charge at the bus voltage, per switch) is read by gapforge.stage.adaptive
+QOSS_KEYS = frozenset({"qoss"})
 SHARED_KEYS = frozenset(
     {
         "kind",
@@ -78,8 +80,8 @@ SHARED_KEYS = frozenset(
         "bus_voltage",
     }
 )
-STAGE_KEYS = TIMING_KEYS | SHARED_KEYS | frozenset({"high", "low", "note"})
-SIDE_KEYS = TIMING_KEYS
+STAGE_KEYS = TIMING_KEYS | QOSS_KEYS | SHARED_KEYS | frozenset({"high", "low", "note"})
+SIDE_KEYS = TIMING_KEYS | QOSS_KEYS
 
 
 @dataclass(frozen=True)

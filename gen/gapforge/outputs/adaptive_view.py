@@ -1,0 +1,235 @@
+"""The current-indexed dead-time table as JSON and as terminal text (issue 12).
+
+JSON per output: `adaptive` (a list of bins: `current_min_a`, `current_max_a` (null for the top
+bin, which has no upper edge), and per current sign `positive` / `negative`, per edge `to_high`
+/ `to_low`: `code`, `achieved_min_s`, `swing_s`, `soft`, with more detail) and `adaptive_model`
+(the inputs, the chain before the swing, the fixed comparison, the other policy, the inverter
+figures). Seconds and watts are floats here; the exact values stay in the plan.
+"""
+
+from __future__ import annotations
+
+from fractions import Fraction
+from typing import Any
+
+from gapforge.base.quantities import format_bound, format_quantity
+from gapforge.pipeline.adaptive_plan import AdaptivePlan, AdaptiveTable, Bin, Entry
+from gapforge.stage.adaptive import COMMUTATED, SIGNS
+from gapforge.timer.layouts import EDGES
+
+
+def _f(x: Fraction | None) -> float | None:
+    return None if x is None else float(x)
+
+
+def entry_json(x: Entry) -> dict[str, Any]:
+    return {
+        "code": x.code,
+        "achieved_min_s": float(x.achieved_min_s),
+        "swing_s": float(x.swing_s),
+        "soft": x.soft,
+        "steps": x.steps,
+        "requested_s": float(x.requested_s),
+        "achieved_s": float(x.achieved_s),
+        "achieved_max_s": float(x.achieved_max_s),
+        "commutated": x.commutated,
+        "below_swing": x.below_swing,
+        "swing_needed_s": _f(x.swing_needed_s),
+    }
+
+
+def bin_json(b: Bin) -> dict[str, Any]:
+    doc: dict[str, Any] = {
+        "current_min_a": float(b.current_min_a),
+        "current_max_a": _f(b.current_max_a),
+    }
+    for sign in SIGNS:
+        doc[sign] = {e: entry_json(b.entries[sign][e]) for e in EDGES}
+    doc["registers"] = dict(b.registers)
+    doc["compensation_counts"] = dict(b.compensation)
+    doc["adc_codes"] = (
+        None if b.adc_codes is None else {"positive": b.adc_codes[0], "negative": b.adc_codes[1]}
+    )
+    doc["costs"] = (
+        None
+        if b.costs is None
+        else {
+            sign: {
+                "current_a": float(c.current_a),
+                "reverse_conduction_fixed_w": float(c.fixed_w),
+                "reverse_conduction_adaptive_w": float(c.adaptive_w),
+                "saved_w": float(c.fixed_w - c.adaptive_w),
+                "hard_turn_on_fixed_w": _f(c.fixed_hard_w),
+                "hard_turn_on_adaptive_w": _f(c.adaptive_hard_w),
+            }
+            for sign, c in b.costs.items()
+        }
+    )
+    return doc
+
+
+def table_json(table: AdaptiveTable) -> list[dict[str, Any]]:
+    return [bin_json(b) for b in table.bins]
+
+
+def model_json(plan: AdaptivePlan) -> dict[str, Any]:
+    spec = plan.spec
+    inv = plan.inverter
+    other = plan.other
+    return {
+        "below_swing": spec.below_swing,
+        "currents_a": [float(c) for c in spec.currents],
+        "current_error_a": float(spec.current_error),
+        "qoss_high_c": float(spec.qoss_high),
+        "qoss_low_c": float(spec.qoss_low),
+        "qoss_total_c": float(spec.qoss_total),
+        "commutated_edge": dict(COMMUTATED),
+        "pre_swing_s": {e: float(v) for e, v in plan.pre_swing_s.items()},
+        "threshold_a": {s: _f(v) for s, v in plan.threshold_a.items()},
+        "divider_code": plan.divider_code,
+        "fixed": {
+            e: {
+                "code": x.code,
+                "achieved_min_s": float(x.achieved_min_s),
+                "achieved_max_s": float(x.achieved_max_s),
+            }
+            for e, x in plan.table.fixed.items()
+        },
+        "adc": None
+        if spec.adc is None
+        else {
+            "zero": spec.adc.zero,
+            "amps_per_code": float(spec.adc.amps_per_code),
+            "bits": spec.adc.bits,
+        },
+        "other_policy": None
+        if other is None
+        else {"below_swing": other.policy, "bins": table_json(other)},
+        "inverter": None
+        if inv is None
+        else {
+            "peak_current_a": float(inv.peak_current_a),
+            "mean_abs_current_a": inv.mean_abs_current_a,
+            "error_positive_v": float(inv.error_positive_v),
+            "error_negative_v": float(inv.error_negative_v),
+            "error_fundamental_v": inv.fundamental_v,
+            "reverse_conduction_fixed_w": inv.loss_fixed_w,
+            "reverse_conduction_adaptive_w": inv.loss_adaptive_w,
+            "compensation_band_a": float(inv.band_a),
+        },
+        "notes": list(plan.notes),
+    }
+
+
+# ---------------------------------------------------------------------------------------------
+# terminal
+
+
+def _table(headers: list[str], rows: list[list[str]]) -> str:
+    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(headers)]
+    out = ["  ".join(h.ljust(w) for h, w in zip(headers, widths, strict=True)).rstrip()]
+    out.append("  ".join("-" * w for w in widths))
+    out += ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip() for r in rows]
+    return "\n".join("  " + line for line in out)
+
+
+def _t(x: Fraction | None) -> str:
+    return "-" if x is None else format_quantity(x, "s", 4)
+
+
+def _w(x: Fraction | float | None) -> str:
+    return "-" if x is None else format_quantity(x, "W", 4)
+
+
+def _amps(b: Bin) -> str:
+    top = "up" if b.current_max_a is None else format_quantity(b.current_max_a, "A", 4)
+    return f"{format_quantity(b.current_min_a, 'A', 4)} .. {top}"
+
+
+def _state(x: Entry) -> str:
+    return "soft" if x.soft else ("below swing" if x.below_swing else "hard")
+
+
+def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
+    spec = plan.spec
+    lines = [
+        f"{prefix}: dead time by load current (below_swing '{spec.below_swing}'); the load "
+        "commutates to_low for I > 0 (out of the switch node), to_high for I < 0; swing = "
+        f"{format_quantity(spec.qoss_total, 'C', 4)} / |I|; the chain before the swing "
+        + ", ".join(f"{e} {_t(plan.pre_swing_s[e])}" for e in EDGES),
+    ]
+    rows = []
+    for b in plan.table.bins:
+        for sign in SIGNS:
+            soft = b.entries[sign][COMMUTATED[sign]]
+            hard = b.entries[sign]["to_high" if COMMUTATED[sign] == "to_low" else "to_low"]
+            cost = b.costs[sign] if b.costs is not None else None
+            rows.append(
+                [
+                    _amps(b) if sign == "positive" else "",
+                    "+" if sign == "positive" else "-",
+                    f"{soft.edge} {soft.code}",
+                    format_bound(soft.achieved_min_s, "s", "down", 5),
+                    _t(soft.swing_needed_s),
+                    _state(soft),
+                    f"{hard.edge} {hard.code}",
+                    "-" if cost is None else _w(cost.fixed_w),
+                    "-" if cost is None else _w(cost.adaptive_w),
+                    "-" if cost is None else _w(cost.fixed_w - cost.adaptive_w),
+                ]
+            )
+    lines.append(
+        _table(
+            [
+                "|I| bin",
+                "sign",
+                "soft edge code",
+                "worst case",
+                "swing",
+                "state",
+                "hard edge code",
+                "loss fixed",
+                "loss table",
+                "saved",
+            ],
+            rows,
+        )
+    )
+    fixed = plan.table.fixed
+    lines.append(
+        "  fixed comparison: "
+        + ", ".join(f"{e} code {fixed[e].code}" for e in EDGES)
+        + " on every bin (the table's longest entries: what a fixed dead time needs for the"
+        " same transitions); reverse conduction at each bin's largest current (top bin: its"
+        " lower edge), slowest clock (common practice)"
+    )
+    for sign in SIGNS:
+        thr = plan.threshold_a[sign]
+        if thr is not None:
+            lines.append(
+                f"  {sign} current: the swing fits the window above about "
+                f"{format_quantity(thr, 'A', 4)} (before rounding to codes)"
+            )
+    if plan.inverter is not None:
+        inv = plan.inverter
+        lines.append(
+            f"  inverter, sinusoidal {format_quantity(inv.peak_current_a, 'A', 4)} peak: mean |i|"
+            f" = 2 Ipk / pi = {format_quantity(inv.mean_abs_current_a, 'A', 4)}; average"
+            f" output-voltage error -{format_quantity(inv.error_positive_v, 'V', 4)} (I > 0),"
+            f" +{format_quantity(inv.error_negative_v, 'V', 4)} (I < 0); its fundamental"
+            f" {format_quantity(inv.fundamental_v, 'V', 4)} (4/pi x Vd x t x fsw; Mohan et al."
+            " ch. 8, Jeong & Park 1991)"
+        )
+        comp = plan.table.bins[-1].compensation
+        lines.append(
+            f"  compensation: add {comp['positive']} compare counts while I > "
+            f"{format_quantity(inv.band_a, 'A', 4)}, subtract {comp['negative']} while I < "
+            f"-{format_quantity(inv.band_a, 'A', 4)}, none in between (sign uncertain);"
+            f" reverse conduction over the sine {_w(inv.loss_fixed_w)} fixed,"
+            f" {_w(inv.loss_adaptive_w)} with the table"
+        )
+    lines.append(
+        "  verify adaptive dead time on the bench at every bin, every temperature and both"
+        " current signs"
+    )
+    return "\n".join(lines)
