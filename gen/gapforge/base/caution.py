@@ -9,3 +9,10 @@ LINES = (
     "limiting before full power. Local codes and licensed engineering practice prevail.",
 )
 TEXT = " ".join(LINES)
+
+# The short form printed once per run at the end of terminal output (issue 10); the full TEXT
+# stays in the README, headers and reports.
+SHORT = (
+    "Caution: verify every dead time on the bench at reduced voltage with current limiting "
+    "before full power (design aid only; see README)."
+)
