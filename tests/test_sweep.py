@@ -196,20 +196,20 @@ def test_reasons_for_infeasible_points() -> None:
     limits = {e: (95 * NS, 99 * NS) for e in ("to_high", "to_low")}
     result = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits)
     reasons = {r.divider: r.reason for r in result.infeasible}
-    assert reasons[8].startswith("too-long: to_high shortest safe value 160 ns")
+    assert reasons[8].startswith("too-long: both edges: the shortest safe value 160 ns")
     # 10 ns steps (divider 1) give 100 ns, 20 ns steps 100 ns, 40 ns steps 120 ns: all too long
-    assert reasons[1].startswith("too-long: to_high shortest safe value 100 ns")
-    assert reasons[4].startswith("too-long: to_high shortest safe value 120 ns")
+    assert reasons[1].startswith("too-long: both edges: the shortest safe value 100 ns")
+    assert reasons[4].startswith("too-long: both edges: the shortest safe value 120 ns")
     assert not result.feasible
 
 
 def test_every_divider_and_clock_is_a_point() -> None:
     limits = {e: (90 * NS, None) for e in ("to_high", "to_low")}
     names = builtin_names()
-    result = sweep(layouts(*names), [100 * MHZ, 150 * MHZ], Fraction(0), limits)
+    result = sweep(layouts(*names), [100 * MHZ, 150 * MHZ], Fraction(0), limits, "error")
     expected = sum(len(load_layout(n).dividers) for n in names) * 2
     assert result.points == expected
-    assert result.rank == "error"  # no maximum: ranked by quantization error
+    assert result.rank == "error"
     errors = [r.worst_error_s for r in result.feasible]
     assert errors == sorted(errors)
 
@@ -302,10 +302,13 @@ def test_cli_text_from_stage_options() -> None:
     result = run(["--clocks", "100MHz:200MHz:50MHz", "--clock-tol", "1%", "--top", "3", *STAGE])
     assert result.exit_code == 0
     out = result.stdout
-    # window 90 ns .. 1.041666 us from the stage (see tests/test_stage.py)
-    assert "to_high 90 ns .. 1.04167 us" in out
+    # window 90 ns .. 1.041666 us from the stage (see tests/test_stage.py), one prefix per line
+    assert "Window*: both edges: 90 .. 1042 ns" in out
     assert "common practice" in out and "reduced voltage" in out
-    assert out.count("\n   1  ") == 1 and "\n   4  " not in out
+    assert out.count("\n   1 ") == 1 and "\n   4 " not in out
+    # the answer first, the short caution once at the end
+    assert out.startswith("sweep: best ")
+    assert out.count("reduced voltage") == 1 and out.rstrip().endswith("see README).")
 
 
 def test_cli_json_and_csv_hold_every_point() -> None:
@@ -315,8 +318,12 @@ def test_cli_json_and_csv_hold_every_point() -> None:
     assert data["points"] == (4 + 1) * 2
     assert data["points"] == len(data["feasible"]) + len(data["infeasible"])
     assert [r["rank"] for r in data["feasible"]] == list(range(1, len(data["feasible"]) + 1))
-    margins = [r["worst_margin_s"] for r in data["feasible"]]
-    assert margins == sorted(margins, reverse=True)
+    above = [r["worst_above_min_s"] for r in data["feasible"]]
+    assert above == sorted(above)  # default ranking: the least dead time that is safe
+    margins = json.loads(run([*args, "--json", "--rank", "margin"]).stdout)["feasible"]
+    assert [r["worst_margin_s"] for r in margins] == sorted(
+        (r["worst_margin_s"] for r in margins), reverse=True
+    )
     assert set(data["feasible"][0]["edges"]) == {"to_high", "to_low"}
     rows = list(csv.DictReader(io.StringIO(run([*args, "--csv"]).stdout)))
     assert len(rows) == data["points"]
@@ -587,3 +594,80 @@ def test_cli_counting_without_a_pwm_is_an_error() -> None:
     assert isinstance(result.exception, GapforgeError), result.output
     line = result.exception.line()
     assert line.startswith("--counting") and "--pwm" in line and "\n" not in line
+
+
+# ---------------------------------------------------------------------------------------------
+# ranking and text (issue 10)
+
+
+def test_default_ranking_is_the_least_safe_dead_time() -> None:
+    # Issue 10's example: a 400 ns .. 1.2 us window at 100 MHz +- 2 %. Divider 1 (10 ns steps):
+    # 400 x 1.02 = 408 ns -> 41 counts = 410 ns, worst case 410 / 1.02 .. 410 / 0.98 = 401.96 ..
+    # 418.37 ns. Divider 8 (80 ns steps): 6 counts = 480 ns, worst case 470.6 .. 489.8 ns; its
+    # margin to the nearer edge (70.6 ns) is the largest, so the margin ranking puts it first,
+    # with more reverse conduction (loss ~ dead time: common practice).
+    limits = {e: (400 * NS, 1200 * NS) for e in ("to_high", "to_low")}
+    tol = Fraction(2, 100)
+    result = sweep(layouts("split-10bit-div4"), [100 * MHZ], tol, limits)
+    assert result.rank == "loss"
+    best = result.feasible[0]
+    assert (best.divider, best.edges["to_high"].code) == (1, 41)
+    assert best.worst_above_min_s == 410 * NS / Fraction(98, 100) - 400 * NS
+    by_margin = sweep(layouts("split-10bit-div4"), [100 * MHZ], tol, limits, "margin")
+    assert (by_margin.feasible[0].divider, by_margin.feasible[0].edges["to_high"].achieved_s) == (
+        8, 480 * NS)
+
+
+def test_ties_break_by_lowest_clock_then_fewest_bits() -> None:
+    # 400 ns is exact at 100 MHz and at 200 MHz on every divider of split-10bit-div4 (10 ns x 40,
+    # 5 ns x 80, ...): every row ties on loss, so the order is by clock, then divider code.
+    limits = {e: (400 * NS, 1200 * NS) for e in ("to_high", "to_low")}
+    result = sweep(layouts("split-10bit-div4", "shared-8bit-linear"), [200 * MHZ, 100 * MHZ],
+                   Fraction(0), limits)
+    tied = [r for r in result.feasible if r.worst_above_min_s == 0]
+    clocks = [r.clock_hz for r in tied]
+    assert clocks == sorted(clocks) and len(set(clocks)) == 2
+    at_100 = [r for r in tied if r.clock_hz == 100 * MHZ]
+    bits = [r.bits for r in at_100]
+    assert bits == sorted(bits) and bits[0] < bits[-1]  # the 8-bit layout before the 20-bit one
+
+
+def test_columns_keep_their_width_whatever_the_code_width() -> None:
+    # 16-bit codes (shared-16bit-plus-one at 5 GHz: 2000 counts) and 1-digit codes line up alike
+    from gapforge.cli.sweep_cmd import sweep_text
+
+    limits = {e: (400 * NS, 1200 * NS) for e in ("to_high", "to_low")}
+    wide = sweep_text(sweep(layouts("shared-16bit-plus-one"), [5000 * MHZ], Fraction(0), limits),
+                      None)
+    narrow = sweep_text(sweep(layouts("shared-8bit-linear"), [10 * MHZ], Fraction(0), limits),
+                        None)
+
+    def columns(text: str) -> tuple[int, int, int]:
+        lines = text.splitlines()
+        header = next(line for line in lines if line.lstrip().startswith("# layout"))
+        row = next(line for line in lines if line.startswith("   1 "))
+        return header.index("register"), row.index("0x"), row.index(" ns ", 70)
+
+    assert columns(wide) == columns(narrow)
+    assert columns(wide)[0] == columns(wide)[1]
+
+
+def test_design_clock_is_the_default_for_clocks() -> None:
+    from conftest import REPO, run_cli
+
+    code, out, err = run_cli(
+        ["sweep", "--design", str(REPO / "examples" / "motor-inverter.toml"), "--json"]
+    )
+    assert code == 0, err
+    doc = json.loads(out)
+    design = tomllib.loads((REPO / "examples" / "motor-inverter.toml").read_text())
+    assert len(doc["clocks_hz"]) == 1
+    expected = float(Fraction(design["timer"]["clock"].replace("MHz", "")) * 10**6)
+    assert doc["clocks_hz"][0] == expected
+
+
+def test_formula_footnote_only_for_a_derived_window() -> None:
+    direct = run(["--clocks", "100MHz", "--window", "90ns:300ns"]).stdout
+    assert "common practice" not in direct and "Window:" in direct
+    derived = run(["--clocks", "100MHz", *STAGE]).stdout
+    assert "* window minimum" in derived and "Window*:" in derived

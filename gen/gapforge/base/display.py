@@ -136,11 +136,17 @@ def format_many(values: Sequence[Number], unit: str, *, digits: int = DIGITS) ->
     return [format_si(v, unit, digits=digits, exponent=exp3) for v in values]
 
 
-def format_range(low: Number, high: Number, unit: str, *, digits: int = DIGITS) -> str:
-    """ "400 .. 1200 ns": one prefix, the unit written once."""
+def format_range(
+    low: Number, high: Number, unit: str, *, digits: int = DIGITS, safe: bool = False
+) -> str:
+    """ "400 .. 1200 ns": one prefix, the unit written once.
+
+    `safe=True` cuts a worst-case range outward (the low end down, the high end up), exactly.
+    """
     exp3 = choose_exponent([low, high])
-    lo = format_si(low, unit, digits=digits, exponent=exp3).rsplit(" ", 1)[0]
-    hi = format_si(high, unit, digits=digits, exponent=exp3)
+    down, up = ("down", "up") if safe else ("nearest", "nearest")
+    lo = format_si(low, unit, digits=digits, exponent=exp3, toward=down).rsplit(" ", 1)[0]
+    hi = format_si(high, unit, digits=digits, exponent=exp3, toward=up)
     return f"{lo} .. {hi}"
 
 

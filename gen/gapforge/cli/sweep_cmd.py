@@ -5,13 +5,16 @@ from __future__ import annotations
 import csv
 import io
 import json
+import sys
 from fractions import Fraction
 from typing import Any
 
 import click
 
+from gapforge.base import caution
+from gapforge.base.display import both_edges, choose_exponent, count, format_range, format_si
 from gapforge.base.errors import GapforgeError
-from gapforge.base.quantities import format_quantity, format_tolerance
+from gapforge.base.quantities import format_tolerance
 from gapforge.cli.options import Quantity, Tolerance, json_option
 from gapforge.cli.window_cmd import (
     CAUTION,
@@ -21,7 +24,7 @@ from gapforge.cli.window_cmd import (
     stage_options,
 )
 from gapforge.stage.window import EDGES, parse_span, stage_window
-from gapforge.timer.layouts import builtin_names, load_layout
+from gapforge.timer.layouts import Layout, builtin_names, load_layout
 from gapforge.timer.limits import COUNTINGS, PwmSpec
 from gapforge.timer.sweep import RANKS, Sweep, SweepRow, limits_of, parse_clocks, sweep
 
@@ -42,6 +45,7 @@ def _row_json(row: SweepRow, rank: int | None) -> dict[str, Any]:
         "divider": row.divider,
         "fields": row.fields,
         "register": row.register,
+        "worst_above_min_s": _f(row.worst_above_min_s),
         "worst_margin_s": _f(row.worst_margin_s),
         "worst_error_s": _f(row.worst_error_s),
         "reason": row.reason,
@@ -159,47 +163,94 @@ def sweep_csv(result: Sweep, top: int | None) -> str:
     return buffer.getvalue()
 
 
-def _t(value: Fraction | None) -> str:
-    return "-" if value is None else format_quantity(value, "s", 6)
+RANK_WORDS = {
+    "loss": "least dead time that is safe (smallest worst-case maximum above the minimum)",
+    "margin": "worst-case margin to the nearer window edge",
+    "error": "quantization error",
+}
+# fixed column widths, whatever the code or register width (issue 10)
+_COLUMNS = (("#", 4, ">"), ("layout", 26, "<"), ("clock", 9, ">"), ("div", 5, ">"),
+            ("to_high code", 12, ">"), ("to_low code", 12, ">"), ("worst case (both edges)", 26, "<"),
+            ("above min", 10, ">"), ("margin", 10, ">"), ("error", 10, ">"), ("register", 0, "<"))
 
 
-def sweep_text(result: Sweep, top: int | None) -> str:
-    n = TEXT_TOP if top is None else top
-    out: list[str] = []
-    window = ", ".join(
-        f"{edge} {_t(lo)} .. {'no max' if hi is None else _t(hi)}"
-        for edge, (lo, hi) in result.limits.items()
+def _cell(text: str, width: int, align: str) -> str:
+    if width and len(text) > width:
+        text = text[: width - 1] + "~"
+    return f"{text:{align}{width}}" if width else text
+
+
+def _row_cells(rank: int, row: SweepRow, exp3: int) -> list[str]:
+    lo = min(e.achieved_min_s for e in row.edges.values())
+    hi = max(e.achieved_max_s for e in row.edges.values())
+    span = format_range(lo, hi, "s", safe=True)
+    register = "-" if row.register is None else f"0x{row.register:X}"
+    return [
+        str(rank),
+        row.layout,
+        format_si(row.clock_hz, "Hz"),
+        f"/{row.divider}",
+        str(row.edges["to_high"].code),
+        str(row.edges["to_low"].code),
+        span,
+        _ns(row.worst_above_min_s, exp3),
+        _ns(row.worst_margin_s, exp3),
+        _ns(row.worst_error_s, exp3),
+        register,
+    ]
+
+
+def _ns(value: Fraction | None, exp3: int) -> str:
+    return "-" if value is None else format_si(value, "s", exponent=exp3)
+
+
+def best_line(result: Sweep) -> str:
+    """The answer, first: the best choice, or that there is none."""
+    if not result.feasible:
+        return f"sweep: fail - no feasible choice among {count(result.points, 'point')}"
+    row = result.feasible[0]
+    codes = both_edges({edge: f"code {row.edges[edge].code}" for edge in EDGES})
+    lo = min(e.achieved_min_s for e in row.edges.values())
+    hi = max(e.achieved_max_s for e in row.edges.values())
+    register = "" if row.register is None else f", register 0x{row.register:X}"
+    return (
+        f"sweep: best {row.layout} at {format_si(row.clock_hz, 'Hz')} /{row.divider}, "
+        f"{'; '.join(codes)}{register}: worst case {format_range(lo, hi, 's', safe=True)}"
     )
-    out.append(f"Window: {window}; clock tolerance {format_tolerance(result.clock_tol)}")
+
+
+def sweep_text(result: Sweep, top: int | None, formula: bool = True) -> str:
+    n = TEXT_TOP if top is None else top
+    out: list[str] = [best_line(result), ""]
+    window = both_edges(
+        {
+            edge: format_range(lo, hi, "s") if hi is not None else f"{format_si(lo, 's')} .. no max"
+            for edge, (lo, hi) in result.limits.items()
+        }
+    )
+    star = "*" if formula else ""
+    out.append(f"Window{star}: {'; '.join(window)}; clock tolerance "
+               f"{format_tolerance(result.clock_tol)}")
     if result.pwm is None:
         out.append("PWM: not checked (give --pwm F, or a design with a [pwm] section)")
     else:
         out.append(
-            f"PWM: {format_quantity(result.pwm.frequency_hz, 'Hz', 8)} "
+            f"PWM: {format_si(result.pwm.frequency_hz, 'Hz')} "
             f"{result.pwm.counting}-aligned; a row must leave a pulse on both outputs"
         )
     out.append(
-        f"{result.points} points ({len(result.layouts)} layouts x {len(result.clocks)} clocks x "
-        f"dividers): {len(result.feasible)} feasible, ranked by "
-        + ("worst-case margin to the window" if result.rank == "margin" else "quantization error")
+        f"{count(result.points, 'point')} ({count(len(result.layouts), 'layout')} x "
+        f"{count(len(result.clocks), 'clock')} x dividers): {len(result.feasible)} feasible, "
+        f"ranked by {RANK_WORDS[result.rank]}"
     )
     out.append("")
-    header = (
-        f"{'#':>4}  {'layout':<26} {'clock':>12} {'div':>5}  {'to_high (min..max)':<26} "
-        f"{'to_low (min..max)':<26} {'margin':>10} {'error':>10}  register"
-    )
-    out.append(header)
-    for i, row in enumerate(result.feasible[:n]):
-        spans = []
-        for edge in EDGES:
-            e = row.edges[edge]
-            spans.append(f"{e.code}: {_t(e.achieved_min_s)}..{_t(e.achieved_max_s)}")
-        register = "-" if row.register is None else f"0x{row.register:X}"
-        out.append(
-            f"{i + 1:>4}  {row.layout:<26} {format_quantity(row.clock_hz, 'Hz', 8):>12} "
-            f"{'/' + str(row.divider):>5}  {spans[0]:<26} {spans[1]:<26} "
-            f"{_t(row.worst_margin_s):>10} {_t(row.worst_error_s):>10}  {register}"
-        )
+    out.append(" ".join(_cell(name, w, a) for name, w, a in _COLUMNS).rstrip())
+    shown = result.feasible[:n]
+    values = [v for r in shown for v in (r.worst_above_min_s, r.worst_margin_s, r.worst_error_s)]
+    exp3 = choose_exponent([v for v in values if v is not None])
+    for i, row in enumerate(shown):
+        cells = _row_cells(i + 1, row, exp3)
+        out.append(" ".join(_cell(c, w, a) for c, (_, w, a) in zip(cells, _COLUMNS, strict=True)))
     if len(result.feasible) > n:
         more = len(result.feasible) - n
         out.append(f"      ... and {more} more feasible (--top N, --json, --csv)")
@@ -210,22 +261,24 @@ def sweep_text(result: Sweep, top: int | None) -> str:
         out.append(f"Infeasible ({len(result.infeasible)}):")
         for row in result.infeasible[:n]:
             out.append(
-                f"      {row.layout:<26} {format_quantity(row.clock_hz, 'Hz', 8):>12} "
-                f"{'/' + str(row.divider):>5}  {row.reason}"
+                f"      {_cell(row.layout, 26, '<')} {_cell(format_si(row.clock_hz, 'Hz'), 9, '>')}"
+                f" {_cell('/' + str(row.divider), 5, '>')}  {row.reason}"
             )
         if len(result.infeasible) > n:
             out.append(f"      ... and {len(result.infeasible) - n} more (--json or --csv for all)")
+    if formula:
+        out.append("")
+        out.append(f"* window {MIN_FORMULA} (see `gapforge window` for the breakdown).")
     out.append("")
-    out.append(f"Window {MIN_FORMULA} (see `gapforge window` for the breakdown).")
-    out.append(CAUTION)
+    out.append(caution.SHORT)
     return "\n".join(out) + "\n"
 
 
 def _design_limits(
     values: dict[str, Any],
-) -> tuple[dict[str, tuple[Fraction, Fraction | None]], Fraction, PwmSpec | None]:
-    """The window of a design (its stage window within the reference's range), its tolerance
-    and its PWM."""
+) -> tuple[dict[str, tuple[Fraction, Fraction | None]], Fraction, PwmSpec | None, Fraction]:
+    """The window of a design (its stage window within the reference's range), its tolerance,
+    its PWM and its timer clock."""
     from pathlib import Path
 
     from gapforge.pipeline.build import design_window
@@ -241,7 +294,7 @@ def _design_limits(
     if window is None:
         raise GapforgeError("the design has no [stage] section to give a window", str(design.path))
     limits = {e: (lo if lo is not None else Fraction(0), hi) for e, (lo, hi) in window.items()}
-    return limits, design.clock_tol, design.pwm
+    return limits, design.clock_tol, design.pwm, design.clock_hz
 
 
 def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | None:
@@ -270,9 +323,9 @@ def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | N
     "--clocks",
     "clock_texts",
     multiple=True,
-    required=True,
     metavar="LIST|START:STOP:STEP",
-    help="Timer clocks: '160MHz,170MHz' or '100MHz:200MHz:5MHz' (repeatable).",
+    help="Timer clocks: '160MHz,170MHz' or '100MHz:200MHz:5MHz' (repeatable; default with "
+    "--design: the design's clock).",
 )
 @click.option(
     "--clock-tol",
@@ -305,10 +358,11 @@ def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | N
 @click.option(
     "--rank",
     type=click.Choice(RANKS),
-    default="auto",
+    default="loss",
     show_default=True,
-    help="Order feasible rows by worst-case margin or by quantization error "
-    "(auto: margin when the window has a maximum).",
+    help="Order feasible rows: loss = the least dead time that is safe (smallest worst-case "
+    "maximum above the window minimum); margin = the largest worst-case distance to either "
+    "window edge; error = the smallest quantization error. Ties: lowest clock, fewest bits.",
 )
 @click.option(
     "--top",
@@ -329,6 +383,7 @@ def command(**values: Any) -> None:
     if values["as_json"] and values["as_csv"]:
         raise GapforgeError("give --json or --csv, not both", "--csv")
     design_pwm: PwmSpec | None = None
+    design_clock: Fraction | None = None
     if values["window_text"] is not None:
         used = [
             name for name in ("design", *OPTION_KEYS, "high_side", "low_side") if values.get(name)
@@ -339,7 +394,7 @@ def command(**values: Any) -> None:
             )
         limits = _window_limits(values["window_text"])
     elif values.get("design") is not None:
-        limits, design_tol, design_pwm = _design_limits(values)
+        limits, design_tol, design_pwm, design_clock = _design_limits(values)
         if values["clock_tol"] is None:
             values["clock_tol"] = design_tol
         if (
@@ -363,7 +418,12 @@ def command(**values: Any) -> None:
     if values["clock_tol"] is None:
         values["clock_tol"] = Fraction(0)
     pwm = _pwm_spec(values, design_pwm)
-    clocks = parse_clocks(values["clock_texts"])
+    if values["clock_texts"]:
+        clocks = parse_clocks(values["clock_texts"])
+    elif design_clock is not None:
+        clocks = (design_clock,)
+    else:
+        raise GapforgeError("required (or give --design FILE to sweep at its clock)", "--clocks")
     names = list(values["targets"])
     if values["builtins"] or not names:
         names = builtin_names() + [n for n in names if n not in builtin_names()]
@@ -377,16 +437,39 @@ def command(**values: Any) -> None:
         if layout.name not in seen:
             seen.add(layout.name)
             layouts.append(layout)
-    result = sweep(layouts, clocks, values["clock_tol"], limits, values["rank"], pwm)
+    result = _run(layouts, clocks, values["clock_tol"], limits, values["rank"], pwm,
+                  show_progress=not (values["as_json"] or values["as_csv"]))
     top = values["top"]
     if values["as_json"]:
         click.echo(json.dumps(sweep_json(result, top), indent=2))
     elif values["as_csv"]:
         click.echo(sweep_csv(result, top), nl=False)
     else:
-        click.echo(sweep_text(result, top), nl=False)
+        click.echo(sweep_text(result, top, formula=values["window_text"] is None), nl=False)
     if not result.feasible:
         raise SystemExit(1)
+
+
+PROGRESS_POINTS = 2000  # a sweep this large shows a progress bar on a terminal
+
+
+def _run(
+    layouts: list[Layout],
+    clocks: tuple[Fraction, ...],
+    clock_tol: Fraction,
+    limits: dict[str, tuple[Fraction, Fraction | None]],
+    rank: str,
+    pwm: PwmSpec | None,
+    show_progress: bool,
+) -> Sweep:
+    """The sweep, with a progress bar on stderr only when stderr is a terminal and it is long."""
+    points = sum(len(layout.dividers) for layout in layouts) * len(clocks)
+    if not (show_progress and points >= PROGRESS_POINTS and sys.stderr.isatty()):
+        return sweep(layouts, clocks, clock_tol, limits, rank, pwm)
+    with click.progressbar(
+        length=len(layouts) * len(clocks), label="sweeping", file=sys.stderr
+    ) as bar:
+        return sweep(layouts, clocks, clock_tol, limits, rank, pwm, progress=bar.update)
 
 
 def _window_limits(text: str) -> dict[str, tuple[Fraction, Fraction | None]]:

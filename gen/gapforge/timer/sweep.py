@@ -5,27 +5,31 @@ worst case, at the fastest clock, is still >= the minimum); the point is feasibl
 achieved worst case at the slowest clock is still <= the window's maximum on both edges and,
 when a PWM is given, the fitted dead time also fits the PWM (gapforge.timer.limits: less than half a
 period, and some commanded duty still gives a pulse on both outputs) -- the checks `build` makes.
-Feasible points are ranked by worst-case margin to the window (the smaller of the two distances,
-over both edges, after quantization and clock tolerance), then by quantization error; every
-infeasible point carries the reason it fails.
+Feasible points are ranked, by default, by the least dead time that is safe (`loss`): the smallest
+worst-case maximum above the window minimum over both edges (the dead time the slow clock can
+stretch to, beyond what the stage needs, is reverse-conduction loss). `margin` ranks by the larger
+worst-case distance to either window edge instead, `error` by quantization error. Ties break
+deterministically: lowest clock, then fewest register-field bits, then layout name and divider.
+Every infeasible point carries the reason it fails.
 
 Layouts are loaded by the caller once and passed in; nothing is read or rendered per point.
 """
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge.base.errors import GapforgeError
-from gapforge.base.quantities import format_quantity, parse_quantity
+from gapforge.base.display import both_edges, format_si
+from gapforge.base.quantities import parse_quantity
 from gapforge.stage.window import EDGES, Window, WindowEdge, judge
 from gapforge.timer.fit import FitRequest, fit
 from gapforge.timer.layouts import Layout
 from gapforge.timer.limits import PwmSpec, compare_counts, pwm_limits
 
-RANKS = ("auto", "margin", "error")
+RANKS = ("loss", "margin", "error")
 MAX_CLOCKS = 100_000
 
 # edge -> (min_s, max_s or None)
@@ -71,6 +75,8 @@ class SweepRow:
     worst_margin_s: Fraction | None
     worst_error_s: Fraction | None
     pwm: RowPwm | None = None
+    worst_above_min_s: Fraction | None = None  # max over edges of achieved_max - window min
+    bits: int = 0  # the layout's register-field bits (a tie-break: fewer is simpler)
 
 
 @dataclass(frozen=True)
@@ -134,11 +140,13 @@ def sweep(
     clocks: Sequence[Fraction],
     clock_tol: Fraction,
     limits: Limits,
-    rank: str = "auto",
+    rank: str = "loss",
     pwm: PwmSpec | None = None,
+    progress: Callable[[int], object] | None = None,
 ) -> Sweep:
     """Every layout x clock x divider code, judged against the window limits per edge and, with
-    `pwm`, against the PWM limits of the fitted dead time."""
+    `pwm`, against the PWM limits of the fitted dead time. `progress(1)` is called after each
+    layout x clock (the CLI's progress bar)."""
     if rank not in RANKS:
         raise GapforgeError(f"rank must be one of {', '.join(RANKS)}", "--rank")
     if not 0 <= clock_tol < 1:
@@ -148,8 +156,6 @@ def sweep(
         if lo < 0 or (hi is not None and hi < 0):
             raise GapforgeError("window limits must not be negative", edge)
     window = {edge: _window_edge(*limits[edge]) for edge in EDGES}
-    if rank == "auto":
-        rank = "margin" if all(limits[e][1] is not None for e in EDGES) else "error"
     empty = [e for e in EDGES if window[e].empty]
     feasible: list[SweepRow] = []
     infeasible: list[SweepRow] = []
@@ -178,7 +184,11 @@ def sweep(
             for d, divider in enumerate(layout.dividers):
                 row = _point(layout, clock, d, divider, request, window, pwm)
                 (feasible if row.feasible else infeasible).append(row)
-    if rank == "margin":
+            if progress is not None:
+                progress(1)
+    if rank == "loss":
+        feasible.sort(key=lambda r: (_num(r.worst_above_min_s), _order(r)))
+    elif rank == "margin":
         feasible.sort(key=lambda r: (-_num(r.worst_margin_s), _num(r.worst_error_s), _order(r)))
     else:
         feasible.sort(key=lambda r: (_num(r.worst_error_s), -_num(r.worst_margin_s), _order(r)))
@@ -203,23 +213,30 @@ def _pwm_problem(clock: Fraction, pwm: PwmSpec) -> str:
 
 
 def _pwm_text(spec: PwmSpec) -> str:
-    return f"{format_quantity(spec.frequency_hz, 'Hz', 8)} {spec.counting}-aligned PWM"
+    return f"{format_si(spec.frequency_hz, 'Hz')} {spec.counting}-aligned PWM"
 
 
 def _num(value: Fraction | None) -> Fraction:
     return value if value is not None else Fraction(0)
 
 
-def _order(row: SweepRow) -> tuple[str, Fraction, int]:
-    return (row.layout, row.clock_hz, row.divider_code)
+def _order(row: SweepRow) -> tuple[Fraction, int, str, int]:
+    """The deterministic tie-break: lowest clock, fewest bits, then layout name and divider."""
+    return (row.clock_hz, row.bits, row.layout, row.divider_code)
 
 
 def _t(value: Fraction) -> str:
-    return format_quantity(value, "s", 8)
+    return format_si(value, "s")
 
 
 def _bare(layout: Layout, clock: Fraction, d: int, divider: int, reason: str) -> SweepRow:
-    return SweepRow(layout.name, clock, d, divider, False, reason, {}, None, {}, None, None)
+    return SweepRow(
+        layout.name, clock, d, divider, False, reason, {}, None, {}, None, None, bits=_bits(layout)
+    )
+
+
+def _bits(layout: Layout) -> int:
+    return sum(f.width for f in layout.fields)
 
 
 def _point(
@@ -238,13 +255,14 @@ def _point(
             e = result.edges[edge]
             if e.requested_s > e.max_min_s:
                 parts.append(
-                    f"{edge} needs {_t(e.requested_s)} worst case, the longest here is "
-                    f"{_t(e.max_min_s)} at the fast clock"
+                    f"{edge} needs {format_si(e.requested_s, 's', toward='up')} worst case, the "
+                    f"longest here is {format_si(e.max_min_s, 's', toward='down')} at the fast clock"
                 )
         reason = "unreachable: " + ("; ".join(parts) or "no code reaches the window minimum")
         return _bare(layout, clock, d, divider, reason)
     edges: dict[str, RowEdge] = {}
     reasons: list[str] = []
+    too_long: dict[str, str] = {}
     margins: list[Fraction] = []
     errors: list[Fraction] = []
     for edge in EDGES:
@@ -271,12 +289,18 @@ def _point(
         if verdict == "too-long":
             top = window[edge].max_s
             assert top is not None
-            reasons.append(
-                f"too-long: {edge} shortest safe value {_t(e.achieved_s)} lasts up to "
-                f"{_t(e.achieved_max_s)} at the slow clock, above the window maximum {_t(top)}"
+            too_long[edge] = (
+                f"the shortest safe value {format_si(e.achieved_s, 's')} lasts up to "
+                f"{format_si(e.achieved_max_s, 's', toward='up')} at the slow clock, above the "
+                f"window maximum {format_si(top, 's', toward='down')}"
             )
         elif verdict != "ok":
             reasons.append(f"{verdict}: {edge}")
+    if too_long:
+        said = both_edges(too_long) if len(too_long) == len(EDGES) else [
+            f"{edge}: {text}" for edge, text in too_long.items()
+        ]
+        reasons[:0] = [f"too-long: {line}" for line in said]
     row_pwm = None
     if pwm is not None:
         lim = pwm_limits(result, pwm)
@@ -305,4 +329,8 @@ def _point(
         worst_margin_s=min(margins),
         worst_error_s=max(errors),
         pwm=row_pwm,
+        worst_above_min_s=max(
+            edges[edge].achieved_max_s - window[edge].min_s for edge in EDGES
+        ),
+        bits=_bits(layout),
     )
