@@ -21,8 +21,8 @@ from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 
-from gapforge.base.errors import GapforgeError
 from gapforge.base.display import both_edges, format_si
+from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import parse_quantity
 from gapforge.stage.window import EDGES, Window, WindowEdge, judge
 from gapforge.timer.fit import FitRequest, fit
