@@ -105,3 +105,54 @@ def test_firmware_command_writes_files(tmp_path: Path) -> None:
     assert (tmp_path / "fw/gapforge_capture_fmt.h").read_text() == render_capture_helper(16)[
         "gapforge_capture_fmt.h"]
     assert "CAUTION" in result.output
+
+
+# --- issue 14 (7): text reaching a C comment or string is escaped or refused -------------------
+
+@pytest.mark.parametrize("hostile", ["ends */ int injected;", "line\nbreak", "nul\x00",
+                                     "tab\there", "opens /* a comment", "caf\u00e9"])
+def test_hostile_comment_text_is_refused(monkeypatch: pytest.MonkeyPatch, hostile: str) -> None:
+    from gapforge.base import caution
+    from gapforge.base.errors import GapforgeError
+    from gapforge.outputs import firmware
+
+    monkeypatch.setattr(caution, "LINES", (*caution.LINES, hostile))
+    with pytest.raises(GapforgeError, match=r"generated C|comment delimiter"):
+        firmware.render_capture_helper(32)
+    monkeypatch.setattr(caution, "LINES", caution.LINES[:-1])
+    monkeypatch.setattr(firmware, "__version__", hostile)
+    with pytest.raises(GapforgeError):
+        firmware.render_capture_helper(32)
+
+
+def test_string_text_is_escaped() -> None:
+    from gapforge.base.errors import GapforgeError
+    from gapforge.outputs.firmware import _string
+
+    assert _string('a "quoted" \\ path??=\n', "x") == 'a \\"quoted\\" \\\\ path\\?\\?=\\n'
+    with pytest.raises(GapforgeError):
+        _string("two\nlines\n", "x")
+
+
+def test_generated_c_has_balanced_comments_and_only_its_declarations() -> None:
+    import re
+
+    for bits in (16, 32, 64):
+        files = render_capture_helper(bits)
+        for text in files.values():
+            assert text.count("/*") == text.count("*/")
+            assert all(" " <= ch <= "~" or ch == "\n" for ch in text)
+        header = files["gapforge_capture_fmt.h"]
+        declared = re.findall(r"^(?:size_t (\w+)\(|typedef \w+ (\w+);)", header, flags=re.M)
+        declared = ["".join(names) for names in declared]
+        assert sorted(declared) == ["gfcap_counter_t", "gfcap_format_edge", "gfcap_format_header",
+                                    "gfcap_format_keepalive"]
+
+
+def test_protocol_2_lines_carry_the_check() -> None:
+    # the C helper's header line for 50 MHz, checked by the Python reader's CRC
+    from gapforge.bench.serial_protocol import Header, checked, parse_line
+
+    line = checked("#GFCAP 2 clock_hz=50000000 counter_bits=16")
+    assert parse_line(line.encode()) == Header(2, 50_000_000, 16)
+    assert "#define GFCAP_PROTOCOL       2u" in render_capture_helper(16)["gapforge_capture_fmt.h"]

@@ -7,8 +7,8 @@ import os
 import subprocess
 import sys
 import threading
-import time
 from pathlib import Path
+from typing import Any
 
 import pytest
 from click.testing import CliRunner
@@ -131,36 +131,69 @@ def test_design_file(tmp_path: Path) -> None:
             assert doc["verdict"] == "fail"
 
 
-@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="pseudo-terminals on Linux")
-def test_serial_over_pty(tmp_path: Path) -> None:
+def _serial_run(monkeypatch: pytest.MonkeyPatch, data: bytes, args: list[str],
+                via_main: bool = False) -> Any:
+    """`measure --serial` on a pseudo-terminal fed `data`. The command empties the port's input
+    buffer when it opens it, so the writer waits until the port is open (signalled from inside
+    open_port, after the flush), never on a sleep."""
     import tty
+
+    from gapforge.bench import serial_stream
 
     master, slave = os.openpty()
     tty.setraw(slave)
     name = os.ttyname(slave)
-    lines = ["#GFCAP 1 clock_hz=1000000000 counter_bits=32"]
-    seq = 0
-    for k in range(30):
-        t = 1000 * k + 500
-        for side, level, at in (("L", 0, t), ("H", 1, t + 25), ("H", 0, t + 400),
-                                ("L", 1, t + 433)):
-            lines.append(f"{side}{level} {at:08X} {seq % 256:02X}")
-            seq += 1
-    data = ("\n".join(lines) + "\n").encode()
+    opened = threading.Event()
+    real_open = serial_stream.open_port
+
+    def open_and_signal(url: str, baud: int) -> object:
+        port = real_open(url, baud)
+        opened.set()
+        return port
+
+    monkeypatch.setattr(serial_stream, "open_port", open_and_signal)
 
     def writer() -> None:
-        time.sleep(0.5)  # let the command open the port
-        os.write(master, data)
+        if opened.wait(timeout=60):
+            os.write(master, data)
 
     thread = threading.Thread(target=writer, daemon=True)
     thread.start()
-    proc = _run(["measure", "--serial", name, "--baud", "2000000", "--count", "60",
-                 "--idle-timeout", "5s", "--window", "20ns:40ns", "--json"])
-    thread.join()
-    os.close(master)
-    os.close(slave)
-    assert proc.returncode == 0, proc.stderr
-    doc = json.loads(proc.stdout)
+    argv = ["measure", "--serial", name, "--baud", "2000000", *args]
+    try:
+        if not via_main:
+            return CliRunner().invoke(cli, argv)
+        from gapforge.cli import main
+
+        with pytest.raises(SystemExit) as stop:
+            main(argv)
+        return stop.value.code
+    finally:
+        thread.join(timeout=60)
+        os.close(master)
+        os.close(slave)
+
+
+def _checked_stream(rows: list[tuple[str, int, int]]) -> bytes:
+    from gapforge.bench.serial_protocol import checked
+
+    lines = [checked("#GFCAP 2 clock_hz=1000000000 counter_bits=32")]
+    lines += [checked(f"{kind} {at:08X} {seq % 256:02X}") for kind, at, seq in rows]
+    return ("\n".join(lines) + "\n").encode()
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="pseudo-terminals on Linux")
+def test_serial_over_pty(monkeypatch: pytest.MonkeyPatch) -> None:
+    rows = []
+    for k in range(30):
+        t = 1000 * k + 500
+        for kind, at in (("L0", t), ("H1", t + 25), ("H0", t + 400), ("L1", t + 433)):
+            rows.append((kind, at, len(rows)))
+    result = _serial_run(monkeypatch, _checked_stream(rows),
+                         ["--count", "60", "--idle-timeout", "20s", "--window", "20ns:40ns",
+                          "--json"])
+    assert result.exit_code == 0, result.output
+    doc = json.loads(result.output)
     # 60 transitions: every to_high and to_low of the 30 periods (120 edges)
     assert doc["stream"]["stop_reason"] == "transition count reached (60)"
     assert doc["stream"]["transitions"] == 60 and doc["stream"]["edges"] == 120
@@ -168,6 +201,33 @@ def test_serial_over_pty(tmp_path: Path) -> None:
     # judged with one 1 ns counter tick: 25 - 1 >= 20 and 33 + 1 <= 40
     assert doc["resolution_s"] == pytest.approx(1e-9) and doc["verdict"] == "pass"
     assert doc["edges"]["to_low"]["min_s"] == pytest.approx(33e-9)
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="pseudo-terminals on Linux")
+def test_serial_reordered_overlap_fails(monkeypatch: pytest.MonkeyPatch) -> None:
+    # issue 14: the high side turns on 100 ns before the low side turns off; the two lines
+    # arrive in interrupt order (later edge first). The old reader read a 4.29 s dead time.
+    rows = [("L0", 100, 0), ("H1", 130, 1), ("H0", 600, 2), ("L1", 640, 3),
+            ("L0", 1100, 4), ("H1", 1000, 5), ("H0", 1600, 6), ("L1", 1640, 7)]
+    result = _serial_run(monkeypatch, _checked_stream(rows),
+                         ["--idle-timeout", "1s", "--window", "20ns:", "--json"])
+    assert result.exit_code == 1, result.output
+    doc = json.loads(result.output)
+    assert doc["overlaps"] == 1 and doc["edges"]["to_high"]["min_s"] == pytest.approx(-100e-9)
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux"), reason="pseudo-terminals on Linux")
+def test_serial_garbage_only_is_an_error(monkeypatch: pytest.MonkeyPatch,
+                                        capsys: pytest.CaptureFixture[str]) -> None:
+    # issue 14: a port sending only garbage used to read until the user gave up
+    from gapforge.bench.serial_stream import GARBAGE_RUN
+
+    code = _serial_run(monkeypatch, b"\x00\xff line noise\n" * (GARBAGE_RUN + 5),
+                       ["--idle-timeout", "30s"], via_main=True)
+    captured = capsys.readouterr()
+    assert code == 2 and captured.out == ""
+    lines = captured.err.strip().splitlines()
+    assert len(lines) == 1 and "undecodable lines in a row" in lines[0]
 
 
 def test_timing_diagram_under_the_tables(tmp_path: Path) -> None:

@@ -1,7 +1,7 @@
 """Benchmark: can the serial reader keep up with 2 Mbaud of edge lines? (a script, not a test)
 
 Run `python tests/benchmarks/bench_serial.py`. At 2 Mbaud with 8N1 framing a link carries
-2,000,000 / 10 = 200,000 bytes/s. The benchmark writes gapforge protocol-1 edge lines as fast as it
+2,000,000 / 10 = 200,000 bytes/s. The benchmark writes gapforge protocol-2 edge lines as fast as it
 can into a pseudo-terminal pair and reads them with `read_serial` on the other end (the real path:
 pyserial, the line decoder, the unwrapping), then checks that every line arrived and reports the
 sustained byte rate as a ratio to the 2 Mbaud line rate. It also times the decoder alone on the
@@ -19,6 +19,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT / "gen"))
 
+from gapforge.bench.serial_protocol import checked  # noqa: E402
 from gapforge.bench.serial_stream import LineDecoder, open_port, read_serial  # noqa: E402
 
 LINE_RATE = 2_000_000 / 10  # bytes/s at 2 Mbaud, 8N1
@@ -27,13 +28,14 @@ PERIODS = 100_000  # 4 edges and 2 transitions each
 
 def stream_bytes() -> bytes:
     """Invented square-wave pair: 1000-count period, 25-count gaps, a 32-bit counter."""
-    lines = [b"#GFCAP 1 clock_hz=100000000 counter_bits=32\n"]
+    lines = [checked("#GFCAP 2 clock_hz=100000000 counter_bits=32").encode() + b"\n"]
     seq = 0
     t = 0
     for _ in range(PERIODS):
         for side, level, dt in ((b"L", b"0", 0), (b"H", b"1", 25), (b"H", b"0", 450), (b"L", b"1", 25)):
             t = (t + dt) & 0xFFFFFFFF
-            lines.append(b"%s%s %08X %02X\n" % (side, level, t, seq))
+            body = f"{side.decode()}{level.decode()} {t:08X} {seq:02X}"
+            lines.append(checked(body).encode() + b"\n")
             seq = (seq + 1) & 0xFF
         t += 500
     return b"".join(lines)

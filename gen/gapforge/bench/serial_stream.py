@@ -1,38 +1,31 @@
-"""Live gate-edge stream from a capture firmware over a serial link (gapforge line protocol v1).
+"""Live gate-edge stream from a capture firmware over a serial link.
 
-The firmware timestamps each gate edge with a free-running timer-capture counter and prints one
-ASCII line per edge (the C helper from `gapforge firmware` formats them)::
-
-    #GFCAP 1 clock_hz=160000000 counter_bits=32      header: protocol 1, counter clock, width
-    H1 0001F4A0 07                                   high side turned on at counter 0x0001F4A0
-    L0 0001F4B8 08                                   low side turned off
-    T 8001F4B8 09                                    keep-alive: no edge, counter now
-
-Edge lines are `<H|L><0|1> <counter, hex> <sequence, 2 hex digits>`; the sequence counts every
-edge and keep-alive line modulo 256, so lost lines are seen. The counter wraps at 2**counter_bits;
-the reader unwraps it, which needs at least one line per wrap period (the keep-alive line exists
-for idle gates). Other lines starting with '#' are comments. Lines end with LF (CR LF is accepted).
-A second header ends the capture (the firmware restarted and its counter is no longer continuous).
+The line protocol (version 2, every line checked) is in `serial_protocol`; putting the lines
+back in time order (the modular counter, the sequence numbers, the reorder buffer) is in
+`serial_order`. This module turns received bytes into a capture (`LineDecoder`) and reads a
+port (`read_serial`).
 
 A transition is one hand-over from one gate to the other (a `to_high` or `to_low` dead time): a
 gate turning on when the last gate to turn on was the other one. As in the measurement, a gate
 whose first report is an off-edge was on before it (so if the other gate turned on first, that
 was a hand-over too). `read_serial(max_transitions=N)` stops right after the edge that completes
 the N-th transition - the on-edge, or, when the hand-over overlaps (the other gate still on),
-the other gate's off-edge - so a capture of clean hand-overs holds exactly N of them.
+the other gate's off-edge - so a capture of clean hand-overs holds exactly N of them. Edges are
+counted as they leave the reorder buffer, in time order.
 
 The measurement takes the stream's resolution as one counter tick: both edges of a gap are
 latched by the same counter, so the gap is known to within one tick.
 
 `read_serial` works with any pyserial URL (`/dev/ttyUSB0`, `loop://`, `socket://host:port`,
-`rfc2217://host:port`) and never raises for what happens on the link: garbage, partial lines,
-timeouts or a port that disappears end the capture with a stated reason and what was measured.
+`rfc2217://host:port`) and never raises for what happens on the link: partial lines, timeouts
+or a port that disappears end the capture with a stated reason and what was measured. A run of
+`GARBAGE_RUN` undecodable lines in a row (a wrong baud rate, another program on the port) ends
+it as `garbage_stop`, which the command reports as an error.
 """
 
 from __future__ import annotations
 
 import contextlib
-import re
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -43,13 +36,22 @@ import numpy as np
 
 from gapforge.base.errors import GapforgeError
 from gapforge.bench.capture import GateCapture, make_capture
+from gapforge.bench.serial_order import CounterClock, ReorderBuffer, SequenceTracker
+from gapforge.bench.serial_protocol import (
+    MAX_LINE,
+    PROTOCOL,
+    Bad,
+    Edge,
+    Header,
+    KeepAlive,
+    Refused,
+    parse_line,
+)
 
-PROTOCOL = 1
-MAX_LINE = 96
+__all__ = ["GARBAGE_RUN", "MAX_LINE", "PROTOCOL", "LineDecoder", "SerialResult", "StreamStatus",
+           "open_port", "read_serial"]
 
-_HEADER = re.compile(rb"^#GFCAP (\d+) clock_hz=(\d+) counter_bits=(\d+)$")
-_EDGE = re.compile(rb"^([HL])([01]) ([0-9A-Fa-f]{1,16}) ([0-9A-Fa-f]{2})$")
-_KEEP = re.compile(rb"^T ([0-9A-Fa-f]{1,16}) ([0-9A-Fa-f]{2})$")
+GARBAGE_RUN = 256  # undecodable lines in a row that end a capture
 
 
 @dataclass
@@ -60,18 +62,61 @@ class StreamStatus:
     edges: int = 0
     transitions: int = 0
     garbage: int = 0
+    corrupt: int = 0  # lines that parsed but failed their check (part of `garbage`)
     partial: int = 0
     lost_lines: int = 0
+    reordered: int = 0
     before_header: int = 0
     clock_hz: int | None = None
     counter_bits: int | None = None
     elapsed_s: float = 0.0
     first_garbage: str = ""
+    garbage_run: int = 0  # undecodable lines in a row, now
+
+
+@dataclass
+class _Transitions:
+    """Counts hand-overs as edges arrive in time order and says when the count is reached."""
+
+    active_low: tuple[bool, bool]
+    stop_after: int | None
+    count: int = 0
+    reached: bool = False
+    _last_on: int | None = None  # the side that turned on last (0 high, 1 low)
+    _last_on_seen: bool = False  # _last_on turned on in the stream (not implied at the start)
+    _on: list[int | None] = field(default_factory=lambda: [None, None])  # None: no edge yet
+    _stop_at_off: int | None = None  # the count is reached: stop when this side turns off
+
+    def edge(self, side: int, level: int) -> None:
+        on = level ^ int(self.active_low[side])
+        other = 1 - side
+        first = self._on[side] is None
+        self._on[side] = on
+        if on:
+            if self._last_on == other:
+                self._one_more(other if self._on[other] == 1 else None)
+            self._last_on, self._last_on_seen = side, True
+        elif first:  # this gate was on since before the stream
+            if self._last_on == other and self._last_on_seen:
+                self._one_more(None)  # the other turned on while this one was still on
+            else:
+                self._last_on, self._last_on_seen = side, False
+        if not on and self._stop_at_off == side:
+            self.reached = True
+
+    def _one_more(self, overlapping: int | None) -> None:
+        """One more hand-over; `overlapping`: the outgoing gate is still on."""
+        self.count += 1
+        if self.stop_after is not None and self.count == self.stop_after:
+            if overlapping is None:
+                self.reached = True
+            else:
+                self._stop_at_off = overlapping
 
 
 @dataclass
 class LineDecoder:
-    """Turns received bytes into unwrapped edge times. Pure: no I/O, fed by `feed`.
+    """Turns received bytes into edge times in time order. Pure: no I/O, fed by `feed`.
 
     `active_low` (high side, low side) is used only to count transitions; `stop_after` stops
     the decoder right after the edge that completes that many transitions."""
@@ -83,23 +128,25 @@ class LineDecoder:
     channels: list[int] = field(default_factory=list)  # 0 = high side, 1 = low side
     levels: list[int] = field(default_factory=list)
     stopped: str | None = None
+    garbage_stop: bool = False  # stopped by a run of undecodable lines
     _pending: bytes = b""
-    _last_counter: int | None = None
-    _now: int = 0
-    _seq: int | None = None
-    _last_on: int | None = None  # the side that turned on last (0 high, 1 low)
-    _last_on_seen: bool = False  # _last_on turned on in the stream (not implied at the start)
-    _on: list[int | None] = field(default_factory=lambda: [None, None])  # None: no edge yet
-    _stop_at_off: int | None = None  # the count is reached: stop when this side turns off
+    _clock: CounterClock | None = None
+    _seq: SequenceTracker = field(default_factory=SequenceTracker)
+    _order: ReorderBuffer = field(default_factory=ReorderBuffer)
+    _count: _Transitions | None = None
+
+    def __post_init__(self) -> None:
+        self._count = _Transitions(self.active_low, self.stop_after)
+
+    # -- bytes to lines ---------------------------------------------------------------------
 
     def feed(self, data: bytes) -> None:
         if self.stopped:
             return
-        buffer = self._pending + data
-        lines = buffer.split(b"\n")
+        lines = (self._pending + data).split(b"\n")
         self._pending = lines.pop()
         if len(self._pending) > MAX_LINE:
-            self._garbage(self._pending[:40])
+            self._undecodable(self._pending[:40], corrupt=False)
             self._pending = b""
         for raw in lines:
             self._line(raw.rstrip(b"\r"))
@@ -108,134 +155,146 @@ class LineDecoder:
                 return
 
     def finish(self) -> None:
-        """End of input: a line without its end is a partial line."""
+        """End of input: a line without its end is a partial line; held edges are released."""
         if self._pending.strip():
             self.status.partial += 1
         self._pending = b""
+        self._release(self._order.flush())
 
-    def _garbage(self, raw: bytes) -> None:
-        self.status.garbage += 1
-        if not self.status.first_garbage:
-            self.status.first_garbage = raw[:40].decode("ascii", "replace")
+    def settle(self) -> None:
+        """Release the edges held for reordering (the link went quiet)."""
+        if not self.stopped:
+            self._release(self._order.flush())
+
+    # -- one line ---------------------------------------------------------------------------
 
     def _line(self, raw: bytes) -> None:
         line = raw.strip()
         if not line:
             return
         self.status.lines += 1
-        if line.startswith(b"#GFCAP"):
-            self._header(line)
+        if len(line) > MAX_LINE:
+            self._undecodable(line, corrupt=False)
             return
-        if line.startswith(b"#"):
+        parsed = parse_line(line)
+        if isinstance(parsed, Bad):
+            self._undecodable(line, parsed.corrupt)
             return
-        edge = _EDGE.match(line)
-        keep = _KEEP.match(line) if edge is None else None
-        if edge is None and keep is None:
-            self._garbage(line)
+        self.status.garbage_run = 0
+        if isinstance(parsed, Header):
+            self._header(parsed)
+        elif isinstance(parsed, Refused):
+            self._stop(parsed.reason, keep=True)
+        elif isinstance(parsed, (Edge, KeepAlive)):
+            self._counted(parsed)
+
+    def _undecodable(self, raw: bytes, corrupt: bool) -> None:
+        self.status.garbage += 1
+        self.status.corrupt += int(corrupt)
+        self.status.garbage_run += 1
+        if not self.status.first_garbage:
+            self.status.first_garbage = raw[:40].decode("ascii", "replace")
+        if self.status.garbage_run >= GARBAGE_RUN:
+            self.garbage_stop = True
+            self._stop(f"{GARBAGE_RUN} undecodable lines in a row (first undecodable line: "
+                       f"{self.status.first_garbage!r}); wrong baud rate, or not a gapforge "
+                       f"capture stream (protocol {PROTOCOL})?", keep=True)
+
+    def _header(self, header: Header) -> None:
+        if self.status.clock_hz is not None:
+            self._stop("a second header arrived (the capture firmware restarted)", keep=True)
             return
-        if self.status.clock_hz is None:
+        self.status.clock_hz = header.clock_hz
+        self.status.counter_bits = header.counter_bits
+        self._clock = CounterClock(header.counter_bits)
+
+    def _counted(self, line: Edge | KeepAlive) -> None:
+        """An edge or keep-alive line: sequence, time, then (edges) the reorder buffer."""
+        if self._clock is None:
             self.status.before_header += 1
             return
-        if edge is not None:
-            counter, seq = int(edge.group(3), 16), int(edge.group(4), 16)
-        else:
-            assert keep is not None
-            counter, seq = int(keep.group(1), 16), int(keep.group(2), 16)
-        bits = self.status.counter_bits or 32
-        if counter >> bits:
-            self._garbage(line)
+        if line.counter >> self._clock.bits:
+            self._undecodable(b"counter wider than counter_bits", corrupt=True)
             return
-        if self._seq is not None:
-            self.status.lost_lines += (seq - self._seq - 1) % 256
-        self._seq = seq
-        if self._last_counter is None:
-            self._now = counter
-        else:
-            self._now += (counter - self._last_counter) % (1 << bits)
-        self._last_counter = counter
-        if edge is not None:
-            side, level = (0 if edge.group(1) == b"H" else 1), int(edge.group(2))
-            self.times.append(self._now)
+        self._seq.see(line.seq)
+        self.status.lost_lines = self._seq.lost + self._order.unplaced
+        at = self._clock.place(line.counter)
+        if isinstance(line, Edge):
+            self._release(self._order.push(at, line.side, line.level))
+            self.status.reordered = self._order.reordered
+            self.status.lost_lines = self._seq.lost + self._order.unplaced
+
+    # -- edges in time order ----------------------------------------------------------------
+
+    def _release(self, edges: list[tuple[int, int, int]]) -> None:
+        assert self._count is not None
+        for at, side, level in edges:
+            if self._count.reached:
+                return  # the capture ends at the edge that reached the count
+            self.times.append(at)
             self.channels.append(side)
             self.levels.append(level)
             self.status.edges += 1
-            self._count_transition(side, level ^ int(self.active_low[side]))
+            self._count.edge(side, level)
+            self.status.transitions = self._count.count
+            if self._count.reached:
+                self._stop(f"transition count reached ({self.stop_after})", keep=False)
+                return
 
-    def _count_transition(self, side: int, on: int) -> None:
-        other = 1 - side
-        first = self._on[side] is None
-        self._on[side] = on
-        if on:
-            if self._last_on == other:
-                self._transition(other if self._on[other] == 1 else None)
-            self._last_on, self._last_on_seen = side, True
-        elif first:  # this gate was on since before the stream
-            if self._last_on == other and self._last_on_seen:
-                self._transition(None)  # the other turned on while this one was still on
-            else:
-                self._last_on, self._last_on_seen = side, False
-        if not on and self._stop_at_off == side:
-            self.stopped = f"transition count reached ({self.stop_after})"
+    def _stop(self, reason: str, *, keep: bool) -> None:
+        """Stop reading; `keep`: the edges held back are valid and released, else dropped."""
+        if self.stopped is None:
+            self.stopped = reason
+        if keep:
+            self._release(self._order.flush())
+        else:
+            self._order.drop()
 
-    def _transition(self, overlapping: int | None) -> None:
-        """One more hand-over; `overlapping`: the outgoing gate is still on."""
-        self.status.transitions += 1
-        if self.stop_after is not None and self.status.transitions == self.stop_after:
-            if overlapping is None:
-                self.stopped = f"transition count reached ({self.stop_after})"
-            else:
-                self._stop_at_off = overlapping
-
-    def _header(self, line: bytes) -> None:
-        match = _HEADER.match(line)
-        if match is None:
-            self._garbage(line)
-            return
-        version, clock, bits = (int(g) for g in match.groups())
-        if self.status.clock_hz is not None:
-            self.stopped = "a second header arrived (the capture firmware restarted)"
-            return
-        if version != PROTOCOL or clock <= 0 or not 8 <= bits <= 64:
-            self.stopped = (
-                f"unsupported header (protocol {version}, clock_hz {clock}, counter_bits {bits}); "
-                f"expected protocol {PROTOCOL}, clock_hz > 0, counter_bits 8..64"
-            )
-            return
-        self.status.clock_hz = clock
-        self.status.counter_bits = bits
+    # -- the result -------------------------------------------------------------------------
 
     def capture(
         self, source: str, *, active_low_high: bool = False, active_low_low: bool = False
     ) -> GateCapture | None:
-        """The edges so far as a capture (None before a header arrived)."""
+        """The edges so far as a capture (None before a header arrived); releases the edges
+        held for reordering."""
         if self.status.clock_hz is None:
             return None
+        self._release(self._order.flush())
         t = np.asarray(self.times, dtype=np.int64)
         ch = np.asarray(self.channels, dtype=np.uint8)
         lv = np.asarray(self.levels, dtype=np.uint8)
-        warnings: list[str] = []
-        if self.status.lost_lines:
-            warnings.append(f"{self.status.lost_lines} line(s) lost (sequence gaps)")
-        if self.status.garbage:
-            warnings.append(
-                f"{self.status.garbage} garbage line(s) skipped (first: {self.status.first_garbage!r})"
-            )
-        if self.status.partial:
-            warnings.append(f"{self.status.partial} partial line(s) at the end")
         high, low = ch == 0, ch == 1
+        latest = self._clock.latest if self._clock is not None else None
         return make_capture(
             Fraction(1, self.status.clock_hz),
             (t[high], lv[high]),
             (t[low], lv[low]),
-            end=self._now,
+            end=latest or 0,
             source=source,
             active_low_high=active_low_high,
             active_low_low=active_low_low,
-            warnings=tuple(warnings),
+            warnings=self._warnings(),
             edges_only=True,
             resolution_ticks=1,  # one counter tick
             lost_events=self.status.lost_lines,
         )
+
+    def _warnings(self) -> tuple[str, ...]:
+        s = self.status
+        warnings: list[str] = []
+        if s.lost_lines:
+            warnings.append(f"{s.lost_lines} line(s) lost (sequence gaps, or edges that arrived "
+                            "too late to put in time order)")
+        if s.reordered:
+            warnings.append(f"{s.reordered} edge line(s) arrived out of time order and were put "
+                            "in place")
+        if s.garbage:
+            corrupt = f", {s.corrupt} failing their check" if s.corrupt else ""
+            warnings.append(f"{s.garbage} undecodable line(s) skipped{corrupt} "
+                            f"(first: {s.first_garbage!r})")
+        if s.partial:
+            warnings.append(f"{s.partial} partial line(s) at the end")
+        return tuple(warnings)
 
 
 @dataclass(frozen=True)
@@ -243,6 +302,7 @@ class SerialResult:
     capture: GateCapture | None
     status: StreamStatus
     stop_reason: str
+    garbage_stop: bool = False  # ended by a run of undecodable lines: an error, not a capture
 
 
 def open_port(url: str, baud: int) -> Any:
@@ -298,7 +358,14 @@ def read_serial(
                 if decoder.stopped:
                     reason = decoder.stopped
                     break
-            elif time.monotonic() - last_data >= idle_timeout_s:
+            else:
+                # a quiet link: the edges held for reordering go out (a late line older than
+                # them would count as lost, never be misplaced)
+                decoder.settle()
+                if decoder.stopped:
+                    reason = decoder.stopped
+                    break
+            if not data and time.monotonic() - last_data >= idle_timeout_s:
                 reason = f"no data for {idle_timeout_s:g} s (timeout)"
                 break
             if progress is not None and time.monotonic() - last_progress >= 0.2:
@@ -311,8 +378,10 @@ def read_serial(
             with contextlib.suppress(Exception):
                 link.close()
     decoder.finish()
+    if decoder.stopped:  # the count may be reached by the edges released at the end
+        reason = decoder.stopped
     decoder.status.elapsed_s = time.monotonic() - start
     if progress is not None:
         progress(decoder.status)
     capture = decoder.capture(url, active_low_high=active_low_high, active_low_low=active_low_low)
-    return SerialResult(capture, decoder.status, reason)
+    return SerialResult(capture, decoder.status, reason, decoder.garbage_stop)

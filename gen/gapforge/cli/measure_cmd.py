@@ -129,6 +129,8 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
         )
         if sys.stderr.isatty():
             click.echo("", err=True)
+        if stream.garbage_stop:
+            raise GapforgeError(stream.stop_reason, serial_url)
         if stream.capture is None:
             raise GapforgeError(
                 f"no capture header received ({stream.status.lines} lines, stopped: "
