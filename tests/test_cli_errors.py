@@ -107,6 +107,44 @@ DESIGNS: dict[str, tuple[str | bytes, str]] = {
                     "TOML syntax error: Expected ']]' at the end of an array declaration "
                     "(at line 15, column 9)"),
     "not-utf8": (b"format = 1\n# \xff\xfe\n", "not UTF-8 text (byte 13)"),
+    # issue 9, section 3: a bare number meant something else; issue 14: hostile files
+    "dead-time-bare": (BASE.replace('"25ns"', '"400"'),
+                       "dead_time.value: 400 what? did you mean 400ns? (a bare number is refused "
+                       "here)"),
+    "dead-time-bare-toml-number": (BASE.replace('"25ns"', "25"),
+                                   "dead_time.value: 25 what? did you mean 25ns? (a bare number "
+                                   "is refused here)"),
+    "tolerance-bare": (BASE.replace('"50ppm"', '"2"'),
+                       "timer.tolerance: 2 what? did you mean 2%? (a tolerance needs %, ppm or "
+                       "ppb)"),
+    "clock-milli-hertz-mixed-case": (BASE.replace('"160MHz"', '"160mHZ"'),
+                                     "timer.clock: '160mHZ': 'm' means milli; write M for mega "
+                                     "(e.g. 160MHz)"),
+    "dead-time-siemens": (BASE.replace('"25ns"', '"1.2uS"'),
+                          "dead_time.value: '1.2uS': S is siemens; seconds are a lower-case s "
+                          "(e.g. 1.2us)"),
+    "nested-arrays": (BASE + "x = " + "[" * 600 + "]" * 600 + "\n",
+                      "TOML nesting too deep to read"),
+    "integer-too-long": (BASE.replace('"160MHz"', "1" * 5000),
+                         "a number in it has too many digits to read"),
+    "clock-400-digits": (BASE.replace('"160MHz"', "1" * 400),
+                         "timer.clock: 1111111111111111111111111111111111111... (400 characters) "
+                         "is out of range (at most 1e30)"),
+    "clock-long-text": (BASE.replace('"160MHz"', '"' + "9" * 20000 + '"'),
+                        "timer.clock: '" + "9" * 36 + "... (20000 "
+                        "characters) is too long for a quantity (at most 64 characters)"),
+    "too-big": (BASE + "# " + "x" * 40_000 + "\n",
+                f"is {len(BASE) + 40_003} bytes, above the 32 KiB cap for a TOML file"),
+    "target-name-300": (BASE.replace('"split-9bit-subclock"', '"' + "a" * 300 + '"'),
+                        "output[0].target: no built-in layout named '" + "a" * 36 + "... "
+                        "(300 characters) (names are at most 64 characters; or give "
+                        "a path to a .toml layout file)"),
+    "layout-device": (BASE.replace('"split-9bit-subclock"', '"/dev/zero"'),
+                      "output[0].target: /dev/zero: is not a regular file (a device, FIFO or "
+                      "socket?)"),
+    "layout-fifo": (BASE.replace('"split-9bit-subclock"', '"fifo.toml"'),
+                    "output[0].target: {dir}/fifo.toml: is not a regular file (a device, FIFO "
+                    "or socket?)"),
     "layout-file-missing": (BASE.replace('"split-9bit-subclock"', '"nosuch.toml"'),
                             "output[0].target: {dir}/nosuch.toml: file not found"),
     "layout-file-bad": (BASE.replace('"split-9bit-subclock"', '"bad-layout.toml"'),
@@ -138,6 +176,7 @@ def test_bad_design_file(case: str, tmp_path: Path) -> None:
     else:
         design.write_text(text, encoding="utf-8")
     (tmp_path / "bad-layout.toml").write_text(BAD_LAYOUT)
+    os.mkfifo(tmp_path / "fifo.toml")  # reading it would hang: it must be refused unopened
     (tmp_path / "dt.h").write_text(SENTINEL)
     (tmp_path / "dt2.h").write_text(SENTINEL)
     before = _snapshot(tmp_path)

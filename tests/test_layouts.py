@@ -328,3 +328,42 @@ def test_targets_show_gives_each_edge_its_own_range_and_lists_reserved_codes(tmp
     assert edges["to_low"]["min_s"] == pytest.approx(10e-9, rel=1e-12)
     code, out, _ = run_cli(["targets", "show", str(path)])
     assert "reserved 0, 15" in out
+
+
+def _many_segments(width: int, bits: int) -> str:
+    low = 1 << (width - bits)
+    # each range continues the last: base_k = k x low (steps = code), a linear code in disguise
+    ranges = ", ".join(
+        f"{{select = {k}, base = {k * low}, multiplier = 1}}" for k in range(1 << bits)
+    )
+    return HEAD.replace("register_bits = 16", "register_bits = 32") + _seg(width, bits, ranges)
+
+
+@pytest.mark.parametrize("bits", [10, 12])
+def test_a_layout_with_thousands_of_ranges_is_refused_by_name(bits: int, tmp_path: Path) -> None:
+    # issue 14 item 15: 1024 ranges took 17 s to fit (a linear search per code), 4096 took 65 s.
+    # Such a file is above the TOML size cap; the range cap holds for the parsed data too.
+    import tomllib
+
+    from gapforge.timer.layouts import parse_layout
+
+    text = _many_segments(16, bits)
+    path = tmp_path / "many.toml"
+    path.write_text(text)
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
+    assert "above the 32 KiB cap" in info.value.line()
+    with pytest.raises(GapforgeError) as info:
+        parse_layout(tomllib.loads(text), text.encode(), "many.toml", "many")
+    assert f"{1 << bits} ranges: at most 64" in info.value.line()
+
+
+def test_the_largest_allowed_segmented_layout_decodes_by_arithmetic(tmp_path: Path) -> None:
+    # 64 ranges over a 16-bit code: steps = code exactly (each range continues the last), so the
+    # table must be the identity, whatever order the ranges are listed in
+    path = tmp_path / "wide.toml"
+    path.write_text(_many_segments(16, 6))
+    f = load_layout(str(path)).field_named("gap")
+    steps, codes = f.table
+    assert steps == codes == tuple(range(1 << 16))
+    assert f.decode(0xFFFF) == 0xFFFF and f.decode(0x0400) == 0x0400

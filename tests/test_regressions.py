@@ -165,3 +165,46 @@ def test_issue4_sweep_refuses_a_pwm_other_than_the_designs() -> None:
     code, _, err = run_cli(["sweep", "--design", str(EXAMPLES / "gan-buck.toml"), "--pwm",
                             "400kHz", "--clocks", "160MHz"])
     assert code == 2 and err.startswith("gapforge: error: --pwm: ")
+
+
+def test_issue9_a_byte_order_mark_at_the_start_of_a_design_is_read(tmp_path: Path) -> None:
+    # editors on some systems save UTF-8 with a BOM (U+FEFF, the Unicode standard, section 23.8)
+    design = tmp_path / "d.toml"
+    design.write_bytes(b"\xef\xbb\xbf" + DESIGN.encode())
+    code, out, err = run_cli(["build", str(design), "--json"])
+    assert code == 0, err
+    assert json.loads(out)["verdict"] == "ok"
+
+
+def test_issue9_tolerances_accept_the_plus_minus_forms(tmp_path: Path) -> None:
+    for form in ("\u00b150ppm", "+/-50ppm"):
+        design = tmp_path / "d.toml"
+        design.write_text(DESIGN.replace('"50ppm"', f'"{form}"'), encoding="utf-8")
+        code, out, err = run_cli(["build", str(design), "--json"])
+        assert code == 0, err
+        assert json.loads(out)["clock_tol"] == 50e-6
+
+
+def test_issue9_every_caution_names_transitions_temperature_and_load_current() -> None:
+    from gapforge.base import caution
+
+    words = "on every transition, over temperature and load current"
+    assert words in caution.TEXT
+    # `targets show` prints dead-time ranges: it carries the caution too (text and JSON)
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div4", "--clock", "100MHz"])
+    assert code == 0 and words in out
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div4", "--json"])
+    assert code == 0 and words in json.loads(out)["caution"]
+
+
+def test_issue9_a_gan_vsd_measured_at_the_gate_off_bias_gets_it_added_once() -> None:
+    # reverse voltage = vsd + |gate_off| for a vsd read at 0 V gate (common practice for GaN
+    # third-quadrant conduction); a vsd measured at -3 V gate already holds the 3 V
+    base = ["window", "--td-off", "10ns", "--td-on", "2ns", "--kind", "gan", "--vsd", "5V",
+            "--gate-off", "-3V", "--current", "10A", "--fsw", "100kHz", "--json"]
+    code, out, err = run_cli(base)
+    assert code == 0, err
+    assert json.loads(out)["costs"]["reverse_voltage_v"] == 8.0
+    code, out, err = run_cli([*base, "--vsd-at-gate-off"])
+    assert code == 0, err
+    assert json.loads(out)["costs"]["reverse_voltage_v"] == 5.0

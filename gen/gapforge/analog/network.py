@@ -190,7 +190,9 @@ def parse_diode(text: object, where: str) -> DiodeModel:
         value = value.strip()
         if attr == "tnom" and value[-1:].upper() == "C":
             value = value[:-1]
-        number = parse_quantity(value, unit, where, allow_zero=allow_zero, allow_negative=negative)
+        number = parse_quantity(  # a model card takes bare numbers in base units (SPICE syntax)
+            value, unit, where, allow_zero=allow_zero, allow_negative=negative, allow_bare=True
+        )
         values[attr] = float(number)
     model = replace(SPICE_DIODE_DEFAULTS, **values)
     if not 0.0 < model.m < 1.0:

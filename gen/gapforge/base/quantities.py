@@ -11,7 +11,7 @@ import math
 import re
 from fractions import Fraction
 
-from gapforge.base.errors import GapforgeError
+from gapforge.base.errors import GapforgeError, quoted
 
 # SI prefixes accepted on input. 'M' is mega and 'm' is milli; 'meg' is accepted for mega too.
 PREFIXES: dict[str, Fraction] = {
@@ -88,6 +88,17 @@ def _split_suffix(suffix: str, unit: str) -> Fraction | None:
     return None
 
 
+# Kinds where a bare number is almost never meant in the base unit ("400" for 400 ns, not 400 s):
+# a bare non-zero number is refused with a hint naming the unit probably meant.
+BARE_REFUSED: dict[str, str] = {"s": "ns", "F": "pF", "C": "nC"}
+# Prefixes refused for those kinds: mega and above are almost surely a typo (in SPICE, M is milli).
+_LARGE_PREFIXES = ("M", "meg", "G", "T")
+# Longest quantity text read (a datasheet value is a few characters); larger magnitudes are out
+# of range for every quantity this program reads.
+MAX_TEXT = 64
+MAX_MAGNITUDE = Fraction(10**30)
+
+
 def parse_quantity(
     text: object,
     unit: str,
@@ -95,37 +106,59 @@ def parse_quantity(
     *,
     allow_zero: bool = False,
     allow_negative: bool = False,
+    allow_bare: bool = False,
 ) -> Fraction:
     """Parse engineering notation exactly: '160MHz', '160e6', '6.25ns', '4.7k', '100p'.
 
     `unit` names the kind ('s', 'Hz', 'ohm', 'F', 'V', 'A', 'W', 'C' for coulomb,
     '' for a plain number). Numbers in TOML files (int or float) are accepted too; a float is taken
-    by its shortest decimal text, which is what the user wrote.
+    by its shortest decimal text, which is what the user wrote. A bare non-zero number is refused
+    for times, capacitances and charges (see BARE_REFUSED); the magnitude of every value is
+    checked after parsing (at most 1e30, at least 1e-30 unless zero). `allow_bare` is for text
+    whose own syntax takes bare numbers in base units (a SPICE model card).
     """
     if isinstance(text, bool):
         raise GapforgeError(
             f"expected a quantity in {unit or 'plain numbers'}, got {text!r}", where
         )
+    bare = True
     if isinstance(text, int):
+        if text.bit_length() > 128:
+            raise GapforgeError(f"{quoted(text)} is out of range (at most 1e30)", where)
         value = Fraction(text)
     elif isinstance(text, float):
         if not math.isfinite(text):
             raise GapforgeError(f"{text!r} is not a finite number", where)
         value = Fraction(repr(text))
     elif isinstance(text, str):
-        value = _parse_text(text, unit, where)
+        value, bare = _parse_text(text, unit, where)
     else:
         raise GapforgeError(
-            f"expected a quantity in {unit or 'plain numbers'}, got {text!r}", where
+            f"expected a quantity in {unit or 'plain numbers'}, got {quoted(text)}", where
         )
+    if value != 0 and not Fraction(1) / MAX_MAGNITUDE <= abs(value) <= MAX_MAGNITUDE:
+        raise GapforgeError(f"{quoted(text)} is out of range (1e-30 .. 1e30 in magnitude)", where)
+    if bare and not allow_bare and value != 0 and unit in BARE_REFUSED:
+        shown = str(text).strip()
+        hint = (
+            f"did you mean {shown}{BARE_REFUSED[unit]}?"
+            if abs(value) >= 1
+            else f"write the unit, e.g. {shown}{unit}"
+        )
+        raise GapforgeError(f"{shown} what? {hint} (a bare number is refused here)", where)
     if value < 0 and not allow_negative:
-        raise GapforgeError(f"{text!r} must not be negative", where)
+        raise GapforgeError(f"{quoted(text)} must not be negative", where)
     if value == 0 and not allow_zero:
-        raise GapforgeError(f"{text!r} must be greater than zero", where)
+        raise GapforgeError(f"{quoted(text)} must be greater than zero", where)
     return value
 
 
-def _parse_text(text: str, unit: str, where: str) -> Fraction:
+def _parse_text(text: str, unit: str, where: str) -> tuple[Fraction, bool]:
+    """The value of a quantity's text, and whether it was a bare number (no unit, no prefix)."""
+    if len(text) > MAX_TEXT:
+        raise GapforgeError(
+            f"{quoted(text)} is too long for a quantity (at most {MAX_TEXT} characters)", where
+        )
     stripped = text.strip()
     low = stripped.lower()
     if low.lstrip("+-") in ("nan", "inf", "infinity"):
@@ -134,8 +167,7 @@ def _parse_text(text: str, unit: str, where: str) -> Fraction:
     if not match:
         raise GapforgeError(f"{text!r} is not a number with an optional unit", where)
     number, suffix = match.groups()
-    if unit == "Hz" and suffix in ("m", "mhz", "mHz"):
-        raise GapforgeError(f"{text!r}: 'm' means milli; write M for mega (e.g. 160MHz)", where)
+    _check_case(text, suffix, unit, where)
     exponent = re.search(r"[eE]([+-]?\d+)$", number)
     if exponent and abs(int(exponent.group(1))) > 30:
         raise GapforgeError(f"the exponent in {text!r} is out of range (at most 1e30)", where)
@@ -145,30 +177,61 @@ def _parse_text(text: str, unit: str, where: str) -> Fraction:
         raise GapforgeError(
             f"unknown unit {suffix!r} in {text!r} (expected an SI prefix and {expected})", where
         )
-    return Fraction(number) * multiplier
+    return Fraction(number) * multiplier, suffix == ""
+
+
+def _check_case(text: str, suffix: str, unit: str, where: str) -> None:
+    """Refuse unit spellings whose letter case more likely hides a typo than a meaning."""
+    if unit == "Hz" and suffix[:1] == "m" and suffix.lower() in ("m", "mhz"):
+        # 'mHz', 'mHZ', 'mhz', 'mhZ', 'm': milli-hertz is never a timer or PWM frequency
+        raise GapforgeError(f"{text!r}: 'm' means milli; write M for mega (e.g. 160MHz)", where)
+    if unit == "s" and suffix.endswith("S"):
+        raise GapforgeError(
+            f"{text!r}: S is siemens; seconds are a lower-case s (e.g. 1.2us)", where
+        )
+    if unit in BARE_REFUSED:
+        head = suffix[: -len(unit)] if suffix.lower().endswith(unit.lower()) else suffix
+        if head in _LARGE_PREFIXES or head.lower() == "meg":
+            raise GapforgeError(
+                f"{text!r}: {head!r} is mega or more here, almost surely a typo "
+                "(SPICE reads M as milli): write m for milli, u for micro",
+                where,
+            )
 
 
 def parse_tolerance(text: object, where: str, *, limit: Fraction = Fraction(1)) -> Fraction:
-    """A relative tolerance: '50ppm', '2%', '0.02'. Returns a fraction of one (0.02 for 2 %)."""
-    if isinstance(text, bool):
-        raise GapforgeError(f"expected a tolerance such as '50ppm' or '2%', got {text!r}", where)
-    if isinstance(text, int | float):
-        value = parse_quantity(text, "", where, allow_zero=True)
-    elif isinstance(text, str):
-        s = text.strip()
-        low = s.lower()
-        if low.endswith("ppm"):
-            value = parse_quantity(s[:-3], "", where, allow_zero=True) / 10**6
-        elif low.endswith("ppb"):
-            value = parse_quantity(s[:-3], "", where, allow_zero=True) / 10**9
-        elif s.endswith("%"):
-            value = parse_quantity(s[:-1], "", where, allow_zero=True) / 100
-        else:
-            value = parse_quantity(s, "", where, allow_zero=True)
+    """A relative tolerance: '50ppm', '2%', '±2%', '+/-2%', '50ppb'. Returns a fraction of one
+    (0.02 for 2 %). A bare non-zero number is refused ('2' is more likely 2 % than 200 %)."""
+    if isinstance(text, bool) or not isinstance(text, int | float | str):
+        raise GapforgeError(
+            f"expected a tolerance such as '50ppm' or '2%', got {quoted(text)}", where
+        )
+    s = str(text).strip() if not isinstance(text, str) else text.strip()
+    if len(s) > MAX_TEXT:
+        raise GapforgeError(
+            f"{quoted(s)} is too long for a tolerance (at most {MAX_TEXT} characters)", where
+        )
+    for sign in ("\u00b1", "+/-", "+-"):
+        if s.startswith(sign):
+            s = s[len(sign) :].strip()
+            break
+    low = s.lower()
+    if low.endswith("ppm"):
+        value = parse_quantity(s[:-3], "", where, allow_zero=True) / 10**6
+    elif low.endswith("ppb"):
+        value = parse_quantity(s[:-3], "", where, allow_zero=True) / 10**9
+    elif s.endswith("%"):
+        value = parse_quantity(s[:-1], "", where, allow_zero=True) / 100
     else:
-        raise GapforgeError(f"expected a tolerance such as '50ppm' or '2%', got {text!r}", where)
+        value = parse_quantity(text if not isinstance(text, str) else s, "", where, allow_zero=True)
+        if value != 0:
+            raise GapforgeError(
+                f"{s} what? did you mean {s}%? (a tolerance needs %, ppm or ppb)", where
+            )
     if value >= limit:
-        raise GapforgeError(f"tolerance {text!r} must be below {format_tolerance(limit)}", where)
+        raise GapforgeError(
+            f"tolerance {quoted(text)} must be below {format_tolerance(limit)}", where
+        )
     return value
 
 

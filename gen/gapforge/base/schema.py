@@ -15,28 +15,64 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
-from gapforge.base.errors import GapforgeError
+from gapforge.base.errors import GapforgeError, quoted
 from gapforge.base.quantities import parse_quantity, parse_tolerance
+
+# Designs and layouts are a few kilobytes; the cap keeps a hostile file from costing seconds (the
+# standard TOML parser is quadratic on long dotted headers) or memory (a device file never ends).
+MAX_TOML_BYTES = 32 * 1024
 
 
 def load_toml(path: Path) -> tuple[dict[str, Any], bytes]:
-    """The parsed table and the raw bytes (for provenance hashes) of a TOML file."""
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise GapforgeError("file not found", str(path)) from None
-    except IsADirectoryError:
-        raise GapforgeError("is a directory, expected a TOML file", str(path)) from None
-    except OSError as exc:
-        raise GapforgeError(f"cannot read: {exc.strerror}", str(path)) from None
+    """The parsed table and the raw bytes (for provenance hashes) of a TOML file.
+
+    Only a regular file is read (never a device, a FIFO or a socket), at most MAX_TOML_BYTES. A
+    UTF-8 byte-order mark at the start is skipped.
+    """
+    raw = _read_regular(path, MAX_TOML_BYTES)
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
         raise GapforgeError(f"not UTF-8 text (byte {exc.start})", str(path)) from None
+    text = text.removeprefix("\ufeff")
     try:
         return tomllib.loads(text), raw
     except tomllib.TOMLDecodeError as exc:
         raise GapforgeError(f"TOML syntax error: {exc}", str(path)) from None
+    except RecursionError:
+        raise GapforgeError("TOML nesting too deep to read", str(path)) from None
+    except ValueError:  # an integer beyond Python's digit limit
+        raise GapforgeError("a number in it has too many digits to read", str(path)) from None
+
+
+def _read_regular(path: Path, limit: int) -> bytes:
+    """The bytes of a regular file of at most `limit` bytes, or one clear GapforgeError."""
+    import os
+    import stat
+
+    where = str(path)
+    try:
+        info = os.stat(path)
+        if stat.S_ISDIR(info.st_mode):
+            raise GapforgeError("is a directory, expected a TOML file", where)
+        if not stat.S_ISREG(info.st_mode):
+            raise GapforgeError("is not a regular file (a device, FIFO or socket?)", where)
+        if info.st_size > limit:
+            raise GapforgeError(
+                f"is {info.st_size} bytes, above the {limit // 1024} KiB cap for a TOML file", where
+            )
+        with open(path, "rb") as handle:
+            raw = handle.read(limit + 1)
+    except FileNotFoundError:
+        raise GapforgeError("file not found", where) from None
+    except IsADirectoryError:
+        raise GapforgeError("is a directory, expected a TOML file", where) from None
+    except (OSError, ValueError) as exc:  # ValueError: a NUL byte in the path
+        reason = exc.strerror if isinstance(exc, OSError) and exc.strerror else str(exc)
+        raise GapforgeError(f"cannot read: {reason}", where) from None
+    if len(raw) > limit:
+        raise GapforgeError(f"is above the {limit // 1024} KiB cap for a TOML file", where)
+    return raw
 
 
 class Reader:
@@ -125,14 +161,14 @@ class Table:
                 return ""
             return default
         if not isinstance(value, str):
-            self.reader.problem(self.key_path(key), f"expected a string, got {value!r}")
+            self.reader.problem(self.key_path(key), f"expected a string, got {quoted(value)}")
             return default or ""
         if choices and value not in choices:
             hint = difflib.get_close_matches(value, choices, n=1)
             suggestion = f"; did you mean '{hint[0]}'?" if hint else ""
             self.reader.problem(
                 self.key_path(key),
-                f"{value!r} is not one of {', '.join(choices)}{suggestion}",
+                f"{quoted(value)} is not one of {', '.join(choices)}{suggestion}",
             )
             return default or choices[0]
         return value
@@ -147,18 +183,18 @@ class Table:
                 return lo if lo is not None else 0
             return default
         if isinstance(value, bool) or not isinstance(value, int):
-            self.reader.problem(self.key_path(key), f"expected an integer, got {value!r}")
+            self.reader.problem(self.key_path(key), f"expected an integer, got {quoted(value)}")
             return default if default is not None else (lo or 0)
         if (lo is not None and value < lo) or (hi is not None and value > hi):
             span = f"{lo if lo is not None else '-inf'}..{hi if hi is not None else 'inf'}"
-            self.reader.problem(self.key_path(key), f"{value} is outside {span}")
+            self.reader.problem(self.key_path(key), f"{quoted(value)} is outside {span}")
             return default if default is not None else (lo or 0)
         return value
 
     def boolean(self, key: str, default: bool) -> bool:
         value = self.data.get(key, default)
         if not isinstance(value, bool):
-            self.reader.problem(self.key_path(key), f"expected true or false, got {value!r}")
+            self.reader.problem(self.key_path(key), f"expected true or false, got {quoted(value)}")
             return default
         return value
 
@@ -212,6 +248,6 @@ class Table:
         if not isinstance(value, list) or not all(
             isinstance(v, int) and not isinstance(v, bool) for v in value
         ):
-            self.reader.problem(self.key_path(key), f"expected a list of integers, got {value!r}")
+            self.reader.problem(self.key_path(key), f"expected a list of integers, got {quoted(value)}")
             return default or []
         return list(value)

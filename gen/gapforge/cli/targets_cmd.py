@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import click
 
+from gapforge.base import caution
 from gapforge.base.errors import GapforgeError
 from gapforge.cli.options import Quantity, emit_json, json_option
 from gapforge.outputs.views import layout_json, layout_text, table
@@ -46,6 +47,8 @@ def show(target: str, clock: object, as_json: bool) -> None:
         raise exc.at("TARGET") if exc.where is None else exc from None
     clk = clock if isinstance(clock, Fraction) else None
     if as_json:
-        emit_json(layout_json(layout, clk))
+        # the dead-time ranges shown are what the codes give, not what a stage needs
+        emit_json({**layout_json(layout, clk), "caution": caution.TEXT})
     else:
         click.echo(layout_text(layout, clk))
+        click.echo(caution.TEXT)

@@ -57,6 +57,7 @@ OPTION_KEYS: dict[str, str] = {
     "margin": "margin",
     "kind": "kind",
     "vsd": "vsd",
+    "vsd_at_gate_off": "vsd_at_gate_off",
     "gate_off": "gate_off",
     "current": "current",
     "current_to_high": "current_to_high",
@@ -114,8 +115,22 @@ def stage_options(func: F) -> F:
             help="Reverse-conduction path: silicon or SiC body diode, GaN third quadrant."
             "  [default: silicon]",
         ),
-        click.option("--vsd", help="Reverse-conduction voltage (default: the kind's usual top)."),
-        click.option("--gate-off", help="GaN gate-off voltage, e.g. -3V (adds to the reverse V)."),
+        click.option(
+            "--vsd",
+            help="Reverse-conduction voltage (default: the kind's usual top). For GaN: read at "
+            "0 V gate (the datasheet's third-quadrant curve); --gate-off is added once.",
+        ),
+        click.option(
+            "--vsd-at-gate-off",
+            is_flag=True,
+            default=None,
+            help="GaN: the --vsd given was measured at the gate-off bias (nothing is added).",
+        ),
+        click.option(
+            "--gate-off",
+            help="GaN gate-off voltage, e.g. -3V: its magnitude is added once to a --vsd read "
+            "at 0 V gate.",
+        ),
         click.option("--current", help="Load current at both transitions, signed (+ out of node)."),
         click.option("--current-to-high", help="Load current at the to_high transition, signed."),
         click.option("--current-to-low", help="Load current at the to_low transition, signed."),
@@ -309,7 +324,10 @@ def window_text(
     if costs.dead_share is not None:
         out.append(f"  both switches off {float(costs.dead_share) * 100:.4g} % of each period")
     if costs.duty_lost is not None:
-        out.append(f"  duty lost by the high-side output: {float(costs.duty_lost) * 100:.4g} %")
+        out.append(
+            "  switch-node duty change (the high side's gate command minus what the current's "
+            f"sign takes): {float(costs.duty_lost) * 100:.4g} %"
+        )
     if costs.voltage_error_v is not None:
         out.append(
             "  inverter average output-voltage error (Vd x t_dead x fsw, sign by current): "

@@ -551,7 +551,7 @@ def result_tables(plan: BuildPlan) -> list[TableBlock]:
                     "output",
                     "reverse conduction",
                     "recovery",
-                    "duty lost",
+                    "switch-node duty change (by current sign)",
                     "average output-voltage error",
                 ),
                 tuple(cost_rows),

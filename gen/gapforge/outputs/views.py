@@ -304,7 +304,8 @@ def pwm_text(lim: PwmLimits) -> str:
     for edge, x in lim.edges.items():
         lines.append(
             f"  {edge}: {float(x.dead_counts):.6g} clocks = {float(x.share) * 100:.4g} % of the period"
-            f" (duty lost per period); clock tolerance moves it -{_t(x.tol_minus_s)} / "
+            f" of the gate command lost per period (the switch node's duty changes by it only where"
+            " the current's sign holds the node at the other rail); clock tolerance moves it -{_t(x.tol_minus_s)} / "
             f"+{_t(x.tol_plus_s)}"
         )
     if lim.verdict != "ok":
@@ -442,7 +443,9 @@ def costs_text(costs: Any) -> str:
         f"recovery {format_quantity(costs.recovery_w, 'W', 4)}",
     ]
     if costs.duty_lost is not None:
-        parts.append(f"duty lost {float(costs.duty_lost) * 100:.4g} %")
+        parts.append(
+            f"switch-node duty change {float(costs.duty_lost) * 100:.4g} % (by the current's sign)"
+        )
     if costs.voltage_error_v is not None:
         parts.append(
             f"average output-voltage error {format_quantity(costs.voltage_error_v, 'V', 4)}"

@@ -70,6 +70,7 @@ SHARED_KEYS = frozenset(
         "isolator_skew",
         "timer_skew",
         "vsd",
+        "vsd_at_gate_off",
         "gate_off",
         "current",
         "current_to_high",
@@ -109,6 +110,7 @@ class StageSpec:
     kind: str = "silicon"
     vsd: Fraction | None = None
     gate_off: Fraction = Fraction(0)
+    vsd_at_gate_off: bool = False  # GaN: the given vsd was measured at the gate-off bias
     current_to_high: Fraction = Fraction(0)
     current_to_low: Fraction = Fraction(0)
     fsw: Fraction | None = None
@@ -124,9 +126,15 @@ class StageSpec:
 
     @property
     def reverse_voltage(self) -> Fraction:
-        """Reverse-conduction voltage: Vsd (or the kind's default), plus |gate-off| for GaN."""
+        """Reverse-conduction voltage: Vsd (or the kind's default), plus |gate-off| for GaN.
+
+        A GaN vsd is read at a gate voltage of 0 V (the datasheet's third-quadrant curve) and the
+        gate-off bias is added once; a vsd measured at the gate-off bias already holds it
+        (`vsd_at_gate_off`), so nothing is added."""
         base = self.vsd if self.vsd is not None else DEFAULT_VSD[self.kind]
-        return base + abs(self.gate_off) if self.kind == "gan" else base
+        if self.kind != "gan" or (self.vsd_at_gate_off and self.vsd is not None):
+            return base
+        return base + abs(self.gate_off)
 
 
 @dataclass(frozen=True)
@@ -226,6 +234,8 @@ def stage_problems(spec: StageSpec) -> list[tuple[str, str, str]]:
             )
     if spec.kind != "gan" and spec.gate_off != 0:
         problems.append(("", "gate_off", "gate_off applies to kind 'gan' only"))
+    if spec.vsd_at_gate_off and (spec.kind != "gan" or spec.vsd is None):
+        problems.append(("", "vsd_at_gate_off", "applies to kind 'gan' with a given vsd only"))
     if spec.kind == "gan" and spec.qrr not in (None, Fraction(0)):
         problems.append(("", "qrr", "GaN has no reverse-recovery charge; leave qrr out"))
     if spec.qrr is not None and spec.qrr > 0 and spec.bus_voltage is None:
@@ -348,8 +358,10 @@ def _maximum(spec: StageSpec) -> tuple[Fraction | None, tuple[Term, ...], str]:
 
 def _vsd_note(spec: StageSpec) -> str:
     given = "given" if spec.vsd is not None else f"default for {spec.kind}, common practice"
+    if spec.kind == "gan" and spec.vsd_at_gate_off and spec.vsd is not None:
+        return f"{given}, measured at the gate-off bias (nothing added)"
     if spec.kind == "gan":
-        return f"{given}, plus |gate-off| {format_quantity(abs(spec.gate_off), 'V')}"
+        return f"{given} at 0 V gate, plus |gate-off| {format_quantity(abs(spec.gate_off), 'V')}"
     return given
 
 
@@ -515,6 +527,7 @@ def read_stage(table: Table, default_fsw: Fraction | None = None) -> StageSpec:
         kind=kind,
         vsd=table.quantity("vsd", "V", required=False),
         gate_off=gate_off if gate_off is not None else Fraction(0),
+        vsd_at_gate_off=table.boolean("vsd_at_gate_off", False),
         current_to_high=i_high if i_high is not None else current,
         current_to_low=i_low if i_low is not None else current,
         fsw=table.quantity("fsw", "Hz", default_fsw, required=False),

@@ -24,7 +24,7 @@ from dataclasses import dataclass, field, replace
 from functools import cached_property
 from pathlib import Path
 
-from gapforge.base.errors import GapforgeError
+from gapforge.base.errors import GapforgeError, quoted
 from gapforge.base.schema import Reader, Table, load_toml
 
 EDGES = ("to_high", "to_low")
@@ -34,6 +34,11 @@ FORMAT_VERSION = 1
 # Widest dead-time field: every allowed code is tabulated (a 20-bit field is a million entries).
 MAX_FIELD_BITS = 20
 MAX_DIVIDER = 1 << 16
+# Most ranges of a segmented code (select_bits <= 6): real units have a handful; the cap keeps a
+# hostile file's validation and fit quick.
+MAX_SEGMENTS = 64
+# Longest built-in layout name; anything else must be a path to a .toml file.
+MAX_NAME = 64
 # Field names whose macros (<P>_<NAME>_CODE/_SHIFT/_MASK) would collide with the header's fixed
 # macros (<P>_DIVIDER_CODE). Compared case-insensitively: macro names are upper-cased.
 RESERVED_FIELD_NAMES = frozenset({"divider"})
@@ -80,12 +85,14 @@ class Field:
         if self.encoding == "linear":
             return code + self.add
         low_bits = self.width - self.select_bits
-        select = code >> low_bits
-        low = code & ((1 << low_bits) - 1)
-        for segment in self.segments:
-            if segment.select == select:
-                return segment.base + low * segment.multiplier
-        raise ValueError(f"code {code} selects no range of field {self.name}")
+        segment = self._by_select.get(code >> low_bits)
+        if segment is None:
+            raise ValueError(f"code {code} selects no range of field {self.name}")
+        return segment.base + (code & ((1 << low_bits) - 1)) * segment.multiplier
+
+    @cached_property
+    def _by_select(self) -> dict[int, Segment]:
+        return {s.select: s for s in self.segments}
 
     @cached_property
     def table(self) -> tuple[tuple[int, ...], tuple[int, ...]]:
@@ -97,11 +104,19 @@ class Field:
             )
             add = self.add
             return tuple(c + add for c in codes), codes
-        pairs = sorted(
-            (self.decode(code), code)
-            for code in range(self.min_code, self.max_code + 1)
-            if code not in self.reserved
-        )
+        # by arithmetic, one range at a time: steps = base + low x multiplier
+        low_bits = self.width - self.select_bits
+        pairs: list[tuple[int, int]] = []
+        for seg in self.segments:
+            first = max(self.min_code, seg.select << low_bits)
+            last = min(self.max_code, ((seg.select + 1) << low_bits) - 1)
+            low0 = first - (seg.select << low_bits)
+            pairs.extend(
+                (seg.base + (low0 + i) * seg.multiplier, code)
+                for i, code in enumerate(range(first, last + 1))
+                if code not in self.reserved
+            )
+        pairs.sort()
         return tuple(p[0] for p in pairs), tuple(p[1] for p in pairs)
 
     def at_least(self, steps: int) -> int | None:
@@ -180,6 +195,11 @@ def resolve(name_or_path: str) -> Path:
     """A built-in name or a path to a layout file."""
     if name_or_path.endswith(".toml") or "/" in name_or_path or "\\" in name_or_path:
         return Path(name_or_path)
+    if len(name_or_path) > MAX_NAME or not name_or_path.isprintable():
+        raise GapforgeError(
+            f"no built-in layout named {quoted(name_or_path)} (names are at most {MAX_NAME} "
+            "characters; or give a path to a .toml layout file)"
+        )
     candidate = _builtin_dir() / f"{name_or_path}.toml"
     if candidate.is_file():
         return candidate
@@ -364,7 +384,15 @@ def _read_field(t: Table) -> Field:
     select_bits = 0
     segments: list[Segment] = []
     if encoding == "segmented":
-        select_bits = t.integer("select_bits", 1, lo=1, hi=max(1, width - 1))
+        given = t.raw("segment", [])
+        count = len(given) if isinstance(given, list) else 1
+        if count > MAX_SEGMENTS:
+            t.reader.problem(
+                t.key_path("segment"),
+                f"{count} ranges: at most {MAX_SEGMENTS} (select_bits at most 6)",
+            )
+            return Field(name=name, role=role, offset=offset, width=width)
+        select_bits = t.integer("select_bits", 1, lo=1, hi=max(1, min(width - 1, 6)))
         for s in t.subs("segment"):
             s.check_keys(_SEGMENT_KEYS, {"select", "base", "multiplier"})
             segments.append(

@@ -41,7 +41,9 @@ class PwmSpec:
 class EdgeLimits:
     dead_counts: Fraction  # dead time in timer clock periods (exact)
     share: Fraction  # dead time / PWM period
-    lost_duty: Fraction  # duty this output loses per period (same as share)
+    # share of this output's gate command lost per period (same as share); the switch node's
+    # duty changes by it only where the current's sign holds the node at the other rail
+    lost_duty: Fraction
     tol_minus_s: Fraction  # achieved - achieved_min (how far a fast clock shortens the gap)
     tol_plus_s: Fraction  # achieved_max - achieved (how far a slow clock lengthens it)
 
