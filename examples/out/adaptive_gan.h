@@ -14,7 +14,8 @@
  *
  * CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design
  * aid, not a guarantee: verify every dead time on the bench at reduced voltage with current
- * limiting before full power. Local codes and licensed engineering practice prevail.
+ * limiting before full power, on every transition, over temperature and load current. Local
+ * codes and licensed engineering practice prevail.
  */
 #ifndef GAN_AD_H
 #define GAN_AD_H
