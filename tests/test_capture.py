@@ -173,3 +173,46 @@ def test_edge_csv_and_vcd_resolution_is_one_tick(tmp_path: Path) -> None:
         w.change(lo, 54, 1)
     m = measure_capture(open_capture(vcd_path, "gh", "gl"))
     assert m.resolution_s == 10 * NS and m.to_high.min_s == 30 * NS  # one 10 ns timescale tick
+
+
+# --- issue 14: times that do not fit 64-bit ticks ----------------------------------------------
+
+def test_huge_times_count_from_the_first_row(tmp_path: Path) -> None:
+    # 1e30 ns absolute: the old reader overflowed int64 (a traceback); the gaps are exact
+    base = 10**30
+    path = tmp_path / "huge.csv"
+    path.write_text("time_ns,signal,level\n"
+                    f"{base},gh,0\n{base},gl,1\n{base + 100},gl,0\n{base + 131},gh,1\n"
+                    f"{base + 600},gh,0\n{base + 640},gl,1\n")
+    cap = load_capture(path, "gh", "gl")
+    assert cap.tick_s == Fraction(1, 10**9) and cap.resolution_ticks == 1
+    assert any("counted from the first time" in w for w in cap.warnings)
+    m = measure_capture(cap)
+    assert m.to_high.min_s == Fraction(31, 10**9) and m.to_low.min_s == Fraction(40, 10**9)
+
+
+def test_many_decimals_over_a_long_span_coarsen_safely(tmp_path: Path) -> None:
+    # a 40-decimal step over a 1e6 ns span needs ~1e46 ticks: rounded down to a coarser tick,
+    # the resolution becomes two such ticks, and the exact gaps stay within it
+    fine = "0." + "0" * 39 + "1"  # 1e-40 ns
+    path = tmp_path / "decimals.csv"
+    path.write_text("time_ns,signal,level\n"
+                    f"0,gh,0\n0,gl,1\n100{fine[1:]},gl,0\n131.5,gh,1\n600,gh,0\n"
+                    f"640.25,gl,1\n1000000,gl,0\n")
+    cap = load_capture(path, "gh", "gl")
+    assert cap.resolution_ticks == 2 and any("rounded down" in w for w in cap.warnings)
+    assert cap.tick_s >= Fraction(1, 10**9) / 10**40
+    m = measure_capture(cap)
+    exact = {"to_high": Fraction(315, 10) - Fraction(1, 10**40), "to_low": Fraction(4025, 100)}
+    for edge, want in exact.items():
+        got = m.edge(edge).min_s
+        assert got is not None
+        assert abs(got - want * Fraction(1, 10**9)) < m.resolution_s
+
+
+def test_overlong_time_cell_is_one_clean_error(tmp_path: Path) -> None:
+    path = tmp_path / "long.csv"
+    path.write_text("time_ns,signal,level\n0,gh,0\n0,gl,1\n" + "9" * 5000 + ",gl,0\n")
+    with pytest.raises(GapforgeError, match="longer than") as info:
+        load_capture(path, "gh", "gl")
+    assert info.value.where == f"{path}:4" and len(info.value.line()) < 200

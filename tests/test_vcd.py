@@ -364,3 +364,97 @@ def test_file_without_a_final_line_break_is_warned(tmp_path: Path) -> None:
     assert any("truncated?" in w for w in events.warnings)
     path.write_text(path.read_text() + "\n")
     assert read_vcd(path, ["a", "b"]).warnings == ()
+
+
+# --- issue 14: hostile VCD input -------------------------------------------------------------
+
+_NO_TIMESCALE = ("$scope module top $end $var wire 1 ! gate_h $end $var wire 1 \" gate_l $end "
+                 "$upscope $end $enddefinitions $end\n"
+                 "#0 0! 1\"\n#100 0\"\n#130 1!\n#500 0!\n#540 1\"\n#1100 0\"\n#1130 1!\n")
+
+
+def test_no_timescale_is_warned_and_judged_inconclusive(tmp_path: Path) -> None:
+    # hand-written: IEEE 1364-2005 18.2 leaves the unit to the writer when $timescale is absent;
+    # the old reader took 1 ns silently and passed a window
+    import json
+
+    from click.testing import CliRunner
+
+    from gapforge.cli import cli
+
+    path = tmp_path / "nounit.vcd"
+    path.write_text(_NO_TIMESCALE)
+    data = read_vcd(path, ["gate_h", "gate_l"])
+    assert data.timescale_assumed and any("no $timescale" in w for w in data.warnings)
+    base = ["measure", str(path), "--high", "gate_h", "--low", "gate_l", "--json"]
+    result = CliRunner().invoke(cli, [*base, "--window", "20ns:50ns"])
+    doc = json.loads(result.output)
+    assert result.exit_code == 1 and doc["verdict"] == "inconclusive"
+    assert any("--timescale" in r for r in doc["reasons"])
+    # stated by the user: judged (30 ns and 40 ns inside 20..50 ns)
+    result = CliRunner().invoke(cli, [*base, "--window", "20ns:50ns", "--timescale", "1ns"])
+    assert result.exit_code == 0, result.output
+    # 10 ps units: 300 ps and 400 ps gaps, below the 20 ns minimum
+    result = CliRunner().invoke(cli, [*base, "--window", "20ns:50ns", "--timescale", "10ps"])
+    assert result.exit_code == 1 and json.loads(result.output)["verdict"] == "fail"
+    # a file that states its unit must agree with --timescale
+    stated = tmp_path / "unit.vcd"
+    stated.write_text("$timescale 1 ns $end " + _NO_TIMESCALE)
+    with pytest.raises(GapforgeError, match="disagrees"):
+        read_vcd(stated, ["gate_h", "gate_l"], timescale=Fraction(1, 10**12))
+    assert not read_vcd(stated, ["gate_h", "gate_l"], timescale=Fraction(1, 10**9)).warnings
+
+
+def test_many_declarations_keep_only_the_asked_signals(tmp_path: Path) -> None:
+    # the old reader built a Variable for every one of a million declarations; here 30,000
+    # distractors and two gates at the end: only the first HINT_VARS and the gates are kept
+    from gapforge.bench.vcd_header import HINT_VARS
+
+    n = 30_000
+    decl = "".join(f"$var wire 1 s{k} sig{k} $end\n" for k in range(n))
+    path = tmp_path / "wide.vcd"
+    path.write_text("$timescale 1ns $end $scope module top $end\n" + decl
+                    + "$scope module drv $end $var wire 1 ! gate_h $end $var wire 1 \" gate_l $end "
+                    "$upscope $end $upscope $end $enddefinitions $end\n"
+                    "#0 0! 1\"\n#100 0\"\n#130 1!\n")
+    header = read_header(path, ["gate_h", "top.drv.gate_l"])
+    assert header.declared == n + 2 and len(header.variables) == HINT_VARS + 2
+    assert {v.path for v in header.variables[-2:]} == {"top.drv.gate_h", "top.drv.gate_l"}
+    data = read_vcd(path, ["gate_h", "top.drv.gate_l"])
+    assert data.signals["gate_h"].times.tolist() == [0, 130]
+    with pytest.raises(GapforgeError, match=r"no signal 'gate_x'.*did you mean"):
+        read_vcd(path, ["gate_x", "gate_l"])
+    # a name among the distractors far past the hint list is still found
+    assert read_header(path, ["sig29999"]).variables[-1].path == "top.sig29999"
+
+
+def test_equal_gaps_of_2_53_ticks_and_more(tmp_path: Path) -> None:
+    # 10 s dead times at 1 fs: 10**16 ticks > 2**53 (9.007e15); the histogram raised before
+    from gapforge.bench.capture import open_capture
+    from gapforge.bench.measure import measure_capture
+
+    gap = 10**16
+    lines = ["$timescale 1fs $end $var wire 1 ! h $end $var wire 1 \" l $end $enddefinitions $end",
+             "#0 0! 1\""]
+    t = 0
+    for _ in range(3):
+        lines += [f"#{t + 1} 0\"", f"#{t + 1 + gap} 1!", f"#{t + 2 + gap} 0!",
+                  f"#{t + 2 + 2 * gap} 1\""]
+        t += 2 + 2 * gap
+    path = tmp_path / "long.vcd"
+    path.write_text("\n".join(lines) + "\n")
+    assert gap > 2**53 and t < 10**18  # 18 digits: the reader's timestamp limit
+    m = measure_capture(open_capture(path, "h", "l"))
+    assert m.to_high.gaps_ticks.tolist() == [gap] * 3 and m.to_low.gaps_ticks.tolist() == [gap] * 3
+    assert sum(m.to_high.histogram_counts) == 3
+    assert m.to_high.histogram_edges_s[0] == pytest.approx(10.0)
+    assert m.to_high.mean_s == pytest.approx(10.0)
+
+
+def test_mean_of_gaps_whose_sum_exceeds_int64() -> None:
+    # four gaps of 4e18 ticks sum to 1.6e19 > 2**63 - 1: the old int64 sum wrapped negative
+    from gapforge.bench.measure import EdgeStats
+
+    gaps = np.array([4 * 10**18] * 4, dtype=np.int64)
+    stats = EdgeStats("to_high", Fraction(1, 10**15), gaps, (), (), (), (), ())
+    assert stats.mean_s == pytest.approx(4000.0)

@@ -80,6 +80,7 @@ class GateCapture:
     low_initial: int = 2
     resolution_ticks: int = 1  # a measured gap is within this many ticks of the true gap
     lost_events: int = 0  # edges known to be missing (a serial stream's sequence gaps)
+    time_unit_assumed: bool = False  # the file states no time unit (a VCD without $timescale)
 
 
 # one chunk of change events of both gates in time order: times (ticks), sides (0 = high side,
@@ -107,9 +108,11 @@ class CaptureStream:
         low_initial: int = 2,
         resolution_ticks: int = 1,
         lost_events: int = 0,
+        time_unit_assumed: bool = False,
     ) -> None:
         if resolution_ticks < 1:
             raise ValueError("resolution_ticks must be at least 1")
+        self.time_unit_assumed = time_unit_assumed
         self.tick_s = tick_s
         self.source = source
         self.high_initial = high_initial
@@ -163,7 +166,8 @@ def stream_of(capture: GateCapture) -> CaptureStream:
                          lambda: (capture.end, capture.warnings),
                          high_initial=capture.high_initial, low_initial=capture.low_initial,
                          resolution_ticks=capture.resolution_ticks,
-                         lost_events=capture.lost_events)
+                         lost_events=capture.lost_events,
+                         time_unit_assumed=capture.time_unit_assumed)
 
 
 def _merge(
@@ -187,18 +191,21 @@ def open_capture(
     active_low_high: bool = False,
     active_low_low: bool = False,
     chunk_bytes: int | None = None,
+    timescale: Fraction | None = None,
 ) -> CaptureStream:
     """Open a .vcd or .csv capture as a stream: a VCD body is read chunk by chunk when the
-    stream is iterated (the header and the signal names are checked now); a CSV is read whole."""
+    stream is iterated (the header and the signal names are checked now); a CSV is read whole.
+    `timescale` states a VCD's time unit when the file has no $timescale."""
     if _kind(path) != "vcd":
         return stream_of(load_capture(path, high, low, active_low_high=active_low_high,
-                                      active_low_low=active_low_low))
+                                      active_low_low=active_low_low, timescale=timescale))
     from gapforge.bench.vcd import CHUNK_BYTES, open_events
     from gapforge.bench.vcd import UnorderedTimes as VcdUnordered
 
     if high == low:
         raise GapforgeError("--high and --low name the same signal", str(path))
-    events = open_events(path, high, low, chunk_bytes=chunk_bytes or CHUNK_BYTES)
+    events = open_events(path, high, low, chunk_bytes=chunk_bytes or CHUNK_BYTES,
+                         timescale=timescale)
 
     def polarity(chunk: Events) -> Events:
         times, sides, levels = chunk
@@ -221,7 +228,8 @@ def open_capture(
 
     # resolution: one tick of the $timescale
     return CaptureStream(events.timescale_s, str(path), ordered, whole,
-                         lambda: (events.end_time, events.warnings), resolution_ticks=1)
+                         lambda: (events.end_time, events.warnings), resolution_ticks=1,
+                         time_unit_assumed=events.timescale_assumed)
 
 
 def invert(levels: npt.NDArray[np.uint8]) -> npt.NDArray[np.uint8]:
@@ -245,6 +253,7 @@ def make_capture(
     edges_only: bool = False,
     resolution_ticks: int = 1,
     lost_events: int = 0,
+    time_unit_assumed: bool = False,
 ) -> GateCapture:
     """Build a capture from raw levels (as recorded), applying the polarity options.
 
@@ -263,7 +272,7 @@ def make_capture(
     hi0 = int(1 - hv[0]) if edges_only and hv.size and hv[0] <= 1 else 2
     lo0 = int(1 - lv[0]) if edges_only and lv.size and lv[0] <= 1 else 2
     return GateCapture(tick_s, ht, hv, lt, lv, max(last, end or 0), source, warnings, hi0, lo0,
-                       resolution_ticks, lost_events)
+                       resolution_ticks, lost_events, time_unit_assumed)
 
 
 def load_capture(
@@ -273,6 +282,7 @@ def load_capture(
     *,
     active_low_high: bool = False,
     active_low_low: bool = False,
+    timescale: Fraction | None = None,
 ) -> GateCapture:
     """Read a .vcd or .csv capture (by suffix; otherwise by the first bytes)."""
     kind = _kind(path)
@@ -281,7 +291,7 @@ def load_capture(
 
         if high == low:
             raise GapforgeError("--high and --low name the same signal", str(path))
-        data = read_vcd(path, [high, low])
+        data = read_vcd(path, [high, low], timescale=timescale)
         h, lo = data.signals[high], data.signals[low]
         return make_capture(
             data.timescale_s,
@@ -292,7 +302,11 @@ def load_capture(
             active_low_high=active_low_high,
             active_low_low=active_low_low,
             warnings=data.warnings,
+            time_unit_assumed=data.timescale_assumed,
         )
+    if timescale is not None:
+        raise GapforgeError("--timescale applies to VCD files only (a CSV names its unit in the "
+                            "time column)", str(path))
     csv = read_csv(path, [high, low])
     return make_capture(
         csv.tick_s,
@@ -303,6 +317,7 @@ def load_capture(
         active_low_high=active_low_high,
         active_low_low=active_low_low,
         resolution_ticks=csv.resolution_ticks,
+        warnings=csv.warnings,
     )
 
 
@@ -331,6 +346,7 @@ class CsvData:
     signals: Signals
     end: int
     resolution_ticks: int
+    warnings: tuple[str, ...] = ()
 
 
 def read_csv(path: Path, names: list[str]) -> CsvData:
@@ -386,16 +402,58 @@ def read_csv(path: Path, names: list[str]) -> CsvData:
     return _samples(rows, header, header_line, names, time_unit, directives, where)
 
 
+_MAX_TIME_TEXT = 60  # characters of one time cell
+_TICK_LIMIT = 2**62  # ticks held in int64 with room for differences
+
+
 def _exact_times(texts: list[tuple[int, str]], where: str) -> tuple[list[Fraction], int]:
     values: list[Fraction] = []
     denominator = 1
     for number, cell in texts:
+        if len(cell) > _MAX_TIME_TEXT:
+            raise GapforgeError(f"time {cell[:24]!r}... is longer than {_MAX_TIME_TEXT} characters",
+                                f"{where}:{number}")
         if not _DECIMAL.match(cell):
             raise GapforgeError(f"time {cell!r} is not a non-negative decimal number", f"{where}:{number}")
         value = Fraction(cell)
         denominator = math.lcm(denominator, value.denominator)
         values.append(value)
     return values, denominator
+
+
+@dataclass(frozen=True)
+class _Ticks:
+    """Times as integer ticks that numpy's int64 holds: `tick` (in the file's unit), the ticks,
+    the resolution in ticks and what had to change to fit."""
+
+    tick: Fraction
+    ticks: list[int]
+    resolution: int
+    warnings: tuple[str, ...]
+
+
+def _fit_ticks(values: list[Fraction], denominator: int, unit: Fraction, where: str) -> _Ticks:
+    """The finest decimal step as the tick when every time fits in int64 ticks. Otherwise the
+    times count from the first row; and when even the span does not fit (many decimals over a
+    long capture) the tick is coarsened by powers of ten, each time rounded down, and the
+    resolution becomes two ticks (the rounding and the writer's precision, each under one)."""
+    ticks = [int(v * denominator) for v in values]
+    if max(ticks) < _TICK_LIMIT:
+        return _Ticks(unit / denominator, ticks, 1, ())
+    origin = min(ticks)
+    ticks = [t - origin for t in ticks]
+    start = f"{float(values[ticks.index(0)] * unit):g} s"
+    if max(ticks) < _TICK_LIMIT:
+        return _Ticks(unit / denominator, ticks, 1, (
+            f"{where}: times are counted from the first time ({start}): the absolute times do "
+            "not fit 64-bit ticks",))
+    factor = 10 ** (len(str(max(ticks) // _TICK_LIMIT)) )
+    while max(ticks) // factor >= _TICK_LIMIT:
+        factor *= 10
+    tick = unit * factor / denominator
+    return _Ticks(tick, [t // factor for t in ticks], 2, (
+        f"{where}: times are counted from the first time ({start}) and rounded down to "
+        f"{float(tick):g} s to fit 64-bit ticks; the resolution is two such steps",))
 
 
 def _level(cell: str, where: str) -> int:
@@ -421,10 +479,11 @@ def _edges(
     present = sorted({cells[1] for _, cells in rows})
     _check_names(names, present, where)
     out: Signals = {}
-    ticks = [int(t * denominator) for t in times]
-    for i in range(1, len(ticks)):
-        if ticks[i] < ticks[i - 1]:
+    for i in range(1, len(times)):
+        if times[i] < times[i - 1]:
             raise GapforgeError("times must not go backwards", f"{where}:{rows[i][0]}")
+    fitted = _fit_ticks(times, denominator, unit, where)
+    ticks = fitted.ticks
     for name in names:
         sel = [(ticks[i], _level(cells[2], f"{where}:{n}")) for i, (n, cells) in enumerate(rows)
                if cells[1] == name]
@@ -432,8 +491,8 @@ def _edges(
             np.array([t for t, _ in sel], dtype=np.int64),
             np.array([v for _, v in sel], dtype=np.uint8),
         )
-    # resolution: one tick, the finest decimal step of the times as written
-    return CsvData(unit / denominator, out, ticks[-1], 1)
+    # resolution: one tick, the finest decimal step of the times as written (two when coarsened)
+    return CsvData(fitted.tick, out, ticks[-1], fitted.resolution, fitted.warnings)
 
 
 def _samples(
@@ -450,13 +509,16 @@ def _samples(
     first_signal = 1 if unit is not None else 0
     columns = header[first_signal:]
     _check_names(names, columns, f"{where}:{header_line}")
+    warnings: tuple[str, ...] = ()
+    resolution = 1  # with a sample period: one tick is one sample period
     if unit is not None:
         times, denominator = _exact_times([(n, cells[0]) for n, cells in rows], where)
-        ticks = [int(t * denominator) for t in times]
-        tick = unit / denominator
-        for i in range(1, len(ticks)):
-            if ticks[i] <= ticks[i - 1]:
+        for i in range(1, len(times)):
+            if times[i] <= times[i - 1]:
                 raise GapforgeError("sample times must increase", f"{where}:{rows[i][0]}")
+        fitted = _fit_ticks(times, denominator, unit, where)
+        ticks, tick, warnings = fitted.ticks, fitted.tick, fitted.warnings
+        resolution = fitted.resolution
     else:
         if "sample_period" not in directives:
             raise GapforgeError(
@@ -469,7 +531,7 @@ def _samples(
     out: Signals = {}
     t = np.array(ticks, dtype=np.int64)
     spacing = np.diff(t)  # spacing[k - 1]: from sample k - 1 to sample k
-    resolution = 1  # with a sample period: one tick is one sample period
+    rounding = resolution - 1  # a coarsened tick adds one tick of rounding
     for name in names:
         col = first_signal + columns.index(name)
         levels = np.array([_level(cells[col], f"{where}:{n}") for n, cells in rows], dtype=np.uint8)
@@ -479,5 +541,5 @@ def _samples(
         changed = np.flatnonzero(keep[1:])  # sample k = changed + 1 shows a new level
         if unit is not None and changed.size:
             # the edge lies somewhere after the sample before: the longest such spacing
-            resolution = max(resolution, int(spacing[changed].max()))
-    return CsvData(tick, out, ticks[-1], resolution)
+            resolution = max(resolution, int(spacing[changed].max()) + rounding)
+    return CsvData(tick, out, ticks[-1], resolution, warnings)

@@ -191,7 +191,7 @@ class EdgeStats:
     def mean_s(self) -> float | None:
         if not self.count:
             return None
-        return float(Fraction(int(self.gaps_ticks.sum(dtype=np.int64)), self.count) * self.tick_s)
+        return float(Fraction(_exact_sum(self.gaps_ticks), self.count) * self.tick_s)
 
     @property
     def std_s(self) -> float | None:
@@ -351,6 +351,9 @@ def measure_capture(
     if raw.leading_unknown:
         notes.append("both gates unknown (x/z) at the start of the capture, before their first "
                      "known levels: not measured")
+    if stream.time_unit_assumed and has_window:
+        inconclusive.append("the capture states no time unit (a VCD without $timescale): "
+                            "state it with --timescale to judge the window")
     unknown = raw.unknown - (1 if raw.first_unknown else 0)  # after the first known levels
     if unknown > 0 and has_window:
         inconclusive.append(f"{unknown} interval(s) with an unknown (x/z) gate level: a dead "
@@ -782,6 +785,17 @@ class _Engine:
 _INT32_MIN, _INT32_MAX = -(2**31), 2**31 - 1
 
 
+def _exact_sum(values: npt.NDArray[np.signedinteger[Any]]) -> int:
+    """The sum as a Python int: int64 when no partial sum can overflow, else in slices."""
+    if values.size == 0:
+        return 0
+    biggest = max(abs(int(values.min())), abs(int(values.max())))
+    if biggest * values.size < 2**63:
+        return int(values.sum(dtype=np.int64))
+    step = max(1, (2**62) // max(biggest, 1))
+    return sum(int(values[at : at + step].sum(dtype=np.int64)) for at in range(0, values.size, step))
+
+
 class _GapStore:
     """Gaps appended into fixed-size blocks (no regrowth copies): int32 until one does not fit,
     then int64. The final array is joined freeing each block as it is copied."""
@@ -843,23 +857,25 @@ def _stats(
     fl = float(tick)
     lo, hi = int(gaps.min()), int(gaps.max())
     nbins = max(1, min(bins, hi - lo + 1))
+    # the histogram counts offsets from the shortest gap: exact in float64 whatever the gaps
+    # (a gap of 2**53 ticks or more has no float neighbour one tick away)
     if hi - lo < _DENSE_SPAN:
         # one pass: counts per tick value; percentiles and histogram from the counts
         counts_per = np.zeros(hi - lo + 1, dtype=np.intp)
         for at in range(0, gaps.size, 1 << 16):  # in slices: bincount copies to intp
             counts_per += np.bincount(gaps[at : at + (1 << 16)] - lo, minlength=hi - lo + 1)
         pct = _percentiles_from_counts(counts_per, lo, percentiles, fl)
-        counts, edges = np.histogram(np.arange(lo, hi + 1), bins=nbins, range=(lo, hi + 1),
-                                     weights=counts_per[: hi - lo + 1])
+        counts, offsets = np.histogram(np.arange(hi - lo + 1), bins=nbins, range=(0, hi - lo + 1),
+                                       weights=counts_per[: hi - lo + 1])
     else:
         pct = tuple((float(p), float(np.percentile(gaps, p)) * fl) for p in percentiles)
-        counts, edges = np.histogram(gaps, bins=nbins, range=(lo, hi + 1))
+        counts, offsets = np.histogram(gaps - np.int64(lo), bins=nbins, range=(0, hi - lo + 1))
     return EdgeStats(
         name,
         tick,
         gaps,
         pct,
-        tuple(float(e) * fl for e in edges),
+        tuple(float(lo + Fraction(float(e))) * fl for e in offsets),
         tuple(int(c) for c in counts),
         worst[0],
         worst[1],

@@ -76,6 +76,9 @@ def build_limits(
 @click.option("--resolution", type=Quantity("s"), default=None,
               help="Widen the capture's resolution to this (e.g. a logic analyser's sample "
               "period when its file states a finer time unit); never narrows it.")
+@click.option("--timescale", "timescale_text", default=None,
+              help="The time unit of a VCD without $timescale, e.g. 1ns or 10ps (without it "
+              "such a file is read in 1 ns and a window cannot be judged: inconclusive).")
 @click.option("--percentiles", default="1,5,50,95,99", show_default=True,
               help="Percentiles to report, comma separated.")
 @click.option("--bins", type=click.IntRange(1, 1000), default=20, show_default=True,
@@ -97,7 +100,8 @@ def build_limits(
 @json_option
 def command(capture: Path | None, high: str | None, low: str | None, active_low_high: bool,
             active_low_low: bool, design: Path | None, window: str | None, glitch: Fraction,
-            resolution: Fraction | None, percentiles: str, bins: int, worst: int,
+            resolution: Fraction | None, timescale_text: str | None, percentiles: str,
+            bins: int, worst: int,
             serial_url: str | None, baud: int, max_transitions: int | None,
             duration: Fraction | None, idle_timeout: Fraction,
             no_diagram: bool, ascii_only: bool, as_json: bool) -> None:
@@ -112,12 +116,19 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
     from gapforge.bench.measure import measure_capture
 
     pcts = _percentiles(percentiles)
+    timescale = None
+    if timescale_text is not None:
+        from gapforge.bench.vcd_header import parse_timescale
+
+        timescale = parse_timescale([timescale_text], "--timescale")
     limits = build_limits(window, design)
     stream: SerialResult | None = None
     gate: GateCapture | CaptureStream
     if serial_url is not None:
         if capture is not None:
             raise GapforgeError("give a capture file or --serial, not both", "measure")
+        if timescale is not None:
+            raise GapforgeError("--timescale applies to VCD files, not to --serial", "measure")
         from gapforge.bench.serial_stream import read_serial
 
         stream = read_serial(
@@ -146,7 +157,7 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
         from gapforge.bench.capture import open_capture
 
         gate = open_capture(capture, high, low, active_low_high=active_low_high,
-                            active_low_low=active_low_low)
+                            active_low_low=active_low_low, timescale=timescale)
     try:
         result = measure_capture(gate, limits=limits, glitch_width_s=glitch, percentiles=pcts,
                                  bins=bins, worst=worst, resolution_s=resolution)

@@ -1,0 +1,262 @@
+"""The declarations of a value change dump (IEEE 1364-2005 clause 18): timescale, scopes, vars.
+
+The header is read up to `$enddefinitions $end` and cut into commands at each `$end`. A header
+may declare a million signals of which two are wanted, so a `$var` is parsed into a `Variable`
+only when its name could be one asked for (same last name component) or when it is among the
+first `HINT_VARS` declarations (the names offered in a did-you-mean hint); the others are only
+counted. Every command is still checked for its shape (a word outside a command, a command
+without `$end`, an `$upscope` without a `$scope`).
+
+A header without `$timescale` is read in 1 ns units (IEEE 1364 leaves the unit to the writing
+tool; 1 ns is common practice) and says so: `Header.timescale_given` is False, and the
+measurement cannot judge a window with an assumed unit.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+from collections.abc import Sequence
+from dataclasses import dataclass
+from fractions import Fraction
+from pathlib import Path
+
+from gapforge.base.errors import GapforgeError
+from gapforge.base.quantities import TIME_UNITS
+
+HINT_VARS = 2000  # declarations kept whatever their name, for did-you-mean hints
+DEFAULT_TIMESCALE = Fraction(1, 10**9)
+
+
+@dataclass(frozen=True)
+class Variable:
+    """One $var declaration."""
+
+    path: str  # hierarchical name without range, e.g. "top.bus"
+    var_type: str
+    width: int
+    code: str
+    msb: int | None
+    lsb: int | None
+
+    def bit_position(self, bit: int | None) -> int | None:
+        """Position of `bit` counted from the rightmost digit, or None if out of range."""
+        if bit is None:
+            return 0 if self.width == 1 else None
+        msb = self.width - 1 if self.msb is None else self.msb
+        lsb = 0 if self.lsb is None else self.lsb
+        if msb >= lsb:
+            return bit - lsb if lsb <= bit <= msb else None
+        return lsb - bit if msb <= bit <= lsb else None
+
+    def display(self) -> str:
+        if self.msb is None:
+            return self.path
+        if self.lsb is None or self.lsb == self.msb:
+            return f"{self.path}[{self.msb}]"
+        return f"{self.path}[{self.msb}:{self.lsb}]"
+
+
+@dataclass(frozen=True)
+class Header:
+    timescale_s: Fraction
+    variables: tuple[Variable, ...]  # the ones kept (see the module docstring)
+    body_offset: int
+    timescale_given: bool = True
+    declared: int = 0  # every $var in the file
+
+
+def parse_timescale(words: Sequence[str], where: str) -> Fraction:
+    """'1ns', '10 ps', '100us': 1, 10 or 100 of s, ms, us, ns, ps or fs."""
+    text = "".join(words)
+    match = re.fullmatch(r"(1|10|100)(s|ms|us|ns|ps|fs)", text)
+    if not match:
+        shown = " ".join(words)[:40]
+        raise GapforgeError(
+            f"bad $timescale {shown!r} (expected 1, 10 or 100 and s, ms, us, ns, ps, fs)", where
+        )
+    return int(match.group(1)) * TIME_UNITS[match.group(2)]
+
+
+_REF = re.compile(r"^(?P<name>[^\[]+?)(?:\[(?P<msb>-?\d+)(?::(?P<lsb>-?\d+))?\])?$")
+_SELECT = re.compile(r"^(?P<name>.+?)\s*\[\s*(?P<bit>-?\d+)\s*\]$")
+_END = re.compile(rb"(?<!\S)\$end(?!\S)")
+
+
+def _leaf(name: str) -> str:
+    """The last name component of a requested signal, without a bit select."""
+    wanted = name.strip()
+    match = _SELECT.match(wanted)
+    base = match.group("name") if match else wanted
+    return base.rsplit(".", 1)[-1]
+
+
+def _header_bytes(path: Path, where: str) -> tuple[bytes, int]:
+    """The declarations (before $enddefinitions) and the offset of the body."""
+    try:
+        with path.open("rb") as handle:
+            data = b""
+            while True:
+                block = handle.read(1 << 20)
+                # search only the new part (and a keyword's length before it)
+                start = max(len(data) - 32, 0)
+                data += block
+                end = re.compile(rb"\$enddefinitions\s+\$end").search(data, start)
+                if end is not None:
+                    return data[: end.start()], end.end()
+                if not block:
+                    raise GapforgeError("no '$enddefinitions $end': not a VCD file or truncated",
+                                        where)
+    except OSError as exc:
+        raise GapforgeError(f"cannot read: {exc.strerror}", where) from None
+
+
+def read_header(path: Path, names: Sequence[str] | None = None) -> Header:
+    """Read the declarations up to $enddefinitions $end, keeping the variables that `names`
+    could select (every variable when `names` is None)."""
+    where = str(path)
+    head, body_offset = _header_bytes(path, where)
+    if not head.isascii():
+        bad = next(i for i, b in enumerate(head) if b > 127)
+        line = head[:bad].count(b"\n") + 1
+        raise GapforgeError("binary data in the VCD header", f"{where}:{line}")
+    leaves = None if names is None else {_leaf(n).encode("ascii", "replace") for n in names}
+    reader = _Declarations(where, leaves)
+    commands = _END.split(head)
+    rest = commands.pop()  # after the last $end: only whitespace in a complete header
+    for command in commands:
+        reader.command(command)
+    if rest.strip():
+        word = rest.split()[0].decode("ascii")[:40]
+        if word.startswith("$"):
+            raise GapforgeError(f"{word} without $end", where)
+        raise GapforgeError(f"unexpected {word!r} in the VCD header", where)
+    if not reader.variables:
+        raise GapforgeError("no $var declarations", where)
+    given = reader.timescale is not None
+    return Header(reader.timescale or DEFAULT_TIMESCALE, tuple(reader.variables), body_offset,
+                  given, reader.declared)
+
+
+class _Declarations:
+    """The header's commands one by one: scopes, the timescale and the variables kept."""
+
+    def __init__(self, where: str, leaves: set[bytes] | None) -> None:
+        self.where = where
+        self.leaves = leaves
+        self.scopes: list[str] = []
+        self.variables: list[Variable] = []
+        self.timescale: Fraction | None = None
+        self.declared = 0
+
+    def command(self, text: bytes) -> None:
+        words = text.split()
+        if not words:
+            raise GapforgeError("$end without a command", self.where)
+        word = words[0]
+        if not word.startswith(b"$"):
+            raise GapforgeError(f"unexpected {word[:40].decode('ascii')!r} in the VCD header",
+                                self.where)
+        if word == b"$var":
+            self._var(words[1:])
+        elif word == b"$scope":
+            if len(words) < 2:
+                raise GapforgeError("$scope without a name", self.where)
+            self.scopes.append(words[-1].decode("ascii"))
+        elif word == b"$upscope":
+            if not self.scopes:
+                raise GapforgeError("$upscope without an open $scope", self.where)
+            self.scopes.pop()
+        elif word == b"$timescale":
+            args = [w.decode("ascii") for w in words[1:]]
+            self.timescale = parse_timescale(args, f"{self.where}: $timescale")
+        # $comment, $date, $version and unknown header commands carry only text
+
+    def _var(self, args: list[bytes]) -> None:
+        self.declared += 1
+        if self.leaves is not None and self.declared > HINT_VARS:
+            ref = b"".join(args[3:])
+            if ref.split(b"[", 1)[0] not in self.leaves:
+                return  # not asked for: counted only
+        text = [a.decode("ascii") for a in args]
+        self.variables.append(_parse_var(text, self.scopes, self.where))
+
+
+def _parse_var(args: list[str], scopes: list[str], where: str) -> Variable:
+    if len(args) < 4:
+        shown = " ".join(args)[:60]
+        raise GapforgeError(f"$var needs type, size, code and name, got {shown!r}", where)
+    var_type, size_text, code = args[0], args[1], args[2]
+    if not size_text.isdigit() or len(size_text) > 9 or int(size_text) < 1:
+        shown = " ".join(args)[:60]
+        raise GapforgeError(f"$var {shown!r}: size must be a positive integer", where)
+    ref = "".join(args[3:])
+    match = _REF.match(ref)
+    if not match:
+        shown = " ".join(args)[:60]
+        raise GapforgeError(f"$var {shown!r}: cannot read the reference", where)
+    msb = _bit_index(match.group("msb"), where)
+    lsb = _bit_index(match.group("lsb"), where) if match.group("lsb") is not None else msb
+    name = ".".join([*scopes, match.group("name")])
+    return Variable(name, var_type, int(size_text), code, msb, lsb)
+
+
+def _bit_index(text: str | None, where: str) -> int | None:
+    if text is None:
+        return None
+    if len(text) > 10:
+        raise GapforgeError(f"$var bit index {text[:20]!r}... is too long", where)
+    return int(text)
+
+
+@dataclass(frozen=True)
+class Selection:
+    name: str
+    variable: Variable
+    position: int  # bit position from the rightmost digit
+
+
+def select(header: Header, name: str, where: str) -> Selection:
+    """Find a signal by hierarchical name ('top.gate_h', 'top.bus[3]' or a unique leaf name)."""
+    wanted = name.strip()
+    match = _SELECT.match(wanted)
+    base, bit = (match.group("name"), int(match.group("bit"))) if match else (wanted, None)
+    candidates = [v for v in header.variables if v.path == base]
+    if not candidates:
+        candidates = [v for v in header.variables if v.path.endswith("." + base)]
+    # several names on one code are one signal; distinct codes are ambiguous
+    codes = {v.code for v in candidates}
+    if len(codes) > 1:
+        shown = ", ".join(sorted(v.display() for v in candidates)[:12])
+        raise GapforgeError(f"signal {name[:60]!r} is ambiguous: {shown}", where)
+    if not candidates:
+        raise GapforgeError(f"no signal {name[:60]!r} in the capture{_hint(header, wanted, base)}",
+                            where)
+    variable = candidates[0]
+    if variable.var_type.lower() in ("real", "realtime", "string", "event"):
+        raise GapforgeError(f"signal {name!r} is a {variable.var_type} variable, not a logic level", where)
+    position = variable.bit_position(bit)
+    if position is None:
+        if bit is None:
+            raise GapforgeError(
+                f"signal {name!r} is {variable.width} bits wide ({variable.display()}): "
+                f"select one bit, e.g. {variable.path}[0]",
+                where,
+            )
+        raise GapforgeError(f"bit {bit} is outside {variable.display()}", where)
+    if position >= variable.width:
+        raise GapforgeError(f"bit {bit} is outside {variable.display()}", where)
+    return Selection(name, variable, position)
+
+
+def _hint(header: Header, wanted: str, base: str) -> str:
+    names = sorted({v.display() for v in header.variables})
+    leaves = [w.path.rsplit(".", 1)[-1] for w in header.variables]
+    close = difflib.get_close_matches(base.rsplit(".", 1)[-1], leaves, n=1)
+    hint = difflib.get_close_matches(wanted, names, n=1) or [
+        v.display() for v in header.variables if v.path.rsplit(".", 1)[-1] in close
+    ][:1]
+    if hint:
+        return f"; did you mean {hint[0]!r}?"
+    more = f" (of {header.declared})" if header.declared > len(names) else ""
+    return f"; the file has {', '.join(names[:12])}{more}"
