@@ -447,3 +447,22 @@ def test_fuzzed_adaptive_sections_keep_the_promise(tmp_path: Path) -> None:
             assert len(err.strip().splitlines()) == 1, err
         if code != 0:
             assert not out_dir.exists()
+
+
+def test_report_has_the_section_with_plot_and_table(tmp_path: Path) -> None:
+    out = tmp_path / "r.html"
+    code, _, err = run_cli(["report", str(EXAMPLES / "adaptive-gan.toml"), "-o", str(out)])
+    assert code == 0, err
+    html = out.read_text(encoding="utf-8")
+    start = html.index('<section id="adaptive">')
+    section = html[start : html.index("</section>", start)]
+    assert section.count("<svg") == 1
+    # both policies are drawn, and the table lists the bin codes worked out by hand above
+    assert "below_swing 'max'" in section and "below_swing 'hard'" in section
+    assert "<td>to_low 162</td>" in section and "<td>to_low 191</td>" in section
+    assert "every temperature and both current signs" in section
+    # no section without [adaptive]
+    plain = tmp_path / "p.html"
+    code, _, err = run_cli(["report", str(EXAMPLES / "gan-buck.toml"), "-o", str(plain)])
+    assert code == 0, err
+    assert 'id="adaptive"' not in plain.read_text(encoding="utf-8")

@@ -836,6 +836,25 @@ def capture_limits(plan: BuildPlan) -> dict[str, Limits]:
     return {e: Limits(*x) for e, x in capture_expectations(plan).items()}
 
 
+def _adaptive_sections(plan: BuildPlan) -> list[Section]:
+    """Dead time by load current (issue 12), only for designs with [adaptive]."""
+    outputs = [(op.output.prefix, op.adaptive) for op in plan.outputs if op.adaptive is not None]
+    if not outputs:
+        return []
+    from gapforge.outputs.adaptive_report import adaptive_parts
+
+    paragraphs, figures, tables = adaptive_parts(outputs)
+    return [
+        Section(
+            "adaptive",
+            "Dead time by load current",
+            paragraphs,
+            tuple(FigureBlock(Markup(svg), caption) for svg, caption in figures),
+            tuple(TableBlock(t, h, r, n) for t, h, r, n in tables),
+        )
+    ]
+
+
 def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
     """The whole report as HTML text (self-contained: inline CSS and SVG, no scripts)."""
     d = plan.design
@@ -852,6 +871,7 @@ def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
         _analog_section(plan),
         _staircase_section(plan),
         _monte_carlo_section(plan),
+        *_adaptive_sections(plan),
         _capture_section(plan, capture),
         Section(
             "window",
