@@ -384,7 +384,7 @@ def test_adaptive_needs_a_stage(tmp_path: Path) -> None:
 
 
 def test_fuzzed_adaptive_sections_keep_the_promise(tmp_path: Path) -> None:
-    """Seeded, bounded: random values in [adaptive] and qoss give exit 0/1/2, one error line,
+    """Seeded, bounded: random values in [adaptive], [gate_driver] and qoss give exit 0/1/2, one error line,
     no traceback, nothing written on an error."""
     import random
     import time
@@ -425,16 +425,20 @@ def test_fuzzed_adaptive_sections_keep_the_promise(tmp_path: Path) -> None:
         "peak_current",
         "sign_band",
     ]
+    driver_keys = ["min_pulse", "bootstrap_on", "bootstrap_every"]
+    values += ['"50ns"', '"3us"', '"0ns"', "10", "1"]
     deadline = time.monotonic() + 8.0  # a bound on the test's length, not a check of speed
     runs = 0
     while time.monotonic() < deadline and runs < 40:
         runs += 1
         text = GAN
         for _ in range(rng.randint(1, 3)):
-            key = rng.choice([*keys, "qoss"])
+            key = rng.choice([*keys, "qoss", *driver_keys])
             value = rng.choice(values)
             lines = [ln for ln in text.splitlines() if not ln.startswith(f"{key} =")]
-            at = lines.index("[adaptive]") + 1 if key != "qoss" else lines.index("[stage]") + 1
+            section = "[stage]" if key == "qoss" else "[adaptive]"
+            section = "[gate_driver]" if key in driver_keys else section
+            at = lines.index(section) + 1
             lines.insert(at, f"{key} = {value}")
             text = "\n".join(lines) + "\n"
         path = tmp_path / "f.toml"
@@ -466,3 +470,55 @@ def test_report_has_the_section_with_plot_and_table(tmp_path: Path) -> None:
     code, _, err = run_cli(["report", str(EXAMPLES / "gan-buck.toml"), "-o", str(plain)])
     assert code == 0, err
     assert 'id="adaptive"' not in plain.read_text(encoding="utf-8")
+
+
+# ---------------------------------------------------------------------------------------------
+# gate-driver limits (common practice: a driver's minimum input pulse width; a bootstrap supply
+# recharges only while the low side is on)
+
+
+def test_gate_driver_limits_by_hand() -> None:
+    plan = plan_design(load_design(EXAMPLES / "adaptive-gan.toml"))
+    d = plan.outputs[0].driver
+    # 160 MHz, 400 kHz centre-aligned: N = 200 compare counts, 2 clocks per count
+    # longest dead times in the table: to_high and to_low 191 sixteenths = 11.9375 clocks
+    # min pulse 50 ns at the fast clock: ceil(50 ns x 160 MHz x 1.00005) = ceil(8.0004) = 9
+    assert d.min_pulse_clocks == 9
+    # high-side pulse 2c - 11.9375 >= 9  ->  c >= 10.47  ->  11 (the dead time alone gives 6)
+    assert d.duty_min_counts == 11 and d.binds_min == "minimum pulse"
+    # bootstrap 100 ns: ceil(16.0008) = 17 clocks; 2 (200 - c) - 11.9375 >= 17 -> c <= 185.53
+    assert d.bootstrap_clocks == 17 and d.bootstrap_compare_max == 185
+    # refresh in every period binds the maximum (the minimum pulse alone allows 189)
+    assert d.duty_max_counts == 185 and d.binds_max == "bootstrap refresh"
+    s = plan_design(load_design(EXAMPLES / "adaptive-silicon.toml")).outputs[0].driver
+    # 300 ns -> ceil(48.48) = 49 clocks; longest dead time 78 clocks; N = 4000:
+    # min ceil((78 + 49) / 2) = 64, max floor(4000 - 127 / 2) = 3936; bootstrap 2 us ->
+    # ceil(323.2) = 324 clocks, compare <= floor(4000 - 402 / 2) = 3799 once every 10 periods
+    assert (s.duty_min_counts, s.duty_max_counts, s.bootstrap_compare_max) == (64, 3936, 3799)
+    assert s.binds_max == "minimum pulse"
+
+
+def test_gate_driver_that_leaves_no_duty_fails_the_verdict(tmp_path: Path) -> None:
+    path = tmp_path / "d.toml"
+    path.write_text(GAN.replace('min_pulse = "50ns"', 'min_pulse = "1.2us"'), encoding="utf-8")
+    code, out, err = run_cli(["build", str(path), "--out", str(tmp_path / "o")])
+    assert code == 1, (out, err)
+    assert "no compare value gives a pulse on both outputs" in out
+    assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize(
+    ("change", "where"),
+    [
+        (('min_pulse = "50ns"', 'min_pulse = "50nV"'), "gate_driver.min_pulse"),
+        (('bootstrap_every = 1', 'bootstrap_every = 0'), "gate_driver.bootstrap_every"),
+        (('bootstrap_on = "100ns"', 'refresh = "100ns"'), "gate_driver.refresh"),
+    ],
+)
+def test_bad_gate_driver_input_is_one_line(
+    change: tuple[str, str], where: str, tmp_path: Path
+) -> None:
+    path = tmp_path / "d.toml"
+    path.write_text(GAN.replace(*change), encoding="utf-8")
+    code, _, err = run_cli(["build", str(path), "--out", str(tmp_path / "o")])
+    assert code == 2 and len(err.strip().splitlines()) == 1 and where in err

@@ -12,6 +12,7 @@ for negative current (codes rounded away from zero current, the same safe side).
 from __future__ import annotations
 
 from fractions import Fraction
+from typing import Any
 
 from gapforge.base.quantities import ceil_fraction, picoseconds_floor
 from gapforge.pipeline.adaptive_plan import AdaptivePlan
@@ -177,3 +178,34 @@ def _array_lines(
 def edge_ma(current: Fraction) -> int:
     """A bin edge in milliamperes, rounded up (the bin is entered at or above its edge)."""
     return ceil_fraction(current * 1000)
+
+
+def driver_rows(driver: Any, prefix: str) -> list[Row]:
+    """Macros of the gate driver's duty limits (issue 12)."""
+    p = prefix
+    rows: list[Row] = [
+        (
+            f"{p}_DRIVER_DUTY_MIN_COUNTS",
+            _lit(driver.duty_min_counts),
+            f"smallest compare value, set by the {driver.binds_min}",
+        ),
+        (
+            f"{p}_DRIVER_DUTY_MAX_COUNTS",
+            _lit(driver.duty_max_counts),
+            f"largest compare value, set by the {driver.binds_max}",
+        ),
+    ]
+    if driver.bootstrap_compare_max is not None:
+        rows += [
+            (
+                f"{p}_BOOTSTRAP_COMPARE_MAX",
+                _lit(max(0, driver.bootstrap_compare_max)),
+                "a refresh period needs compare <= this",
+            ),
+            (
+                f"{p}_BOOTSTRAP_EVERY_PERIODS",
+                _lit(driver.spec.bootstrap_every),
+                "at least one refresh period in every this many",
+            ),
+        ]
+    return rows

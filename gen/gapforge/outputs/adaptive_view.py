@@ -233,3 +233,48 @@ def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
         " current signs"
     )
     return "\n".join(lines)
+
+
+# ---------------------------------------------------------------------------------------------
+# gate-driver duty limits (issue 12), shown where they bind
+
+
+def driver_json(d: Any) -> dict[str, Any]:
+    spec = d.spec
+    return {
+        "min_pulse_s": _f(spec.min_pulse_s),
+        "min_pulse_clocks": d.min_pulse_clocks,
+        "bootstrap_on_s": _f(spec.bootstrap_on_s),
+        "bootstrap_every": spec.bootstrap_every,
+        "bootstrap_clocks": d.bootstrap_clocks,
+        "duty_min_counts": d.duty_min_counts,
+        "duty_max_counts": d.duty_max_counts,
+        "binds_min": d.binds_min,
+        "binds_max": d.binds_max,
+        "bootstrap_compare_max": d.bootstrap_compare_max,
+        "verdict": d.verdict,
+        "reason": d.reason or None,
+    }
+
+
+def driver_text(prefix: str, d: Any, counts: int) -> str:
+    lines = [
+        f"{prefix}: gate driver: usable compare {d.duty_min_counts}..{d.duty_max_counts} of"
+        f" {counts} ({float(Fraction(d.duty_min_counts, counts)) * 100:.4g} % .."
+        f" {float(Fraction(d.duty_max_counts, counts)) * 100:.4g} %); the minimum is set by the"
+        f" {d.binds_min}, the maximum by the {d.binds_max}"
+    ]
+    if d.spec.min_pulse_s is not None:
+        lines.append(
+            f"  minimum pulse {format_quantity(d.spec.min_pulse_s, 's', 4)} ="
+            f" {d.min_pulse_clocks} clocks at the fastest clock"
+        )
+    if d.bootstrap_compare_max is not None:
+        lines.append(
+            f"  bootstrap refresh: the low side on for {format_quantity(d.spec.bootstrap_on_s, 's', 4)}"
+            f" ({d.bootstrap_clocks} clocks) needs compare <= {d.bootstrap_compare_max} in at least"
+            f" one of every {d.spec.bootstrap_every} periods"
+        )
+    if d.verdict != "ok":
+        lines.append(f"  {d.verdict}: {d.reason}")
+    return "\n".join(lines)

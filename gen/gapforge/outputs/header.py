@@ -266,6 +266,10 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
             )
         )
 
+    if op.driver is not None:  # issue 12: gate-driver duty limits
+        from gapforge.outputs.adaptive_header import driver_rows
+
+        sections.append(_section("Gate driver limits", driver_rows(op.driver, p)))
     adaptive_checks: list[Check] = []
     adaptive_lines: list[str] = []
     if op.adaptive is not None:  # issue 12: the current-indexed table

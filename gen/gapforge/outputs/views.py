@@ -368,6 +368,10 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
 
             entry["adaptive"] = table_json(op.adaptive.table)
             entry["adaptive_model"] = model_json(op.adaptive)
+        if op.driver is not None:
+            from gapforge.outputs.adaptive_view import driver_json
+
+            entry["gate_driver"] = driver_json(op.driver)
         doc["outputs"].append(entry)
     return doc
 
@@ -430,6 +434,10 @@ def plan_text(plan: BuildPlan) -> str:
         if op.limits is not None:
             lines.append("")
             lines.append(f"{op.output.prefix}: " + pwm_text(op.limits))
+        if op.driver is not None and op.limits is not None:
+            from gapforge.outputs.adaptive_view import driver_text
+
+            lines.append(driver_text(op.output.prefix, op.driver, op.limits.counts))
     for r in plan.reasons:
         lines.append(f"{plan.verdict}: {r}")
     lines.append(f"verdict: {plan.verdict}")

@@ -43,6 +43,7 @@ class OutputPlan:
     warnings: tuple[str, ...]
     costs: Any = None  # stage.Costs at the slow-clock (longest) dead times, with a [stage]
     adaptive: Any = None  # pipeline.adaptive_plan.AdaptivePlan, with an [adaptive] section
+    driver: Any = None  # timer.driver.DriverLimits, with a [gate_driver] section and [pwm]
 
 
 @dataclass(frozen=True)
@@ -276,10 +277,31 @@ def _plan_output(
             design.adaptive, design.stage, result, window, limits, str(design.path)
         )
         warnings.extend(adaptive.notes)
+    driver = _driver(design, result, limits, adaptive)
+    if driver is not None and driver.verdict != "ok" and verdict == "ok":
+        verdict = driver.verdict
+        reasons.append(driver.reason)
     return OutputPlan(
         output, result, limits, judgements, verdict, tuple(reasons), tuple(warnings), costs,
-        adaptive,
+        adaptive, driver,
     )
+
+
+def _driver(design: Design, result: FitResult, limits: PwmLimits | None, adaptive: Any) -> Any:
+    """Gate-driver duty limits (issue 12) at the longest dead time in use per edge."""
+    if design.gate_driver is None or limits is None:
+        return None
+    from gapforge.timer.driver import driver_limits
+
+    dead = {e: limits.edges[e].dead_counts for e in EDGES}
+    if adaptive is not None:
+        assert result.divider is not None
+        for b in adaptive.table.bins:
+            for entries in b.entries.values():
+                for e in EDGES:
+                    steps = Fraction(entries[e].steps * result.divider, result.layout.sub_steps)
+                    dead[e] = max(dead[e], steps)
+    return driver_limits(limits, design.gate_driver, design.clock_hz, design.clock_tol, dead)
 
 
 def _reason(edge: str, j: EdgeJudgement, window: Bounds, amin: Fraction, amax: Fraction) -> str:

@@ -34,7 +34,7 @@ SOURCES = ("explicit", "reference-typical", "reference-minimum", "window")
 
 _TOP = frozenset(
     {"format", "name", "description", "timer", "pwm", "dead_time", "reference", "stage", "output"}
-    | {"adaptive"}
+    | {"adaptive", "gate_driver"}
 )
 _TIMER = frozenset({"clock", "tolerance", "clock_macro"})
 _PWM = frozenset({"frequency", "counting"})
@@ -71,6 +71,7 @@ class Design:
     stage: Any  # gapforge.stage.window.StageSpec or None
     outputs: tuple[Output, ...]
     adaptive: Any = None  # gapforge.stage.adaptive.AdaptiveSpec or None ([adaptive])
+    gate_driver: Any = None  # gapforge.timer.driver.GateDriverSpec or None ([gate_driver])
 
 
 def load_design(path: Path) -> Design:
@@ -136,6 +137,11 @@ def load_design(path: Path) -> Design:
     from gapforge.stage.adaptive import read_adaptive
 
     adaptive = read_adaptive(top, stage)
+    from gapforge.timer.driver import read_gate_driver
+
+    gate_driver = read_gate_driver(top)
+    if gate_driver is not None and pwm is None:
+        reader.problem("gate_driver", "[gate_driver] limits the duty: it needs a [pwm] section")
 
     dead_t = top.sub("dead_time") or reader.table({}, "dead_time")
     dead_t.check_keys(_DEAD)
@@ -229,4 +235,5 @@ def load_design(path: Path) -> Design:
         stage=stage,
         outputs=tuple(outputs),
         adaptive=adaptive,
+        gate_driver=gate_driver,
     )
