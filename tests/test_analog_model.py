@@ -64,10 +64,11 @@ def test_charge_integral_against_recorded_ngspice(name: str) -> None:
         assert model >= reference * (1 - 2e-4)
         assert model <= reference * (1.10 if diode.cjo > 0 else 1.0005)
     else:
-        # the resistor edge, leakage and junction charge sharing included: within 0.5 %, and
-        # not slower than ngspice (a slow edge overstated would overstate the dead time)
-        assert model == pytest.approx(reference, rel=5e-3)
+        # the resistor edge, leakage and junction charge sharing included: a lower bound (a
+        # slow edge overstated would overstate the dead time; 2e-4 is ngspice's own step
+        # error), within 0.05 % without junction capacitance and 1.5 % with it (issue 15)
         assert model <= reference * (1 + 2e-4)
+        assert model >= reference * (1 - (1.5e-2 if diode.cjo > 0 else 5e-4))
 
 
 def test_charge_integral_reduces_to_the_textbook_rc() -> None:

@@ -134,123 +134,190 @@ def diode_edge_delay(
     by Gauss-Legendre quadrature in ln x, with no time-stepping and exact for an RC with an
     ideal diode (then i = x / R, D = x (1 + Rout / R): t = (R + Rout) C ln(span / d)).
 
-    The start x_1: on the resistor edge, the state just after the input step, when the junction
-    capacitance has shared its charge with C: C (span - D(x_1)) = Q(x_1); that matches the
-    transient (and ngspice) to 0.25 %, a shade fast. On the bypassed edge the sharing takes
-    time (the driver node charges through Rout), so the integral starts from the full step,
-    D(x_1) = span, and counts the junction capacitance as more node capacitance without its
-    coupling: a bound from above, 0 to 9 % slow against ngspice over the recorded matrix, exact
-    without junction capacitance. Both errors fall on the safe side of a dead time (slow edge
-    minus bypassed edge).
-    `sat` overrides the saturation current per sample (a knee voltage given by the user).
-    Breakdown is not modelled (the network check keeps BV above every VDD).
+    The bounds (both on the safe side of a dead time, slow edge minus bypassed edge):
+
+    - the resistor edge is a lower bound. It starts after the junction capacitance shared its
+      charge with C, C (span - D(x_1)) = Q(x_1). The quasi-static D leaves out the junction's
+      displacement current through Rout; on the circuit's slow manifold the current through
+      Rout is C i / (C + Q'), so the end points x_th and x_1 are solved with Rout scaled by
+      C / (C + CJ(T)) (CJ(T), the zero-bias junction capacitance at the temperature, is the
+      largest Q' on a reverse-biased path: the scaling errs short), the integrand keeps the
+      full Rout. With the full Rout everywhere the edge came out up to 0.64 % long when CJ is
+      comparable to C (issue 15). When the coupled step alone passes the threshold the edge
+      is 0 (the transient shows the sub-nanosecond coupling through Rout).
+    - the bypassed edge is an upper bound: the sharing takes time there (the driver node
+      charges through Rout), so the integral starts from the full step, D(x_1) = span, and
+      counts the junction capacitance as more node capacitance without its coupling (exact
+      without junction capacitance, up to tens of % slow when CJ is comparable to C).
+
+    Both hold against ngspice on the recorded matrix and on a seeded random family of networks
+    (tests/test_analog_random.py). `sat` overrides the saturation current per sample (a knee
+    voltage given by the user). Breakdown is not modelled (the network check keeps BV above
+    every VDD). Steps: `_setup` (per-sample parameters), `_solve` (the end points x_th, x_1),
+    `_integrate` (the quadrature), assembled here.
     """
     import numpy as np
 
-    flat = [np.ravel(a) for a in np.broadcast_arrays(
-        *(np.asarray(a, dtype=float) for a in (span, distance, r, rout, c_node, temp_c))
-    )]
-    shape = np.broadcast_shapes(*(np.shape(a) for a in (span, distance, r, rout, c_node, temp_c)))
-    span_a, distance_a, r_a, rout_a, c_a, temp_a = flat
-    n = span_a.size
+    arrays = tuple(np.asarray(a, dtype=float) for a in (span, distance, r, rout, c_node, temp_c))
+    shape = np.broadcast_shapes(*(np.shape(a) for a in arrays))
+    flat = [np.ravel(a) for a in np.broadcast_arrays(*arrays)]
+    n = flat[0].size
+    sat_flat = None if sat is None else np.ravel(np.broadcast_to(sat, shape))
     if n > _BLOCK:  # in blocks: the nodes' temporaries stay in cache
-        sat_flat = None if sat is None else np.ravel(np.broadcast_to(sat, shape))
-        parts = []
-        for k in range(0, n, _BLOCK):
-            part = slice(k, k + _BLOCK)
-            parts.append(diode_edge_delay(
-                diode, forward, span_a[part], distance_a[part], r_a[part], rout_a[part],
-                c_a[part], temp_a[part], None if sat_flat is None else sat_flat[part]))
+        parts = [
+            _edge_block(diode, forward, [a[k:k + _BLOCK] for a in flat],
+                        None if sat_flat is None else sat_flat[k:k + _BLOCK])
+            for k in range(0, n, _BLOCK)
+        ]
         blocked: FloatArray = np.concatenate(parts).reshape(shape)
         return blocked
-    j = junction_arrays(diode, temp_a)
-    vte = np.broadcast_to(j.vte, (n,))
-    sat_a = np.broadcast_to(j.sat, (n,)) if sat is None else np.ravel(np.broadcast_to(sat, shape))
-    # per-sample parameters, gathered for the samples in work (rows) and broadcast over nodes
-    table = (sat_a, vte, r_a, rout_a, c_a, *(np.broadcast_to(a, (n,))
-                                             for a in (j.cj, j.vj, j.fc_v, j.f1)))
-    rs = diode.rs
-    with_charge = diode.cjo > 0.0
+    out: FloatArray = _edge_block(diode, forward, flat, sat_flat).reshape(shape)
+    return out
 
-    def gather(rows: npt.NDArray[np.intp], column: bool) -> tuple[FloatArray, ...]:
-        return tuple(a[rows][:, None] if column else a[rows] for a in table)
 
-    def state(
-        x: FloatArray, p: tuple[FloatArray, ...], charge: bool = True
-    ) -> tuple[FloatArray, ...]:
-        """i, D, D', Q, Q' at x (p: gathered parameters; Q, Q' zero unless `charge`)."""
-        s_, v_, r_, ro, _c, cj, vj, fc_v, f1 = p
-        if forward:
-            e = np.exp(np.minimum(x / v_, 700.0))
-            idd = s_ * (e - 1.0) + GMIN * x
-            gd = s_ * e / v_ + GMIN
-            vp = x + rs * idd
-            vpp = 1.0 + rs * gd
-        else:  # the SPICE reverse law: exponential to -3 N VT, then a cubic approach to -IS
-            xc = np.maximum(x, 1e-300)
-            e = np.exp(-np.minimum(x, 3.0 * v_) / v_)
-            a = (3.0 * v_ / (math.e * xc)) ** 3
-            small = x <= 3.0 * v_
-            idd = s_ * np.where(small, 1.0 - e, 1.0 - a) + GMIN * x
-            gd = np.where(small, s_ * e / v_, 3.0 * s_ * a / xc) + GMIN
-            vp = x
-            vpp = np.ones_like(x)
-        i = vp / r_ + idd
-        d = vp + ro * i
-        dp = vpp + ro * (vpp / r_ + gd)
-        if not (with_charge and charge):
-            return i, d, dp, 0.0 * x, 0.0 * x
-        q, qp = _depletion(x if forward else -x, cj, vj, fc_v, f1, j)
-        return i, d, dp, (q if forward else -q), qp
+def _edge_block(
+    diode: DiodeModel, forward: bool, flat: list[FloatArray], sat: FloatArray | None
+) -> FloatArray:
+    """One block of samples: setup, end points, quadrature."""
+    import numpy as np
 
-    def solve(jump: bool, target: FloatArray) -> FloatArray:
-        """The x where D (or C D + Q for the jump) reaches target (both increase with x).
-
-        Newton from a bound on the side where it converges monotonically (D is convex in the
-        forward junction voltage, concave in the reverse one), kept inside a bracket with a
-        bisection fallback; converged samples leave the active set.
-        """
-        lo = np.zeros(n)
-        hi = np.array(span_a, dtype=float)
-        if forward:  # D >= (Rout + RS) Id(x): an upper bound of the root
-            with np.errstate(divide="ignore", over="ignore"):
-                x = vte * np.log1p(target / ((rout_a + rs) * sat_a))
-        else:  # D <= x (1 + Rout/R + Rout g(0)), C D + Q <= x (C (...) + Cj): a lower bound
-            slope = 1.0 + rout_a / r_a + rout_a * (sat_a / vte + GMIN)
-            x = target / (slope * c_a + table[5]) if jump else target / slope
-        x = np.where(np.isfinite(x), np.minimum(x, hi), hi)
-        active = np.arange(n)
-        for _ in range(100):
-            xa = x[active]
-            p = gather(active, False)
-            _i, d, dp, q, qp = state(xa, p, jump)
-            if jump:
-                f, fp = p[4] * d + q - target[active], p[4] * dp + qp
-            else:
-                f, fp = d - target[active], dp
-            lo_a = np.where(f <= 0.0, xa, lo[active])
-            hi_a = np.where(f >= 0.0, xa, hi[active])
-            newton = xa - f / fp
-            x_new = np.where((newton >= lo_a) & (newton <= hi_a), newton, 0.5 * (lo_a + hi_a))
-            lo[active], hi[active], x[active] = lo_a, hi_a, x_new
-            active = active[np.abs(x_new - xa) > 1e-12 * span_a[active]]
-            if active.size == 0:
-                break
-        return x
-
-    x_th = solve(False, distance_a)
-    # the bypassed edge starts from the full step (the junction capacitance counted as more
-    # node capacitance, its coupling ignored: a bound from above); the resistor edge starts
-    # after the junction capacitance shared its charge with C (close, and a shade fast)
-    x_1 = solve(False, span_a) if forward else solve(True, c_a * span_a)
-    result = np.zeros(n)
+    s = _setup(diode, forward, flat, sat)
+    x_th = _solve(s, False, s.distance)
+    # the bypassed edge starts from the full step (see diode_edge_delay); the resistor edge
+    # after the junction capacitance shared its charge with C
+    x_1 = _solve(s, False, s.span) if forward else _solve(s, True, s.c * s.span)
+    result = np.zeros(s.n)
     live = np.flatnonzero(x_1 > x_th)
-    if live.size == 0:
-        return result.reshape(shape)
-    lo_x, hi_x = x_th[live], x_1[live]
-    # Below the diode's knee R carries the current and the integrand goes as 1/x: integrate in
-    # ln x. Above it the diode does and the integrand is smooth in x itself: integrate in x.
-    if forward:
+    if live.size:
+        result[live] = _integrate(s, live, x_th[live], x_1[live])
+    return result
+
+
+@dataclass(frozen=True, eq=False)
+class _Edge:
+    """The per-sample parameters of one block of edges (flattened, one value per sample)."""
+
+    forward: bool
+    n: int
+    span: FloatArray
+    distance: FloatArray
+    c: FloatArray
+    rs: float
+    with_charge: bool
+    j: JunctionArrays
+    # the parameters `_state` needs, in its order: sat, vte, r, rout, c, cj, vj, fc_v, f1
+    table: tuple[FloatArray, ...]
+    ends: tuple[FloatArray, ...]  # the same with the end points' Rout (see diode_edge_delay)
+
+    def gather(self, rows: npt.NDArray[np.intp], column: bool) -> tuple[FloatArray, ...]:
+        """The table's rows for the samples in work, as columns to broadcast over nodes."""
+        return tuple(a[rows][:, None] if column else a[rows] for a in self.table)
+
+    def gather_ends(self, rows: npt.NDArray[np.intp]) -> tuple[FloatArray, ...]:
+        return tuple(a[rows] for a in self.ends)
+
+
+def _setup(
+    diode: DiodeModel, forward: bool, flat: list[FloatArray], sat: FloatArray | None
+) -> _Edge:
+    """Per-sample junction parameters and the effective Rout (see diode_edge_delay)."""
+    import numpy as np
+
+    span, distance, r, rout, c, temp = flat
+    n = span.size
+    j = junction_arrays(diode, temp)
+    cj = np.broadcast_to(j.cj, (n,))
+    sat_a = np.broadcast_to(j.sat, (n,)) if sat is None else sat
+    table = (sat_a, np.broadcast_to(j.vte, (n,)), r, rout, c, cj,
+             *(np.broadcast_to(a, (n,)) for a in (j.vj, j.fc_v, j.f1)))
+    ends = table
+    if not forward and diode.cjo > 0.0:  # the resistor edge's end points: Rout C / (C + CJ)
+        ends = (*table[:3], rout * (c / (c + cj)), *table[4:])
+    return _Edge(forward, n, span, distance, c, diode.rs, diode.cjo > 0.0, j, table, ends)
+
+
+def _state(
+    s: _Edge, x: FloatArray, p: tuple[FloatArray, ...], charge: bool = True
+) -> tuple[FloatArray, ...]:
+    """i, D, D', Q, Q' at x (p: gathered parameters; Q, Q' zero unless `charge`)."""
+    import numpy as np
+
+    s_, v_, r_, ro, _c, cj, vj, fc_v, f1 = p
+    if s.forward:
+        e = np.exp(np.minimum(x / v_, 700.0))
+        idd = s_ * (e - 1.0) + GMIN * x
+        gd = s_ * e / v_ + GMIN
+        vp = x + s.rs * idd
+        vpp = 1.0 + s.rs * gd
+    else:  # the SPICE reverse law: exponential to -3 N VT, then a cubic approach to -IS
+        xc = np.maximum(x, 1e-300)
+        e = np.exp(-np.minimum(x, 3.0 * v_) / v_)
+        a = (3.0 * v_ / (math.e * xc)) ** 3
+        small = x <= 3.0 * v_
+        idd = s_ * np.where(small, 1.0 - e, 1.0 - a) + GMIN * x
+        gd = np.where(small, s_ * e / v_, 3.0 * s_ * a / xc) + GMIN
+        vp = x
+        vpp = np.ones_like(x)
+    i = vp / r_ + idd
+    d = vp + ro * i
+    dp = vpp + ro * (vpp / r_ + gd)
+    if not (s.with_charge and charge):
+        return i, d, dp, 0.0 * x, 0.0 * x
+    q, qp = _depletion(x if s.forward else -x, cj, vj, fc_v, f1, s.j)
+    return i, d, dp, (q if s.forward else -q), qp
+
+
+def _solve(s: _Edge, jump: bool, target: FloatArray) -> FloatArray:
+    """The x where D (or C D + Q for the jump) reaches target (both increase with x).
+
+    Newton from a bound on the side where it converges monotonically (D is convex in the
+    forward junction voltage, concave in the reverse one), kept inside a bracket with a
+    bisection fallback; converged samples leave the active set.
+    """
+    import numpy as np
+
+    sat_a, vte, r_a, rout_a, c_a, cj = s.ends[:6]
+    lo = np.zeros(s.n)
+    hi = np.array(s.span, dtype=float)
+    if s.forward:  # D >= (Rout + RS) Id(x): an upper bound of the root
+        with np.errstate(divide="ignore", over="ignore"):
+            x = vte * np.log1p(target / ((rout_a + s.rs) * sat_a))
+    else:  # D <= x (1 + Rout/R + Rout g(0)), C D + Q <= x (C (...) + Cj): a lower bound
+        slope = 1.0 + rout_a / r_a + rout_a * (sat_a / vte + GMIN)
+        x = target / (slope * c_a + cj) if jump else target / slope
+    x = np.where(np.isfinite(x), np.minimum(x, hi), hi)
+    active = np.arange(s.n)
+    for _ in range(100):
+        xa = x[active]
+        p = s.gather_ends(active)
+        _i, d, dp, q, qp = _state(s, xa, p, jump)
+        if jump:
+            f, fp = p[4] * d + q - target[active], p[4] * dp + qp
+        else:
+            f, fp = d - target[active], dp
+        lo_a = np.where(f <= 0.0, xa, lo[active])
+        hi_a = np.where(f >= 0.0, xa, hi[active])
+        newton = xa - f / fp
+        x_new = np.where((newton >= lo_a) & (newton <= hi_a), newton, 0.5 * (lo_a + hi_a))
+        lo[active], hi[active], x[active] = lo_a, hi_a, x_new
+        active = active[np.abs(x_new - xa) > 1e-12 * s.span[active]]
+        if active.size == 0:
+            break
+    return x
+
+
+def _integrate(
+    s: _Edge, live: npt.NDArray[np.intp], lo_x: FloatArray, hi_x: FloatArray
+) -> FloatArray:
+    """The charge integral from x_th to x_1 for the samples in `live`.
+
+    Below the diode's knee R carries the current and the integrand goes as 1/x: integrate in
+    ln x. Above it the diode does and the integrand is smooth in x itself: integrate in x.
+    """
+    import numpy as np
+
+    sat_a, vte, r_a = s.table[:3]
+    if s.forward:
         with np.errstate(divide="ignore", over="ignore"):
             knee = np.clip(_knee(r_a[live] * sat_a[live], vte[live]), lo_x, hi_x)
     else:
@@ -261,18 +328,16 @@ def diode_edge_delay(
         half = 0.5 * (b - a)
         u = (a + half)[:, None] + half[:, None] * nodes[None, :]
         x = np.exp(u) if log else u
-        p = gather(rows, True)
-        i, _d, dp, _q, qp = state(x, p)
+        p = s.gather(rows, True)
+        i, _d, dp, _q, qp = _state(s, x, p)
         integrand = (p[4] * dp + qp) / i
         if log:
             integrand *= x
         total: FloatArray = half * (integrand @ weights)
         return total
 
-    result[live] = panel(live, np.log(lo_x), np.log(knee), True)
+    result = panel(live, np.log(lo_x), np.log(knee), True)
     upper = np.flatnonzero(hi_x > knee)
     if upper.size:
-        result[live[upper]] += panel(live[upper], knee[upper], hi_x[upper], False)
-    out: FloatArray = result.reshape(shape)
-    return out
-
+        result[upper] += panel(live[upper], knee[upper], hi_x[upper], False)
+    return result

@@ -1,9 +1,10 @@
-"""The network's own dangers as one-line findings: overlap, hot-board leakage, the bypass knee."""
+"""The network's own dangers as one-line findings: overlap, hot-board leakage, a junction
+capacitance that couples the step past the threshold, the bypass knee."""
 
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import TYPE_CHECKING
 
@@ -64,6 +65,68 @@ def slow_edge_leakage(net: ReferenceNetwork) -> list[SlowEdgePoint]:
     return points
 
 
+def without_junction_capacitance(net: ReferenceNetwork) -> ReferenceNetwork:
+    """The same network with the diode's junction capacitance removed (leakage kept)."""
+    return replace(net, diode=replace(net.diode, cjo=0.0))
+
+
+@dataclass(frozen=True)
+class CouplingPoint:
+    """A slow edge's node delay with and without the diode's junction capacitance."""
+
+    temp_c: float
+    edge: str
+    delay_s: float
+    delay_no_cj_s: float
+
+    @property
+    def share(self) -> float:
+        """The share of the slow edge the coupled step takes away (0 = none, 1 = all)."""
+        if not self.delay_no_cj_s > 0.0:
+            return 0.0
+        return max(0.0, 1.0 - self.delay_s / self.delay_no_cj_s)
+
+
+def slow_edge_coupling(net: ReferenceNetwork) -> list[CouplingPoint]:
+    """The slow edges at the temperature band's min, typ and max, typical parts, by the model,
+    with the diode's junction capacitance and without it. Empty without a diode or a CJO."""
+    import numpy as np
+
+    if net.bypass == "none" or net.diode.cjo <= 0.0:
+        return []
+    temps = [float(t) for t in (net.temp.min, net.temp.typ, net.temp.max)]
+    edges = net.slow_edges()
+    v = values_at(net, {"temp": np.asarray([0.0, 0.5, 1.0])})
+    with_cj = channel_edge_delays(net, v, edges)
+    without = channel_edge_delays(without_junction_capacitance(net), v, edges)
+    return [
+        CouplingPoint(temps[k], edge, float(np.broadcast_to(with_cj["node_" + edge], (3,))[k]),
+                      float(np.broadcast_to(without["node_" + edge], (3,))[k]))
+        for edge in edges for k in range(3)
+    ]
+
+
+def coupling_finding(
+    net: ReferenceNetwork, points: list[CouplingPoint], share: Fraction
+) -> str | None:
+    """The warning when the diode's junction capacitance couples the input step onto the node
+    and takes more than `share` of a slow edge (the edge most affected over temperature)."""
+    if not points:
+        return None
+    worst = max(points, key=lambda p: (p.share, -p.delay_s))
+    if not worst.share > float(share):
+        return None
+    ratio = net.diode.cjo / float(net.c)
+    return (
+        f"the diode's junction capacitance ({format_quantity(net.diode.cjo, 'F', 4)} at 0 V) is "
+        f"{ratio * 100:.0f} % of C: the step couples through it and the slow {worst.edge} edge "
+        f"is only {format_quantity(worst.delay_s, 's', 4)} (without it "
+        f"{format_quantity(worst.delay_no_cj_s, 's', 4)}, at {worst.temp_c:g} C, typical parts;"
+        f" more than {format_tolerance(share)} lost): choose a diode with less capacitance or a "
+        "larger C"
+    )
+
+
 def leakage_warning(point: SlowEdgePoint, share: Fraction, source: str) -> str | None:
     """The loud one-line warning when leakage takes more than `share` of a slow edge, else None.
 
@@ -122,6 +185,8 @@ def reference_findings(
       naming the dead time, its PWM edge and the corner value;
     - diode leakage taking more than `leakage_share` of a slow edge at the hottest temperature
       (the charge-integral model, typical parts: `slow_edge_leakage`);
+    - the diode's junction capacitance coupling the step onto the node and taking more than
+      `leakage_share` of a slow edge (`slow_edge_coupling`);
     - the bypassed edge's threshold lying inside the diode's knee (`bypass_notes`).
 
     `dead_times` takes the result of `reference_dead_times(net)` when the caller already has it
@@ -134,6 +199,9 @@ def reference_findings(
         if overlap is not None:
             findings.append(overlap)
     findings += hottest_leakage_warnings(slow_edge_leakage(net), leakage_share, "model")
+    coupling = coupling_finding(net, slow_edge_coupling(net), leakage_share)
+    if coupling is not None:
+        findings.append(coupling)
     notes = bypass_notes(net)
     findings += [notes[e] for e in EDGES if e in notes]
     return findings

@@ -282,7 +282,13 @@ class SlowEdgePoint:
 
     @property
     def erosion(self) -> float:
-        """The share of the delay that leakage takes away (0 = none, 1 = all)."""
-        return 1.0 - self.delay_s / self.delay_no_leakage_s
+        """The share of the delay that leakage takes away (0 = none, 1 = all).
+
+        0 when the edge has no delay even without leakage (the junction capacitance's coupled
+        step alone passes the threshold: nothing left for leakage to take; the coupling has a
+        finding of its own)."""
+        if not self.delay_no_leakage_s > 0.0:
+            return 0.0
+        return max(0.0, 1.0 - self.delay_s / self.delay_no_leakage_s)
 
 

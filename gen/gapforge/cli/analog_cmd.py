@@ -117,6 +117,10 @@ def command(
     the undelayed turn-off of the other on the same input edge: to_high before the high side
     turns on, to_low before the low side does.
 
+    The model bounds each edge on the safe side of a dead time: the slow (resistor) edge from
+    below (within 1.5 % of ngspice, 0.05 % without junction capacitance), the bypassed edge from
+    above (exact without junction capacitance).
+
     Exit 1 when a worst-case dead time is not positive (the network can overlap) or falls below
     --min-dead, when diode leakage at the hottest temperature takes more than --leakage-warn of
     a slow edge (the dead time vanishes on a hot board), or when --suggest finds no safe pair.
@@ -208,8 +212,10 @@ def analyse(
     """Everything `analog` reports, as a JSON-ready dict (floats for display only)."""
     from gapforge.analog.describe import bypass_notes, describe_parameters
     from gapforge.analog.findings import (
+        coupling_finding,
         hottest_leakage_warnings,
         overlap_finding,
+        slow_edge_coupling,
         slow_edge_leakage,
     )
     from gapforge.analog.tolerance import monte_carlo, rss, typical_textbook, worst_case
@@ -270,8 +276,23 @@ def analyse(
     leakage_points = slow_edge_leakage(net)
     leakage = hottest_leakage_warnings(leakage_points, warn_share, "model")
     warnings += leakage
+    coupling_points = slow_edge_coupling(net)
+    coupling = coupling_finding(net, coupling_points, warn_share)
+    if coupling is not None:
+        warnings.append(coupling)
     warnings += [notes[e] for e in EDGES if e in notes]
     limit_violated = limit_violated or bool(leakage)
+    report["coupling"] = {
+        "method": "charge-integral model, typical parts, with and without the diode's junction "
+        "capacitance",
+        "slow_edge_over_temperature": [
+            {"temp_c": p.temp_c, "edge": p.edge, "delay_s": p.delay_s,
+             "delay_no_cj_s": p.delay_no_cj_s, "share": p.share}
+            for p in coupling_points
+        ],
+        "warning": coupling is not None,
+        "warn_share": float(warn_share),
+    }
     report["leakage"] = {
         "method": "charge-integral model, typical parts, with and without the diode's leakage",
         "slow_edge_over_temperature": [
@@ -389,9 +410,15 @@ def _simulation(
     for edge in EDGES:
         e = edges[edge]
         e["delay_sim_s"] = sim[edge]
-        e["model_vs_sim"] = e["delay_s"] / sim[edge] - 1.0
-        e["textbook_vs_sim"] = e["delay_textbook_s"] / sim[edge] - 1.0
-        if abs(e["model_vs_sim"]) > model_share:
+        e["model_vs_sim"] = e["delay_s"] / sim[edge] - 1.0 if sim[edge] > 0 else 0.0
+        e["textbook_vs_sim"] = e["delay_textbook_s"] / sim[edge] - 1.0 if sim[edge] > 0 else 0.0
+        if not e["bypassed"] and e["delay_s"] <= 0.0:
+            warnings.append(
+                f"note: the model cannot resolve the slow {edge} edge: the step coupled through "
+                "the diode's junction capacitance alone passes the threshold, so it takes 0 s "
+                f"(a lower bound); the transient shows {format_quantity(sim[edge], 's', 4)}"
+            )
+        elif abs(e["model_vs_sim"]) > model_share:
             model_off = True
             warnings.append(
                 f"WARNING: THE MODEL AND THE SIMULATION DISAGREE ON THE {edge.upper()} EDGE: "
