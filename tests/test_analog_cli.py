@@ -11,7 +11,8 @@ import pytest
 
 from conftest import REPO, run_cli, run_subprocess
 
-NET = ["--r", "4.7k", "--c", "100p"]
+# a Schmitt part's own thresholds (the defaults are a wide generic band)
+NET = ["--r", "4.7k", "--c", "100p", "--vt-plus", "50%:60%:70%", "--vt-minus", "30%:40%:50%"]
 
 
 def test_json_has_the_issue_keys() -> None:
@@ -80,8 +81,8 @@ def test_analog_warns_in_the_words_build_repeats() -> None:
     from gapforge.analog.parameters import network_from_options
 
     for args, raw in ((HOT, {"r": "47k", "c": "100p", "diode": HOT[-1]}),
-                      ([*NET, "--bypass", "rising"], {"r": "4.7k", "c": "100p",
-                                                       "bypass": "rising"})):
+                      ([*NET, "--bypass", "rising"], {"r": "4.7k", "c": "100p", "bypass": "rising",
+                                                       "vt_plus": NET[5], "vt_minus": NET[7]})):
         _, out, _ = run_cli(["analog", *args, "--json"])
         warnings = json.loads(out)["warnings"]
         findings = reference_findings(network_from_options(raw))
@@ -150,7 +151,7 @@ def test_design_file_reference_section(tmp_path: Path) -> None:
     design = tmp_path / "d.toml"
     design.write_text(
         '# invented example\n[reference]\nr = "4.7k"\nc = "100p"\nbypass = "falling"\n'
-        'levels = "jedec-3v3"\n'
+        'levels = "jedec-3v3"\nvt_plus = "45%:55%"\nvt_minus = "40%:50%"\n'
     )
     code, out, _ = run_cli(["analog", "--design", str(design), "--json"])
     assert code == 0

@@ -16,7 +16,8 @@ from gapforge.analog.tolerance import reference_dead_times
 from gapforge.base.quantities import format_quantity
 
 SCHOTTKY = "IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5 EG=0.69 XTI=2"  # the example
-GOOD = {"r": "4.7k", "c": "100p"}  # the default network: falling edge bypassed, silicon diode
+# the default network (falling edge bypassed, silicon diode) with a Schmitt part's own thresholds
+GOOD = {"r": "4.7k", "c": "100p", "vt_plus": "50%:60%:70%", "vt_minus": "30%:40%:50%"}
 
 
 def test_a_sound_network_has_no_findings() -> None:

@@ -63,8 +63,9 @@ def test_suggestions_hit_the_target_and_are_ranked_by_error() -> None:
 # The README example: 4.7k / 100p network, falling edge bypassed, VT+ 2.0 V, VT- 1.0 V, asking
 # for 300 ns. Ranked by typical error alone, 121 ohm / 3.9 nF came sixth although its worst-case
 # dead time is -39.9 ns (an overlap).
+# the README's network, with the capacitor tolerance given (else E12's usual 10 % applies)
 README = {"vdd": "3.3", "r": "4.7k", "c": "100p", "bypass": "falling", "vt_plus": "2.0",
-          "vt_minus": "1.0"}
+          "vt_minus": "1.0", "c_tol": "5%"}
 TARGET = Fraction(300, 10**9)
 UNSAFE_PAIR = (Fraction(121), Fraction(39, 10**10))
 
@@ -217,3 +218,44 @@ def test_unreachable_target_is_a_user_error() -> None:
     net = network_from_options({"r": "4.7k", "c": "100p"})
     with pytest.raises(GapforgeError):
         suggest(net, Fraction(1, 10**15))
+
+
+def test_the_series_tolerance_applies_unless_the_user_gives_one() -> None:
+    # Issue 9: `--series E12` still assumed 1 % resistors. IEC 60063 usage (reference-facts):
+    # E6 20 %, E12 10 %, E24 5 %, E48 2 %, E96 1 %, E192 0.5 %.
+    from gapforge.analog.preferred import SERIES_TOLERANCE, series_tolerances
+
+    assert {"E6": Fraction(1, 5), "E12": Fraction(1, 10),
+                                "E24": Fraction(1, 20), "E48": Fraction(1, 50),
+                                "E96": Fraction(1, 100), "E192": Fraction(1, 200)} == SERIES_TOLERANCE
+    defaulted = network_from_options({"r": "4.7k", "c": "100p"})
+    widened = series_tolerances(defaulted, "E12", "E6")
+    assert (widened.r_tol, widened.c_tol) == (Fraction(1, 10), Fraction(1, 5))
+    given = network_from_options({"r": "4.7k", "c": "100p", "r_tol": "0.1%", "c_tol": "1%"})
+    kept = series_tolerances(given, "E12", "E6")
+    assert (kept.r_tol, kept.c_tol) == (Fraction(1, 1000), Fraction(1, 100))
+    # and the search uses it: an E12 resistor at 10 % widens every pair's worst case
+    loose = suggest(network_from_options({**README, "c_tol": "1%"}), TARGET, r_series="E12")
+    tight = suggest(network_from_options({**README, "c_tol": "1%", "r_tol": "1%"}), TARGET,
+                    r_series="E12")
+    pair = tight.pairs[0]
+    same = [p for p in (*loose.pairs, *loose.rejected) if (p.r, p.c) == (pair.r, pair.c)]
+    assert same and same[0].ranges["to_high"].min_s < pair.ranges["to_high"].min_s
+
+
+def test_e6_e48_e192_are_the_iec_60063_series() -> None:
+    # IEC 60063:2015 (reference-facts "Preferred values"): E6 written out; E48 is every second
+    # E96 value; E192 = round(100 * 10^(i/192)) with one exception, 920 where the formula gives
+    # 919; the series nest (E192's even entries are E96).
+    from gapforge.analog.preferred import E6, E48, E96, E192, series_values
+
+    assert E6 == (10, 15, 22, 33, 47, 68)
+    assert len(E48) == 48 and E48[:6] == (100, 105, 110, 115, 121, 127) and E48[-1] == 953
+    assert len(E192) == 192 and E192[::2] == E96
+    assert 920 in E192 and 919 not in E192
+    formula = [round(100 * 10 ** (i / 192)) for i in range(192)]
+    assert [i for i in range(192) if formula[i] != E192[i]] == [185]
+    assert E192[:16] == (100, 101, 102, 104, 105, 106, 107, 109, 110, 111, 113, 114, 115, 117,
+                         118, 120)  # the standard's first row, from memory
+    assert series_values("E6", Fraction(1000), Fraction(10000)) == [
+        Fraction(v) for v in (1000, 1500, 2200, 3300, 4700, 6800, 10000)]

@@ -177,7 +177,7 @@ def test_corners_of_many_pairs_equal_each_pair_on_its_own() -> None:
 
     for raw in ({"r": "4.7k", "c": "100p"},
                 {"r": "4.7k", "c": "100p", "bypass": "rising", "output_inverter": "true",
-                 "vf": "0.3:0.4:0.5", "inverter_delay": "1n:2n:4n"},
+                 "vf": "0.4", "inverter_delay": "1n:2n:4n"},
                 {**BASE, "r": "10k", "c": "1n", "r_tol": "0"}):
         net = network_from_options(raw)
         parts = [(Fraction(121), Fraction(39, 10**10)), (net.r, net.c),

@@ -36,11 +36,13 @@ def knee_voltage_array(diode: DiodeModel, r_ohm: FloatArray, temp_c: FloatArray)
     """Vectorised knee voltage: root of v = N VT ln(1 + v / (R IS(T))) (0 if none above 0)."""
     import numpy as np
 
-    t = temp_c + ZERO_CELSIUS
-    tn = diode.tnom + ZERO_CELSIUS
-    vte = diode.n * K_OVER_Q * t
-    sat = diode.is_ * np.exp((t / tn - 1.0) * diode.eg / vte + diode.xti / diode.n * np.log(t / tn))
-    return _knee(r_ohm * sat, vte)
+    with np.errstate(all="ignore"):
+        t = temp_c + ZERO_CELSIUS
+        tn = diode.tnom + ZERO_CELSIUS
+        vte = diode.n * K_OVER_Q * t
+        sat = diode.is_ * np.exp(
+            (t / tn - 1.0) * diode.eg / vte + diode.xti / diode.n * np.log(t / tn))
+        return _knee(r_ohm * sat, vte)
 
 
 def _knee(ris: FloatArray, vte: FloatArray) -> FloatArray:

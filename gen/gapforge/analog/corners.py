@@ -7,14 +7,8 @@ from collections.abc import Mapping
 from typing import TYPE_CHECKING
 
 from gapforge.analog.closed_form import knee_voltage_array, node_delay
-from gapforge.analog.diode_edge import diode_edge_delay, knee_saturation_current
-from gapforge.analog.network import (
-    EDGES,
-    K_OVER_Q,
-    REFERENCE_TEMP_C,
-    ZERO_CELSIUS,
-    ReferenceNetwork,
-)
+from gapforge.analog.diode_edge import diode_edge_delay
+from gapforge.analog.network import EDGES, REFERENCE_TEMP_C, ReferenceNetwork
 
 if TYPE_CHECKING:
     import numpy as np
@@ -38,7 +32,6 @@ CHANNEL_PARAMS = (
     "c_tc",
     "cin",
     "cstray",
-    "vf",
     "vt_plus",
     "vt_minus",
     "schmitt_delay",
@@ -63,7 +56,6 @@ def parameter_bands(net: ReferenceNetwork) -> dict[str, tuple[float, float, floa
         "c_tc": (-float(net.c_tempco), 0.0, float(net.c_tempco)),
         "cin": net.cin.floats(),
         "cstray": net.cstray.floats(),
-        "vf": net.vf.floats() if net.vf is not None else (0.0, 0.0, 0.0),
         "vt_plus": (0.0, 0.5, 1.0),
         "vt_minus": (0.0, 0.5, 1.0),
         "schmitt_delay": net.schmitt_delay.floats(),
@@ -137,6 +129,22 @@ def channel_edge_delays(
     *,
     textbook: bool = False,
 ) -> dict[str, FloatArray]:
+    """`_channel_edge_delays` with numpy's floating-point warnings kept from the terminal: a
+    result that is not finite is refused where the ranges are built (`edge_range`), in one
+    line, and no library warning reaches the user uninvited (issue 14)."""
+    import numpy as np
+
+    with np.errstate(all="ignore"):
+        return _channel_edge_delays(net, v, edges, textbook=textbook)
+
+
+def _channel_edge_delays(
+    net: ReferenceNetwork,
+    v: Mapping[str, FloatArray],
+    edges: tuple[str, ...] = EDGES,
+    *,
+    textbook: bool = False,
+) -> dict[str, FloatArray]:
     """Per input edge: the node delay and the channel delay (input edge to output edge).
 
     `v` maps every name in CHANNEL_PARAMS and 'vdd', 'temp' to physical values (thresholds in
@@ -166,10 +174,6 @@ def channel_edge_delays(
     fixed = v["driver_delay"] + v["schmitt_delay"]
     if net.output_inverter:
         fixed += v["inverter_delay"]
-    sat: FloatArray | None = None
-    if net.vf is not None and net.bypass != "none" and not textbook:
-        t_k = v["temp"] + ZERO_CELSIUS
-        sat = knee_saturation_current(v["vf"], r, net.diode.n * K_OVER_Q * t_k)
     out: dict[str, FloatArray] = {}
     for edge in edges:
         distance = vdd - v["vt_plus"] if edge == "rising" else v["vt_minus"]
@@ -183,11 +187,13 @@ def channel_edge_delays(
             rs = net.diode.rs
             tau_slow = (r + v["rout"]) * c_total
             tau_fast = (v["rout"] + (rs * r / (rs + r) if rs > 0 else 0.0)) * c_total
-            knee = v["vf"] if net.vf is not None else knee_voltage_array(net.diode, r, v["temp"])
+            knee = knee_voltage_array(net.diode, r, v["temp"])
             node = node_delay(True, vdd, distance, tau_slow, tau_fast, knee)
-        else:
-            node = diode_edge_delay(net.diode, net.bypass == edge, vdd, distance, r, v["rout"],
-                                    c_total, v["temp"], sat)
+        else:  # the resistor edge leaks as the worse of the model card and a datasheet's ir_max
+            forward = net.bypass == edge
+            diode = net.diode if forward else net.leaking_diode()
+            node = diode_edge_delay(diode, forward, vdd, distance, r, v["rout"], c_total,
+                                    v["temp"])
         out["node_" + edge] = node
         constant_zero = np.ndim(fixed) == 0 and float(fixed) == 0.0
         out[edge] = node if constant_zero else fixed + node

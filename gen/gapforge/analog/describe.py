@@ -6,7 +6,7 @@ from fractions import Fraction
 from typing import TYPE_CHECKING, Any
 
 from gapforge.analog.closed_form import knee_voltage_array
-from gapforge.analog.network import Band, DiodeModel, Level, LevelBand, ReferenceNetwork
+from gapforge.analog.network import Band, DiodeModel, Knee, Level, LevelBand, ReferenceNetwork
 from gapforge.analog.parameters import PARAMETERS, Parameter
 from gapforge.base.quantities import (
     format_quantity,
@@ -30,6 +30,17 @@ def describe_parameters(net: ReferenceNetwork) -> list[tuple[str, str, bool, str
 
 
 def _value_text(p: Parameter, value: Any, net: ReferenceNetwork) -> str:
+    if p.name == "ir_max":
+        if value is None:
+            return "none (the model card's leakage)"
+        return (f"{format_quantity(value.amps, 'A')} at {float(value.temp_c):g} C, "
+                f"{format_quantity(value.volts, 'V')}: leakage x{net.leakage_scale:.3g} on the "
+                "slow edge" if net.leakage_scale > 1.0 else
+                f"{format_quantity(value.amps, 'A')} at {float(value.temp_c):g} C, "
+                f"{format_quantity(value.volts, 'V')}: the model card leaks as much")
+    if isinstance(value, Knee):
+        return (f"{format_quantity(value.volts, 'V')} at {float(value.temp_c):g} C (IS solved "
+                f"there: {net.diode.is_:.4g} A at TNOM)")
     if value is None and p.name == "vf":
         import numpy as np
 
@@ -76,11 +87,8 @@ def bypass_notes(net: ReferenceNetwork) -> dict[str, str]:
     band = net.vt_plus if edge == "rising" else net.vt_minus
     temps = np.asarray(net.temp.floats())
     r = np.full(3, float(net.r))
-    if net.vf is not None:
-        knee_typ, knee_max = float(net.vf.typ), float(net.vf.max)
-    else:
-        knees = knee_voltage_array(net.diode, r, temps)
-        knee_typ, knee_max = float(knees[1]), float(knees.max())
+    knees = knee_voltage_array(net.diode, r, temps)
+    knee_typ, knee_max = float(knees[1]), float(knees.max())
 
     def distance(level: Level, vdd: float) -> float:
         v = level.volts(vdd)

@@ -34,7 +34,8 @@ if TYPE_CHECKING:
 def without_leakage(net: ReferenceNetwork) -> ReferenceNetwork:
     """The same network with the diode's saturation current scaled to nothing (a given knee
     voltage dropped with it, since it sets the saturation current); junction capacitance kept."""
-    return replace(net, vf=None, diode=replace(net.diode, is_=net.diode.is_ * 1e-30))
+    return replace(net, vf=None, leakage_scale=1.0,
+                   diode=replace(net.diode, is_=net.diode.is_ * 1e-30))
 
 
 def slow_edge_leakage(net: ReferenceNetwork) -> list[SlowEdgePoint]:
@@ -154,6 +155,15 @@ def hottest_leakage_warnings(
     return [w for w in found if w is not None]
 
 
+def default_diode_note(net: ReferenceNetwork) -> str | None:
+    """Say so when the worst case rests on the generic default diode (values from memory)."""
+    if net.bypass == "none" or "diode" not in net.defaults:
+        return None
+    return ("note: the bypass diode is the generic default diode (a small-signal silicon diode, "
+            "from memory, not a measured part): the worst case rests on it; give your diode's "
+            "model card (diode = \"IS=... N=... RS=... CJO=...\")")
+
+
 def pair_edge_text(net: ReferenceNetwork, key: str) -> str:
     """Which PWM edge a dead time belongs to and which output turns on, for messages."""
     pwm_edge = pair_roles(net)[key][0]  # the high channel sees the PWM itself
@@ -204,6 +214,9 @@ def reference_findings(
         findings.append(coupling)
     notes = bypass_notes(net)
     findings += [notes[e] for e in EDGES if e in notes]
+    diode_note = default_diode_note(net)
+    if diode_note is not None:
+        findings.append(diode_note)
     return findings
 
 

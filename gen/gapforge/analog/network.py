@@ -4,6 +4,7 @@ network, and the constants every evaluator shares. Nothing here evaluates the ne
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import TYPE_CHECKING
@@ -12,7 +13,6 @@ from gapforge.base import caution
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import (
     format_quantity,
-    parse_quantity,
     picoseconds_ceil,
     picoseconds_floor,
     picoseconds_nearest,
@@ -150,56 +150,105 @@ class DiodeModel:
 
 # SPICE defaults for parameters the user leaves out of --diode (the usual level-1 defaults).
 SPICE_DIODE_DEFAULTS = DiodeModel()
-# The default bypass diode: an invented generic small-signal silicon diode (not any real part).
+# The default bypass diode: a generic small-signal silicon diode, from memory (values of the
+# order of the model cards circulated for common switching diodes, rounded; not a measured part).
+# No worst case rests on it silently: `analog` and every build say so when it is used.
 DEFAULT_DIODE_TEXT = "IS=4n N=1.9 RS=0.6 CJO=1.5p VJ=0.7 M=0.4 EG=1.11 XTI=3 BV=75"
 
-_DIODE_KEYS: dict[str, tuple[str, str, bool]] = {
-    # key: (attribute, unit, allow_negative)
-    "IS": ("is_", "A", False),
-    "N": ("n", "", False),
-    "RS": ("rs", "ohm", False),
-    "CJO": ("cjo", "F", False),
-    "CJ0": ("cjo", "F", False),
-    "VJ": ("vj", "V", False),
-    "M": ("m", "", False),
-    "EG": ("eg", "", False),
-    "XTI": ("xti", "", False),
-    "TNOM": ("tnom", "", True),
-    "BV": ("bv", "V", False),
-    "FC": ("fc", "", False),
+_DIODE_KEYS: dict[str, tuple[str, tuple[float, float], bool]] = {
+    # key: (attribute, accepted range (nonsense only: real parts lie well inside), zero allowed)
+    "IS": ("is_", DIODE_IS_RANGE, False),
+    "N": ("n", DIODE_N_RANGE, False),
+    "RS": ("rs", (0.0, 1e6), True),
+    "CJO": ("cjo", (0.0, 1e-6), True),
+    "CJ0": ("cjo", (0.0, 1e-6), True),
+    "VJ": ("vj", (0.05, 10.0), False),
+    "M": ("m", (0.0, 1.0), False),
+    "EG": ("eg", DIODE_EG_RANGE, False),
+    "XTI": ("xti", (0.0, 10.0), True),
+    "TNOM": ("tnom", TEMP_RANGE_C, True),
+    "BV": ("bv", (1e-3, 1e6), False),
+    "FC": ("fc", (0.0, 1.0), True),
 }
+
+# SPICE scale factors (SPICE3 / ngspice manuals, "numbers and scale factors"): case-insensitive,
+# M is milli and MEG mega, MIL 25.4e-6; letters after a scale factor (or instead of one) are
+# ignored, so "10pF" is 10e-12 and "600M" 0.6.
+SPICE_SCALE = (("MEG", 1e6), ("MIL", 25.4e-6), ("T", 1e12), ("G", 1e9), ("K", 1e3),
+               ("M", 1e-3), ("U", 1e-6), ("N", 1e-9), ("P", 1e-12), ("F", 1e-15))
+_SPICE_NUMBER = re.compile(r"([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d{1,3})?)([A-Za-z]*)")
+_MAX_NUMBER_TEXT = 40
+
+
+def spice_number(text: str, where: str) -> float:
+    """A number in SPICE model-card notation: '600M' = 0.6, '2MEG' = 2e6, '10pF' = 1e-11."""
+    if len(text) > _MAX_NUMBER_TEXT:
+        raise GapforgeError(f"{text[:_MAX_NUMBER_TEXT]!r}... is too long for a number", where)
+    match = _SPICE_NUMBER.fullmatch(text.strip())
+    if match is None:
+        raise GapforgeError(f"{text!r} is not a SPICE number (such as 2.5n, 600m, 1MEG)", where)
+    value = float(match.group(1))
+    letters = match.group(2).upper()
+    for prefix, scale in SPICE_SCALE:
+        if letters.startswith(prefix):
+            value *= scale
+            break
+    if not math.isfinite(value):
+        raise GapforgeError(f"{text!r} is out of range", where)
+    return value
 
 
 def parse_diode(text: object, where: str) -> DiodeModel:
-    """'IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5': SPICE diode parameters, defaults for the rest."""
+    """'IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5': SPICE diode parameters, defaults for the rest.
+
+    Numbers follow SPICE's own rules (`spice_number`: M is milli, MEG mega, case-insensitive),
+    so a model card pasted from a simulator library reads as the simulator reads it.
+    """
     if not isinstance(text, str):
         raise GapforgeError(f"expected diode parameters such as 'IS=1n N=1.8', got {text!r}", where)
+    if len(text) > 1000:
+        raise GapforgeError("the diode parameters are too long (at most 1000 characters)", where)
     values: dict[str, float] = {}
     for token in text.replace(",", " ").split():
         if "=" not in token:
-            raise GapforgeError(f"expected NAME=value, got {token!r}", where)
+            raise GapforgeError(f"expected NAME=value, got {token[:40]!r}", where)
         name, _, value = token.partition("=")
         key = name.strip().upper()
         if key not in _DIODE_KEYS:
             known = ", ".join(k for k in _DIODE_KEYS if k != "CJ0")
             raise GapforgeError(
-                f"unknown diode parameter {name!r} (expected one of: {known})", where
+                f"unknown diode parameter {name[:20]!r} (expected one of: {known})", where
             )
-        attr, unit, negative = _DIODE_KEYS[key]
-        allow_zero = attr in ("rs", "cjo", "xti", "tnom")
-        value = value.strip()
-        if attr == "tnom" and value[-1:].upper() == "C":
-            value = value[:-1]
-        number = parse_quantity(  # a model card takes bare numbers in base units (SPICE syntax)
-            value, unit, where, allow_zero=allow_zero, allow_negative=negative, allow_bare=True
-        )
-        values[attr] = float(number)
+        attr, (low, high), zero_ok = _DIODE_KEYS[key]
+        number = spice_number(value, where)
+        if not (low <= number <= high) or (number == 0.0 and not zero_ok):
+            raise GapforgeError(f"diode {key}={value[:40]} outside {low:g}..{high:g}"
+                                + ("" if zero_ok else " (not zero)"), where)
+        values[attr] = number
     model = replace(SPICE_DIODE_DEFAULTS, **values)
     if not 0.0 < model.m < 1.0:
         raise GapforgeError(f"diode M={model.m:g} must lie between 0 and 1", where)
     if not 0.0 <= model.fc < 1.0:
         raise GapforgeError(f"diode FC={model.fc:g} must lie in 0..1", where)
     return model
+
+
+@dataclass(frozen=True)
+class Knee:
+    """A diode's knee voltage at one stated temperature: the diode carries as much current as
+    the nominal R at `volts`; its IS is solved there and the SPICE law carries it elsewhere."""
+
+    volts: Fraction
+    temp_c: Fraction
+
+
+@dataclass(frozen=True)
+class ReverseLimit:
+    """A datasheet's maximum reverse current at a stated temperature and reverse voltage."""
+
+    amps: Fraction
+    temp_c: Fraction
+    volts: Fraction
 
 
 @dataclass(frozen=True)
@@ -219,7 +268,7 @@ class ReferenceNetwork:
     cstray: Band  # F
     bypass: str  # which input edge the diode bypasses: rising | falling | none
     diode: DiodeModel
-    vf: Band | None  # V, closed-form knee; None = derived from the diode model
+    vf: Knee | None  # the knee the diode's IS was solved for; None = the model card's IS
     vt_plus: LevelBand
     vt_minus: LevelBand
     schmitt_delay: Band  # s
@@ -227,6 +276,15 @@ class ReferenceNetwork:
     inverter_delay: Band  # s, the output inverter and the pair's input inverter
     temp: Band  # degrees C
     defaults: tuple[str, ...] = ()  # parameter names left at their default
+    ir_max: ReverseLimit | None = None  # the datasheet's maximum reverse current, if given
+    leakage_scale: float = 1.0  # IS factor on the resistor edge: ir_max over the model's leakage
+
+    def leaking_diode(self) -> DiodeModel:
+        """The diode as it leaks on the resistor edge: the worse of the model card's leakage and
+        the datasheet's `ir_max` (its IS scaled up when the datasheet allows more)."""
+        if self.leakage_scale <= 1.0:
+            return self.diode
+        return replace(self.diode, is_=self.diode.is_ * self.leakage_scale)
 
     def r_band(self) -> Band:
         return Band(self.r * (1 - self.r_tol), self.r, self.r * (1 + self.r_tol))

@@ -3,24 +3,30 @@
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import TYPE_CHECKING, Any
 
-from gapforge.analog.junction import junction
+from gapforge.analog.junction import GMIN, junction
 from gapforge.analog.network import (
     BYPASS_CHOICES,
     DEFAULT_DIODE_TEXT,
     DIODE_EG_RANGE,
     DIODE_IS_RANGE,
     DIODE_N_RANGE,
+    K_OVER_Q,
+    REFERENCE_TEMP_C,
     TEMP_RANGE_C,
+    ZERO_CELSIUS,
     Band,
     DiodeModel,
+    Knee,
     Level,
     LevelBand,
     ReferenceNetwork,
+    ReverseLimit,
     parse_diode,
 )
 from gapforge.base.errors import GapforgeError
@@ -115,32 +121,48 @@ PARAMETERS: tuple[Parameter, ...] = (
         "diode",
         "",
         DEFAULT_DIODE_TEXT,
-        "SPICE diode parameters",
-        "invented generic small-signal silicon diode; SPICE defaults for the rest",
+        "SPICE diode parameters, read with SPICE's own number rules (M = milli, MEG = mega, "
+        "case-insensitive; '10pF' = 10p)",
+        "a generic small-signal silicon diode, from memory, not a measured part: give your "
+        "diode's model card; SPICE defaults for the rest",
     ),
     Parameter(
         "vf",
-        "band",
+        "knee",
         "V",
         "",
-        "diode knee voltage: the diode's IS is set so it carries R's current at this voltage",
+        "the diode's knee voltage at one temperature, e.g. '0.3V at 25C' (25 C when none is "
+        "stated): IS is solved so the diode carries R's current there, and the SPICE "
+        "temperature law (EG, XTI) carries it to every other temperature",
         "derived from the diode model: where its current equals the resistor's",
+    ),
+    Parameter(
+        "ir_max",
+        "reverse",
+        "A",
+        "",
+        "the diode datasheet's maximum reverse current at a stated temperature and reverse "
+        "voltage, e.g. '50uA at 125C 20V': the worse of it and the model card's leakage "
+        "(scaled by the SPICE temperature law) is used on the slow edge",
+        "none: the model card's leakage alone",
     ),
     Parameter(
         "vt_plus",
         "level",
         "V",
-        "50%:60%:70%",
-        "Schmitt VT+ (volts, or % / 'vdd' of VDD)",
-        "common practice for CMOS Schmitt inputs",
+        "35%:60%:80%",
+        "Schmitt VT+ (volts, or % / 'vdd' of VDD), min:typ:max from the part's table",
+        "a wide band meant to contain generic CMOS Schmitt inputs (from memory, VT+ minima "
+        "down to about 35 % of VDD), not any part's table: give yours for a tighter worst case",
     ),
     Parameter(
         "vt_minus",
         "level",
         "V",
-        "30%:40%:50%",
-        "Schmitt VT- (volts, or % / 'vdd' of VDD)",
-        "common practice for CMOS Schmitt inputs",
+        "20%:40%:55%",
+        "Schmitt VT- (volts, or % / 'vdd' of VDD), min:typ:max from the part's table",
+        "a wide band meant to contain generic CMOS Schmitt inputs (from memory, VT- maxima "
+        "up to about 55 % of VDD), not any part's table: give yours for a tighter worst case",
     ),
     Parameter(
         "schmitt_delay",
@@ -165,19 +187,68 @@ PARAMETERS: tuple[Parameter, ...] = (
         "C",
         "-40:25:125",
         "ambient temperature, min:typ:max in C",
-        "common practice industrial range",
+        "-40..125 C, the AEC-Q100 grade 1 ambient range (from memory): wide on purpose",
     ),
 )
 PARAMETER_NAMES = frozenset(p.name for p in PARAMETERS)
 
-# Threshold presets from the JEDEC interface standards (reference-facts: JESD8C.01, JESD8-5,
-# JESD8-7; values from memory, corroborated by public tables). A Schmitt input meeting a standard
-# has VT+ <= VIH min and VT- >= VIL max; the other ends are common practice (0.5 / 0.5 VDD).
-LEVEL_PRESETS: dict[str, dict[str, str]] = {
-    "jedec-3v3": {"vdd": "3.0:3.3:3.6", "vt_plus": "50%:55%:2.0V", "vt_minus": "0.8V:40%:50%"},
-    "jedec-2v5": {"vdd": "2.3:2.5:2.7", "vt_plus": "50%:55%:1.7V", "vt_minus": "0.7V:40%:50%"},
-    "jedec-1v8": {"vdd": "1.65:1.8:1.95", "vt_plus": "50%:55%:65%", "vt_minus": "35%:40%:50%"},
+@dataclass(frozen=True)
+class LevelStandard:
+    """What a JEDEC interface standard states for a Schmitt input that meets it: the supply
+    range, VT+ <= VIH min and VT- >= VIL max. The other ends are the part's own."""
+
+    citation: str
+    vdd: str
+    vih_min: str  # the highest VT+ a compliant input may have
+    vil_max: str  # the lowest VT- a compliant input may have
+
+
+# ../shared/reference-facts.md, "Logic levels": JESD8C.01 table (3.3 V LVCMOS/LVTTL), JESD8-5
+# (2.5 V), JESD8-7 (1.8 V); values from memory, corroborated by public tables.
+LEVEL_PRESETS: dict[str, LevelStandard] = {
+    "jedec-3v3": LevelStandard("JESD8C.01", "3.0:3.3:3.6", "2.0V", "0.8V"),
+    "jedec-2v5": LevelStandard("JESD8-5", "2.3:2.5:2.7", "1.7V", "0.7V"),
+    "jedec-1v8": LevelStandard("JESD8-7", "1.65:1.8:1.95", "65%", "35%"),
 }
+
+
+def _split(text: object) -> list[object] | None:
+    """A band's parts (None when the text is no band at all)."""
+    if isinstance(text, list):
+        return list(text)
+    if isinstance(text, str):
+        return list(text.split(":"))
+    return None
+
+
+def _apply_standard(
+    values: dict[str, object], preset: str, problem: Callable[[str, str], None]
+) -> None:
+    """Fill what the standard states: the supply (unless given) and the standard's end of each
+    threshold, which the user gives as the part's other two values (VT+ min:typ, VT- typ:max).
+    A threshold given in full (min:typ:max) stays as given."""
+    std = LEVEL_PRESETS[preset]
+    values.setdefault("vdd", std.vdd)
+    for key, end, label, wanted, index in (
+        ("vt_plus", std.vih_min, f"VT+ <= VIH min = {std.vih_min}", "VT+ min:typ", 2),
+        ("vt_minus", std.vil_max, f"VT- >= VIL max = {std.vil_max}", "VT- typ:max", 0),
+    ):
+        parts = _split(values.get(key))
+        if parts is not None and len(parts) == 3:
+            continue
+        if parts is None or len(parts) != 2:
+            problem(key, f"levels {preset} ({std.citation}) states only {label}: give the "
+                         f"part's own {wanted} from its datasheet (two values; the standard "
+                         "fills the third)")
+            values[key] = None
+            continue
+        parts.insert(index, end)
+        values[key] = ":".join(str(p) for p in parts)
+
+
+# The values the model holds over (nonsense outside: a 1e-300 ohm resistor is a typo).
+R_RANGE = (1e-3, 1e10)  # ohm
+C_RANGE = (1e-16, 1.0)  # F
 
 
 def parameter(name: str) -> Parameter:
@@ -256,44 +327,83 @@ def build_network(
     """A network from raw values (strings, TOML values) keyed by parameter name.
 
     Every problem is passed to `problem(name, message)`; a default stands in for a bad value so
-    the remaining checks still run. `levels` (a JEDEC preset name) fills vdd and the thresholds
-    unless they are given.
+    the remaining checks still run. `levels` (a JEDEC preset name) fills vdd unless given and
+    the one end of each threshold the standard states (`_apply_standard`).
     """
     values: dict[str, object] = dict(raw)
     preset = values.pop("levels", None)
+    missing: set[str] = set()
     if preset is not None:
         if not isinstance(preset, str) or preset not in LEVEL_PRESETS:
-            problem("levels", f"{preset!r} is not one of {', '.join(LEVEL_PRESETS)}")
+            problem("levels", f"{str(preset)[:40]!r} is not one of {', '.join(LEVEL_PRESETS)}")
         else:
-            for key, preset_text in LEVEL_PRESETS[preset].items():
-                values.setdefault(key, preset_text)
+            _apply_standard(values, preset, problem)
+            missing = {k for k in ("vt_plus", "vt_minus") if k in values and values[k] is None}
     defaults: list[str] = []
     parsed: dict[str, Any] = {}
     for p in PARAMETERS:
         given = p.name in values and values[p.name] is not None
         text: object = values[p.name] if given else p.default
-        if not given:
+        if not given and p.name not in missing:
             defaults.append(p.name)
         if text is None:
-            problem(p.name, "required value is missing")
-            parsed[p.name] = Fraction(1)
+            if p.name not in missing:
+                problem(p.name, "required value is missing")
+            parsed[p.name] = _parse_one(p, p.default) if p.default else Fraction(1)
             continue
         try:
             parsed[p.name] = _parse_one(p, text)
         except GapforgeError as exc:
             problem(p.name, exc.message)
             parsed[p.name] = _parse_one(p, p.default) if p.default is not None else Fraction(1)
-    net = ReferenceNetwork(**parsed, defaults=tuple(defaults))
-    for name, message in check_network(net):
+    ir_max = parsed.pop("ir_max")
+    net = ReferenceNetwork(**parsed, defaults=tuple(defaults), ir_max=ir_max)
+    problems = check_network(net)
+    for name, message in problems:
         problem(name, message)
+    if not problems:
+        net = _calibrated(net, problem)
     return net
+
+
+def _calibrated(net: ReferenceNetwork, problem: Callable[[str, str], None]) -> ReferenceNetwork:
+    """The diode as the user's data make it: IS solved at the stated knee (`vf`), and the
+    resistor edge's leakage raised to a datasheet's `ir_max` where that allows more."""
+    diode = net.diode
+    if net.vf is not None and net.bypass != "none":
+        temp = float(net.vf.temp_c)
+        vte = diode.n * K_OVER_Q * (temp + ZERO_CELSIUS)
+        v = float(net.vf.volts)
+        sat_t = v / (float(net.r) * math.expm1(min(v / vte, 700.0)))
+        is_ = sat_t * diode.is_ / diode.saturation_current(temp)
+        low, high = DIODE_IS_RANGE
+        if not (low <= is_ <= high and math.isfinite(is_)):
+            problem("vf", f"a knee of {v:g} V at {temp:g} C needs IS={is_:.3g} A at TNOM, outside "
+                          f"{low:g}..{high:g}")
+            return net
+        diode = replace(diode, is_=is_)
+    scale = 1.0
+    if net.ir_max is not None and net.bypass != "none":
+        j = junction(diode, float(net.ir_max.temp_c))
+        vr = float(net.ir_max.volts)
+        gmin = GMIN * vr  # the simulators' conductance across the junction is not the diode's
+        modelled = -j.current(-vr)[0] - gmin
+        wanted = float(net.ir_max.amps) - gmin
+        scale = max(1.0, wanted / modelled) if modelled > 0 else 1.0
+        if not diode.is_ * scale <= DIODE_IS_RANGE[1]:
+            problem("ir_max", f"{float(net.ir_max.amps):g} A needs IS={diode.is_ * scale:.3g} A, "
+                              f"above {DIODE_IS_RANGE[1]:g}")
+            return net
+    return replace(net, diode=diode, leakage_scale=scale)
 
 
 def _parse_one(p: Parameter, text: object) -> Any:
     where = p.name
+    if p.kind == "knee":
+        return None if text == "" else _parse_knee(text, where)
+    if p.kind == "reverse":
+        return None if text == "" else _parse_reverse(text, where)
     if p.kind == "band":
-        if p.name == "vf" and text == "":
-            return None
         zero_ok = p.unit in ("s",) or p.name in ("cin", "cstray")
         return _parse_band(text, p.unit, where, allow_zero=zero_ok, negative=p.unit == "C")
     if p.kind == "value":
@@ -317,6 +427,36 @@ def _parse_one(p: Parameter, text: object) -> Any:
     raise AssertionError(p.kind)
 
 
+def _temperature(text: str, where: str) -> Fraction:
+    t = text.strip().removesuffix("C").removesuffix("c").removesuffix("\u00b0").strip()
+    value = parse_quantity(t, "", where, allow_zero=True, allow_negative=True)
+    lo_c, hi_c = TEMP_RANGE_C
+    if not lo_c <= value <= hi_c:
+        raise GapforgeError(f"{text!r} outside {lo_c:g}..{hi_c:g} C", where)
+    return value
+
+
+def _parse_knee(text: object, where: str) -> Knee:
+    """'0.3V at 25C', '0.3V@85C' or '0.3' (at 25 C, where R and C are specified)."""
+    if not isinstance(text, str):
+        text = str(text)
+    head, sep, tail = text.replace("@", " at ").partition(" at ")
+    volts = parse_quantity(head.strip(), "V", where)
+    temp = _temperature(tail, where) if sep else Fraction(REFERENCE_TEMP_C).limit_denominator()
+    return Knee(volts, temp)
+
+
+def _parse_reverse(text: object, where: str) -> ReverseLimit:
+    """'50uA at 125C 20V': a current, the temperature and the reverse voltage it holds at."""
+    words = str(text).replace("@", " at ").replace(",", " ").split()
+    if len(words) != 4 or words[1].lower() != "at":
+        raise GapforgeError(f"expected CURRENT at TEMPERATURE VOLTAGE such as '50uA at 125C 20V', "
+                            f"got {str(text)[:60]!r}", where)
+    amps = parse_quantity(words[0], "A", where)
+    volts = parse_quantity(words[3], "V", where)
+    return ReverseLimit(amps, _temperature(words[2], where), volts)
+
+
 def check_network(net: ReferenceNetwork) -> list[tuple[str, str]]:
     """Cross-parameter checks: thresholds inside 0..VDD and VT- <= VT+ at every supply corner."""
     problems: list[tuple[str, str]] = []
@@ -333,6 +473,19 @@ def check_network(net: ReferenceNetwork) -> list[tuple[str, str]]:
         minus = [lv.volts(vdd) for lv in net.vt_minus.levels()]
         if any(m > p for m, p in zip(minus, plus, strict=True)):
             problems.append(("vt_minus", f"VT- above VT+ at VDD = {vdd:g} V"))
+            return problems
+    for part, amount, (low, high) in (("r", net.r, R_RANGE), ("c", net.c, C_RANGE)):
+        if not low <= amount <= high:
+            problems.append((part, f"{float(amount):g} outside {low:g}..{high:g}, the range the "
+                                   "model holds over"))
+            return problems
+    for part, spread, top in (("rout", net.rout, 1e6), ("cin", net.cin, 1e-3),
+                              ("cstray", net.cstray, 1e-3), ("driver_delay", net.driver_delay, 1.0),
+                              ("schmitt_delay", net.schmitt_delay, 1.0),
+                              ("inverter_delay", net.inverter_delay, 1.0), ("vdd", net.vdd, 1e3)):
+        if spread.max > top:
+            problems.append((part, f"{float(spread.max):g} above {top:g}, the range the model "
+                                   "holds over"))
             return problems
     lo_c, hi_c = TEMP_RANGE_C
     if not (lo_c <= net.temp.min and net.temp.max <= hi_c):
@@ -358,8 +511,10 @@ def check_network(net: ReferenceNetwork) -> list[tuple[str, str]]:
             return problems
     if net.diode.bv is not None and net.diode.bv <= float(net.vdd.max):
         problems.append(("diode", f"BV={net.diode.bv:g} V must exceed the largest VDD"))
-    if net.vf is not None and net.vf.min <= 0:
-        problems.append(("vf", "the knee voltage must be greater than zero"))
+    if net.vf is not None and not 0 < net.vf.volts < net.vdd.max:
+        problems.append(("vf", "the knee voltage must lie between 0 and the largest VDD"))
+    if net.ir_max is not None and net.diode.bv is not None and net.ir_max.volts >= net.diode.bv:
+        problems.append(("ir_max", "the reverse voltage must lie below the diode's BV"))
     return problems
 
 

@@ -23,7 +23,8 @@ from gapforge.analog.network import PAIR_KEYS, EdgeRange, ReferenceNetwork, edge
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_quantity
 
-# Mantissas in units of 0.1 (E12, E24) and 0.01 (E96).
+# Mantissas in units of 0.1 (E6, E12, E24) and 0.01 (E48, E96, E192).
+E6: tuple[int, ...] = (10, 15, 22, 33, 47, 68)
 E12: tuple[int, ...] = (10, 12, 15, 18, 22, 27, 33, 39, 47, 56, 68, 82)
 E24: tuple[int, ...] = (
     10, 11, 12, 13, 15, 16, 18, 20, 22, 24, 27, 30,
@@ -39,13 +40,38 @@ E96: tuple[int, ...] = (
     562, 576, 590, 604, 619, 634, 649, 665, 681, 698, 715, 732,
     750, 768, 787, 806, 825, 845, 866, 887, 909, 931, 953, 976,
 )
-SERIES: dict[str, tuple[tuple[int, ...], int]] = {"E12": (E12, 10), "E24": (E24, 10), "E96": (E96, 100)}
-# The usual tolerance of each series (IEC 60063 usage; reference-facts).
+# E48 is every second E96 value (IEC 60063: the series nest). E192 is round(100 * 10^(i/192))
+# but for one value the standard writes 920 where the formula gives 919 (IEC 60063:2015).
+E48: tuple[int, ...] = E96[::2]
+E192: tuple[int, ...] = tuple(
+    920 if round(100 * 10 ** (i / 192)) == 919 else round(100 * 10 ** (i / 192))
+    for i in range(192)
+)
+SERIES: dict[str, tuple[tuple[int, ...], int]] = {
+    "E6": (E6, 10), "E12": (E12, 10), "E24": (E24, 10),
+    "E48": (E48, 100), "E96": (E96, 100), "E192": (E192, 100),
+}
+SERIES_NAMES = tuple(SERIES)
+# The usual tolerance of each series (IEC 60063 usage; reference-facts), used by `suggest` for a
+# part whose tolerance the user left at its default.
 SERIES_TOLERANCE: dict[str, Fraction] = {
+    "E6": Fraction(20, 100),
     "E12": Fraction(10, 100),
     "E24": Fraction(5, 100),
+    "E48": Fraction(2, 100),
     "E96": Fraction(1, 100),
+    "E192": Fraction(5, 1000),
 }
+
+
+def series_tolerances(
+    net: ReferenceNetwork, r_series: str, c_series: str
+) -> ReferenceNetwork:
+    """The network with each series' usual tolerance where the user gave none (`r_tol`, `c_tol`
+    left at their defaults); a tolerance the user gave stays."""
+    r_tol = SERIES_TOLERANCE[r_series] if "r_tol" in net.defaults else net.r_tol
+    c_tol = SERIES_TOLERANCE[c_series] if "c_tol" in net.defaults else net.c_tol
+    return replace(net, r_tol=r_tol, c_tol=c_tol)
 
 
 def series_values(series: str, low: Fraction, high: Fraction) -> list[Fraction]:
@@ -154,7 +180,8 @@ def suggest(
     `min_dead_s`, and unsafe pairs are never proposed (they are returned in `rejected`).
     `rank` 'worst-case' orders by the farthest end of the wanted dead time's worst-case range
     from the target (the pair whose whole range hugs the target first), 'typical' by the typical
-    error. The pairs proposed are then checked like `analog.reference_dead_times` (corners
+    error. A tolerance the user left at its default is the series' usual one (E6 20 % .. E192
+    0.5 %, `SERIES_TOLERANCE`). The pairs proposed are then checked like `analog.reference_dead_times` (corners
     against a seeded Monte Carlo); a pair the check widens into unsafe is rejected too.
     """
     from gapforge.analog.corners import REFERENCE_CHECK_SAMPLES
@@ -167,6 +194,10 @@ def suggest(
                             "--suggest-rank")
     if target_s <= 0:
         raise GapforgeError("the wanted dead time must be greater than zero", "--suggest")
+    for name, where in ((r_series, "--series"), (c_series, "--c-series")):
+        if name not in SERIES:
+            raise GapforgeError(f"unknown series {name!r}", where)
+    net = series_tolerances(net, r_series, c_series)
     target = float(target_s)
     caps = series_values(c_series, *c_limits)
     r1, r2 = Fraction(1000), Fraction(100000)

@@ -464,7 +464,10 @@ def edge_circuit(
     temp = float(net.temp.typ) if temp_c is None else temp_c
     diode = None
     if net.bypass != "none":
-        diode = net.diode if leakage else replace(net.diode, is_=net.diode.is_ * 1e-30)
+        slow = edge != net.bypass
+        diode = net.leaking_diode() if slow else net.diode  # the worse leakage (ir_max)
+        if not leakage:
+            diode = replace(diode, is_=diode.is_ * 1e-30)
     if edge == "rising":
         v0, v1 = 0.0, vdd
         threshold = net.vt_plus.typ.volts(vdd)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import sys
+import warnings
 from collections.abc import Callable
 from fractions import Fraction
 from pathlib import Path
@@ -25,7 +26,7 @@ from gapforge.analog.network import (
     ReferenceNetwork,
 )
 from gapforge.analog.parameters import LEVEL_PRESETS, PARAMETERS, network_from_options
-from gapforge.analog.preferred import RANKINGS
+from gapforge.analog.preferred import RANKINGS, SERIES_NAMES
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_quantity, parse_quantity, parse_tolerance
 from gapforge.cli.options import json_option
@@ -56,8 +57,11 @@ def _network_options(f: F) -> F:
               help="Read the network from a design file's [reference] section.")
 @_network_options
 @click.option("--levels", "levels", type=click.Choice(sorted(LEVEL_PRESETS)), default=None,
-              help="Supply and Schmitt thresholds from a JEDEC interface standard "
-              "(given --vdd / --vt-plus / --vt-minus still win).")
+              help="A JEDEC interface standard (" + ", ".join(
+                  f"{k}: {v.citation}" for k, v in sorted(LEVEL_PRESETS.items()))
+              + ") fills only what it states: the supply (unless --vdd) and VT+ max = VIH min, "
+              "VT- min = VIL max. Give the part's own --vt-plus MIN:TYP and --vt-minus TYP:MAX "
+              "(required with a preset; a full MIN:TYP:MAX stays as given).")
 @click.option("--simulate", is_flag=True,
               help="Add the transient simulation (SPICE-style diode) and the slow edge over "
               "temperature.")
@@ -87,10 +91,13 @@ def _network_options(f: F) -> F:
               show_default=True, help="Rank --suggest pairs by their worst-case range (its "
               "farthest end from the target) or by their typical error. Pairs whose worst-case "
               "dead time is not positive or below --min-dead are never proposed.")
-@click.option("--series", type=click.Choice(["E12", "E24", "E96"]), default="E96",
-              show_default=True, help="Resistor series for --suggest.")
-@click.option("--c-series", type=click.Choice(["E12", "E24", "E96"]), default="E12",
-              show_default=True, help="Capacitor series for --suggest.")
+@click.option("--series", type=click.Choice(list(SERIES_NAMES)), default="E96",
+              show_default=True, help="Resistor series for --suggest (IEC 60063); its usual "
+              "tolerance (E6 20 %, E12 10 %, E24 5 %, E48 2 %, E96 1 %, E192 0.5 %) unless "
+              "--r-tol is given.")
+@click.option("--c-series", type=click.Choice(list(SERIES_NAMES)), default="E12",
+              show_default=True, help="Capacitor series for --suggest; its usual tolerance "
+              "unless --c-tol is given.")
 @json_option
 def command(
     design: Path | None,
@@ -125,6 +132,20 @@ def command(
     --min-dead, when diode leakage at the hottest temperature takes more than --leakage-warn of
     a slow edge (the dead time vanishes on a hot board), or when --suggest finds no safe pair.
     """
+    with warnings.catch_warnings():  # no library warning reaches the terminal (issue 14)
+        warnings.simplefilter("ignore")
+        _run(design, levels, simulate, leakage_warn, model_warn, monte_carlo, seed, distribution,
+             sigma_band, min_dead, suggest_t, suggest_for, suggest_rank, series, c_series,
+             as_json, network)
+
+
+def _run(
+    design: Path | None, levels: str | None, simulate: bool, leakage_warn: str, model_warn: str,
+    monte_carlo: str | None, seed: int, distribution: str, sigma_band: float,
+    min_dead: str | None, suggest_t: str | None, suggest_for: str, suggest_rank: str,
+    series: str, c_series: str, as_json: bool, network: dict[str, Any],
+) -> None:
+    """The command's work: read, analyse, print, exit 1 on a violated limit."""
     raw = {k: v for k, v in network.items() if v is not None}
     if levels is not None:
         raw["levels"] = levels
@@ -213,6 +234,7 @@ def analyse(
     from gapforge.analog.describe import bypass_notes, describe_parameters
     from gapforge.analog.findings import (
         coupling_finding,
+        default_diode_note,
         hottest_leakage_warnings,
         overlap_finding,
         slow_edge_coupling,
@@ -281,6 +303,9 @@ def analyse(
     if coupling is not None:
         warnings.append(coupling)
     warnings += [notes[e] for e in EDGES if e in notes]
+    diode_note = default_diode_note(net)
+    if diode_note is not None:
+        warnings.append(diode_note)
     limit_violated = limit_violated or bool(leakage)
     report["coupling"] = {
         "method": "charge-integral model, typical parts, with and without the diode's junction "
