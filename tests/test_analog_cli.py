@@ -113,13 +113,13 @@ def test_readme_suggest_example_offers_only_safe_pairs() -> None:
     offered = {(p["r_ohm"], p["c_f"]) for p in sg["pairs"]}
     assert (121.0, 3.9e-9) not in offered
     bad = next(p for p in sg["rejected"] if (p["r_ohm"], p["c_f"]) == (121.0, 3.9e-9))
-    assert bad["safe"] is False and bad["to_high"]["min_s"] == pytest.approx(-39.915e-9)
+    assert bad["safe"] is False and bad["to_high"]["min_s"] == pytest.approx(-88.051e-9)  # E12 C at 10 %
     # the text shows each pair's worst case and names the rejected pair as unsafe
     code, text, _ = run_cli(["analog", *README_SUGGEST, "--suggest-rank", "typical"])
     assert code == 0
     assert "ranked by the typical error" in text and "worst case to_high" in text
     unsafe = text[text.index("not proposed, UNSAFE"):]
-    assert "R    121 ohm  C   3.9 nF" in unsafe and "-39.915 ns is not positive" in unsafe
+    assert "R    121 ohm  C   3.9 nF" in unsafe and "-88.051 ns is not positive" in unsafe
 
 
 def test_suggest_with_min_dead_and_no_safe_pair_exits_1() -> None:
