@@ -9,7 +9,7 @@ from fractions import Fraction
 import pytest
 
 from gapforge.analog.findings import reference_findings, slow_edge_leakage, without_leakage
-from gapforge.analog.network import DEFAULT_LEAKAGE_SHARE
+from gapforge.analog.network import DEFAULT_DIODE_TEXT, DEFAULT_LEAKAGE_SHARE
 from gapforge.analog.parameters import network_from_options
 from gapforge.analog.simulate import slow_edge_over_temperature
 from gapforge.analog.tolerance import reference_dead_times
@@ -17,7 +17,8 @@ from gapforge.base.quantities import format_quantity
 
 SCHOTTKY = "IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5 EG=0.69 XTI=2"  # the example
 # the default network (falling edge bypassed, silicon diode) with a Schmitt part's own thresholds
-GOOD = {"r": "4.7k", "c": "100p", "vt_plus": "50%:60%:70%", "vt_minus": "30%:40%:50%"}
+GOOD = {"r": "4.7k", "c": "100p", "vt_plus": "50%:60%:70%", "vt_minus": "30%:40%:50%",
+        "diode": DEFAULT_DIODE_TEXT}  # given: the default diode's own note is tested elsewhere
 
 
 def test_a_sound_network_has_no_findings() -> None:

@@ -179,7 +179,8 @@ def test_corners_hold_the_monte_carlo_extremes() -> None:
     # must stay inside (default network with the low-voltage knee biting at 1.8 V).
     from gapforge.analog.tolerance import QUANTITIES, corner_extremes, monte_carlo
 
-    for over in ({}, {"levels": "jedec-1v8", "diode": "IS=1e-9 N=1.9 RS=1 CJO=3p"}):
+    for over in ({}, {"levels": "jedec-1v8", "vt_plus": "55%:60%",
+                                  "vt_minus": "40%:45%", "diode": "IS=1e-9 N=1.9 RS=1 CJO=3p"}):
         net = network_from_options({"r": "4.7k", "c": "100p", **over})
         corners = corner_extremes(net)
         mc = monte_carlo(net, 40_000, seed=9)

@@ -184,7 +184,9 @@ CLASS_LINES = 300
 NOT_YET_SPLIT = {
     "gapforge.bench.measure", "gapforge.outputs.report",
     "gapforge.bench.measure.measure_capture",
-    "gapforge.bench.measure._Engine", "gapforge.cli.analog_cmd.analyse",
+    "gapforge.bench.measure", "gapforge.outputs.report",
+    "gapforge.bench.measure.measure_capture",
+    "gapforge.bench.measure._Engine",
     "gapforge.outputs.header.header_text", "gapforge.outputs.report.result_tables",
     "gapforge.pipeline.design.load_design",
 }

@@ -8,6 +8,7 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
+import gapforge.analog.statistics as statistics
 import gapforge.analog.tolerance as tol
 from gapforge.analog.parameters import network_from_options
 
@@ -115,6 +116,20 @@ def test_streaming_statistics_equal_the_direct_ones(monkeypatch: pytest.MonkeyPa
     samples = np.concatenate([tol._draw(net, 7_000 if i < 4 else 2_001, 5, i, "uniform", 3.0)
                               ["to_low"] for i in range(5)])
     assert direct.stats["to_low"].percentiles == tuple(np.percentile(samples, tol.PERCENTILES))
+
+
+def test_streaming_falls_back_to_exact_passes_when_a_window_misses(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # the one-pass streaming keeps values in windows set from the first chunk; a window that
+    # misses its rank must not give a wrong percentile (issue 14: streaming at in-memory cost)
+    net = network_from_options({"r": "4.7k", "c": "100p"})
+    direct = tol.monte_carlo(net, 20_000, seed=3, chunk=5_000)
+    monkeypatch.setattr(tol, "_KEEP_ALL_LIMIT", 0)
+    monkeypatch.setattr(statistics, "_pilot_windows", lambda p, w, t: [(0.0, 0.0)] * 3)
+    streamed = tol.monte_carlo(net, 20_000, seed=3, chunk=5_000)
+    for key in tol.QUANTITIES:
+        assert direct.stats[key].percentiles == streamed.stats[key].percentiles
 
 
 @pytest.mark.parametrize(("samples", "chunk"), [(20_000, tol.CHUNK), (30_001, 7_000)])

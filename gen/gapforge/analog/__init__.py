@@ -3,7 +3,7 @@
 Owns the network's data model (`network`: values with bands, the SPICE diode model; `junction`:
 the diode at a temperature), the parameter table and its reading (`parameters`), the closed forms
 (`closed_form`), the diode charge integral (`diode_edge`), the pair's evaluation (`corners`),
-tolerance analysis (`tolerance`), transient simulation (`simulate`), preferred values
+tolerance analysis (`tolerance`, its Monte Carlo statistics in `statistics`), transient simulation (`simulate`), preferred values
 (`preferred`), the network's findings (`findings`) and its display text (`describe`). Imports
 only base. Never imports timer, stage, bench, pipeline, outputs or cli. Inside, the data model stands
 below everything that evaluates it: `network` imports no other module of this package, `junction`
@@ -27,8 +27,10 @@ exponentially as the node approaches the knee, so the form underestimates the by
 example), and the dead time of the pair - one channel's slow edge minus the other's bypassed
 edge - comes out too long: the unsafe direction. The charge integral matches the transient and
 ngspice within 0.01 % without junction capacitance; with it the bypassed edge is bounded from
-above (0 to 9 % slow) and the resistor edge is at most 0.25 % fast, so both errors shorten the
-dead time. It is vectorised like the closed form, so the corners and the Monte Carlo use it
+above (slow by up to tens of % when the junction capacitance is comparable to C) and the resistor
+edge from below (within 1.5 % on the recorded grid: its end points use the circuit's slow
+manifold, see `diode_edge_delay`), so both errors shorten the dead time; tests hold both bounds
+against ngspice on a recorded grid and a seeded random family. It is vectorised like the closed form, so the corners and the Monte Carlo use it
 directly (about 10 us per sample for both edges of both channels: `gapforge build` keeps to
 0.5 s); the transient itself (simulate.py, milliseconds per edge) would not fit there. The
 textbook forms stay available (`channel_edge_delays(textbook=True)`) for display only.

@@ -38,10 +38,9 @@ from gapforge.analog.corners import (
     values_at,
 )
 from gapforge.analog.network import EDGES, PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
+from gapforge.analog.statistics import QUANTITIES, Stats, stats_direct, stats_streaming
 
 FloatArray = npt.NDArray[np.float64]
-QUANTITIES = ("node_rising", "node_falling", "to_high", "to_low")
-PERCENTILES = (0.135, 50.0, 99.865)
 DEFAULT_SAMPLES = 100_000
 CHUNK = 250_000
 _KEEP_ALL_LIMIT = 2_000_000  # up to this many samples the results are kept and sorted directly
@@ -353,15 +352,6 @@ def _value_band(
 
 
 @dataclass(frozen=True)
-class Stats:
-    min: float
-    max: float
-    mean: float
-    percentiles: tuple[float, float, float]  # 0.135 / 50 / 99.865 %
-    share_below: float | None  # fraction of samples below the given minimum (dead times)
-
-
-@dataclass(frozen=True)
 class MonteCarloResult:
     samples: int
     seed: int
@@ -409,6 +399,7 @@ def monte_carlo_samples(
     distribution: str = "uniform",
     sigma_band: float = 3.0,
     chunk: int = CHUNK,
+    progress: Callable[[int, int], None] | None = None,
 ) -> dict[str, FloatArray]:
     """The seeded samples themselves, per quantity (QUANTITIES), in draw order.
 
@@ -418,8 +409,12 @@ def monte_carlo_samples(
     """
     if distribution not in ("uniform", "normal"):
         raise ValueError(distribution)
-    parts = [_draw(net, n, seed, i, distribution, sigma_band)
-             for i, n in enumerate(_chunk_sizes(samples, chunk))]
+    sizes = _chunk_sizes(samples, chunk)
+    parts = []
+    for i, n in enumerate(sizes):
+        parts.append(_draw(net, n, seed, i, distribution, sigma_band))
+        if progress is not None:
+            progress(i + 1, len(sizes))
     return {key: np.concatenate([p[key] for p in parts]) for key in QUANTITIES}
 
 
@@ -432,8 +427,11 @@ def monte_carlo(
     sigma_band: float = 3.0,
     below_s: Fraction | None = None,
     chunk: int = CHUNK,
+    progress: Callable[[int, int], None] | None = None,
 ) -> MonteCarloResult:
-    """Seeded Monte Carlo of both channels' parts; exact percentiles in modest memory."""
+    """Seeded Monte Carlo of both channels' parts; exact percentiles in modest memory.
+
+    `progress(done, total)` is called after each chunk (for a progress bar on a terminal)."""
     if distribution not in ("uniform", "normal"):
         raise ValueError(distribution)
     sizes = _chunk_sizes(samples, chunk)
@@ -444,105 +442,11 @@ def monte_carlo(
     below = float(below_s) if below_s is not None else None
     if samples <= _KEEP_ALL_LIMIT:
         drawn = monte_carlo_samples(net, samples, seed=seed, distribution=distribution,
-                                    sigma_band=sigma_band, chunk=chunk)
-        stats = {key: _stats_direct(drawn[key], key, below) for key in QUANTITIES}
+                                    sigma_band=sigma_band, chunk=chunk, progress=progress)
+        stats = {key: stats_direct(drawn[key], key, below) for key in QUANTITIES}
     else:
-        stats = _stats_streaming(chunk_results, len(sizes), samples, below)
+        stats = stats_streaming(chunk_results, len(sizes), samples, below, progress)
     return MonteCarloResult(samples, seed, distribution, sigma_band, below_s, stats)
-
-
-def _stats_direct(values: FloatArray, key: str, below: float | None) -> Stats:
-    pct = np.percentile(values, PERCENTILES)
-    share = float(np.count_nonzero(values < below)) / len(values) if (
-        below is not None and key in PAIR_KEYS
-    ) else None
-    return Stats(
-        float(values.min()),
-        float(values.max()),
-        float(values.mean()),
-        (float(pct[0]), float(pct[1]), float(pct[2])),
-        share,
-    )
-
-
-def _stats_streaming(
-    chunk_results: Callable[[int], dict[str, FloatArray]],
-    n_chunks: int,
-    total: int,
-    below: float | None,
-) -> dict[str, Stats]:
-    """Three passes over regenerated chunks: extremes, a histogram, then the exact order stats."""
-    lo = {k: math.inf for k in QUANTITIES}
-    hi = {k: -math.inf for k in QUANTITIES}
-    sums = dict.fromkeys(QUANTITIES, 0.0)
-    counts_below = dict.fromkeys(QUANTITIES, 0)
-    for i in range(n_chunks):
-        res = chunk_results(i)
-        for k in QUANTITIES:
-            v = res[k]
-            lo[k] = min(lo[k], float(v.min()))
-            hi[k] = max(hi[k], float(v.max()))
-            sums[k] += float(v.sum())
-            if below is not None:
-                counts_below[k] += int(np.count_nonzero(v < below))
-    bins = 1 << 16
-    hist = {k: np.zeros(bins, dtype=np.int64) for k in QUANTITIES}
-    for i in range(n_chunks):
-        res = chunk_results(i)
-        for k in QUANTITIES:
-            hist[k] += _bin_counts(res[k], lo[k], hi[k], bins)
-    # order statistics needed for numpy's linear percentile: ranks floor(q) and ceil(q)
-    wanted: dict[str, list[tuple[int, int, float]]] = {}
-    for k in QUANTITIES:
-        rows = []
-        for p in PERCENTILES:
-            q = p / 100.0 * (total - 1)
-            rows.append((math.floor(q), math.ceil(q), q - math.floor(q)))
-        wanted[k] = rows
-    cumulative = {k: np.cumsum(hist[k]) for k in QUANTITIES}
-    target_bins = {
-        k: sorted({int(np.searchsorted(cumulative[k], r, side="right")) for row in wanted[k]
-                   for r in row[:2]})
-        for k in QUANTITIES
-    }
-    collected: dict[str, dict[int, list[FloatArray]]] = {
-        k: {b: [] for b in target_bins[k]} for k in QUANTITIES
-    }
-    for i in range(n_chunks):
-        res = chunk_results(i)
-        for k in QUANTITIES:
-            idx = _bin_index(res[k], lo[k], hi[k], bins)
-            for b in target_bins[k]:
-                collected[k][b].append(res[k][idx == b])
-    out: dict[str, Stats] = {}
-    for k in QUANTITIES:
-        def order_stat(rank: int, key: str = k) -> float:
-            b = int(np.searchsorted(cumulative[key], rank, side="right"))
-            before = int(cumulative[key][b - 1]) if b > 0 else 0
-            values = np.sort(np.concatenate(collected[key][b]))
-            return float(values[rank - before])
-
-        pcts = []
-        for r_lo, r_hi, frac in wanted[k]:
-            a = order_stat(r_lo)
-            b_val = order_stat(r_hi)
-            pcts.append(a + (b_val - a) * frac)
-        share = counts_below[k] / total if (below is not None and k in PAIR_KEYS) else None
-        out[k] = Stats(lo[k], hi[k], sums[k] / total, (pcts[0], pcts[1], pcts[2]), share)
-    return out
-
-
-def _bin_index(values: FloatArray, lo: float, hi: float, bins: int) -> npt.NDArray[np.int64]:
-    if hi <= lo:
-        return np.zeros(len(values), dtype=np.int64)
-    idx = ((values - lo) * (bins / (hi - lo))).astype(np.int64)
-    result: npt.NDArray[np.int64] = np.clip(idx, 0, bins - 1)
-    return result
-
-
-def _bin_counts(values: FloatArray, lo: float, hi: float, bins: int) -> npt.NDArray[np.int64]:
-    counts: npt.NDArray[np.int64] = np.bincount(_bin_index(values, lo, hi, bins), minlength=bins)
-    return counts
 
 
 def reference_dead_times(net: ReferenceNetwork) -> dict[str, EdgeRange]:

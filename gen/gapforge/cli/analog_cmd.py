@@ -8,10 +8,12 @@ numpy is imported only inside the command function.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import sys
 import warnings
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, field
 from fractions import Fraction
 from pathlib import Path
 from typing import Any, TypeVar
@@ -29,6 +31,7 @@ from gapforge.analog.parameters import LEVEL_PRESETS, PARAMETERS, network_from_o
 from gapforge.analog.preferred import RANKINGS, SERIES_NAMES
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_quantity, parse_quantity, parse_tolerance
+from gapforge.cli.analog_text import render_text
 from gapforge.cli.options import json_option
 
 F = TypeVar("F", bound=Callable[..., Any])
@@ -157,28 +160,49 @@ def _run(
     warn_share = parse_tolerance(leakage_warn, "--leakage-warn")
     model_share = parse_tolerance(model_warn, "--model-warn")
     target = parse_quantity(suggest_t, "s", "--suggest") if suggest_t is not None else None
-    report = analyse(
-        net,
-        simulate=simulate,
-        samples=samples,
-        seed=seed,
-        distribution=distribution,
-        sigma_band=sigma_band,
-        below=below,
-        warn_share=warn_share,
-        model_share=model_share,
-        target=target,
-        suggest_for=suggest_for,
-        suggest_rank=suggest_rank,
-        r_series=series,
-        c_series=c_series,
-    )
+    with _progress_bar(samples) as progress:
+        report = analyse(
+            net,
+            progress=progress,
+            simulate=simulate,
+            samples=samples,
+            seed=seed,
+            distribution=distribution,
+            sigma_band=sigma_band,
+            below=below,
+            warn_share=warn_share,
+            model_share=model_share,
+            target=target,
+            suggest_for=suggest_for,
+            suggest_rank=suggest_rank,
+            r_series=series,
+            c_series=c_series,
+        )
     if as_json:
         click.echo(json.dumps(report, indent=2, sort_keys=True))
     else:
         click.echo(render_text(report), nl=False)
     if report["limit_violated"]:
         sys.exit(1)
+
+
+@contextlib.contextmanager
+def _progress_bar(samples: int | None) -> Iterator[Callable[[int, int], None] | None]:
+    """A Monte Carlo progress bar on standard error, only when that is a terminal (never in
+    piped output or JSON); None otherwise."""
+    if samples is None or not sys.stderr.isatty():
+        yield None
+        return
+    with click.progressbar(length=samples, label="Monte Carlo", file=sys.stderr) as bar:
+        shown = 0
+
+        def advance(done: int, total: int) -> None:
+            nonlocal shown
+            reached = samples * done // total
+            bar.update(reached - shown)
+            shown = reached
+
+        yield advance
 
 
 def _load(design: Path | None, raw: dict[str, object]) -> ReferenceNetwork:
@@ -213,46 +237,80 @@ def _range(lo: float, typ: float, hi: float) -> dict[str, float]:
     return {"min_s": lo, "typ_s": typ, "max_s": hi}
 
 
-def analyse(
-    net: ReferenceNetwork,
-    *,
-    simulate: bool = False,
-    samples: int | None = None,
-    seed: int = 1,
-    distribution: str = "uniform",
-    sigma_band: float = 3.0,
-    below: Fraction | None = None,
-    warn_share: Fraction = DEFAULT_LEAKAGE_SHARE,
-    model_share: Fraction = Fraction(1, 10),
-    target: Fraction | None = None,
-    suggest_for: str = "to_high",
-    suggest_rank: str = "worst-case",
-    r_series: str = "E96",
-    c_series: str = "E12",
-) -> dict[str, Any]:
-    """Everything `analog` reports, as a JSON-ready dict (floats for display only)."""
-    from gapforge.analog.describe import bypass_notes, describe_parameters
-    from gapforge.analog.findings import (
-        coupling_finding,
-        default_diode_note,
-        hottest_leakage_warnings,
-        overlap_finding,
-        slow_edge_coupling,
-        slow_edge_leakage,
-    )
-    from gapforge.analog.tolerance import monte_carlo, rss, typical_textbook, worst_case
+@dataclass
+class _Options:
+    """What `analyse` was asked for, beside the network."""
 
+    simulate: bool = False
+    samples: int | None = None
+    seed: int = 1
+    distribution: str = "uniform"
+    sigma_band: float = 3.0
+    below: Fraction | None = None
+    warn_share: Fraction = DEFAULT_LEAKAGE_SHARE
+    model_share: Fraction = Fraction(1, 10)
+    target: Fraction | None = None
+    suggest_for: str = "to_high"
+    suggest_rank: str = "worst-case"
+    r_series: str = "E96"
+    c_series: str = "E12"
+    progress: Callable[[int, int], None] | None = None
+
+
+@dataclass
+class _Report:
+    """The report under construction: the JSON-ready dict, its warnings, the exit verdict."""
+
+    data: dict[str, Any] = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)
+    limit_violated: bool = False
+
+
+def analyse(net: ReferenceNetwork, **options: Any) -> dict[str, Any]:
+    """Everything `analog` reports, as a JSON-ready dict (floats for display only).
+
+    Named steps, in the order of the report: the edges, the pair's worst case and its limits,
+    the network's findings (leakage, junction coupling, knee, default diode), RSS, the Monte
+    Carlo, the transient, the preferred pairs. `options` are `_Options`' fields.
+    """
+    from gapforge.analog.tolerance import worst_case
+
+    opts = _Options(**options)
+    out = _Report()
     wc = worst_case(net)
-    warnings: list[str] = []
-    edges: dict[str, Any] = {}
+    _edges_step(net, wc, out)
+    _pair_step(net, wc, opts, out)
+    leakage_warned = _findings_step(net, opts, out)
+    _rss_step(net, wc, opts, out)
+    if opts.samples is not None:
+        _monte_carlo_step(net, opts, out)
+    if opts.simulate:
+        out.data["simulation"] = _simulation(net, opts.warn_share, float(opts.model_share),
+                                             out.data["edges"], out.warnings, leakage_warned)
+        out.limit_violated = out.limit_violated or out.data["simulation"]["leakage_warning"]
+    if opts.target is not None:
+        _suggest_step(net, opts, out)
+    out.data["warnings"] = out.warnings
+    out.data["limit_violated"] = out.limit_violated
+    return out.data
+
+
+def _edges_step(net: ReferenceNetwork, wc: Any, out: _Report) -> None:
+    """Each input edge: node delay range, textbook form, channel range, knee note."""
+    from gapforge.analog.describe import bypass_notes, describe_parameters
+    from gapforge.analog.tolerance import typical_textbook
+
     notes = bypass_notes(net)
     textbook = typical_textbook(net)
+    edges: dict[str, Any] = {}
     for edge in EDGES:
         lo, typ, hi = wc.floats["node_" + edge]
         clo, ctyp, chi = wc.floats[edge]
         edges[edge] = {
             "bypassed": net.bypass == edge,
             "model": "rc closed form" if net.bypass == "none" else "charge integral",
+            "bound": "exact" if net.bypass == "none" else
+            ("upper bound" if net.bypass == edge else "lower bound"),
             "delay_s": typ,
             "delay_textbook_s": textbook["node_" + edge],
             "min_s": lo,
@@ -261,7 +319,7 @@ def analyse(
         }
         if edge in notes:
             edges[edge]["note"] = notes[edge]
-    report: dict[str, Any] = {
+    out.data.update({
         "caution": CAUTION,
         "parameters": {
             name: {"value": text, "default": is_default, "source": source}
@@ -273,11 +331,16 @@ def analyse(
             "check_samples": wc.check_samples,
             "widened_by_monte_carlo": list(wc.widened),
         },
-    }
-    limit_violated = False
+    })
+
+
+def _pair_step(net: ReferenceNetwork, wc: Any, opts: _Options, out: _Report) -> None:
+    """The pair's worst-case dead times, the overlap finding and --min-dead."""
+    from gapforge.analog.findings import overlap_finding
+
     for key in PAIR_KEYS:
         rng = wc.pair[key]
-        report[key] = {
+        out.data[key] = {
             "min_s": float(rng.min_s),
             "typ_s": float(rng.typ_s),
             "max_s": float(rng.max_s),
@@ -286,28 +349,43 @@ def analyse(
         }
         overlap = overlap_finding(net, key, rng)
         if overlap is not None:
-            limit_violated = True
-            warnings.append(overlap)
-        if below is not None and rng.min_s < below:
-            limit_violated = True
-            warnings.append(
+            out.limit_violated = True
+            out.warnings.append(overlap)
+        if opts.below is not None and rng.min_s < opts.below:
+            out.limit_violated = True
+            out.warnings.append(
                 f"{key}: the worst-case minimum {format_quantity(rng.min_s, 's')} is below "
-                f"--min-dead {format_quantity(below, 's')}"
+                f"--min-dead {format_quantity(opts.below, 's')}"
             )
-    # the same findings, in the same words, as analog.reference_findings gives every build
+    out.data["can_overlap"] = any(wc.pair[k].min_s <= 0 for k in PAIR_KEYS)
+
+
+def _findings_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> bool:
+    """Leakage, junction coupling, knee and default-diode findings, in the words
+    `analog.reference_findings` gives every build. True when the leakage warned."""
+    from gapforge.analog.describe import bypass_notes
+    from gapforge.analog.findings import (
+        coupling_finding,
+        default_diode_note,
+        hottest_leakage_warnings,
+        slow_edge_coupling,
+        slow_edge_leakage,
+    )
+
     leakage_points = slow_edge_leakage(net)
-    leakage = hottest_leakage_warnings(leakage_points, warn_share, "model")
-    warnings += leakage
+    leakage = hottest_leakage_warnings(leakage_points, opts.warn_share, "model")
+    out.warnings += leakage
     coupling_points = slow_edge_coupling(net)
-    coupling = coupling_finding(net, coupling_points, warn_share)
+    coupling = coupling_finding(net, coupling_points, opts.warn_share)
     if coupling is not None:
-        warnings.append(coupling)
-    warnings += [notes[e] for e in EDGES if e in notes]
+        out.warnings.append(coupling)
+    notes = bypass_notes(net)
+    out.warnings += [notes[e] for e in EDGES if e in notes]
     diode_note = default_diode_note(net)
     if diode_note is not None:
-        warnings.append(diode_note)
-    limit_violated = limit_violated or bool(leakage)
-    report["coupling"] = {
+        out.warnings.append(diode_note)
+    out.limit_violated = out.limit_violated or bool(leakage)
+    out.data["coupling"] = {
         "method": "charge-integral model, typical parts, with and without the diode's junction "
         "capacitance",
         "slow_edge_over_temperature": [
@@ -316,9 +394,9 @@ def analyse(
             for p in coupling_points
         ],
         "warning": coupling is not None,
-        "warn_share": float(warn_share),
+        "warn_share": float(opts.warn_share),
     }
-    report["leakage"] = {
+    out.data["leakage"] = {
         "method": "charge-integral model, typical parts, with and without the diode's leakage",
         "slow_edge_over_temperature": [
             {"temp_c": p.temp_c, "edge": p.edge, "delay_s": p.delay_s,
@@ -326,10 +404,17 @@ def analyse(
             for p in leakage_points
         ],
         "warning": bool(leakage),
-        "warn_share": float(warn_share),
+        "warn_share": float(opts.warn_share),
     }
-    sums = rss(net, distribution, sigma_band)
-    report["rss"] = {
+    return bool(leakage)
+
+
+def _rss_step(net: ReferenceNetwork, wc: Any, opts: _Options, out: _Report) -> None:
+    """The root-sum-square estimate beside the worst case."""
+    from gapforge.analog.tolerance import rss
+
+    sums = rss(net, opts.distribution, opts.sigma_band)
+    out.data["rss"] = {
         key: {
             "method": "statistical estimate: typ +/- 3 sigma from root-sum-square "
             "sensitivities (GUM 5.1.2); the worst case is the bound",
@@ -346,61 +431,65 @@ def analyse(
         }
         for key, r in sums.items()
     }
-    if samples is not None:
-        mc = monte_carlo(
-            net, samples, seed=seed, distribution=distribution, sigma_band=sigma_band,
-            below_s=below,
-        )
-        report["monte_carlo"] = {
-            "samples": mc.samples,
-            "seed": mc.seed,
-            "distribution": mc.distribution,
-            "sigma_band": mc.sigma_band if distribution == "normal" else None,
-            "below_s": float(below) if below is not None else None,
-            "results": {
-                key: {
-                    "min_s": s.min,
-                    "max_s": s.max,
-                    "mean_s": s.mean,
-                    "p0_135_s": s.percentiles[0],
-                    "p50_s": s.percentiles[1],
-                    "p99_865_s": s.percentiles[2],
-                    "share_below": s.share_below,
-                }
-                for key, s in mc.stats.items()
-            },
-        }
-    if simulate:
-        report["simulation"] = _simulation(net, warn_share, float(model_share), edges, warnings,
-                                           bool(leakage))
-        limit_violated = limit_violated or report["simulation"]["leakage_warning"]
-    if target is not None:
-        from gapforge.analog.preferred import suggest
 
-        found = suggest(net, target, key=suggest_for, r_series=r_series, c_series=c_series,
-                        rank=suggest_rank, min_dead_s=below)
-        report["suggestions"] = {
-            "target_s": float(target),
-            "dead_time": suggest_for,
-            "r_series": r_series,
-            "c_series": c_series,
-            "rank": found.rank,
-            "min_dead_s": float(below) if below is not None else None,
-            "candidates": found.candidates,
-            "pairs": [_suggestion(s) for s in found.pairs],
-            "rejected": [_suggestion(s) for s in found.rejected],
-        }
-        if not found.pairs:
-            limit_violated = True
-            warnings.append(
-                f"--suggest: none of the {found.candidates} preferred pairs near "
-                f"{format_quantity(target, 's')} is safe over the tolerances (every one's "
-                "worst-case dead time is not positive"
-                + (" or below --min-dead" if below is not None else "") + ")"
-            )
-    report["warnings"] = warnings
-    report["limit_violated"] = limit_violated
-    return report
+
+def _monte_carlo_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> None:
+    """The seeded Monte Carlo (its progress reported through `opts.progress`)."""
+    from gapforge.analog.tolerance import monte_carlo
+
+    assert opts.samples is not None
+    mc = monte_carlo(
+        net, opts.samples, seed=opts.seed, distribution=opts.distribution,
+        sigma_band=opts.sigma_band, below_s=opts.below, progress=opts.progress,
+    )
+    below = opts.below
+    out.data["monte_carlo"] = {
+        "samples": mc.samples,
+        "seed": mc.seed,
+        "distribution": mc.distribution,
+        "sigma_band": mc.sigma_band if opts.distribution == "normal" else None,
+        "below_s": float(below) if below is not None else None,
+        "results": {
+            key: {
+                "min_s": s.min,
+                "max_s": s.max,
+                "mean_s": s.mean,
+                "p0_135_s": s.percentiles[0],
+                "p50_s": s.percentiles[1],
+                "p99_865_s": s.percentiles[2],
+                "share_below": s.share_below,
+            }
+            for key, s in mc.stats.items()
+        },
+    }
+
+
+def _suggest_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> None:
+    """Preferred R/C pairs for the wanted dead time; none safe is a violated limit."""
+    from gapforge.analog.preferred import suggest
+
+    assert opts.target is not None
+    found = suggest(net, opts.target, key=opts.suggest_for, r_series=opts.r_series,
+                    c_series=opts.c_series, rank=opts.suggest_rank, min_dead_s=opts.below)
+    out.data["suggestions"] = {
+        "target_s": float(opts.target),
+        "dead_time": opts.suggest_for,
+        "r_series": opts.r_series,
+        "c_series": opts.c_series,
+        "rank": found.rank,
+        "min_dead_s": float(opts.below) if opts.below is not None else None,
+        "candidates": found.candidates,
+        "pairs": [_suggestion(s) for s in found.pairs],
+        "rejected": [_suggestion(s) for s in found.rejected],
+    }
+    if not found.pairs:
+        out.limit_violated = True
+        out.warnings.append(
+            f"--suggest: none of the {found.candidates} preferred pairs near "
+            f"{format_quantity(opts.target, 's')} is safe over the tolerances (every one's "
+            "worst-case dead time is not positive"
+            + (" or below --min-dead" if opts.below is not None else "") + ")"
+        )
 
 
 def _suggestion(s: Any) -> dict[str, Any]:
@@ -475,139 +564,3 @@ def _simulation(
         "model_warning": model_off,
         "model_warn_share": model_share,
     }
-
-
-def _t(value: float) -> str:
-    return format_quantity(value, "s", 4)
-
-
-def _pair_text(s: dict[str, Any]) -> str:
-    return f"R {format_quantity(s['r_ohm'], 'ohm'):>10}  C {format_quantity(s['c_f'], 'F'):>8}"
-
-
-def _suggestion_lines(sg: dict[str, Any]) -> list[str]:
-    """The preferred pairs: each with its worst-case dead times; unsafe ones named, not offered."""
-    ranked = ("the farthest end of the worst-case range from the target"
-              if sg["rank"] == "worst-case" else "the typical error")
-    floor = (f" and at least --min-dead {_t(sg['min_dead_s'])}"
-             if sg["min_dead_s"] is not None else "")
-    lines = [
-        "",
-        f"Preferred pairs for {sg['dead_time']} = {_t(sg['target_s'])} (R from {sg['r_series']}, "
-        f"C from {sg['c_series']}; worst case over all tolerances, positive{floor}; ranked by "
-        f"{ranked}):",
-    ]
-    for s in sg["pairs"]:
-        lines.append(
-            f"  {_pair_text(s)}  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %)   worst case "
-            f"to_high {_t(s['to_high']['min_s'])} .. {_t(s['to_high']['max_s'])}   to_low "
-            f"{_t(s['to_low']['min_s'])} .. {_t(s['to_low']['max_s'])}"
-        )
-    if not sg["pairs"]:
-        lines.append("  none: every candidate is unsafe (see below)")
-    rejected = sg["rejected"]
-    if rejected:
-        lines.append(
-            f"  not proposed, UNSAFE: {len(rejected)} of {sg['candidates']} candidate pairs"
-            + (", the best ranked:" if len(rejected) > 3 else ":")
-        )
-        for s in rejected[:3]:
-            lines.append(
-                f"    {_pair_text(s)}  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %): "
-                f"{'; '.join(s['unsafe'])}"
-            )
-    return lines
-
-
-def render_text(report: dict[str, Any]) -> str:
-    """The human-facing report (the caution first and last)."""
-    lines = [report["caution"], "", "Network (default values are marked *):"]
-    for name, row in report["parameters"].items():
-        mark = "*" if row["default"] else " "
-        src = f"  ({row['source']})" if row["default"] and row["source"] else ""
-        lines.append(f"  {mark} {name:<15} {row['value']}{src}")
-    lines += ["", "Node delays (ideal input step to the Schmitt threshold):"]
-    for edge in EDGES:
-        e = report["edges"][edge]
-        kind = "bypassed" if e["bypassed"] else "through R"
-        sim = (f"   simulated {_t(e['delay_sim_s'])} ({e['model_vs_sim'] * 100:+.2f} %)"
-               if "delay_sim_s" in e else "")
-        lines.append(
-            f"  {edge:<8} ({kind:<9}) typ {_t(e['delay_s'])}   range {_t(e['min_s'])} .. "
-            f"{_t(e['max_s'])}{sim}"
-        )
-    model = report["edges"][EDGES[0]]["model"]
-    if model == "rc closed form":
-        lines.append(f"  model: {model}")
-    else:
-        textbook = ", ".join(f"{edge} {_t(report['edges'][edge]['delay_textbook_s'])}"
-                             for edge in EDGES)
-        lines.append(f"  model: {model}; textbook closed form {textbook} (not used for ranges: "
-                     "it treats the diode as a switch)")
-    lines += ["", "Dead times of the complementary pair (worst case over all tolerances):"]
-    beyond = []
-    for key in PAIR_KEYS:
-        r = report[key]
-        rss_row = report["rss"][key]
-        lines.append(
-            f"  {key:<8} min {_t(r['min_s'])}   typ {_t(r['typ_s'])}   max {_t(r['max_s'])}"
-        )
-        lines.append(
-            f"  {'':<8} statistical estimate (RSS, typ +/- 3 sigma): "
-            f"{_t(rss_row['low_3sigma_s'])} .. {_t(rss_row['high_3sigma_s'])}"
-            + ("  [beyond the worst case, see note]" if rss_row["beyond_worst_case"] else "")
-        )
-        if rss_row["beyond_worst_case"]:
-            beyond.append(key)
-    if beyond:
-        lines.append(
-            f"  note: for {', '.join(beyond)} the RSS 3-sigma interval reaches beyond the "
-            "worst-case corners. That is expected when a few uniform tolerance bands dominate: "
-            "a uniform band of half-width a has sigma a/sqrt(3) (GUM 4.3.7), so 3 sigma is 1.73 a,"
-            " past the band's own ends. The worst case is the bound; RSS is only an estimate "
-            "(nothing is clipped)."
-        )
-    widened = report["worst_case"]["widened_by_monte_carlo"]
-    lines.append(
-        "  corners checked against "
-        f"{report['worst_case']['check_samples']} Monte Carlo samples"
-        + (f"; widened for {', '.join(widened)} (non-monotonic)" if widened else "; none beyond them")
-    )
-    if "monte_carlo" in report:
-        mc = report["monte_carlo"]
-        lines += ["", f"Monte Carlo ({mc['samples']} samples, {mc['distribution']}, seed {mc['seed']}):"]
-        for key, s in mc["results"].items():
-            share = (
-                f"   below {_t(mc['below_s'])}: {s['share_below'] * 100:.4g} %"
-                if s["share_below"] is not None else ""
-            )
-            lines.append(
-                f"  {key:<12} min {_t(s['min_s'])}  0.135 % {_t(s['p0_135_s'])}  50 % "
-                f"{_t(s['p50_s'])}  99.865 % {_t(s['p99_865_s'])}  max {_t(s['max_s'])}{share}"
-            )
-    leak = report["leakage"]
-    if leak["slow_edge_over_temperature"]:
-        hottest = max(p["temp_c"] for p in leak["slow_edge_over_temperature"])
-        lines += ["", f"Diode leakage at the hottest temperature (model, typical parts; warn above "
-                  f"{leak['warn_share'] * 100:g} %):"]
-        for p in leak["slow_edge_over_temperature"]:
-            if p["temp_c"] == hottest:
-                lines.append(
-                    f"  {p['edge']:<8} {p['temp_c']:>6g} C  {_t(p['delay_s'])}  (without leakage "
-                    f"{_t(p['delay_no_leakage_s'])}, leakage takes "
-                    f"{p['leakage_erosion'] * 100:.1f} %)"
-                )
-    if "simulation" in report:
-        lines += ["", "Slow edge over temperature (simulated, typical parts):"]
-        for p in report["simulation"]["slow_edge_over_temperature"]:
-            lines.append(
-                f"  {p['edge']:<8} {p['temp_c']:>6g} C  {_t(p['delay_s'])}  (without leakage "
-                f"{_t(p['delay_no_leakage_s'])}, leakage takes {p['leakage_erosion'] * 100:.1f} %)"
-            )
-    if "suggestions" in report:
-        lines += _suggestion_lines(report["suggestions"])
-    if report["warnings"]:
-        lines.append("")
-        lines += [f"! {w}" for w in report["warnings"]]
-    lines += ["", report["caution"], ""]
-    return "\n".join(lines)

@@ -1,0 +1,157 @@
+"""The `analog` command's text: the answer first (worst-case dead times, whether the network can
+overlap), then the network, the edges, the tolerance analysis, the findings, the caution."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from gapforge.analog.network import EDGES, PAIR_KEYS
+from gapforge.base.quantities import format_quantity
+
+
+def _t(value: float) -> str:
+    return format_quantity(value, "s", 4)
+
+
+def _pair_text(s: dict[str, Any]) -> str:
+    return f"R {format_quantity(s['r_ohm'], 'ohm'):>10}  C {format_quantity(s['c_f'], 'F'):>8}"
+
+
+def _suggestion_lines(sg: dict[str, Any]) -> list[str]:
+    """The preferred pairs: each with its worst-case dead times; unsafe ones named, not offered."""
+    ranked = ("the farthest end of the worst-case range from the target"
+              if sg["rank"] == "worst-case" else "the typical error")
+    floor = (f" and at least --min-dead {_t(sg['min_dead_s'])}"
+             if sg["min_dead_s"] is not None else "")
+    lines = [
+        "",
+        f"Preferred pairs for {sg['dead_time']} = {_t(sg['target_s'])} (R from {sg['r_series']}, "
+        f"C from {sg['c_series']}; worst case over all tolerances, positive{floor}; ranked by "
+        f"{ranked}):",
+    ]
+    for s in sg["pairs"]:
+        lines.append(
+            f"  {_pair_text(s)}  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %)   worst case "
+            f"to_high {_t(s['to_high']['min_s'])} .. {_t(s['to_high']['max_s'])}   to_low "
+            f"{_t(s['to_low']['min_s'])} .. {_t(s['to_low']['max_s'])}"
+        )
+    if not sg["pairs"]:
+        lines.append("  none: every candidate is unsafe (see below)")
+    rejected = sg["rejected"]
+    if rejected:
+        lines.append(
+            f"  not proposed, UNSAFE: {len(rejected)} of {sg['candidates']} candidate pairs"
+            + (", the best ranked:" if len(rejected) > 3 else ":")
+        )
+        for s in rejected[:3]:
+            lines.append(
+                f"    {_pair_text(s)}  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %): "
+                f"{'; '.join(s['unsafe'])}"
+            )
+    return lines
+
+
+def answer_line(report: dict[str, Any]) -> str:
+    """The first line: the worst-case dead times and whether the network can overlap."""
+    ranges = "; ".join(
+        f"{key} {_t(report[key]['min_s'])} .. {_t(report[key]['max_s'])}" for key in PAIR_KEYS
+    )
+    if report["can_overlap"]:
+        verdict = "CAN OVERLAP: a worst-case dead time is not positive"
+    else:
+        verdict = "cannot overlap (every worst-case dead time is positive)"
+    return f"analog: worst-case dead time {ranges}; the network {verdict}"
+
+
+def render_text(report: dict[str, Any]) -> str:
+    """The human-facing report: the answer first, the caution last."""
+    lines = [answer_line(report), "", "Network (default values are marked *):"]
+    for name, row in report["parameters"].items():
+        mark = "*" if row["default"] else " "
+        src = f"  ({row['source']})" if row["default"] and row["source"] else ""
+        lines.append(f"  {mark} {name:<15} {row['value']}{src}")
+    lines += ["", "Node delays (ideal input step to the Schmitt threshold):"]
+    for edge in EDGES:
+        e = report["edges"][edge]
+        kind = "bypassed" if e["bypassed"] else "through R"
+        sim = (f"   simulated {_t(e['delay_sim_s'])} ({e['model_vs_sim'] * 100:+.2f} %)"
+               if "delay_sim_s" in e else "")
+        lines.append(
+            f"  {edge:<8} ({kind:<9}) typ {_t(e['delay_s'])}   range {_t(e['min_s'])} .. "
+            f"{_t(e['max_s'])}{sim}"
+        )
+    model = report["edges"][EDGES[0]]["model"]
+    if model == "rc closed form":
+        lines.append(f"  model: {model}")
+    else:
+        textbook = ", ".join(f"{edge} {_t(report['edges'][edge]['delay_textbook_s'])}"
+                             for edge in EDGES)
+        lines.append(f"  model: {model}; textbook closed form {textbook} (not used for ranges: "
+                     "it treats the diode as a switch)")
+    lines += ["", "Dead times of the complementary pair (worst case over all tolerances):"]
+    beyond = []
+    for key in PAIR_KEYS:
+        r = report[key]
+        rss_row = report["rss"][key]
+        lines.append(
+            f"  {key:<8} min {_t(r['min_s'])}   typ {_t(r['typ_s'])}   max {_t(r['max_s'])}"
+        )
+        lines.append(
+            f"  {'':<8} statistical estimate (RSS, typ +/- 3 sigma): "
+            f"{_t(rss_row['low_3sigma_s'])} .. {_t(rss_row['high_3sigma_s'])}"
+            + ("  [beyond the worst case, see note]" if rss_row["beyond_worst_case"] else "")
+        )
+        if rss_row["beyond_worst_case"]:
+            beyond.append(key)
+    if beyond:
+        lines.append(
+            f"  note: for {', '.join(beyond)} the RSS 3-sigma interval reaches beyond the "
+            "worst-case corners. That is expected when a few uniform tolerance bands dominate: "
+            "a uniform band of half-width a has sigma a/sqrt(3) (GUM 4.3.7), so 3 sigma is 1.73 a,"
+            " past the band's own ends. The worst case is the bound; RSS is only an estimate "
+            "(nothing is clipped)."
+        )
+    widened = report["worst_case"]["widened_by_monte_carlo"]
+    lines.append(
+        "  corners checked against "
+        f"{report['worst_case']['check_samples']} Monte Carlo samples"
+        + (f"; widened for {', '.join(widened)} (non-monotonic)" if widened else "; none beyond them")
+    )
+    if "monte_carlo" in report:
+        mc = report["monte_carlo"]
+        lines += ["", f"Monte Carlo ({mc['samples']} samples, {mc['distribution']}, seed {mc['seed']}):"]
+        for key, s in mc["results"].items():
+            share = (
+                f"   below {_t(mc['below_s'])}: {s['share_below'] * 100:.4g} %"
+                if s["share_below"] is not None else ""
+            )
+            lines.append(
+                f"  {key:<12} min {_t(s['min_s'])}  0.135 % {_t(s['p0_135_s'])}  50 % "
+                f"{_t(s['p50_s'])}  99.865 % {_t(s['p99_865_s'])}  max {_t(s['max_s'])}{share}"
+            )
+    leak = report["leakage"]
+    if leak["slow_edge_over_temperature"]:
+        hottest = max(p["temp_c"] for p in leak["slow_edge_over_temperature"])
+        lines += ["", f"Diode leakage at the hottest temperature (model, typical parts; warn above "
+                  f"{leak['warn_share'] * 100:g} %):"]
+        for p in leak["slow_edge_over_temperature"]:
+            if p["temp_c"] == hottest:
+                lines.append(
+                    f"  {p['edge']:<8} {p['temp_c']:>6g} C  {_t(p['delay_s'])}  (without leakage "
+                    f"{_t(p['delay_no_leakage_s'])}, leakage takes "
+                    f"{p['leakage_erosion'] * 100:.1f} %)"
+                )
+    if "simulation" in report:
+        lines += ["", "Slow edge over temperature (simulated, typical parts):"]
+        for p in report["simulation"]["slow_edge_over_temperature"]:
+            lines.append(
+                f"  {p['edge']:<8} {p['temp_c']:>6g} C  {_t(p['delay_s'])}  (without leakage "
+                f"{_t(p['delay_no_leakage_s'])}, leakage takes {p['leakage_erosion'] * 100:.1f} %)"
+            )
+    if "suggestions" in report:
+        lines += _suggestion_lines(report["suggestions"])
+    if report["warnings"]:
+        lines.append("")
+        lines += [f"! {w}" for w in report["warnings"]]
+    lines += ["", report["caution"], ""]
+    return "\n".join(lines)
