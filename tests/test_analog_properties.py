@@ -40,7 +40,7 @@ def networks(draw: st.DrawFn) -> dict[str, str]:
     t_lo = draw(st.floats(-60.0, 200.0))
     t_hi = draw(st.floats(t_lo, 200.0))
     raw = {
-        "vdd": _eng(vdd), "r": _eng(r), "c": _eng(c),
+        "vdd": _eng(vdd), "r": _eng(r), "c": _eng(c, "F"),
         "rout": f"{draw(st.floats(0.01, 100.0)):.4g}",
         "bypass": draw(st.sampled_from(["rising", "falling", "none"])),
         "diode": f"IS={is_:.3g} N={n:.3g} RS={draw(st.floats(0, 100)):.3g} CJO={cjo:g} "
@@ -88,7 +88,7 @@ def test_closed_form_worst_case_contains_every_monte_carlo_sample(
 ) -> None:
     net = network_from_options({
         "vdd": f"{vdd * 0.9:.4g}:{vdd:.4g}:{vdd * 1.1:.4g}", "r": f"{10 ** log_r:.4g}",
-        "c": f"{10 ** log_c:.4g}", "r_tol": r_tol, "c_tol": c_tol, "bypass": "none",
+        "c": f"{10 ** log_c:.4g}F", "r_tol": r_tol, "c_tol": c_tol, "bypass": "none",
         "driver_delay": "1n:2n:3n", "schmitt_delay": "2n:3n:5n", "inverter_delay": "1n:2n:4n",
         "output_inverter": "true",
     })

@@ -115,7 +115,7 @@ def test_streaming_statistics_equal_the_direct_ones(monkeypatch: pytest.MonkeyPa
     # and the direct path is numpy's own percentile of the same samples
     samples = np.concatenate([tol._draw(net, 7_000 if i < 4 else 2_001, 5, i, "uniform", 3.0)
                               ["to_low"] for i in range(5)])
-    assert direct.stats["to_low"].percentiles == tuple(np.percentile(samples, tol.PERCENTILES))
+    assert direct.stats["to_low"].percentiles == tuple(np.percentile(samples, statistics.PERCENTILES))
 
 
 def test_streaming_falls_back_to_exact_passes_when_a_window_misses(
@@ -145,7 +145,7 @@ def test_samples_are_the_population_monte_carlo_describes(samples: int, chunk: i
         s = mc.stats[key]
         assert values.shape == (samples,)
         assert (float(values.min()), float(values.max())) == (s.min, s.max)
-        assert tuple(float(p) for p in np.percentile(values, tol.PERCENTILES)) == s.percentiles
+        assert tuple(float(p) for p in np.percentile(values, statistics.PERCENTILES)) == s.percentiles
         assert float(values.mean()) == pytest.approx(s.mean, rel=1e-12)
     # and the seed matters
     other = tol.monte_carlo_samples(net, samples, seed=12, chunk=chunk)
@@ -160,7 +160,7 @@ def test_samples_match_the_streamed_statistics(monkeypatch: pytest.MonkeyPatch) 
     for key in tol.PAIR_KEYS:
         s = streamed.stats[key]
         assert (float(drawn[key].min()), float(drawn[key].max())) == (s.min, s.max)
-        assert np.percentile(drawn[key], tol.PERCENTILES) == pytest.approx(s.percentiles,
+        assert np.percentile(drawn[key], statistics.PERCENTILES) == pytest.approx(s.percentiles,
                                                                             rel=1e-12)
 
 
