@@ -9,6 +9,8 @@ from fractions import Fraction
 from pathlib import Path
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from conftest import run_cli
 from gapforge.analog.closed_form import diode_knee_voltage
@@ -183,3 +185,42 @@ def test_model_card_rs_600m_is_milliohms() -> None:
 def test_bad_model_card_numbers_are_refused(bad: str) -> None:
     with pytest.raises(GapforgeError):
         parse_diode(bad, "--diode")
+
+
+# -- fuzz: the model-card parser keeps its promise (issue 14: every parser, seeded, bounded)
+
+
+@settings(max_examples=300, deadline=None, derandomize=True)
+@given(st.text(alphabet="ISNRCJOVMEGXTBFPKUmegunpfk0123456789.+-=e ,\t", max_size=60))
+def test_fuzz_model_card_text_gives_a_diode_or_one_clean_error(text: str) -> None:
+    try:
+        model = parse_diode(text, "--diode")
+    except GapforgeError as exc:
+        assert "\n" not in exc.message and len(exc.message) < 300
+        return
+    for value in (model.is_, model.n, model.rs, model.cjo, model.vj, model.m, model.eg):
+        assert math.isfinite(value)
+
+
+def test_fuzz_model_card_on_the_command_line_exits_2_in_one_line() -> None:
+    import random
+
+    rng = random.Random(20261203)
+    pieces = ["IS=", "N=", "RS=", "CJO=", "VJ=", "M=", "BV=", "1e", "999", "MEG", "m", "p", "-",
+              "=", " ", "x", "1", ".", "e-300", "TNOM=", "FC=0.99", "M=1"]
+    for _ in range(25):
+        text = "".join(rng.choice(pieces) for _ in range(rng.randint(1, 8)))
+        code, out, err = run_cli(["analog", "--r", "4.7k", "--c", "100p", "--diode", text,
+                                  "--json"])
+        assert code in (0, 1, 2), text
+        if code == 2:
+            assert out == "" and err.count("\n") == 1 and err.startswith("gapforge: error:")
+
+
+def test_a_tiny_resistor_is_one_error_line_and_no_library_warning(tmp_path: Path) -> None:
+    # Issue 14: r = 1e-300 exited 2 after 14 numpy warning lines
+    design = tmp_path / "d.toml"
+    design.write_text('[reference]\nr = 1e-300\nc = "100p"\n')
+    code, out, err = run_cli(["analog", "--design", str(design)])
+    assert code == 2 and out == ""
+    assert err.count("\n") == 1 and "reference.r" in err and "Warning" not in err

@@ -10,6 +10,8 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -64,8 +66,10 @@ def test_no_validated_network_gives_a_traceback(raw: dict[str, str]) -> None:
     except GapforgeError:
         return  # refused in one line: the promise
     try:
-        result = worst_case(net, check_samples=200)
-        findings = reference_findings(net, result.pair)
+        with warnings.catch_warnings():
+            warnings.simplefilter("error")  # no library warning either (issue 14)
+            result = worst_case(net, check_samples=200)
+            findings = reference_findings(net, result.pair)
     except GapforgeError:
         return  # e.g. a non-finite delay, refused in one line
     assert all(isinstance(f, str) and "\n" not in f for f in findings)
