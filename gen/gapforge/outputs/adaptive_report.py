@@ -12,7 +12,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from gapforge.base.quantities import format_bound, format_quantity
+from gapforge.base.display import format_si
 from gapforge.outputs.svg import (
     Axis,
     Figure,
@@ -113,13 +113,13 @@ def adaptive_figure(plan: AdaptivePlan, prefix: str, ident: str) -> str:
 
 
 def _w(value: Any) -> str:
-    return "-" if value is None else format_quantity(value, "W", 4)
+    return "-" if value is None else format_si(value, "W")
 
 
 def _table(plan: AdaptivePlan, prefix: str) -> Table:
     rows = []
     for b in plan.table.bins:
-        top = "up" if b.current_max_a is None else format_quantity(b.current_max_a, "A", 4)
+        top = "up" if b.current_max_a is None else format_si(b.current_max_a, "A")
         for sign in SIGNS:
             soft = b.entries[sign][COMMUTATED[sign]]
             hard = b.entries[sign]["to_high" if COMMUTATED[sign] == "to_low" else "to_low"]
@@ -127,15 +127,15 @@ def _table(plan: AdaptivePlan, prefix: str) -> Table:
             state = "soft" if soft.soft else ("below swing" if soft.below_swing else "hard")
             rows.append(
                 (
-                    f"{format_quantity(b.current_min_a, 'A', 4)} .. {top}"
+                    f"{format_si(b.current_min_a, 'A')} .. {top}"
                     if sign == "positive"
                     else "",
                     sign,
                     f"{soft.edge} {soft.code}",
-                    format_bound(soft.achieved_min_s, "s", "down", 5),
+                    format_si(soft.achieved_min_s, "s", toward="down"),
                     "-"
                     if soft.swing_needed_s is None
-                    else format_quantity(soft.swing_needed_s, "s", 4),
+                    else format_si(soft.swing_needed_s, "s"),
                     state,
                     f"{hard.edge} {hard.code}",
                     _w(None if c is None else c.fixed_w),

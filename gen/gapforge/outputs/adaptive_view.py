@@ -12,7 +12,7 @@ from __future__ import annotations
 from fractions import Fraction
 from typing import Any
 
-from gapforge.base.quantities import format_bound, format_quantity
+from gapforge.base.display import count, format_percent, format_si
 from gapforge.pipeline.adaptive_plan import AdaptivePlan, AdaptiveTable, Bin, Entry
 from gapforge.stage.adaptive import COMMUTATED, SIGNS
 from gapforge.timer.layouts import EDGES
@@ -134,16 +134,16 @@ def _table(headers: list[str], rows: list[list[str]]) -> str:
 
 
 def _t(x: Fraction | None) -> str:
-    return "-" if x is None else format_quantity(x, "s", 4)
+    return "-" if x is None else format_si(x, "s")
 
 
 def _w(x: Fraction | float | None) -> str:
-    return "-" if x is None else format_quantity(x, "W", 4)
+    return "-" if x is None else format_si(x, "W")
 
 
 def _amps(b: Bin) -> str:
-    top = "up" if b.current_max_a is None else format_quantity(b.current_max_a, "A", 4)
-    return f"{format_quantity(b.current_min_a, 'A', 4)} .. {top}"
+    top = "up" if b.current_max_a is None else format_si(b.current_max_a, "A")
+    return f"{format_si(b.current_min_a, 'A')} .. {top}"
 
 
 def _state(x: Entry) -> str:
@@ -155,7 +155,7 @@ def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
     lines = [
         f"{prefix}: dead time by load current (below_swing '{spec.below_swing}'); the load "
         "commutates to_low for I > 0 (out of the switch node), to_high for I < 0; swing = "
-        f"{format_quantity(spec.qoss_total, 'C', 4)} / |I|; the chain before the swing "
+        f"{format_si(spec.qoss_total, 'C')} / |I|; the chain before the swing "
         + ", ".join(f"{e} {_t(plan.pre_swing_s[e])}" for e in EDGES),
     ]
     rows = []
@@ -169,13 +169,14 @@ def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
                     _amps(b) if sign == "positive" else "",
                     "+" if sign == "positive" else "-",
                     f"{soft.edge} {soft.code}",
-                    format_bound(soft.achieved_min_s, "s", "down", 5),
+                    format_si(soft.achieved_min_s, "s", toward="down"),
                     _t(soft.swing_needed_s),
                     _state(soft),
                     f"{hard.edge} {hard.code}",
                     "-" if cost is None else _w(cost.fixed_w),
                     "-" if cost is None else _w(cost.adaptive_w),
                     "-" if cost is None else _w(cost.fixed_w - cost.adaptive_w),
+                    "-" if cost is None else _w(cost.adaptive_hard_w),
                 ]
             )
     lines.append(
@@ -191,6 +192,7 @@ def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
                 "loss fixed",
                 "loss table",
                 "saved",
+                "hard turn-on",
             ],
             rows,
         )
@@ -201,30 +203,31 @@ def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
         + ", ".join(f"{e} code {fixed[e].code}" for e in EDGES)
         + " on every bin (the table's longest entries: what a fixed dead time needs for the"
         " same transitions); reverse conduction at each bin's largest current (top bin: its"
-        " lower edge), slowest clock (common practice)"
+        " lower edge), slowest clock (common practice); hard turn-on: at most (Qoss,high +"
+        " Qoss,low) x Vbus x fsw where the swing does not finish (Eoss <= Qoss x V)"
     )
     for sign in SIGNS:
         thr = plan.threshold_a[sign]
         if thr is not None:
             lines.append(
                 f"  {sign} current: the swing fits the window above about "
-                f"{format_quantity(thr, 'A', 4)} (before rounding to codes)"
+                f"{format_si(thr, 'A')} (before rounding to codes)"
             )
     if plan.inverter is not None:
         inv = plan.inverter
         lines.append(
-            f"  inverter, sinusoidal {format_quantity(inv.peak_current_a, 'A', 4)} peak: mean |i|"
-            f" = 2 Ipk / pi = {format_quantity(inv.mean_abs_current_a, 'A', 4)}; average"
-            f" output-voltage error -{format_quantity(inv.error_positive_v, 'V', 4)} (I > 0),"
-            f" +{format_quantity(inv.error_negative_v, 'V', 4)} (I < 0); its fundamental"
-            f" {format_quantity(inv.fundamental_v, 'V', 4)} (4/pi x Vd x t x fsw; Mohan et al."
+            f"  inverter, sinusoidal {format_si(inv.peak_current_a, 'A')} peak: mean |i|"
+            f" = 2 Ipk / pi = {format_si(inv.mean_abs_current_a, 'A')}; average"
+            f" output-voltage error -{format_si(inv.error_positive_v, 'V')} (I > 0),"
+            f" +{format_si(inv.error_negative_v, 'V')} (I < 0); its fundamental"
+            f" {format_si(inv.fundamental_v, 'V')} (4/pi x Vd x t x fsw; Mohan et al."
             " ch. 8, Jeong & Park 1991)"
         )
         comp = plan.table.bins[-1].compensation
         lines.append(
             f"  compensation: add {comp['positive']} compare counts while I > "
-            f"{format_quantity(inv.band_a, 'A', 4)}, subtract {comp['negative']} while I < "
-            f"-{format_quantity(inv.band_a, 'A', 4)}, none in between (sign uncertain);"
+            f"{format_si(inv.band_a, 'A')}, subtract {comp['negative']} while I < "
+            f"-{format_si(inv.band_a, 'A')}, none in between (sign uncertain);"
             f" reverse conduction over the sine {_w(inv.loss_fixed_w)} fixed,"
             f" {_w(inv.loss_adaptive_w)} with the table"
         )
@@ -260,20 +263,24 @@ def driver_json(d: Any) -> dict[str, Any]:
 def driver_text(prefix: str, d: Any, counts: int) -> str:
     lines = [
         f"{prefix}: gate driver: usable compare {d.duty_min_counts}..{d.duty_max_counts} of"
-        f" {counts} ({float(Fraction(d.duty_min_counts, counts)) * 100:.4g} % .."
-        f" {float(Fraction(d.duty_max_counts, counts)) * 100:.4g} %); the minimum is set by the"
+        f" {counts} ({format_percent(Fraction(d.duty_min_counts, counts))} .."
+        f" {format_percent(Fraction(d.duty_max_counts, counts))}); the minimum is set by the"
         f" {d.binds_min}, the maximum by the {d.binds_max}"
     ]
     if d.spec.min_pulse_s is not None:
         lines.append(
-            f"  minimum pulse {format_quantity(d.spec.min_pulse_s, 's', 4)} ="
-            f" {d.min_pulse_clocks} clocks at the fastest clock"
+            f"  minimum pulse {format_si(d.spec.min_pulse_s, 's')} ="
+            f" {count(d.min_pulse_clocks, 'clock')} at the fastest clock"
         )
     if d.bootstrap_compare_max is not None:
         lines.append(
-            f"  bootstrap refresh: the low side on for {format_quantity(d.spec.bootstrap_on_s, 's', 4)}"
-            f" ({d.bootstrap_clocks} clocks) needs compare <= {d.bootstrap_compare_max} in at least"
-            f" one of every {d.spec.bootstrap_every} periods"
+            f"  bootstrap refresh: the low side on for {format_si(d.spec.bootstrap_on_s, 's')}"
+            f" ({count(d.bootstrap_clocks, 'clock')}) needs compare <= {d.bootstrap_compare_max}"
+            + (
+                " in every period"
+                if d.spec.bootstrap_every == 1
+                else f" in at least one of every {d.spec.bootstrap_every} periods"
+            )
         )
     if d.verdict != "ok":
         lines.append(f"  {d.verdict}: {d.reason}")
