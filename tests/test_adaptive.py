@@ -279,6 +279,11 @@ def test_emitted_arrays_compile_and_match_the_json(design: str, tmp_path: Path) 
     p = entry["prefix"].lower()
     names = ["edge_ma", "pos_register", "neg_register"]
     names += [f"{s}_{e}_{k}" for s in ("pos", "neg") for e in EDGES for k in ("code", "min_ps")]
+    model = entry["adaptive_model"]
+    if model["inverter"] is not None:
+        names += ["comp_pos_counts", "comp_neg_counts"]
+    if model["adc"] is not None:
+        names += ["pos_edge_adc", "neg_edge_adc"]
     body = "\n".join(
         f'for (i = 0; i < {entry["prefix"]}_ADAPT_BINS; ++i) printf("{n} %u %llu\\n", i, '
         f"(unsigned long long){p}_adapt_{n}[i]);"
@@ -323,6 +328,14 @@ def test_emitted_arrays_compile_and_match_the_json(design: str, tmp_path: Path) 
             for ps, b in zip(got[f"{short}_{e}_min_ps"], bins, strict=True):
                 # rounded down to a picosecond: within 1 ps below the JSON value
                 assert 0 <= b[s][e]["achieved_min_s"] * 1e12 - ps < 1.001
+    if model["inverter"] is not None:
+        for s, short in (("positive", "pos"), ("negative", "neg")):
+            assert got[f"comp_{short}_counts"] == [b["compensation_counts"][s] for b in bins]
+    if model["adc"] is not None:
+        zero = model["adc"]["zero"]
+        for s, short in (("positive", "pos"), ("negative", "neg")):
+            expect = [zero if b["adc_codes"] is None else b["adc_codes"][s] for b in bins]
+            assert got[f"{short}_edge_adc"] == expect
     # each register word holds its bin's codes in the layout's edge fields
     layout = load_layout(entry["target"])
     for b in bins:

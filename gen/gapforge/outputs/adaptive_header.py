@@ -98,6 +98,15 @@ def _macros(plan: AdaptivePlan, prefix: str) -> tuple[list[Row], list[tuple[str,
                 "no dead-time compensation while |I| is below this (sign uncertain)",
             )
         )
+        if plan.spec.adc is not None:
+            codes = ceil_fraction(plan.inverter.band_a / plan.spec.adc.amps_per_code)
+            rows.append(
+                (
+                    f"{p}_ADAPT_COMP_BAND_ADC_CODES",
+                    _lit(codes),
+                    "the same band in ADC codes from the zero code, rounded up",
+                )
+            )
     return rows, checks
 
 
