@@ -140,6 +140,7 @@ def _table(plan: AdaptivePlan, prefix: str) -> Table:
                     f"{hard.edge} {hard.code}",
                     _w(None if c is None else c.fixed_w),
                     _w(None if c is None else c.adaptive_w),
+                    _w(None if c is None else c.adaptive_hard_w),
                 )
             )
     notes = (
@@ -147,7 +148,8 @@ def _table(plan: AdaptivePlan, prefix: str) -> Table:
         "the bin's smallest current (less the current error), rounded up (common practice).",
         "Loss: Vsd x |I| x reverse-conduction time x fsw at the bin's largest current (top bin: its "
         "lower edge), slowest clock; the fixed dead time is the table's longest entry per edge "
-        "(common practice).",
+        "(common practice). Hard turn-on: at most (Qoss,high + Qoss,low) x Vbus x fsw where the "
+        "swing does not finish (Eoss <= Qoss x V; common practice).",
     )
     headers = (
         "|I| bin",
@@ -159,6 +161,7 @@ def _table(plan: AdaptivePlan, prefix: str) -> Table:
         "hard edge code",
         "loss fixed",
         "loss table",
+        "hard turn-on",
     )
     return (f"{prefix}: dead time by load current", headers, tuple(rows), notes)
 
