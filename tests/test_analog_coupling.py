@@ -4,6 +4,7 @@ the node. No traceback, a finding of its own, and the slow edge modelled on the 
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -59,3 +60,23 @@ def test_the_issue_network_slow_edge_is_no_longer_long() -> None:
                                        A([rout]), A([14.4e-12]), A([85.0]))[0])
         assert model <= sim * (1 + 1e-4)
         assert model >= sim * 0.9
+
+
+def test_build_and_its_json_repeat_the_coupling_finding(tmp_path: Path) -> None:
+    # the invented GaN example with a large-capacitance diode on 33 pF: `build` carries the
+    # finding in its warnings (text and JSON), as it does overlap and hot-board leakage
+    from conftest import EXAMPLES
+
+    text = (EXAMPLES / "gan-buck.toml").read_text(encoding="utf-8")
+    lines = []
+    for line in text.splitlines():
+        if line.startswith("c = "):
+            line = 'c = "33p"'
+        elif line.startswith("diode = "):
+            line = f'diode = "{BIG_CJ}"'
+        lines.append(line)
+    design = tmp_path / "cj.toml"
+    design.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    _code, out, _err = run_cli(["build", str(design), "--json"], cwd=tmp_path)
+    warnings = json.loads(out)["warnings"]
+    assert any("junction capacitance (30 pF at 0 V) is 91 % of C" in w for w in warnings)

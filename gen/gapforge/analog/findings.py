@@ -19,6 +19,7 @@ from gapforge.analog.network import (
     SlowEdgePoint,
 )
 from gapforge.analog.tolerance import reference_dead_times
+from gapforge.base.display import format_si
 from gapforge.base.quantities import (
     format_quantity,
     format_tolerance,
@@ -119,10 +120,10 @@ def coupling_finding(
         return None
     ratio = net.diode.cjo / float(net.c)
     return (
-        f"the diode's junction capacitance ({format_quantity(net.diode.cjo, 'F', 4)} at 0 V) is "
+        f"the diode's junction capacitance ({format_si(net.diode.cjo, 'F')} at 0 V) is "
         f"{ratio * 100:.0f} % of C: the step couples through it and the slow {worst.edge} edge "
-        f"is only {format_quantity(worst.delay_s, 's', 4)} (without it "
-        f"{format_quantity(worst.delay_no_cj_s, 's', 4)}, at {worst.temp_c:g} C, typical parts;"
+        f"is only {format_si(worst.delay_s, 's')} (without it "
+        f"{format_si(worst.delay_no_cj_s, 's')}, at {worst.temp_c:g} C, typical parts;"
         f" more than {format_tolerance(share)} lost): choose a diode with less capacitance or a "
         "larger C"
     )

@@ -144,7 +144,7 @@ PARAMETERS: tuple[Parameter, ...] = (
         "the diode datasheet's maximum reverse current at a stated temperature and reverse "
         "voltage, e.g. '50uA at 125C 20V': the worse of it and the model card's leakage "
         "(scaled by the SPICE temperature law) is used on the slow edge",
-        "none: the model card's leakage alone",
+        "the model card's leakage alone",
     ),
     Parameter(
         "vt_plus",

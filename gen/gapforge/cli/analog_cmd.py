@@ -45,7 +45,7 @@ def _network_options(f: F) -> F:
                 f"{flag}/--no-{flag[2:]}", p.name, default=None, help=f"{p.help} [default: no]"
             )(f)
             continue
-        default = p.default if p.default else "derived"
+        default = p.default if p.default else ("derived" if p.name == "vf" else "none")
         shown = "required" if p.default is None else f"default: {default}"
         if p.source:
             shown += f"; {p.source}"

@@ -6,6 +6,7 @@ from __future__ import annotations
 from typing import Any
 
 from gapforge.analog.network import EDGES, PAIR_KEYS
+from gapforge.base.display import format_range
 from gapforge.base.quantities import format_quantity
 
 
@@ -54,7 +55,8 @@ def _suggestion_lines(sg: dict[str, Any]) -> list[str]:
 def answer_line(report: dict[str, Any]) -> str:
     """The first line: the worst-case dead times and whether the network can overlap."""
     ranges = "; ".join(
-        f"{key} {_t(report[key]['min_s'])} .. {_t(report[key]['max_s'])}" for key in PAIR_KEYS
+        f"{key} {format_range(report[key]['min_s'], report[key]['max_s'], 's', safe=True)}"
+        for key in PAIR_KEYS
     )
     if report["can_overlap"]:
         verdict = "CAN OVERLAP: a worst-case dead time is not positive"
