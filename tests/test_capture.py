@@ -135,9 +135,9 @@ def test_sampled_gap_is_judged_one_sample_short(tmp_path: Path) -> None:
     assert m.to_high.min_s == 30 * NS and m.resolution_s == 10 * NS
     assert m.verdict == "fail" and m.to_high.below_window == 1
     # 20 ns is proven: 30 - 10 >= 20
-    assert measure_capture(cap, limits={"to_high": Limits(20 * NS, None)}).verdict == "pass"
+    assert measure_capture(cap, limits={"to_high": Limits(20 * NS, None)}).verdict == "ok"
     # the maximum likewise: 30 + 10 = 40 <= 40 ns passes, 39 ns fails
-    assert measure_capture(cap, limits={"to_high": Limits(None, 40 * NS)}).verdict == "pass"
+    assert measure_capture(cap, limits={"to_high": Limits(None, 40 * NS)}).verdict == "ok"
     assert measure_capture(cap, limits={"to_high": Limits(None, 39 * NS)}).verdict == "fail"
 
 

@@ -66,7 +66,7 @@ def test_known_gaps_recovered(periods: list[tuple[int, int, int, int]]) -> None:
     assert m.to_high.min_s == min(gaps_h) * TICK
     assert m.to_low.max_s == max(gaps_l) * TICK
     assert m.to_high.mean_s == pytest.approx(float(np.mean(gaps_h)) * float(TICK))
-    assert m.verdict == ("fail" if expected_overlaps or 0 in gaps_h + gaps_l else "measured")
+    assert m.verdict == ("fail" if expected_overlaps or 0 in gaps_h + gaps_l else "ok")
 
 
 @settings(max_examples=40, deadline=None)
@@ -95,7 +95,7 @@ def test_window_judged_with_the_resolution_exactly() -> None:
     # 59 ticks = 59/3 ns is the largest minimum that 60 ticks proves: 60 - 1 = 59 >= 59 passes
     ok = {"to_high": Limits(Fraction(59, 3 * 10**9), None),
           "to_low": Limits(None, Fraction(62, 3 * 10**9))}  # 61 + 1 = 62 <= 62 passes
-    assert measure_capture(cap, limits=ok).verdict == "pass"
+    assert measure_capture(cap, limits=ok).verdict == "ok"
     # a hair more (10**-18 s) on the minimum, a hair less on the maximum: each fails
     hair = Fraction(1, 10**18)
     m = measure_capture(cap, limits={"to_high": Limits(Fraction(59, 3 * 10**9) + hair, None)})
@@ -111,7 +111,7 @@ def test_resolution_widened_never_narrowed() -> None:
                           end=cap.end, resolution_ticks=6)
     lim = {"to_high": Limits(Fraction(18, 10**9), None)}  # 18 ns = 54 ticks
     # own resolution 6 ticks: 60 - 6 = 54 >= 54 passes
-    assert measure_capture(coarse, limits=lim).verdict == "pass"
+    assert measure_capture(coarse, limits=lim).verdict == "ok"
     # widened to 2.1 ns = 6.3 ticks, rounded up to 7: 60 - 7 = 53 < 54 fails
     wide = measure_capture(coarse, limits=lim, resolution_s=Fraction(21, 10**10))
     assert wide.verdict == "fail" and wide.resolution_s == 7 * TICK
@@ -128,7 +128,7 @@ def test_gap_inside_the_resolution_proves_no_dead_time() -> None:
                           end=cap.end, resolution_ticks=4)
     m = measure_capture(coarse)
     assert m.verdict == "fail" and any("no dead time proven" in r for r in m.reasons)
-    assert measure_capture(cap).verdict == "measured"  # with one tick, 3 ticks is a real gap
+    assert measure_capture(cap).verdict == "ok"  # with one tick, 3 ticks is a real gap
 
 
 def test_statistics_and_worst_instances() -> None:
@@ -187,7 +187,7 @@ def test_glitch_never_lengthens_a_gap() -> None:
     assert measure_capture(_s5(), limits=loose).verdict == "inconclusive"
     # the clean capture (no pulse) passes the 30 ns minimum: 30 - 1 >= 30 fails, 29 passes
     clean = measure_capture(_s5(glitch=False), limits={"to_high": Limits(29 * NS, None)})
-    assert clean.to_high.gaps_ticks.tolist() == [30] and clean.verdict == "pass"
+    assert clean.to_high.gaps_ticks.tolist() == [30] and clean.verdict == "ok"
 
 
 def test_dropout_glitch_is_listed_but_harmless() -> None:
@@ -195,7 +195,7 @@ def test_dropout_glitch_is_listed_but_harmless() -> None:
     cap = _s5(glitch=False, dropout=True)
     m = measure_capture(cap, limits=window, glitch_width_s=5 * NS)
     assert m.glitches == (Glitch("high", 0, 300 * NS, 2 * NS),)
-    assert m.verdict == "pass" and m.missing_edge_count == 0
+    assert m.verdict == "ok" and m.missing_edge_count == 0
     assert m.to_high.gaps_ticks.tolist() == [30] and m.to_low.gaps_ticks.tolist() == [100]
     # without --glitch the dropout is an unexplained off-on: a missing edge, inconclusive
     unfiltered = measure_capture(cap, limits=window)
@@ -247,7 +247,7 @@ def test_both_unknown_at_the_start_is_not_measured_but_later_it_fails() -> None:
     lt = np.array([0, 50, 100, 600], dtype=np.int64)
     lv = np.array([2, 1, 0, 1], dtype=np.uint8)
     m = measure_capture(make_capture(NS, (ht, hv), (lt, lv)), limits={"to_high": Limits(NS)})
-    assert len(m.possible_overlaps) == 0 and m.verdict == "pass"
+    assert len(m.possible_overlaps) == 0 and m.verdict == "ok"
     assert any("start of the capture" in n for n in m.notes)
     # both unknown later (a $dumpoff): a possible overlap
     ht2 = np.array([0, 50, 130, 500, 700, 720], dtype=np.int64)
@@ -275,7 +275,7 @@ def test_unknown_while_the_other_is_off_is_inconclusive_with_a_window() -> None:
     hv = np.array([0, 1, 0, 2, 0], dtype=np.uint8)
     lt, lv = np.array([0, 100, 600], np.int64), np.array([1, 0, 1], np.uint8)
     cap = make_capture(NS, (ht, hv), (lt, lv))
-    assert measure_capture(cap).verdict == "measured"
+    assert measure_capture(cap).verdict == "ok"
     m = measure_capture(cap, limits={"to_high": Limits(20 * NS, None)})
     assert m.verdict == "inconclusive" and len(m.possible_overlaps) == 0
     assert m.to_low.count == 0
@@ -298,7 +298,7 @@ def test_missing_edges() -> None:
     lv = np.array([1, 0, 1, 0, 1], dtype=np.uint8)
     m = measure_capture(make_capture(TICK, (ht, hv), (lt, lv)))
     assert len(m.missing_edges) == 1 and m.missing_edges[0].at_s == 100 * TICK
-    assert m.to_high.gaps_ticks.tolist() == [50] and m.verdict == "measured"
+    assert m.to_high.gaps_ticks.tolist() == [50] and m.verdict == "ok"
     # with a window set, a capture with missing edges cannot prove the dead time
     judged = measure_capture(make_capture(TICK, (ht, hv), (lt, lv)),
                              limits={"to_high": Limits(10 * TICK, None)})

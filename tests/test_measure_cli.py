@@ -52,7 +52,7 @@ def test_pass_json(tmp_path: Path) -> None:
     assert doc["edges"]["to_high"]["min_s"] == pytest.approx(30e-9)
     assert doc["edges"]["to_low"]["max_s"] == pytest.approx(40e-9)
     assert doc["edges"]["to_low"]["mean_s"] == pytest.approx(40e-9)
-    assert doc["overlaps"] == 0 and doc["verdict"] == "pass"
+    assert doc["overlaps"] == 0 and doc["verdict"] == "ok"
     assert "bench" in doc["caution"]
 
 
@@ -61,7 +61,12 @@ def test_window_violation_exits_1(tmp_path: Path) -> None:
     result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low", "gate_l",
                                       "--window", "35ns:"])
     assert result.exit_code == 1
-    assert "FAIL" in result.output and "reduced voltage" in result.output
+    first = result.output.splitlines()[0]
+    # issue 10: the first line is the answer, lower-case verdict and the shortest gap per edge
+    assert first == "fail: shortest gap to_high 30 ns, to_low 40 ns"
+    assert "FAIL" not in result.output and "Verdict" not in result.output
+    assert "reduced voltage" in result.output.splitlines()[-1]  # the short caution, once, last
+    assert result.output.count("reduced voltage") == 1
 
 
 def test_overlap_exits_1_with_timestamp(tmp_path: Path) -> None:
@@ -199,7 +204,7 @@ def test_serial_over_pty(monkeypatch: pytest.MonkeyPatch) -> None:
     assert doc["stream"]["transitions"] == 60 and doc["stream"]["edges"] == 120
     assert doc["edges"]["to_high"]["count"] == 30 and doc["edges"]["to_low"]["count"] == 30
     # judged with one 1 ns counter tick: 25 - 1 >= 20 and 33 + 1 <= 40
-    assert doc["resolution_s"] == pytest.approx(1e-9) and doc["verdict"] == "pass"
+    assert doc["resolution_s"] == pytest.approx(1e-9) and doc["verdict"] == "ok"
     assert doc["edges"]["to_low"]["min_s"] == pytest.approx(33e-9)
 
 
@@ -241,15 +246,15 @@ def test_timing_diagram_under_the_tables(tmp_path: Path) -> None:
     assert lines[at + 1].startswith("high  ") and lines[at + 2].startswith("low   ")
     assert "to_high 30 ns" in lines[at + 4] and "to_low 40 ns" in lines[at + 4]
     assert at > next(i for i, line in enumerate(lines) if line.startswith("to_low "))  # under
-    assert at < next(i for i, line in enumerate(lines) if line.startswith("Verdict"))
+    assert at < next(i for i, line in enumerate(lines) if line.startswith("Glitches"))
     plain = CliRunner().invoke(cli, [*args, "--ascii"]).output
-    assert "Timing" in plain and all(ord(ch) < 128 for ch in plain.split("CAUTION")[0])
+    assert "Timing" in plain and all(ord(ch) < 128 for ch in plain)
     assert "\u2594" in text  # the default drawing uses block characters
     none = CliRunner().invoke(cli, [*args, "--no-diagram"]).output
     assert "Timing" not in none
     assert not any(line.startswith(("high  ", "low   ")) for line in none.splitlines())
     doc = json.loads(CliRunner().invoke(cli, [*args, "--json"]).output)
-    assert doc["verdict"] == "measured"
+    assert doc["verdict"] == "ok"
 
 
 def test_streamed_file_equals_the_capture_in_memory(tmp_path: Path) -> None:
@@ -300,6 +305,11 @@ def test_diagram_notes_an_overlapping_hand_over() -> None:
     assert m.to_high.min_s == Fraction(-4, 10**9) and m.mean_period_s == Fraction(1000, 10**9)
     text = measurement_diagram(m, ascii_only=True)
     assert "to_high -4 ns" in text and "to_low 30 ns" in text
+    from gapforge.cli.measure_text import answer_line
+
+    # issue 10: a negative gap is said as an overlap, one prefix for both edges
+    assert answer_line(m) == ("fail: 2 overlaps (both gates on); shortest gap to_high 4 ns "
+                              "overlap, to_low 30 ns")
     assert "overlap" in text.splitlines()[-1]
 
 
@@ -387,7 +397,7 @@ def test_sampled_csv_judged_with_one_sample(tmp_path: Path) -> None:
     assert doc["edges"]["to_high"]["min_s"] == pytest.approx(30e-9)  # type: ignore[index]
     # 30 - 10 = 20 < 30: not proven; 30 - 10 >= 20 and 40 - 10 >= 20: proven
     code, doc = _invoke([*args, "--window", "20ns:"])
-    assert code == 0 and doc["verdict"] == "pass"
+    assert code == 0 and doc["verdict"] == "ok"
     text = CliRunner().invoke(cli, ["measure", *args, "--window", "20ns:", "--no-diagram"]).output
     assert "resolution 10 ns" in text and "gap - resolution >= min" in text
 
@@ -416,11 +426,12 @@ def test_missing_edges_with_a_window_are_inconclusive(tmp_path: Path) -> None:
             w.change(lo, t + 440, 1)
     args = [str(path), "--high", "gate_h", "--low", "gate_l"]
     code, doc = _invoke(args)
-    assert code == 0 and doc["verdict"] == "measured" and doc["missing_edges"] == 1
+    assert code == 0 and doc["verdict"] == "ok" and doc["missing_edges"] == 1
     code, doc = _invoke([*args, "--window", "20ns:60ns"])
     assert code == 1 and doc["verdict"] == "inconclusive"
     text = CliRunner().invoke(cli, ["measure", *args, "--window", "20ns:60ns"]).output
-    assert "INCONCLUSIVE" in text
+    assert text.startswith("inconclusive: shortest gap to_high 30 ns, to_low 40 ns\n")
+    assert "missing edge" in text.splitlines()[1]  # the reason right under the answer
 
 
 def test_truncated_value_change_is_a_one_line_error(tmp_path: Path) -> None:
@@ -432,3 +443,54 @@ def test_truncated_value_change_is_a_one_line_error(tmp_path: Path) -> None:
     assert proc.returncode == 2 and "Traceback" not in proc.stderr
     assert proc.stderr.strip() == (f"gapforge: error: {path}:{lines_in_file}: value change '1' "
                                    "without an identifier code: the file ends here (truncated?)")
+
+
+# --- issue 10: the answer first, one vocabulary, progress only at a terminal ------------------
+
+def test_answer_first_and_an_overlap_stays_prominent(tmp_path: Path) -> None:
+    path = _vcd(tmp_path / "shoot.vcd", 30, 40, overlap_at=3)
+    args = ["measure", str(path), "--high", "gate_h", "--low", "gate_l", "--window", "20ns:60ns"]
+    lines = CliRunner().invoke(cli, args).output.splitlines()
+    # the high side pulses on for 5 ns 20 ns after the low side came back on: an overlap that
+    # is no hand-over, so the shortest gaps stay 30 and 40 ns
+    assert lines[0] == "fail: 1 overlap (both gates on); shortest gap to_high 30 ns, to_low 40 ns"
+    at = lines.index("OVERLAPS (shoot-through, both gates on): 1")
+    assert at < 5 and lines[at + 1] == "  both gates on at 3.56 us for 5 ns"
+    plain = CliRunner().invoke(cli, args[:-2]).output.splitlines()
+    assert plain[0].startswith("fail: 1 overlap")  # an overlap fails without a window too
+    clean = _vcd(tmp_path / "ok.vcd", 30, 40)
+    first = CliRunner().invoke(cli, ["measure", str(clean), "--high", "gate_h", "--low",
+                                     "gate_l"]).output.splitlines()[0]
+    assert first == "ok (no window given: overlaps only): shortest gap to_high 30 ns, to_low 40 ns"
+    doc = json.loads(CliRunner().invoke(cli, ["measure", str(clean), "--high", "gate_h", "--low",
+                                              "gate_l", "--json"]).output)
+    assert doc["verdict"] == "ok" and doc["window_judged"] is False
+
+
+def test_progress_bar_only_at_a_terminal(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from gapforge.cli import measure_cmd
+
+    path = _vcd(tmp_path / "ok.vcd", 30, 40)
+    monkeypatch.setattr(measure_cmd, "PROGRESS_BYTES", 1)  # every file is "large"
+    seen: list[int] = []
+
+    class Bar:
+        pos = 0
+
+        def update(self, n: int) -> None:
+            self.pos += n
+            seen.append(self.pos)
+
+        def render_finish(self) -> None:
+            seen.append(-1)
+
+    monkeypatch.setattr(measure_cmd.click, "progressbar", lambda **kw: Bar())
+    args = ["measure", str(path), "--high", "gate_h", "--low", "gate_l"]
+    # piped (CliRunner's streams are not terminals): no bar
+    CliRunner().invoke(cli, args)
+    assert seen == []
+    monkeypatch.setattr(measure_cmd, "_at_terminal", lambda as_json: not as_json)
+    result = CliRunner().invoke(cli, [*args, "--json"])  # JSON: never a bar
+    assert seen == [] and json.loads(result.output)["verdict"] == "ok"
+    CliRunner().invoke(cli, args)  # at a terminal: the bar reaches the file's size, then ends
+    assert seen[-2] == path.stat().st_size and seen[-1] == -1

@@ -109,10 +109,12 @@ class CaptureStream:
         resolution_ticks: int = 1,
         lost_events: int = 0,
         time_unit_assumed: bool = False,
+        position: Callable[[], int] | None = None,
     ) -> None:
         if resolution_ticks < 1:
             raise ValueError("resolution_ticks must be at least 1")
         self.time_unit_assumed = time_unit_assumed
+        self.position = position  # bytes of the source read so far (None: not a file stream)
         self.tick_s = tick_s
         self.source = source
         self.high_initial = high_initial
@@ -130,6 +132,27 @@ class CaptureStream:
     def sorted_chunks(self) -> Iterator[Events]:
         """Every event ordered by time (stable in file order), read whole."""
         return self._sorted()
+
+    def observed(self, seen: Callable[[int], None]) -> CaptureStream:
+        """The same stream, calling `seen(position())` after every chunk (for a progress
+        display; the bench itself never draws one)."""
+        position = self.position
+        if position is None:
+            return self
+
+        def watch(source: Callable[[], Iterator[Events]]) -> Callable[[], Iterator[Events]]:
+            def run() -> Iterator[Events]:
+                for chunk in source():
+                    seen(position())
+                    yield chunk
+                seen(position())
+            return run
+
+        return CaptureStream(self.tick_s, self.source, watch(self._chunks), watch(self._sorted),
+                             self._finished, high_initial=self.high_initial,
+                             low_initial=self.low_initial, resolution_ticks=self.resolution_ticks,
+                             lost_events=self.lost_events, time_unit_assumed=self.time_unit_assumed,
+                             position=position)
 
     @property
     def end(self) -> int:
@@ -229,7 +252,8 @@ def open_capture(
     # resolution: one tick of the $timescale
     return CaptureStream(events.timescale_s, str(path), ordered, whole,
                          lambda: (events.end_time, events.warnings), resolution_ticks=1,
-                         time_unit_assumed=events.timescale_assumed)
+                         time_unit_assumed=events.timescale_assumed,
+                         position=lambda: events.bytes_read)
 
 
 def invert(levels: npt.NDArray[np.uint8]) -> npt.NDArray[np.uint8]:

@@ -114,7 +114,7 @@ def measure_capture(
     elif found.inconclusive:
         verdict = "inconclusive"
     else:
-        verdict = "pass" if has_window else "measured"
+        verdict = "ok"
     start = raw.first_time if raw.first_time is not None else 0
     return Measurement(
         source=stream.source,
@@ -136,6 +136,7 @@ def measure_capture(
         possible_overlaps=found.possible,
         glitch_count=raw.glitch.total,
         missing_edge_count=found.missing_count,
+        window_judged=has_window,
     )
 
 

@@ -170,8 +170,8 @@ class Measurement:
     missing_edges: tuple[Finding, ...]  # listed (up to 1000 per kind and side)
     unknown_intervals: int
     limits: Mapping[str, Limits]
-    # "pass", "fail", "inconclusive" (a window is set but missing edges leave the capture
-    # unable to prove it) or "measured" (no window to judge against)
+    # "ok", "fail" or "inconclusive" (the capture cannot prove the window: missing edges, an
+    # unknown level, an assumed time unit); without a window "ok" judges the overlaps only
     verdict: str
     reasons: tuple[str, ...]
     notes: tuple[str, ...] = field(default=())
@@ -182,6 +182,7 @@ class Measurement:
     possible_overlaps: Overlaps = field(default_factory=lambda: no_overlaps(Fraction(1)))
     glitch_count: int = 0  # every glitch (the listed ones are the first 1000 per side)
     missing_edge_count: int = 0  # every missing edge, with the capture's own lost events
+    window_judged: bool = False  # a window was given (else only overlaps decide the verdict)
 
     def edge(self, name: str) -> EdgeStats:
         return self.to_high if name == "to_high" else self.to_low

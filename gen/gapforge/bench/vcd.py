@@ -220,6 +220,7 @@ class EventStream:
     warnings: tuple[str, ...] = ()
     timescale: Fraction | None = None  # stated by the user
     timescale_assumed: bool = field(init=False, default=False)
+    bytes_read: int = field(init=False, default=0)  # of the file, by the pass in progress
     _unit: Fraction = field(init=False, default=Fraction(1))
     _unit_warnings: tuple[str, ...] = field(init=False, default=())
 
@@ -238,7 +239,9 @@ class EventStream:
         keys = [(s.variable.code.encode("ascii"), s.position) for s in self.selections]
         wanted = _keys(self.selections)
         state = State(self.path, self.place)
+        size = self.path.stat().st_size  # the reader adds one virtual line end at the file's end
         for chunk in _chunks(self.path, self.header, wanted, state, self.place, self.chunk_bytes):
+            self.bytes_read = min(state.offset, size)
             if state.backwards:
                 raise UnorderedTimes(state.first_backwards)
             tok0, val0 = chunk.picks[keys[0]]
@@ -253,6 +256,7 @@ class EventStream:
             yield (chunk.times_of(token_idx[order]), sides[order],
                    np.concatenate([val0, val1])[order])
         self.end_time = state.time
+        self.bytes_read = min(state.offset, size)
         self.warnings = self._unit_warnings + _warnings(state, self.place)
 
     def sorted_chunks(self) -> Iterator[tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8],
@@ -267,6 +271,7 @@ class EventStream:
                                 np.ones(second.times.size, dtype=np.uint8)])
         self.end_time = data.end_time
         self.warnings = data.warnings
+        self.bytes_read = self.path.stat().st_size
         yield times[order], sides[order], np.concatenate([first.values, second.values])[order]
 
 
