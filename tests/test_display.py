@@ -24,6 +24,7 @@ from gapforge.base.display import (
     format_range,
     format_si,
     significant,
+    verdict_word,
 )
 
 F = Fraction
@@ -62,6 +63,11 @@ def test_one_prefix_per_line() -> None:
     # 400 ns and 1.2 us in one line: both in ns so they compare (not 400 ns beside 1.2 us)
     assert format_many([400e-9, 1.2e-6], "s") == ["400 ns", "1200 ns"]
     assert format_range(400e-9, 1.2e-6, "s") == "400 .. 1200 ns"
+    # a window cut inward (minimum up, maximum down), a worst case outward
+    assert format_range(F(27_61, 10**11), F(29_687, 10**12), "s", cut="inward") == "27.61 .. 29.68 ns"
+    assert format_range(F(27_61, 10**11), F(29_687, 10**12), "s", cut="outward") == (
+        "27.61 .. 29.69 ns"
+    )
     # 6.25 ns beside 480 ns: ns
     assert format_many([F(1, 160_000_000), 480e-9], "s") == ["6.25 ns", "480 ns"]
     # 2 ns beside 15 us: the largest decides (us), a tiny value keeps its digits
@@ -88,6 +94,11 @@ def test_percent_never_rounds_onto_a_bound() -> None:
     assert format_percent(F(1, 10**9)) == "0.0000001 %"
     assert format_percent(1) == "100 %"
     assert format_percent(F(1, 3)) == "33.33 %"
+
+
+def test_verdict_words() -> None:
+    assert [verdict_word(v) for v in ("ok", "too-short", "empty-window", "inconclusive")] == [
+        "ok", "fail", "fail", "inconclusive"]
 
 
 def test_both_edges_said_once() -> None:

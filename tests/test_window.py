@@ -33,9 +33,11 @@ def test_text_output_names_common_practice_and_carries_the_caution() -> None:
     assert code == 0
     assert "common practice" in out
     assert "bench at reduced voltage with current limiting" in out
-    # 35 + 20 - 10 + 25 + 5 = 75 ns x 1.2 = 90 ns; max 0.5 / (1.2 x 20 x 20000) = 1.041666 us
-    assert "window: 90 ns .. 1.041666 us" in out
-    assert "verdict: ok" in out
+    # 35 + 20 - 10 + 25 + 5 = 75 ns x 1.2 = 90 ns; max 0.5 / (1.2 x 20 x 20000) = 1.041666 us,
+    # shown cut inward to four digits (1041 ns, never 1042) on the first line, said once
+    assert out.startswith("window: ok - both edges: 90 .. 1041 ns (loss budget)\n")
+    # the caution once, short, at the end (issue 10)
+    assert out.count("reduced voltage") == 1 and out.rstrip().endswith("see README).")
 
 
 def test_json_holds_edges_breakdown_and_costs() -> None:
@@ -64,7 +66,13 @@ def test_a_chosen_dead_time_is_judged() -> None:
     assert judged["verdict"] == "ok"
     assert judged["margin_low_s"] == pytest.approx(10e-9)  # 100 - 90 ns
     code, out, _ = run([*BASE, "--to-high", "80ns", "--to-low", "100ns"])
-    assert code == 1 and "to_high: too-short" in out
+    assert code == 1 and out.startswith("window: fail (too-short)")
+    # 80 - 90 = -10 ns: said in words; 1041.666 - 80 = 961.67 ns under the maximum
+    assert "to_high: too-short (10 ns below the minimum, 961.7 ns below the maximum)" in out
+    code, out, _ = run([*BASE, "--to-high", "80ns", "--to-low", "100ns", "--json"])
+    doc = json.loads(out)
+    assert doc["verdict"] == "fail" and doc["reason"] == "too-short"
+    assert doc["edges"]["to_high"]["judged"]["verdict"] == "fail"
     code, out, _ = run([*BASE, "--dead-time", "2us"])
     assert code == 1 and "too-long" in out
 
@@ -74,9 +82,10 @@ def test_empty_window_exits_1() -> None:
     args = [a if a != "0.5W" else "0.01W" for a in BASE]
     code, out, _ = run(args)
     assert code == 1
-    assert "EMPTY WINDOW" in out and "verdict: empty-window" in out
+    assert "EMPTY WINDOW" in out and out.startswith("window: fail (empty-window)")
     code, out, _ = run([*args, "--json"])
-    assert code == 1 and json.loads(out)["verdict"] == "empty-window"
+    assert code == 1 and json.loads(out)["verdict"] == "fail"
+    assert json.loads(out)["reason"] == "empty-window"
 
 
 def test_design_file_stage_section(tmp_path: Path) -> None:

@@ -28,6 +28,12 @@ VERDICT_FAIL = "fail"
 VERDICT_INCONCLUSIVE = "inconclusive"
 VERDICTS = (VERDICT_OK, VERDICT_FAIL, VERDICT_INCONCLUSIVE)
 
+
+def verdict_word(detail: str) -> str:
+    """The one verdict word for a detailed outcome: "ok" stays, "inconclusive" stays, any
+    other ("too-short", "too-long", "empty-window", "unreachable", ...) is "fail"."""
+    return detail if detail in (VERDICT_OK, VERDICT_INCONCLUSIVE) else VERDICT_FAIL
+
 _PREFIX = {-15: "f", -12: "p", -9: "n", -6: "u", -3: "m", 0: "", 3: "k", 6: "M", 9: "G", 12: "T"}
 _ROUNDING = {"nearest": ROUND_HALF_EVEN, "down": ROUND_FLOOR, "up": ROUND_CEILING}
 
@@ -137,14 +143,15 @@ def format_many(values: Sequence[Number], unit: str, *, digits: int = DIGITS) ->
 
 
 def format_range(
-    low: Number, high: Number, unit: str, *, digits: int = DIGITS, safe: bool = False
+    low: Number, high: Number, unit: str, *, digits: int = DIGITS, cut: str = "nearest"
 ) -> str:
     """ "400 .. 1200 ns": one prefix, the unit written once.
 
-    `safe=True` cuts a worst-case range outward (the low end down, the high end up), exactly.
+    cut="outward" widens a worst-case range (the low end down, the high end up), "inward"
+    narrows a window (the minimum up, the maximum down); both exactly.
     """
     exp3 = choose_exponent([low, high])
-    down, up = ("down", "up") if safe else ("nearest", "nearest")
+    down, up = {"outward": ("down", "up"), "inward": ("up", "down")}.get(cut, (cut, cut))
     lo = format_si(low, unit, digits=digits, exponent=exp3, toward=down).rsplit(" ", 1)[0]
     hi = format_si(high, unit, digits=digits, exponent=exp3, toward=up)
     return f"{lo} .. {hi}"

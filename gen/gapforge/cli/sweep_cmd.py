@@ -183,7 +183,7 @@ def _cell(text: str, width: int, align: str) -> str:
 def _row_cells(rank: int, row: SweepRow, exp3: int) -> list[str]:
     lo = min(e.achieved_min_s for e in row.edges.values())
     hi = max(e.achieved_max_s for e in row.edges.values())
-    span = format_range(lo, hi, "s", safe=True)
+    span = format_range(lo, hi, "s", cut='outward')
     register = "-" if row.register is None else f"0x{row.register:X}"
     return [
         str(rank),
@@ -215,7 +215,7 @@ def best_line(result: Sweep) -> str:
     register = "" if row.register is None else f", register 0x{row.register:X}"
     return (
         f"sweep: best {row.layout} at {format_si(row.clock_hz, 'Hz')} /{row.divider}, "
-        f"{'; '.join(codes)}{register}: worst case {format_range(lo, hi, 's', safe=True)}"
+        f"{'; '.join(codes)}{register}: worst case {format_range(lo, hi, 's', cut='outward')}"
     )
 
 

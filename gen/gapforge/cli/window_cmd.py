@@ -16,8 +16,16 @@ from typing import Any, TypeVar
 import click
 
 from gapforge.base import caution
+from gapforge.base.display import (
+    both_edges,
+    format_offset,
+    format_percent,
+    format_range,
+    format_si,
+    verdict_word,
+)
 from gapforge.base.errors import GapforgeError
-from gapforge.base.quantities import format_quantity, parse_quantity, picoseconds_ceil
+from gapforge.base.quantities import parse_quantity, picoseconds_ceil
 from gapforge.base.schema import Reader, load_toml
 from gapforge.cli.options import json_option
 from gapforge.stage.window import (
@@ -221,6 +229,7 @@ def window_json(
     dead_times: dict[str, Fraction],
     judged: dict[str, tuple[str, Fraction, Fraction | None]] | None,
     verdict: str,
+    reason: str = "",
 ) -> dict[str, Any]:
     edges: dict[str, Any] = {}
     for edge in EDGES:
@@ -246,12 +255,14 @@ def window_json(
         if judged is not None:
             v, low, high = judged[edge]
             edges[edge]["judged"] = {
-                "verdict": v,
+                "verdict": verdict_word(v),
+                "reason": "" if v == "ok" else v,
                 "margin_low_s": float(low),
                 "margin_high_s": _seconds(high),
             }
     return {
         "verdict": verdict,
+        "reason": reason,
         "margin": float(window.margin),
         "minimum_formula": MIN_FORMULA,
         "maximum_formula": MAX_FORMULA,
@@ -270,22 +281,31 @@ def window_json(
     }
 
 
-def _exact(value: Fraction) -> str:
-    """Seconds for display with every digit of a whole-picosecond value (no rounding up)."""
-    return format_quantity(value, "s", 12)
-
-
 def _line(term: Term) -> str:
     if term.unit == "s":
-        value = _exact(abs(term.value))
+        value = format_si(abs(term.value), "s")
         sign = ("-" if term.value < 0 else "+") if term.counted else " "
         shown = f"{sign} {value}"
     elif term.unit:
-        shown = f"  {format_quantity(term.value, term.unit)}"
+        shown = f"  {format_si(term.value, term.unit)}"
     else:
         shown = f"  x {float(term.value):g}"
     note = f"  ({term.note})" if term.note else ""
-    return f"    {shown:>14}  {term.name}{note}"
+    return f"    {shown:>12}  {term.name}{note}"
+
+
+def _window_span(w: Any) -> str:
+    """The window of one edge, cut inward (minimum up, maximum down), with why the top is there."""
+    if w.max_s is None:
+        return f"{format_si(w.min_s, 's', toward='up')} .. no maximum"
+    return f"{format_range(w.min_s, w.max_s, 's', cut='inward')} ({w.max_reason})"
+
+
+def first_line(window: Window, verdict: str, reason: str) -> str:
+    """The answer: the verdict and the two windows (said once when both edges agree)."""
+    spans = both_edges({edge: _window_span(window.edges[edge]) for edge in EDGES})
+    why = f" ({reason})" if reason and reason != verdict else ""
+    return f"window: {verdict}{why} - {'; '.join(spans)}"
 
 
 def window_text(
@@ -294,8 +314,42 @@ def window_text(
     dead_times: dict[str, Fraction],
     judged: dict[str, tuple[str, Fraction, Fraction | None]] | None,
     verdict: str,
+    reason: str = "",
 ) -> str:
-    out: list[str] = ["Power-stage dead-time window"]
+    out: list[str] = [first_line(window, verdict, reason)]
+    if window.empty:
+        out.append("EMPTY WINDOW: no dead time is both long enough and within the budget")
+    if judged is not None:
+        lines = {}
+        for edge in EDGES:
+            v, low, high = judged[edge]
+            top = "" if high is None else ", " + format_offset(-high, "s", "the maximum")
+            lines[edge] = f"{v} ({format_offset(low, 's', 'the minimum')}{top})"
+        out.extend(f"  {line}" for line in both_edges(lines))
+    out.append("")
+    chosen = both_edges({edge: format_si(dead_times[edge], "s") for edge in EDGES})
+    if chosen[0].startswith("both edges: "):
+        chosen = [chosen[0].removeprefix("both edges: ") + " on both edges"]
+    out.append(f"Costs at {'; '.join(chosen)}:")
+    out.append(
+        f"  reverse conduction {format_si(costs.reverse_conduction_w, 'W')} "
+        f"at {format_si(costs.reverse_voltage_v, 'V')}, "
+        f"recovery {format_si(costs.recovery_w, 'W')}"
+    )
+    if costs.dead_share is not None:
+        out.append(f"  both switches off {format_percent(costs.dead_share)} of each period")
+    if costs.duty_lost is not None:
+        out.append(
+            "  switch-node duty change (the high side's gate command minus what the current's "
+            f"sign takes): {format_percent(costs.duty_lost)}"
+        )
+    if costs.voltage_error_v is not None:
+        out.append(
+            "  inverter average output-voltage error (Vd x t_dead x fsw, sign by current): "
+            f"{format_si(costs.voltage_error_v, 'V')}"
+        )
+    out.append("")
+    out.append("Breakdown")
     out.append(f"  {MIN_FORMULA}")
     out.append(f"  {MAX_FORMULA}")
     names = {
@@ -307,40 +361,10 @@ def window_text(
         out.append("")
         out.append(names[edge])
         out.extend(_line(t) for t in w.breakdown)
-        for term in w.max_breakdown:
-            out.append(_line(term))
-        top = "no upper limit" if w.max_s is None else _exact(w.max_s)
-        out.append(f"  window: {_exact(w.min_s)} .. {top}  ({w.max_reason})")
-        if w.empty:
-            out.append("  EMPTY WINDOW: no dead time is both long enough and within the budget")
+        out.extend(_line(t) for t in w.max_breakdown)
+        out.append(f"  window: {_window_span(w)}")
     out.append("")
-    shown = ", ".join(f"{edge} {format_quantity(dead_times[edge], 's')}" for edge in EDGES)
-    out.append(f"Costs at {shown}:")
-    out.append(
-        f"  reverse conduction {format_quantity(costs.reverse_conduction_w, 'W')} "
-        f"at {format_quantity(costs.reverse_voltage_v, 'V')}, "
-        f"recovery {format_quantity(costs.recovery_w, 'W')}"
-    )
-    if costs.dead_share is not None:
-        out.append(f"  both switches off {float(costs.dead_share) * 100:.4g} % of each period")
-    if costs.duty_lost is not None:
-        out.append(
-            "  switch-node duty change (the high side's gate command minus what the current's "
-            f"sign takes): {float(costs.duty_lost) * 100:.4g} %"
-        )
-    if costs.voltage_error_v is not None:
-        out.append(
-            "  inverter average output-voltage error (Vd x t_dead x fsw, sign by current): "
-            f"{format_quantity(costs.voltage_error_v, 'V')}"
-        )
-    if judged is not None:
-        for edge in EDGES:
-            v, low, high = judged[edge]
-            top = "" if high is None else f", {format_quantity(high, 's')} below the maximum"
-            out.append(f"  {edge}: {v} ({format_quantity(low, 's')} above the minimum{top})")
-    out.append("")
-    out.append(f"verdict: {verdict}")
-    out.append(CAUTION)
+    out.append(caution.SHORT)
     return "\n".join(out) + "\n"
 
 
@@ -380,15 +404,17 @@ def command(**values: Any) -> None:
         dead_times = {edge: window.edges[edge].min_s for edge in EDGES}
     costs = stage_costs(spec, dead_times)
     if window.empty:
-        verdict = "empty-window"
+        reason = "empty-window"
     elif judged is not None:
         bad = [judged[edge][0] for edge in EDGES if judged[edge][0] != "ok"]
-        verdict = bad[0] if bad else "ok"
+        reason = bad[0] if bad else ""
     else:
-        verdict = "ok"
+        reason = ""
+    verdict = verdict_word(reason or "ok")
     if values["as_json"]:
-        click.echo(json.dumps(window_json(window, costs, dead_times, judged, verdict), indent=2))
+        doc = window_json(window, costs, dead_times, judged, verdict, reason)
+        click.echo(json.dumps(doc, indent=2))
     else:
-        click.echo(window_text(window, costs, dead_times, judged, verdict), nl=False)
+        click.echo(window_text(window, costs, dead_times, judged, verdict, reason), nl=False)
     if verdict != "ok":
         raise SystemExit(1)
