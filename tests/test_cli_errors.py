@@ -327,7 +327,7 @@ def test_unreachable_second_output_leaves_every_file_untouched(tmp_path: Path) -
     assert "unreachable" in out
     assert _snapshot(tmp_path) == before
     code, out, _ = run_cli(["build", str(design), "--json"])
-    assert code == 1 and '"verdict": "unreachable"' in out
+    assert code == 1 and '"reason": "unreachable"' in out
     assert _snapshot(tmp_path) == before
 
 

@@ -252,7 +252,8 @@ def test_unreachable_from_the_command_line_exits_1() -> None:
     # 2 us x 160 MHz = 320 counts > 255
     assert code == 1
     doc = json.loads(out)
-    assert doc["verdict"] == "unreachable" and doc["register"] is None
+    assert doc["verdict"] == "fail" and doc["reason"] == "unreachable"
+    assert doc["register"] is None
     assert doc["edges"]["to_high"]["achieved_s"] is None
     assert doc["edges"]["to_high"]["max_s"] == pytest.approx(255 / 160e6, rel=1e-15)
     code, out, _ = run_cli([

@@ -7,6 +7,7 @@ from fractions import Fraction
 
 import click
 
+from gapforge.base.display import verdict_word
 from gapforge.base.errors import GapforgeError
 from gapforge.cli.options import Quantity, clock_options, diagram_options, emit_json, json_option
 from gapforge.outputs.views import CAUTION, fit_json, fit_text
@@ -103,7 +104,8 @@ def command(
     )
     if as_json:
         doc = fit_json(result, limits)
-        doc["verdict"] = verdict
+        doc["verdict"] = verdict_word(verdict)
+        doc["reason"] = "" if verdict == "ok" else verdict
         emit_json(doc)
     else:
         click.echo(fit_text(result, limits))

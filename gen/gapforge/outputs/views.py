@@ -9,6 +9,7 @@ from fractions import Fraction
 from typing import Any
 
 from gapforge.base import caution
+from gapforge.base.display import verdict_word
 from gapforge.base.quantities import format_bound, format_quantity, format_tolerance
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.fit import FitResult, fit_warnings, step_seconds
@@ -143,7 +144,8 @@ def fit_json(result: FitResult, limits: PwmLimits | None) -> dict[str, Any]:
         "clock_hz": float(req.clock_hz),
         "clock_tol": float(req.clock_tol),
         "rounding": req.rounding,
-        "verdict": result.verdict,
+        "verdict": verdict_word(result.verdict),
+        "reason": "" if result.verdict == "ok" else result.verdict,
         "divider_code": result.divider_code,
         "divider": result.divider,
         "sub_steps": result.layout.sub_steps,
@@ -179,8 +181,8 @@ def fit_json(result: FitResult, limits: PwmLimits | None) -> dict[str, Any]:
 
 def pwm_json(lim: PwmLimits) -> dict[str, Any]:
     return {
-        "verdict": lim.verdict,
-        "reason": lim.reason or None,
+        "verdict": verdict_word(lim.verdict),
+        "reason": "" if lim.verdict == "ok" else f"{lim.verdict}: {lim.reason}",
         "counting": lim.spec.counting,
         "requested_hz": float(lim.spec.frequency_hz),
         "real_hz": float(lim.real_frequency_hz),
@@ -197,7 +199,7 @@ def pwm_json(lim: PwmLimits) -> dict[str, Any]:
             e: {
                 "dead_counts": float(x.dead_counts),
                 "share": float(x.share),
-                "lost_duty": float(x.lost_duty),
+                "duty_lost": float(x.lost_duty),
                 "tol_minus_s": float(x.tol_minus_s),
                 "tol_plus_s": float(x.tol_plus_s),
             }
@@ -325,10 +327,11 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
         "clock_hz": float(d.clock_hz),
         "clock_tol": float(d.clock_tol),
         "source": d.source,
-        "verdict": plan.verdict,
+        "verdict": verdict_word(plan.verdict),
+        "reason": "" if plan.verdict == "ok" else plan.verdict,
         "reasons": list(plan.reasons),
         "warnings": list(plan.warnings),
-        "requested": None
+        "requested_s": None
         if plan.request is None
         else {e: float(plan.request.requested(e)) for e in EDGES},
         "window": None
@@ -349,15 +352,17 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
             {
                 "prefix": op.output.prefix,
                 "file": op.output.file,
-                "output_verdict": op.verdict,
+                "verdict": verdict_word(op.verdict),
+                "reason": "" if op.verdict == "ok" else op.verdict,
                 "reasons": list(op.reasons),
                 "warnings": list(op.warnings),
                 "costs": None if op.costs is None else costs_json(op.costs),
                 "margins": {
                     e: {
-                        "low_s": _f(j.margin_low_s),
-                        "high_s": _f(j.margin_high_s),
-                        "verdict": j.verdict,
+                        "margin_low_s": _f(j.margin_low_s),
+                        "margin_high_s": _f(j.margin_high_s),
+                        "verdict": verdict_word(j.verdict),
+                        "reason": "" if j.verdict == "ok" else j.verdict,
                     }
                     for e, j in op.judgements.items()
                 },
