@@ -1,0 +1,345 @@
+"""The report's sections, in the order of the decision: what the stage needs (the window), what
+the timer gives (quantization, timing), what the analog reference did, what the hardware did
+(bench captures), then every input. A section whose input is absent says so instead of drawing.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from fractions import Fraction
+from typing import TYPE_CHECKING, Any
+
+from markupsafe import Markup
+
+from gapforge.base.display import format_percent, format_si
+from gapforge.outputs.figures import (
+    analog_figure,
+    distribution_figure,
+    overlap_figure,
+    staircase_figure,
+    timing_figure,
+    transition_figure,
+)
+from gapforge.outputs.report_data import (
+    EDGE_TEXT,
+    MC_SAMPLES,
+    MC_SEED,
+    STAIR_STEPS,
+    achieved,
+    node_ramps,
+    pair_timing,
+    reference_samples,
+    staircase,
+    window_of,
+)
+from gapforge.outputs.report_tables import TableBlock
+from gapforge.outputs.svg import PALETTE
+from gapforge.pipeline.build import BuildPlan
+from gapforge.timer.layouts import EDGES
+
+if TYPE_CHECKING:
+    from gapforge.bench.measure import Measurement
+
+
+def _t(value: Fraction | float | None) -> str:
+    return "-" if value is None else format_si(value, "s")
+
+
+@dataclass(frozen=True)
+class FigureBlock:
+    svg: Markup
+    caption: str
+
+
+@dataclass(frozen=True)
+class Section:
+    ident: str
+    title: str
+    paragraphs: tuple[str, ...]
+    figures: tuple[FigureBlock, ...] = ()
+    tables: tuple[TableBlock, ...] = ()
+
+
+def timing_section(plan: BuildPlan) -> Section:
+    figures: list[FigureBlock] = []
+    for i, op in enumerate(plan.outputs):
+        if not op.fit.ok:
+            continue
+        pt = pair_timing(op)
+        period = (
+            "an illustrative period (the design has no [pwm] section)"
+            if pt.assumed_period
+            else f"one PWM period of {_t(pt.period_s)}"
+        )
+        windows = {e: window_of(plan, e) for e in EDGES}
+        figures.append(
+            FigureBlock(
+                Markup(timing_figure(pt, op.output.prefix, windows, f"timing-{i}")),
+                f"{op.output.prefix} ({op.fit.layout.name}): {period} at 50 % "
+                "commanded duty. Grey: both gates off; blue-grey: the spread "
+                "of each turn-on over the clock tolerance; dash-dot: window "
+                "edges.",
+            )
+        )
+        for e in EDGES:
+            zoom = transition_figure(
+                op.output.prefix,
+                e,
+                achieved(op, e),
+                op.fit.edges[e].requested_s,
+                windows[e],
+                f"zoom-{i}-{e}",
+            )
+            figures.append(
+                FigureBlock(Markup(zoom), f"{op.output.prefix}: {EDGE_TEXT[e]}, to scale.")
+            )
+    paragraphs: tuple[str, ...] = (
+        "Each output's gates through one PWM period, then each transition to scale.",
+    )
+    if not figures:
+        paragraphs += ("No output was fitted, so there is no timing to draw.",)
+    return Section("timing", "Timing diagrams", paragraphs, tuple(figures))
+
+
+def analog_section(plan: BuildPlan) -> Section:
+    net = plan.design.reference
+    if net is None:
+        return Section(
+            "analog",
+            "Analog reference",
+            (
+                "Absent: the design has no [reference] section, so there is no analog "
+                "network to draw.",
+            ),
+        )
+    ramps = node_ramps(net)
+    figures = [
+        FigureBlock(
+            Markup(analog_figure(ramps[e], net.bypass == e, f"analog-{e}")),
+            f"{e} input edge at typical parts: "
+            + (
+                "simulated (transient waveform) and closed form."
+                if ramps[e].simulated
+                else "closed form (no transient simulation)."
+            ),
+        )
+        for e in ("rising", "falling")
+    ]
+    tables = []
+    if plan.reference is not None:
+        rows = tuple((e, _t(r.min_s), _t(r.typ_s), _t(r.max_s)) for e, r in plan.reference.items())
+        tables.append(
+            TableBlock(
+                "Reference dead times (worst-case corners, Monte Carlo checked)",
+                ("edge", "min", "typ", "max"),
+                rows,
+            )
+        )
+    try:
+        from gapforge.analog.simulate import slow_edge_over_temperature
+    except ImportError:
+        slow: list[Any] = []
+    else:
+        slow = list(slow_edge_over_temperature(net))
+    if slow:
+        tables.append(
+            TableBlock(
+                "Slow edge over temperature (transient simulation, typical parts)",
+                ("input edge", "temperature", "node delay", "without diode leakage", "erosion"),
+                tuple(
+                    (
+                        p.edge,
+                        f"{p.temp_c:g} C",
+                        _t(p.delay_s),
+                        _t(p.delay_no_leakage_s),
+                        format_percent(p.erosion),
+                    )
+                    for p in slow
+                ),
+            )
+        )
+    return Section(
+        "analog",
+        "Analog reference",
+        (
+            "The capacitor node on each input edge against the Schmitt threshold band, "
+            "with the node delay (ideal input step to the threshold crossing) marked.",
+        ),
+        tuple(figures),
+        tuple(tables),
+    )
+
+
+def staircase_section(plan: BuildPlan) -> Section:
+    figures: list[FigureBlock] = []
+    for i, op in enumerate(plan.outputs):
+        if not op.fit.ok:
+            continue
+        for f in op.fit.layout.dead_time_fields:
+            edges = [e for e in EDGES if op.fit.layout.edge_field(e) is f]
+            stair = staircase_figure(
+                staircase(op, f, op.fit.request.rounding),
+                op.output.prefix,
+                f.name,
+                edges,
+                [window_of(plan, e) for e in edges],
+                f"stair-{i}-{f.name}",
+            )
+            figures.append(
+                FigureBlock(
+                    Markup(stair),
+                    f"{op.output.prefix}, {' and '.join(edges)} (field {f.name} of "
+                    f"{op.fit.layout.name}): {op.fit.request.rounding} rounding at "
+                    f"divider /{op.fit.divider} (step {_t(op.fit.step_s)}), "
+                    f"{STAIR_STEPS} representable values each side of the chosen one.",
+                )
+            )
+    paragraphs: tuple[str, ...] = (
+        "How each layout's codes turn a requested dead time into an achieved one.",
+    )
+    if not figures:
+        paragraphs += ("No output was fitted, so there is no staircase to draw.",)
+    return Section("quantization", "Quantization", paragraphs, tuple(figures))
+
+
+def monte_carlo_section(plan: BuildPlan) -> Section:
+    net = plan.design.reference
+    if net is None:
+        return Section(
+            "monte-carlo",
+            "Monte Carlo of the reference",
+            ("Absent: the design has no [reference] section.",),
+        )
+    samples = reference_samples(net)
+    first = next((op for op in plan.outputs if op.fit.ok), None)
+    figures = []
+    for e in EDGES:
+        digital = achieved(first, e) if first is not None else None
+        figures.append(
+            FigureBlock(
+                Markup(
+                    distribution_figure(
+                        samples[e],
+                        edge=e,
+                        window=window_of(plan, e),
+                        digital=digital,
+                        predicted=None,
+                        style=PALETTE["reference"],
+                        what="reference Monte Carlo",
+                        ident=f"mc-{e}",
+                    )
+                ),
+                f"{EDGE_TEXT[e]}: {MC_SAMPLES} seeded samples (seed {MC_SEED}) of the old network, "
+                "every part uniform over its band; hatched: at or below zero dead time (overlap)"
+                + ("." if first is None else f"; digital value of {first.output.prefix}."),
+            )
+        )
+    return Section(
+        "monte-carlo",
+        "Monte Carlo of the reference",
+        (
+            "The analog network's dead time over its parts' tolerances, against the "
+            "window and the digital value that replaces it.",
+        ),
+        tuple(figures),
+    )
+
+
+def capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
+    if m is None:
+        return Section(
+            "capture",
+            "Bench capture",
+            ("Absent: no capture was given (gapforge report --capture FILE).",),
+        )
+    figures = []
+    first = next((op for op in plan.outputs if op.fit.ok), None)
+    for e in EDGES:
+        stats = m.edge(e)
+        if stats.count == 0:
+            continue
+        lim = m.limits.get(e)
+        predicted = None
+        if lim is not None and lim.predicted_min_s is not None and lim.predicted_max_s is not None:
+            predicted = (lim.predicted_min_s, lim.predicted_max_s)
+        window = (lim.window_min_s, lim.window_max_s) if lim is not None else (None, None)
+        figures.append(
+            FigureBlock(
+                Markup(
+                    distribution_figure(
+                        stats.gaps_s,
+                        edge=e,
+                        window=window,
+                        digital=None,
+                        predicted=predicted,
+                        style=PALETTE["measured"],
+                        what="measured gaps",
+                        ident=f"capture-{e}",
+                    )
+                ),
+                f"{EDGE_TEXT[e]}: {stats.count} measured gaps"
+                + ("." if first is None else f"; predicted range of {first.output.prefix}."),
+            )
+        )
+    figures.append(
+        FigureBlock(
+            Markup(overlap_figure(m.duration_s, [o.at_s for o in m.overlaps], "overlaps")),
+            "Overlaps: both gates on at once (shoot-through).",
+        )
+    )
+    rows = []
+    for e in EDGES:
+        s = m.edge(e)
+        rows.append(
+            (
+                e,
+                str(s.count),
+                _t(s.min_s),
+                _t(s.max_s),
+                _t(s.mean_s),
+                _t(s.std_s),
+                str(s.below_window),
+                str(s.above_window),
+            )
+        )
+    tables = [
+        TableBlock(
+            "Measured gaps",
+            ("edge", "count", "min", "max", "mean", "std dev", "below window", "above window"),
+            tuple(rows),
+        )
+    ]
+    tables.append(
+        TableBlock(
+            "Overlaps (first 50)",
+            ("time", "duration"),
+            tuple((format_si(o.at_s, "s", digits=9), _t(o.duration_s)) for o in m.overlaps[:50]),
+            (f"{len(m.overlaps)} overlap(s) in total." if m.overlaps else "No overlap.",),
+        )
+    )
+    paragraphs = (
+        f"Capture {m.source}: {_t(m.duration_s)} at a tick of {_t(m.tick_s)}; verdict {m.verdict}.",
+        *m.reasons,
+        *m.notes,
+        *m.warnings,
+    )
+    return Section("capture", "Bench capture", paragraphs, tuple(figures), tuple(tables))
+
+
+def adaptive_sections(plan: BuildPlan) -> list[Section]:
+    """Dead time by load current (issue 12), only for designs with [adaptive]."""
+    outputs = [(op.output.prefix, op.adaptive) for op in plan.outputs if op.adaptive is not None]
+    if not outputs:
+        return []
+    from gapforge.outputs.adaptive_report import adaptive_parts
+
+    paragraphs, figures, tables = adaptive_parts(outputs)
+    return [
+        Section(
+            "adaptive",
+            "Dead time by load current",
+            paragraphs,
+            tuple(FigureBlock(Markup(svg), caption) for svg, caption in figures),
+            tuple(TableBlock(t, h, r, n) for t, h, r, n in tables),
+        )
+    ]
