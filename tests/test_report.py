@@ -599,3 +599,55 @@ def test_sections_follow_the_decision_and_words_are_honest() -> None:
     # every table column has a header
     for head in re.findall(r"<thead>(.*?)</thead>", page, re.S):
         assert '<th scope="col"></th>' not in head
+
+
+def capture_report(design_file: Path, tmp_path: Path) -> str:
+    cap = tmp_path / "cap.csv"
+    capture_csv(cap)
+    out = tmp_path / "r.html"
+    run(["report", str(design_file), "-o", str(out), "--capture", str(cap), "--high", "gh",
+         "--low", "gl"], tmp_path)
+    return out.read_text()
+
+
+def test_no_label_overlaps_or_leaves_its_figure(design_file: Path, tmp_path: Path) -> None:
+    # every figure of both examples and of a capture report (text extents estimated from font
+    # size and length: tests/svg_layout.py). Before issue 10 "window min" and "window max"
+    # collided in every transition zoom and window labels left the capture histograms.
+    from svg_layout import layout_problems
+
+    pages = {name: example_report(name) for name in ("gan-buck", "motor-inverter")}
+    pages["capture"] = capture_report(design_file, tmp_path)
+    problems = [f"{page} {ident}: {p}" for page, text in pages.items()
+                for ident, root in svgs(text).items() for p in layout_problems(root)]
+    assert not problems, "\n".join(problems)
+    assert sum(len(svgs(text)) for text in pages.values()) >= 20
+
+
+def test_a_measured_overlap_is_red_with_its_own_zoom(design_file: Path, tmp_path: Path) -> None:
+    figures = svgs(capture_report(design_file, tmp_path))
+    # period 77's -20 ns gap on to_low (see capture_csv): a red bar below zero, hatched region
+    red = of_class(figures["capture-to_low"], "rect", "overlap-bar")
+    assert len(red) == 1 and red[0].get("fill") == "#b0143c"
+    assert of_class(figures["capture-to_low"], "rect", "overlap-region")
+    zoom = figures["overlap-zoom"]
+    interval = of_class(zoom, "rect", "overlap-interval")[0]
+    origin, per_s = x_scale(zoom, 1e-9)
+    # the interval runs from 0 to the overlap's 20 ns (7480 -> 7500 ns)
+    assert float(str(interval.get("x"))) == pytest.approx(origin, abs=0.02)
+    assert float(str(interval.get("width"))) == pytest.approx(20e-9 * per_s, abs=0.02)
+    # side-by-side histograms share their axes
+    ticks = [[t.text for t in of_class(figures[f"capture-{e}"], "text", "tick-label")]
+             for e in ("to_high", "to_low")]
+    assert ticks[0] == ticks[1]
+
+
+def test_legend_entries_have_something_drawn(design_file: Path) -> None:
+    # a legend entry for the overlap region only where that region is drawn
+    for name in ("gan-buck", "motor-inverter"):
+        for root in svgs(example_report(name)).values():
+            labels = [t.text for t in of_class(root, "text", "legend-label")]
+            if "at or below zero: overlap" in labels:
+                assert of_class(root, "rect", "overlap-region")
+            if "window" in labels:
+                assert [e for e in root.iter() if str(e.get("class", "")).startswith("window")]

@@ -283,7 +283,9 @@ def window_json(
 
 def _line(term: Term) -> str:
     if term.unit == "s":
-        value = format_si(abs(term.value), "s")
+        # the window's own minimum is cut up and its maximum down: the display is never wider
+        toward = {"minimum": "up", "maximum": "down"}.get(term.name.split(" ")[0], "nearest")
+        value = format_si(abs(term.value), "s", toward=toward)
         sign = ("-" if term.value < 0 else "+") if term.counted else " "
         shown = f"{sign} {value}"
     elif term.unit:

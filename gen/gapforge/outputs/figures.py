@@ -19,6 +19,7 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import Any
 
+from gapforge.base.display import count, format_si
 from gapforge.outputs.svg import (
     INK,
     PALETTE,
@@ -32,6 +33,7 @@ from gapforge.outputs.svg import (
     legend,
     nice_range,
     nice_ticks,
+    place_labels,
     step_points,
     vline,
     x_axis,
@@ -167,11 +169,13 @@ def transition_figure(
                PALETTE["window"], f"window-{edge}")
     band_x(fig, xa(float(amin)), xa(float(amax)), 60, 200, PALETTE["tolerance"],
            f"tolerance-{edge}")
+    labels = []
     for bound, name in ((lo, "min"), (hi, "max")):
         if bound is not None:
             vline(fig, xa(float(bound)), 56, 204, PALETTE["window"], f"window-{name}")
-            fig.text(xa(float(bound)), 52, f"window {name}", anchor="middle", size=10,
-                     cls="window-label")
+            labels.append((xa(float(bound)), f"window {name}"))
+    # close edges: the max label steps down a row instead of covering the min label
+    place_labels(fig, labels, 40, cls="window-label")
     vline(fig, xa(float(requested)), 56, 204, PALETTE["request"], "request")
     fig.polyline(_wave([(x_lo, 1), (0.0, 0)], x_hi, xa, rows[off_key], amp), PALETTE[off_key],
                  f"gate-{off_key}")
@@ -182,11 +186,11 @@ def transition_figure(
     x_axis(fig, xa, 214, nice_ticks(x_lo, x_hi, 8), "s", "time from the turn-off edge")
     dimension(fig, xa(0.0), xa(float(achieved)), 34, f"{edge} {eng(float(achieved), 's')}",
               PALETTE[on_key], "dim")
-    legend(fig, 20, height - 18, [
-        ("request", PALETTE["request"], "line"),
-        ("window", PALETTE["window"], "band"),
-        ("clock-tolerance band", PALETTE["tolerance"], "band"),
-    ])
+    entries = [("request", PALETTE["request"], "line")]
+    if lo is not None:
+        entries.append(("window", PALETTE["window"], "band"))
+    entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
+    legend(fig, 20, height - 18, entries)
     fig.text(xa(x_lo) + 2, 282,
              f"worst case {eng(float(amin), 's')} .. {eng(float(amax), 's')}; "
              f"requested {eng(float(requested), 's')}", size=10, cls="note")
@@ -345,12 +349,26 @@ def staircase_figure(
 # 4. histograms: the reference's Monte Carlo, measured gaps; overlaps
 
 
-def _bins(values: Any, marks: Sequence[float]) -> tuple[list[float], list[int]]:
-    import numpy as np
-
+def value_range(values: Any, marks: Sequence[float]) -> tuple[float, float]:
+    """The rounded x range that holds every value and mark (share it between side-by-side plots)."""
     lo = min(float(values.min()), *marks) if marks else float(values.min())
     hi = max(float(values.max()), *marks) if marks else float(values.max())
-    lo, hi = nice_range(lo, hi, 8)
+    return nice_range(lo, hi, 8)
+
+
+def bin_counts(values: Any, x_range: tuple[float, float]) -> list[int]:
+    import numpy as np
+
+    counts, _ = np.histogram(values, bins=MC_BINS, range=x_range)
+    return [int(c) for c in counts]
+
+
+def _bins(
+    values: Any, marks: Sequence[float], x_range: tuple[float, float] | None
+) -> tuple[list[float], list[int]]:
+    import numpy as np
+
+    lo, hi = x_range if x_range is not None else value_range(values, marks)
     counts, edges = np.histogram(values, bins=MC_BINS, range=(lo, hi))
     return [float(e) for e in edges], [int(c) for c in counts]
 
@@ -365,15 +383,22 @@ def distribution_figure(
     style: Style,
     what: str,
     ident: str,
+    x_range: tuple[float, float] | None = None,
+    count_top: int | None = None,
 ) -> str:
-    """A histogram of dead times with the window and the digital value (or the prediction)."""
+    """A histogram of dead times with the window and the digital value (or the prediction).
+
+    Side-by-side histograms pass one `x_range` and `count_top` so their axes compare.
+    """
     marks = [float(x) for x in window if x is not None]
     if digital is not None:
         marks += [float(digital[1]), float(digital[2])]
     if predicted is not None:
         marks += [float(predicted[0]), float(predicted[1])]
-    edges, counts = _bins(values, marks)
+    edges, counts = _bins(values, marks, x_range)
     top = max(counts) if counts else 1
+    if count_top is not None:
+        top = max(top, count_top)
     width, height = 480, 340
     xa = Axis(edges[0], edges[-1], 70.0, width - 20.0)
     _, c_hi = nice_range(0.0, 1.1 * float(max(top, 1)), 5)
@@ -388,17 +413,26 @@ def distribution_figure(
     if predicted is not None:
         band_x(fig, xa(float(predicted[0])), xa(float(predicted[1])), ya.end, ya.start,
                PALETTE["tolerance"], "predicted-band")
+    overlap = edges[0] < 0.0
+    if overlap:  # dead times at or below zero: both outputs on together
+        band_x(fig, xa.start, xa(min(0.0, edges[-1])), ya.end, ya.start, PALETTE["overlap"],
+               "overlap-region", hatched=True)
     histogram(fig, edges, counts, xa, ya, style, "bar")
+    _overlap_bars(fig, edges, counts, xa, ya)
     y_axis(fig, ya, xa.start, nice_ticks(0.0, c_hi, 5), "", "count", grid_to=xa.end)
     x_axis(fig, xa, ya.start, nice_ticks(edges[0], edges[-1], 6), "s", "dead time")
+    labels = []
     for bound, name in zip(window, ("min", "max"), strict=True):
         if bound is not None:
             x = xa(float(bound))
             vline(fig, x, ya.end - 6, ya.start, PALETTE["window"], f"window-{name}")
-            # min labelled above the plot, max inside it: close edges keep both labels legible
-            fig.text(x + 3, ya.end - 10 if name == "min" else ya.end + 12, f"window {name}",
-                     anchor="start", size=10, cls="window-label")
-    entries = [(what, style, "bar"), ("window", PALETTE["window"], "line")]
+            labels.append((x, f"window {name}"))
+    place_labels(fig, labels, ya.end - 10, cls="window-label", left=xa.start)
+    entries = [(what, style, "bar")]
+    if labels:
+        entries.append(("window", PALETTE["window"], "line"))
+    if overlap:
+        entries.append(("at or below zero: overlap", PALETTE["overlap"], "hatch"))
     if digital is not None:
         vline(fig, xa(float(digital[0])), ya.end, ya.start, PALETTE["digital"], "digital")
         fig.marker(xa(float(digital[0])), ya.end, PALETTE["digital"], "digital-marker")
@@ -408,6 +442,19 @@ def distribution_figure(
         entries.append(("predicted range", PALETTE["tolerance"], "band"))
     legend(fig, 20, height - 30, entries)
     return fig.render()
+
+
+def _overlap_bars(fig: Figure, edges: Sequence[float], counts: Sequence[int], xa: Axis,
+                  ya: Axis) -> None:
+    """Bars at or below zero dead time (an overlap) redrawn in red, at least 3 px tall so a single
+    overlap among many gaps stays visible."""
+    red = PALETTE["overlap"]
+    base = ya(0)
+    for i, c in enumerate(counts):
+        if c > 0 and edges[i] < 0.0:
+            top = min(ya(c), base - 3.0)
+            fig.rect(xa(edges[i]), top, xa(edges[i + 1]) - xa(edges[i]), base - top, red.fill,
+                     "overlap-bar", stroke=Style(red.colour, width=0.8))
 
 
 def overlap_figure(duration_s: Fraction, overlaps_at_s: Sequence[Fraction], ident: str) -> str:
@@ -426,6 +473,33 @@ def overlap_figure(duration_s: Fraction, overlaps_at_s: Sequence[Fraction], iden
     fig.line(xa.start, 60, xa.end, 60, Style("#b8bec8", width=6.0), "capture-span")
     for t in times:
         fig.marker(xa(t), 48, PALETTE["overlap"], "overlap", 6)
-    fig.text(70, 22, f"{len(times)} overlap(s)", size=12, cls="figure-title", weight="bold")
+    fig.text(70, 22, count(len(times), "overlap"), size=12, cls="figure-title", weight="bold")
     x_axis(fig, xa, 75, nice_ticks(x_lo, x_hi, 10), "s", "capture time")
+    return fig.render()
+
+
+def overlap_zoom_figure(at_s: Fraction, duration_s: Fraction, ident: str) -> str:
+    """One measured overlap to scale: the gate still on, the other turning on early, and the
+    interval when both are on, in red."""
+    d = float(duration_s)
+    span = max(d, 1e-12)
+    x_lo, x_hi = nice_range(-1.5 * span, 2.5 * span, 8)
+    width, height = 480, 250
+    xa = Axis(x_lo, x_hi, 90.0, width - 20.0)
+    fig = Figure(ident, width, height, "A measured overlap to scale",
+                 "Both gates on together (shoot-through), from the capture's time stamps.")
+    fig.text(20, 22, f"overlap at {format_si(at_s, 's', digits=9)}: both gates on for "
+             f"{format_si(duration_s, 's')}", size=12, cls="figure-title", weight="bold")
+    rows = {"early": 80.0, "late": 150.0}
+    amp = 30.0
+    fig.rect(xa(0.0), rows["early"] - amp - 8, xa(d) - xa(0.0), rows["late"] - rows["early"] + amp + 16,
+             PALETTE["overlap"].fill, "overlap-interval", opacity=0.35)
+    fig.polyline(_wave([(x_lo, 0), (0.0, 1)], x_hi, xa, rows["early"], amp), PALETTE["overlap"],
+                 "gate-turning-on")
+    fig.polyline(_wave([(x_lo, 1), (d, 0)], x_hi, xa, rows["late"], amp), Style(INK, width=1.5),
+                 "gate-still-on")
+    fig.text(84, rows["early"] - 10, "turning on", anchor="end", size=10, cls="row-label")
+    fig.text(84, rows["late"] - 10, "still on", anchor="end", size=10, cls="row-label")
+    x_axis(fig, xa, 172, nice_ticks(x_lo, x_hi, 8), "s", "time from the overlap's start")
+    legend(fig, 20, height - 14, [("both gates on", PALETTE["overlap"], "band")])
     return fig.render()

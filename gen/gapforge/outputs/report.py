@@ -104,6 +104,8 @@ def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
     """
     d = plan.design
     warnings = design_warnings(plan)
+    if capture is not None and capture.failed:
+        warnings = [*(f"capture: {r}" for r in capture.reasons), *warnings]
     sections = [
         Section(
             "results",

@@ -11,14 +11,17 @@ from typing import TYPE_CHECKING, Any
 
 from markupsafe import Markup
 
-from gapforge.base.display import format_percent, format_si
+from gapforge.base.display import count, format_percent, format_si
 from gapforge.outputs.figures import (
     analog_figure,
+    bin_counts,
     distribution_figure,
     overlap_figure,
+    overlap_zoom_figure,
     staircase_figure,
     timing_figure,
     transition_figure,
+    value_range,
 )
 from gapforge.outputs.report_data import (
     EDGE_TEXT,
@@ -33,7 +36,7 @@ from gapforge.outputs.report_data import (
     window_of,
 )
 from gapforge.outputs.report_tables import TableBlock
-from gapforge.outputs.svg import PALETTE
+from gapforge.outputs.svg import PALETTE, nice_range
 from gapforge.pipeline.build import BuildPlan
 from gapforge.timer.layouts import EDGES
 
@@ -212,6 +215,14 @@ def monte_carlo_section(plan: BuildPlan) -> Section:
         )
     samples = reference_samples(net)
     first = next((op for op in plan.outputs if op.fit.ok), None)
+    shared = _shared_axes(
+        {e: samples[e] for e in EDGES},
+        {
+            e: [float(x) for x in window_of(plan, e) if x is not None]
+            + ([] if first is None else [float(x) for x in achieved(first, e)[1:]])
+            for e in EDGES
+        },
+    )
     figures = []
     for e in EDGES:
         digital = achieved(first, e) if first is not None else None
@@ -227,6 +238,8 @@ def monte_carlo_section(plan: BuildPlan) -> Section:
                         style=PALETTE["reference"],
                         what="reference Monte Carlo",
                         ident=f"mc-{e}",
+                        x_range=shared[0],
+                        count_top=shared[1],
                     )
                 ),
                 f"{EDGE_TEXT[e]}: {MC_SAMPLES} seeded samples (seed {MC_SEED}) of the old network, "
@@ -245,6 +258,24 @@ def monte_carlo_section(plan: BuildPlan) -> Section:
     )
 
 
+def _capture_marks(m: Measurement, edge: str) -> list[float]:
+    lim = m.limits.get(edge)
+    if lim is None:
+        return []
+    marks = (lim.window_min_s, lim.window_max_s, lim.predicted_min_s, lim.predicted_max_s)
+    return [float(x) for x in marks if x is not None]
+
+
+def _shared_axes(
+    values: dict[str, Any], marks: dict[str, list[float]]
+) -> tuple[tuple[float, float], int]:
+    """One x range and one count scale for side-by-side histograms, so they compare."""
+    ranges = [value_range(values[e], marks[e]) for e in values]
+    x_range = nice_range(min(r[0] for r in ranges), max(r[1] for r in ranges), 8)
+    top = max(max(bin_counts(values[e], x_range), default=1) for e in values)
+    return x_range, top
+
+
 def capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
     if m is None:
         return Section(
@@ -254,10 +285,17 @@ def capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
         )
     figures = []
     first = next((op for op in plan.outputs if op.fit.ok), None)
-    for e in EDGES:
+    measured = [e for e in EDGES if m.edge(e).count > 0]
+    shared = (
+        _shared_axes(
+            {e: m.edge(e).gaps_s for e in measured},
+            {e: _capture_marks(m, e) for e in measured},
+        )
+        if measured
+        else None
+    )
+    for e in measured:
         stats = m.edge(e)
-        if stats.count == 0:
-            continue
         lim = m.limits.get(e)
         predicted = None
         if lim is not None and lim.predicted_min_s is not None and lim.predicted_max_s is not None:
@@ -275,6 +313,8 @@ def capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
                         style=PALETTE["measured"],
                         what="measured gaps",
                         ident=f"capture-{e}",
+                        x_range=None if shared is None else shared[0],
+                        count_top=None if shared is None else shared[1],
                     )
                 ),
                 f"{EDGE_TEXT[e]}: {stats.count} measured gaps"
@@ -284,9 +324,18 @@ def capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
     figures.append(
         FigureBlock(
             Markup(overlap_figure(m.duration_s, [o.at_s for o in m.overlaps], "overlaps")),
-            "Overlaps: both gates on at once (shoot-through).",
+            "Overlaps: both gates on at once (shoot-through), in red.",
         )
     )
+    if m.overlaps:
+        first_overlap = m.overlaps[0]
+        figures.append(
+            FigureBlock(
+                Markup(overlap_zoom_figure(first_overlap.at_s, first_overlap.duration_s,
+                                           "overlap-zoom")),
+                "The first measured overlap to scale: both gates on together (red).",
+            )
+        )
     rows = []
     for e in EDGES:
         s = m.edge(e)
@@ -314,7 +363,7 @@ def capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
             "Overlaps (first 50)",
             ("time", "duration"),
             tuple((format_si(o.at_s, "s", digits=9), _t(o.duration_s)) for o in m.overlaps[:50]),
-            (f"{len(m.overlaps)} overlap(s) in total." if m.overlaps else "No overlap.",),
+            (f"{count(len(m.overlaps), 'overlap')} in total." if m.overlaps else "No overlap.",),
         )
     )
     paragraphs = (

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from fractions import Fraction
+from typing import Any
 
 from gapforge.base.display import format_percent, format_range, format_si, verdict_word
 from gapforge.base.quantities import format_tolerance
@@ -35,6 +36,14 @@ def _pct(value: Fraction | float) -> str:
 
 def _si(value: Fraction | float | None, unit: str) -> str:
     return "-" if value is None else format_si(value, unit)
+
+
+def _term_value(term: Any) -> str:
+    """A breakdown term; the window's own minimum is cut up and its maximum down (never wider)."""
+    if term.unit == "s":
+        toward = {"minimum": "up", "maximum": "down"}.get(term.name.split(" ")[0], "nearest")
+        return _t(term.value, toward)
+    return _si(term.value, term.unit) if term.unit else f"{float(term.value):g}"
 
 
 def input_tables(plan: BuildPlan) -> list[TableBlock]:
@@ -163,7 +172,7 @@ def window_tables(plan: BuildPlan) -> list[TableBlock]:
             t_rows = tuple(
                 (
                     t.name,
-                    _t(t.value) if t.unit == "s" else f"{float(t.value):g}",
+                    _term_value(t),
                     "yes" if t.counted else "no",
                     t.note,
                 )
@@ -185,7 +194,7 @@ def window_tables(plan: BuildPlan) -> list[TableBlock]:
                     tuple(
                         (
                             t.name,
-                            _t(t.value) if t.unit == "s" else _si(t.value, t.unit),
+                            _term_value(t),
                             t.note,
                         )
                         for t in max_terms

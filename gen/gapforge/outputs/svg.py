@@ -454,10 +454,11 @@ def vline(fig: Figure, x: float, top: float, bottom: float, style: Style, cls: s
 def legend(
     fig: Figure, x: float, y: float, entries: Sequence[tuple[str, Style, str]], *, across: bool = True
 ) -> None:
-    """Legend entries (label, style, kind): kind 'line', 'line+marker', 'band', 'bar', 'marker'.
+    """Legend entries (label, style, kind): 'line', 'line+marker', 'band', 'bar', 'hatch', 'marker'.
 
     Each entry shows the same pattern and marker as the series, so the legend reads in greyscale.
-    Entries run across and wrap onto a new row 18 px lower at the figure's right edge.
+    Entries run across and wrap onto a new row 18 px lower at the figure's right edge; the
+    figure grows taller when a wrapped row would leave it.
     """
     cx, cy = x, y
     for label, style, kind in entries:
@@ -467,6 +468,9 @@ def legend(
         if kind == "band":
             fig.rect(cx, cy - 7, 22, 12, style.fill, "legend-swatch", opacity=style.opacity,
                      stroke=Style(style.colour, style.dash, width=1.0))
+        elif kind == "hatch":
+            fig.rect(cx, cy - 7, 22, 12, fig.hatch("legend-" + style.colour.strip("#"), style.colour),
+                     "legend-swatch", stroke=Style(style.colour, width=0.8))
         elif kind == "bar":
             fig.rect(cx, cy - 7, 22, 12, style.fill, "legend-swatch",
                      stroke=Style(style.colour, width=0.8))
@@ -476,10 +480,37 @@ def legend(
             if kind in ("marker", "line+marker") and style.marker != "none":
                 fig.marker(cx + 11, cy - 1, style, "legend-marker", 4.0)
         fig.text(cx + 28, cy + 3, label, size=11, cls="legend-label")
+        # a wrapped row never leaves the drawing: the figure grows to hold it
+        fig.height = max(fig.height, int(cy + 12))
         if across:
             cx += needed + 12
         else:
             cy += 18
+
+
+def place_labels(
+    fig: Figure,
+    labels: Sequence[tuple[float, str]],
+    y: float,
+    *,
+    size: float = 10,
+    cls: str = "",
+    left: float = 2.0,
+    right: float | None = None,
+    row: float = 12.0,
+) -> None:
+    """Labels centred over their x where room allows, kept inside [left, right] and moved down
+    a row when they would touch a label already placed (so no two collide or leave the figure)."""
+    right = fig.width - 2.0 if right is None else right
+    placed: list[tuple[float, float, float]] = []  # x0, x1, y
+    for x, text in sorted(labels):
+        w = text_width(text, size)
+        x0 = min(max(x - w / 2, left), right - w)
+        ty = y
+        while any(ty == py and x0 < px1 + 4 and x0 + w > px0 - 4 for px0, px1, py in placed):
+            ty += row
+        placed.append((x0, x0 + w, ty))
+        fig.text(x0, ty, text, anchor="start", size=size, cls=cls)
 
 
 def text_width(text: str, size: float) -> float:
