@@ -644,7 +644,7 @@ def test_columns_keep_their_width_whatever_the_code_width() -> None:
 
     def columns(text: str) -> tuple[int, int, int]:
         lines = text.splitlines()
-        header = next(line for line in lines if line.lstrip().startswith("# layout"))
+        header = next(line for line in lines if line.lstrip().startswith("# target layout"))
         row = next(line for line in lines if line.startswith("   1 "))
         return header.index("register"), row.index("0x"), row.index(" ns ", 70)
 
@@ -671,3 +671,12 @@ def test_formula_footnote_only_for_a_derived_window() -> None:
     assert "common practice" not in direct and "Window:" in direct
     derived = run(["--clocks", "100MHz", *STAGE]).stdout
     assert "* window minimum" in derived and "Window*:" in derived
+
+
+def test_one_word_for_target_layouts_across_help_and_commands() -> None:
+    # issue 10: the command is `targets`, the thing a "target layout", in every help text
+    runner = CliRunner()
+    for args in (["--help"], ["targets", "--help"], ["fit", "--help"], ["sweep", "--help"]):
+        text = runner.invoke(cli, args).output
+        assert "target layout" in text, args
+        assert "timer layout" not in text, args

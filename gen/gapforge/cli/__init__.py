@@ -19,8 +19,8 @@ from gapforge.base.errors import GapforgeError
 
 # command name -> (module, one-line help). Order is the order shown in --help.
 COMMANDS: dict[str, tuple[str, str]] = {
-    "targets": ("gapforge.cli.targets_cmd", "List the timer layouts, or show one."),
-    "fit": ("gapforge.cli.fit_cmd", "Fit a dead time onto one timer layout's codes."),
+    "targets": ("gapforge.cli.targets_cmd", "List the built-in target layouts, or show one."),
+    "fit": ("gapforge.cli.fit_cmd", "Fit a dead time onto one target layout's codes."),
     "build": ("gapforge.cli.build_cmd", "Fit a design file's outputs and write C headers."),
     "analog": ("gapforge.cli.analog_cmd", "Model the RC-diode-Schmitt reference network."),
     "window": ("gapforge.cli.window_cmd", "Derive the power stage's dead-time window."),

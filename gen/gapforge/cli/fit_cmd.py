@@ -36,7 +36,7 @@ from gapforge.timer.limits import COUNTINGS, PwmSpec, compare_counts, pwm_limits
     default=None,
     help="Gap before the low-side output turns on (overrides --dead-time).",
 )
-@click.option("--target", required=True, help="Built-in layout name or a layout .toml file.")
+@click.option("--target", required=True, help="Built-in target layout name or a target layout .toml file.")
 @click.option(
     "--rounding",
     type=click.Choice(ROUNDINGS),
@@ -75,7 +75,7 @@ def command(
     ascii_only: bool,
     as_json: bool,
 ) -> None:
-    """Fit a requested dead time onto one timer layout's codes, exactly."""
+    """Fit a requested dead time onto one target layout's codes, exactly."""
     high = to_high if to_high is not None else dead_time
     low = to_low if to_low is not None else dead_time
     if high is None or low is None:

@@ -12,7 +12,14 @@ from typing import Any
 import click
 
 from gapforge.base import caution
-from gapforge.base.display import both_edges, choose_exponent, count, format_range, format_si
+from gapforge.base.display import (
+    both_edges,
+    choose_exponent,
+    count,
+    format_range,
+    format_si,
+    verdict_word,
+)
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_tolerance
 from gapforge.cli.options import Quantity, Tolerance, json_option
@@ -57,7 +64,8 @@ def _row_json(row: SweepRow, rank: int | None) -> dict[str, Any]:
             "duty_min_counts": row.pwm.duty_min_counts,
             "duty_max_counts": row.pwm.duty_max_counts,
             "max_share": float(row.pwm.max_share),
-            "verdict": row.pwm.verdict,
+            "verdict": verdict_word(row.pwm.verdict),
+            "reason": "" if row.pwm.verdict == "ok" else row.pwm.verdict,
         },
         "edges": {
             edge: {
@@ -69,7 +77,8 @@ def _row_json(row: SweepRow, rank: int | None) -> dict[str, Any]:
                 "error_s": float(e.error_s),
                 "margin_low_s": float(e.margin_low_s),
                 "margin_high_s": _f(e.margin_high_s),
-                "verdict": e.verdict,
+                "verdict": verdict_word(e.verdict),
+                "reason": "" if e.verdict == "ok" else e.verdict,
             }
             for edge, e in row.edges.items()
         },
@@ -169,7 +178,7 @@ RANK_WORDS = {
     "error": "quantization error",
 }
 # fixed column widths, whatever the code or register width (issue 10)
-_COLUMNS = (("#", 4, ">"), ("layout", 26, "<"), ("clock", 9, ">"), ("div", 5, ">"),
+_COLUMNS = (("#", 4, ">"), ("target layout", 26, "<"), ("clock", 9, ">"), ("div", 5, ">"),
             ("to_high code", 12, ">"), ("to_low code", 12, ">"), ("worst case (both edges)", 26, "<"),
             ("above min", 10, ">"), ("margin", 10, ">"), ("error", 10, ">"), ("register", 0, "<"))
 
@@ -316,9 +325,11 @@ def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | N
     "--target",
     "targets",
     multiple=True,
-    help="Layout name or .toml file (repeat). Default: every built-in layout.",
+    help="Target layout name or .toml file (repeat). Default: every built-in target layout.",
 )
-@click.option("--builtins", is_flag=True, help="Add every built-in layout to the --target list.")
+@click.option(
+    "--builtins", is_flag=True, help="Add every built-in target layout to the --target list."
+)
 @click.option(
     "--clocks",
     "clock_texts",
@@ -373,7 +384,7 @@ def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | N
 @json_option
 @click.option("--csv", "as_csv", is_flag=True, help="Print CSV.")
 def command(**values: Any) -> None:
-    """Compare layouts x timer clocks x dividers against the dead-time window.
+    """Compare target layouts x timer clocks x dividers against the dead-time window.
 
     Each point asks for the window minimum with safe rounding and checks the worst case at the
     slow clock against the window maximum and, with a PWM, that the dead time is under half a

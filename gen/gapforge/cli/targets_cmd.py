@@ -1,4 +1,8 @@
-"""`gapforge targets`: list the layouts, or show one."""
+"""`gapforge targets`: list the built-in target layouts, or show one.
+
+A *target layout* describes one timer's dead-time register (fields, codes, dividers) as data;
+`--target` elsewhere picks one by name or file. One word across commands, help, README, report.
+"""
 
 from __future__ import annotations
 
@@ -15,7 +19,8 @@ from gapforge.timer.layouts import builtin_names, load_layout
 @json_option
 @click.pass_context
 def command(ctx: click.Context, as_json: bool) -> None:
-    """List the built-in timer layouts (generic designs of our own), or show one."""
+    """List the built-in target layouts (timer dead-time registers described as data; generic
+    designs of our own), or show one."""
     if ctx.invoked_subcommand is not None:
         return
     layouts = [load_layout(name) for name in builtin_names()]
@@ -27,7 +32,7 @@ def command(ctx: click.Context, as_json: bool) -> None:
     click.echo(table(["name", "summary"], [[lay.name, lay.summary] for lay in layouts]))
     click.echo(
         "\nShow one with: gapforge targets show NAME [--clock F]; "
-        "pass your own layout file anywhere a name is accepted."
+        "pass your own target layout file anywhere a name is accepted."
     )
 
 
@@ -38,7 +43,7 @@ def command(ctx: click.Context, as_json: bool) -> None:
 )
 @json_option
 def show(target: str, clock: object, as_json: bool) -> None:
-    """Show one layout (a built-in NAME or a layout FILE)."""
+    """Show one target layout (a built-in NAME or a target layout FILE)."""
     from fractions import Fraction
 
     try:
@@ -51,4 +56,4 @@ def show(target: str, clock: object, as_json: bool) -> None:
         emit_json({**layout_json(layout, clk), "caution": caution.TEXT})
     else:
         click.echo(layout_text(layout, clk))
-        click.echo(caution.TEXT)
+        click.echo(caution.SHORT)

@@ -192,13 +192,13 @@ def staircase_section(plan: BuildPlan) -> Section:
                 FigureBlock(
                     Markup(stair),
                     f"{op.output.prefix}, {' and '.join(edges)} (field {f.name} of "
-                    f"{op.fit.layout.name}): {op.fit.request.rounding} rounding at "
+                    f"target layout {op.fit.layout.name}): {op.fit.request.rounding} rounding at "
                     f"divider /{op.fit.divider} (step {_t(op.fit.step_s)}), "
                     f"{STAIR_STEPS} representable values each side of the chosen one.",
                 )
             )
     paragraphs: tuple[str, ...] = (
-        "How each layout's codes turn a requested dead time into an achieved one.",
+        "How each target layout's codes turn a requested dead time into an achieved one.",
     )
     if not figures:
         paragraphs += ("No output was fitted, so there is no staircase to draw.",)

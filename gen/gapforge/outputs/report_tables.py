@@ -73,7 +73,9 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
         for o in d.outputs
     )
     tables.append(
-        TableBlock("Outputs", ("prefix", "layout", "summary", "header file", "struct"), out_rows)
+        TableBlock(
+            "Outputs", ("prefix", "target layout", "summary", "header file", "struct"), out_rows
+        )
     )
     if d.reference is not None:
         from gapforge.analog.describe import describe_parameters
@@ -319,7 +321,7 @@ def _cost_table(plan: BuildPlan) -> TableBlock | None:
 
 EDGE_HEADERS = (
     "output",
-    "layout",
+    "target layout",
     "edge",
     "field",
     "code",
@@ -328,7 +330,7 @@ EDGE_HEADERS = (
     "worst case (clock tolerance)",
     "error",
     "step",
-    "layout max",
+    "target layout max",
 )
 PWM_HEADERS = (
     "output",
@@ -350,7 +352,7 @@ def result_tables(plan: BuildPlan) -> list[TableBlock]:
     tables = [
         TableBlock(
             "Fitted codes",
-            ("output", "layout", "divider", "step", "fields", "register", "verdict"),
+            ("output", "target layout", "divider", "step", "fields", "register", "verdict"),
             tuple(_register_row(op) for op in plan.outputs),
         ),
         TableBlock("Dead times per edge", EDGE_HEADERS, tuple(edge_rows)),
