@@ -65,10 +65,11 @@ def test_nice_ticks_are_1_2_5_steps(lo: float, hi: float, count: int,
 
 def test_engineering_labels() -> None:
     # 875 ns written with four significant digits, the prefix chosen by magnitude
-    assert eng(875e-9, "s") == "875.0 ns"
+    # the one display style (issue 10): four significant digits, trailing zeros dropped
+    assert eng(875e-9, "s") == "875 ns"
     assert eng(93.75e-9, "s") == "93.75 ns"
-    assert eng(2.5e-6, "s") == "2.500 us"
-    assert eng(999.99e-9, "s") == "1.000 us"  # rounding carries into the next prefix
+    assert eng(2.5e-6, "s") == "2.5 us"
+    assert eng(999.99e-9, "s") == "1 us"  # rounding carries into the next prefix
     assert eng(0.0, "s") == "0 s"
     units = units_for([0.0, 50e-9, 100e-9, 150e-9])
     assert (units.prefix, units.decimals) == ("n", 0)

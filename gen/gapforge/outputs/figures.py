@@ -19,7 +19,7 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import Any
 
-from gapforge.base.display import count, format_si
+from gapforge.base.display import count, format_range, format_si
 from gapforge.outputs.svg import (
     INK,
     PALETTE,
@@ -192,8 +192,8 @@ def transition_figure(
     entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
     legend(fig, 20, height - 18, entries)
     fig.text(xa(x_lo) + 2, 282,
-             f"worst case {eng(float(amin), 's')} .. {eng(float(amax), 's')}; "
-             f"requested {eng(float(requested), 's')}", size=10, cls="note")
+             f"worst case {format_range(amin, amax, 's', cut='outward')}; "
+             f"requested {format_si(requested, 's')}", size=10, cls="note")
     return fig.render()
 
 

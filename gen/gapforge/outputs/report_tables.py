@@ -10,7 +10,13 @@ from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any
 
-from gapforge.base.display import format_percent, format_range, format_si, verdict_word
+from gapforge.base.display import (
+    choose_exponent,
+    format_percent,
+    format_range,
+    format_si,
+    verdict_word,
+)
 from gapforge.base.quantities import format_tolerance
 from gapforge.outputs.report_data import window_of
 from gapforge.pipeline.build import BuildPlan, OutputPlan
@@ -36,6 +42,15 @@ def _pct(value: Fraction | float) -> str:
 
 def _si(value: Fraction | float | None, unit: str) -> str:
     return "-" if value is None else format_si(value, unit)
+
+
+def _pair(lo: Fraction | None, hi: Fraction | None) -> tuple[str, str]:
+    """A window's minimum (cut up) and maximum (cut down) with one prefix, so they compare."""
+    exp3 = choose_exponent([x for x in (lo, hi) if x is not None])
+    return (
+        "-" if lo is None else format_si(lo, "s", toward="up", exponent=exp3),
+        "-" if hi is None else format_si(hi, "s", toward="down", exponent=exp3),
+    )
 
 
 def _term_value(term: Any) -> str:
@@ -143,11 +158,11 @@ def window_tables(plan: BuildPlan) -> list[TableBlock]:
         rows.append(
             (
                 e,
-                _t(st[0], "up"),
-                _t(st[1], "down") if st[1] is not None or plan.stage_window is None else "none",
+                _pair(*st)[0],
+                _pair(*st)[1] if st[1] is not None or plan.stage_window is None else "none",
                 "-" if ref is None else format_range(ref.min_s, ref.max_s, "s", cut="outward"),
-                _t(win[0], "up"),
-                _t(win[1], "down") if win[1] is not None or plan.window is None else "none",
+                _pair(*win)[0],
+                _pair(*win)[1] if win[1] is not None or plan.window is None else "none",
             )
         )
     tables.append(
@@ -246,12 +261,13 @@ def _margin_rows(plan: BuildPlan, op: OutputPlan) -> list[tuple[str, ...]]:
     for e in EDGES:
         j = op.judgements.get(e)
         win = window_of(plan, e)
+        lo_text, hi_text = _pair(win[0], win[1])
         rows.append(
             (
                 op.output.prefix,
                 e,
-                _t(win[0], "up"),
-                _t(win[1], "down"),
+                lo_text,
+                hi_text,
                 "-" if j is None else _t(j.margin_low_s, "down"),
                 "-" if j is None else _t(j.margin_high_s, "down"),
                 verdict_word(op.verdict if j is None else j.verdict),

@@ -20,6 +20,8 @@ from dataclasses import dataclass
 from itertools import pairwise
 from xml.sax.saxutils import escape, quoteattr
 
+from gapforge.base.display import format_si
+
 INK = "#1d2433"  # text, axes, frames
 GRID = "#d5d9e0"
 PAPER = "#ffffff"
@@ -150,18 +152,10 @@ def units_for(ticks: Sequence[float], scaled: bool = True) -> Units:
 
 
 def eng(value: float, unit: str, digits: int = 4) -> str:
-    """Engineering notation with `digits` significant digits, fixed: 8.75e-7 -> '875.0 ns'."""
-    if value == 0 or not math.isfinite(value):
-        return f"0 {unit}" if value == 0 else f"{value} {unit}"
-    exp3 = int(math.floor(math.log10(abs(value)) / 3) * 3)
-    exp3 = max(-15, min(6, exp3))
-    scaled = value * 10.0 ** (-exp3)
-    if round(abs(scaled), max(0, digits - 3)) >= 1000 and exp3 < 6:
-        exp3 += 3
-        scaled = value * 10.0 ** (-exp3)
-    whole = len(str(int(abs(scaled)))) if abs(scaled) >= 1 else 1
-    decimals = max(0, digits - whole)
-    return f"{num(scaled, decimals)} {dict(_PREFIXES)[exp3]}{unit}"
+    """A figure label in the one display style (gapforge.base.display): 8.75e-7 -> '875 ns'."""
+    if not math.isfinite(value):
+        return f"{value} {unit}"
+    return format_si(value, unit, digits=digits)
 
 
 # ---------------------------------------------------------------------------------------------

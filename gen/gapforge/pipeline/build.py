@@ -14,6 +14,7 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
+from gapforge.base.display import format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.pipeline.design import Design, Output
 from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
@@ -110,14 +111,16 @@ def _reference_warnings(
         r = reference[e]
         if lo is not None and r.min_s < lo:
             out.append(
-                f"{e}: the analog reference's worst-case minimum {float(r.min_s) * 1e9:.6g} ns is "
-                f"below the stage's minimum {float(lo) * 1e9:.6g} ns: the old network was not safe "
-                "at every tolerance corner"
+                f"{e}: the analog reference's worst-case minimum "
+                f"{format_si(r.min_s, 's', toward='down')} is below the stage's minimum "
+                f"{format_si(lo, 's', toward='up')}: the old network was not safe at every "
+                "tolerance corner"
             )
         if hi is not None and r.max_s > hi:
             out.append(
-                f"{e}: the analog reference's worst-case maximum {float(r.max_s) * 1e9:.6g} ns is "
-                f"above the stage's maximum {float(hi) * 1e9:.6g} ns"
+                f"{e}: the analog reference's worst-case maximum "
+                f"{format_si(r.max_s, 's', toward='up')} is above the stage's maximum "
+                f"{format_si(hi, 's', toward='down')}"
             )
     return out
 
