@@ -451,6 +451,9 @@ def test_a_failing_design_still_gets_its_report_with_exit_1(tmp_path: Path) -> N
     out = tmp_path / "short.html"
     result = run(["report", str(design), "-o", str(out)], tmp_path)
     assert result.returncode == 1, result.stderr
+    # the answer first, the short caution once at the end (issue 10)
+    assert result.stdout.startswith("report: design fail - wrote ")
+    assert result.stdout.count("reduced voltage") == 1
     page = out.read_text()
     assert "Design verdict: <strong>fail" in page
     # the reason sits in the verdict box, above the caution

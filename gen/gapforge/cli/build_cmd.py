@@ -7,10 +7,11 @@ from pathlib import Path
 
 import click
 
+from gapforge.base.caution import SHORT as CAUTION
 from gapforge.base.files import write_files
 from gapforge.cli.options import diagram_options, emit_json, json_option
 from gapforge.outputs.header import render_headers
-from gapforge.outputs.views import CAUTION, plan_json, plan_text
+from gapforge.outputs.views import plan_json, plan_text
 from gapforge.pipeline.build import plan_design
 from gapforge.pipeline.design import load_design
 

@@ -7,10 +7,11 @@ from fractions import Fraction
 
 import click
 
+from gapforge.base.caution import SHORT as CAUTION
 from gapforge.base.display import verdict_word
 from gapforge.base.errors import GapforgeError
 from gapforge.cli.options import Quantity, clock_options, diagram_options, emit_json, json_option
-from gapforge.outputs.views import CAUTION, fit_json, fit_text
+from gapforge.outputs.views import fit_json, fit_text
 from gapforge.timer.fit import ROUNDINGS, FitRequest, fit
 from gapforge.timer.layouts import load_layout
 from gapforge.timer.limits import COUNTINGS, PwmSpec, compare_counts, pwm_limits

@@ -44,9 +44,15 @@ def command(
     a failing design shows why it fails. Bad input writes nothing and
     exits 2. Rerunning on the same inputs gives a byte-identical file.
     """
+    from gapforge.base import caution
+    from gapforge.base.display import count, verdict_word
     from gapforge.base.files import write_files
-    from gapforge.outputs.report import capture_limits, render_report
-    from gapforge.outputs.views import CAUTION
+    from gapforge.outputs.report import (
+        capture_limits,
+        capture_word,
+        design_warnings,
+        render_report,
+    )
     from gapforge.pipeline.build import plan_design
     from gapforge.pipeline.design import load_design
 
@@ -70,10 +76,14 @@ def command(
                             active_low_low=active_low_low)
         measurement = measure_capture(gate, limits=capture_limits(plan), glitch_width_s=glitch)
     text = render_report(plan, measurement)
-    for path in write_files({output: text}):
-        click.echo(f"wrote {path}")
-    click.echo(f"design verdict: {plan.verdict}"
-               + ("" if measurement is None else f"; capture verdict: {measurement.verdict}"))
-    click.echo(CAUTION)
+    written = write_files({output: text})
+    # the answer first: the verdicts in the one vocabulary, then what was written
+    click.echo(f"report: design {verdict_word(plan.verdict)}"
+               + ("" if measurement is None else f", capture {capture_word(measurement.verdict)}")
+               + f" - wrote {', '.join(str(p) for p in written)}")
+    warnings = design_warnings(plan)
+    if warnings:
+        click.echo(f"  {count(len(warnings), 'design warning')} in the report's verdict box")
+    click.echo(caution.SHORT)
     if plan.verdict != "ok" or (measurement is not None and measurement.failed):
         sys.exit(1)

@@ -9,7 +9,7 @@ from fractions import Fraction
 from typing import Any
 
 from gapforge.base import caution
-from gapforge.base.display import verdict_word
+from gapforge.base.display import both_edges, format_percent, format_si, significant, verdict_word
 from gapforge.base.quantities import format_bound, format_quantity, format_tolerance
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.fit import FitResult, fit_warnings, step_seconds
@@ -288,6 +288,11 @@ def _worst(a: str, b: str) -> str:
     return a if a != "ok" else b
 
 
+def count_word(clocks: Fraction) -> str:
+    """ "1 clock", "4.438 clocks" (four significant digits, singular only for exactly one)."""
+    return f"{significant(clocks)} clock{'' if clocks == 1 else 's'}"
+
+
 def pwm_text(lim: PwmLimits) -> str:
     exact = (
         ""
@@ -297,19 +302,20 @@ def pwm_text(lim: PwmLimits) -> str:
         )
     )
     lines = [
-        f"PWM {format_quantity(lim.spec.frequency_hz, 'Hz', 7)}, {lim.spec.counting}-aligned: "
+        f"PWM {format_si(lim.spec.frequency_hz, 'Hz')}, {lim.spec.counting}-aligned: "
         f"{lim.period_counts} clocks per period, compare 0..{lim.counts} "
         f"({lim.duty_bits:.2f} bits){exact}",
-        f"  usable duty (a pulse on both outputs): {float(lim.duty_min) * 100:.4g} % .. "
-        f"{float(lim.duty_max) * 100:.4g} % (compare {lim.duty_min_counts}..{lim.duty_max_counts})",
+        f"  usable duty (a pulse on both outputs): {format_percent(lim.duty_min)} .. "
+        f"{format_percent(lim.duty_max)} (compare {lim.duty_min_counts}..{lim.duty_max_counts})",
     ]
-    for edge, x in lim.edges.items():
-        lines.append(
-            f"  {edge}: {float(x.dead_counts):.6g} clocks = {float(x.share) * 100:.4g} % of the period"
-            f" of the gate command lost per period (the switch node's duty changes by it only where"
-            " the current's sign holds the node at the other rail); clock tolerance moves it -{_t(x.tol_minus_s)} / "
-            f"+{_t(x.tol_plus_s)}"
-        )
+    per_edge = {
+        edge: f"{count_word(x.dead_counts)} = {format_percent(x.share)} of the period"
+        f" of the gate command lost per period (the switch node's duty changes by it only where"
+        " the current's sign holds the node at the other rail); clock tolerance moves it "
+        f"{format_si(x.tol_minus_s, 's')} shorter / {format_si(x.tol_plus_s, 's')} longer"
+        for edge, x in lim.edges.items()
+    }
+    lines.extend(f"  {line}" for line in both_edges(per_edge))
     if lim.verdict != "ok":
         lines.append(f"  {lim.verdict}: {lim.reason}")
     return "\n".join(lines)
