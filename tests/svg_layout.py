@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import re
 import xml.etree.ElementTree as ET
+from itertools import pairwise
 
 SVG = "{http://www.w3.org/2000/svg}"
 Box = tuple[float, float, float, float]  # x0, y0, x1, y1
@@ -62,3 +63,19 @@ def svgs(text: str) -> dict[str, ET.Element]:
     found = re.findall(r"<svg .*?</svg>", text, re.S)
     roots = [ET.fromstring(s) for s in found]
     return {str(r.get("id")): r for r in roots}
+
+
+def curve_crossings(root: ET.Element, step: float = 1.0) -> list[str]:
+    """Every label whose box a drawn curve (a polyline) passes through, sampled every `step` px."""
+    boxes = text_boxes(root)
+    problems: list[str] = []
+    for line in root.iter(SVG + "polyline"):
+        pts = [tuple(float(v) for v in p.split(",")) for p in str(line.get("points")).split()]
+        samples: list[tuple[float, float]] = []
+        for (x0, y0), (x1, y1) in pairwise(pts):
+            n = max(1, int(max(abs(x1 - x0), abs(y1 - y0)) / step))
+            samples += [(x0 + (x1 - x0) * i / n, y0 + (y1 - y0) * i / n) for i in range(n + 1)]
+        for text, (bx0, by0, bx1, by1) in boxes:
+            if any(bx0 < x < bx1 and by0 < y < by1 for x, y in samples):
+                problems.append(f"{line.get('class')} crosses {text!r}")
+    return problems

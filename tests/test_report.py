@@ -617,12 +617,15 @@ def test_no_label_overlaps_or_leaves_its_figure(design_file: Path, tmp_path: Pat
     # every figure of both examples and of a capture report (text extents estimated from font
     # size and length: tests/svg_layout.py). Before issue 10 "window min" and "window max"
     # collided in every transition zoom and window labels left the capture histograms.
-    from svg_layout import layout_problems
+    # No drawn curve may run through a label either (the node plots' delay labels crossed their
+    # ramps, the staircases' "chosen" labels their steps).
+    from svg_layout import curve_crossings, layout_problems
 
     pages = {name: example_report(name) for name in ("gan-buck", "motor-inverter")}
     pages["capture"] = capture_report(design_file, tmp_path)
     problems = [f"{page} {ident}: {p}" for page, text in pages.items()
-                for ident, root in svgs(text).items() for p in layout_problems(root)]
+                for ident, root in svgs(text).items()
+                for p in layout_problems(root) + curve_crossings(root)]
     assert not problems, "\n".join(problems)
     assert sum(len(svgs(text)) for text in pages.values()) >= 20
 

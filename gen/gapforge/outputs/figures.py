@@ -245,7 +245,7 @@ def analog_figure(ramp: Ramp, bypassed: bool, ident: str) -> str:
     x_lo, x_hi = nice_range(0.0, 2.5 * max(delay, ramp.delay_s), 6)
     width, height = 480, 340
     xa = Axis(x_lo, x_hi, 80.0, width - 20.0)
-    ya = Axis(0.0, ramp.vdd, 250.0, 50.0)
+    ya = Axis(0.0, ramp.vdd, 250.0, 62.0)
     kind = "diode-bypassed edge" if bypassed else "resistor edge"
     title = f"Node voltage, {ramp.edge} input edge ({kind})"
     fig = Figure(ident, width, height, title,
@@ -256,8 +256,8 @@ def analog_figure(ramp: Ramp, bypassed: bool, ident: str) -> str:
              PALETTE["threshold"].fill, "threshold-band", opacity=PALETTE["threshold"].opacity)
     fig.line(xa.start, ya(thr_typ), xa.end, ya(thr_typ), PALETTE["threshold"], "threshold")
     name = "VT+" if ramp.edge == "rising" else "VT-"
-    fig.text(xa.end - 4, ya(thr_typ) - 5, f"{name} typ {thr_typ:.3f} V", anchor="end", size=10,
-             cls="threshold-label")
+    fig.text(xa.end - 4, ya(thr_typ) - 5, f"{name} typ {format_si(thr_typ, 'V')}", anchor="end",
+             size=10, cls="threshold-label")
     y_axis(fig, ya, xa.start, nice_ticks(0.0, ramp.vdd, 5), "V", "node voltage",
            grid_to=xa.end)
     x_axis(fig, xa, ya.start, nice_ticks(x_lo, x_hi, 6), "s", "time from the input step")
@@ -268,11 +268,13 @@ def analog_figure(ramp: Ramp, bypassed: bool, ident: str) -> str:
         sim = _thin([(xa(t), ya(v)) for t, v in _clip(ramp.simulated, x_hi)])
         fig.polyline(sim, PALETTE["simulated"], "ramp-simulated")
         entries.insert(0, ("simulated (transient)", PALETTE["simulated"], "line"))
-    vline(fig, xa(delay), ya(thr_typ), ya.start, Style(INK, "3 2", "none", 1.0), "delay-mark")
+    # the delay is dimensioned above the plot, where no curve runs (a label inside crossed them)
+    top = ya.end - 10
+    vline(fig, xa(delay), top, ya.start, Style(INK, "3 2", "none", 1.0), "delay-mark")
     label = f"delay {eng(delay, 's')}"
     if ramp.delay_sim_s is not None:
         label += f" (closed form {eng(ramp.delay_s, 's')})"
-    dimension(fig, xa(0.0), xa(delay), ya.start - 16, label, Style(INK), "dim-delay")
+    dimension(fig, xa(0.0), xa(delay), top, label, Style(INK), "dim-delay")
     if ramp.delay_sim_s is not None:  # the simulated node meets the typical threshold here
         fig.marker(xa(delay), ya(thr_typ), replace(PALETTE["simulated"], marker="circle",
                                                     fill="#ffffff"), "crossing", 3.5)
@@ -334,7 +336,8 @@ def staircase_figure(
         fig.marker(xa.start, ya(v), PALETTE["representable"], "representable", 3.5)
     vline(fig, xa(float(sc.requested_s)), ya.end, ya.start, PALETTE["request"], "request")
     fig.marker(xa(float(sc.requested_s)), ya(float(sc.chosen_s)), PALETTE["chosen"], "chosen", 5)
-    fig.text(xa(float(sc.requested_s)) + 8, ya(float(sc.chosen_s)) - 8,
+    # right of and below the chosen point: the rising staircase runs above it there
+    fig.text(xa(float(sc.requested_s)) + 8, ya(float(sc.chosen_s)) + 16,
              f"chosen {eng(float(sc.chosen_s), 's')}", size=10, cls="chosen-label")
     legend(fig, 20, height - 30, [
         ("representable value", PALETTE["representable"], "marker"),

@@ -243,7 +243,8 @@ def monte_carlo_section(plan: BuildPlan) -> Section:
                     )
                 ),
                 f"{EDGE_TEXT[e]}: {MC_SAMPLES} seeded samples (seed {MC_SEED}) of the old network, "
-                "every part uniform over its band; hatched: at or below zero dead time (overlap)"
+                "every part uniform over its band"
+                + ("; hatched: at or below zero dead time (overlap)" if shared[0][0] < 0 else "")
                 + ("." if first is None else f"; digital value of {first.output.prefix}."),
             )
         )
