@@ -680,3 +680,31 @@ def test_one_word_for_target_layouts_across_help_and_commands() -> None:
         text = runner.invoke(cli, args).output
         assert "target layout" in text, args
         assert "timer layout" not in text, args
+
+
+def test_progress_bar_only_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> None:
+    # a long sweep shows click's progress bar on stderr when stderr is a terminal; never in JSON
+    # or piped output (CliRunner's streams are not terminals)
+    import gapforge.cli.sweep_cmd as sweep_cmd
+
+    monkeypatch.setattr(sweep_cmd, "PROGRESS_POINTS", 1)
+    args = ["--clocks", "100MHz,150MHz", "--window", "90ns:300ns", "--target", "split-10bit-div4"]
+    piped = CliRunner().invoke(cli, ["sweep", *args])
+    assert "sweeping" not in piped.stderr
+    calls: list[int] = []
+    real = sweep_cmd.sweep
+
+    def counting(*a: Any, progress: Any = None, **k: Any) -> Any:
+        assert progress is not None
+        calls.append(1)
+        return real(*a, progress=progress, **k)
+
+    monkeypatch.setattr(sweep_cmd, "sweep", counting)
+    monkeypatch.setattr(sweep_cmd.sys.stderr, "isatty", lambda: True, raising=False)
+    layouts_ = [load_layout("split-10bit-div4")]
+    limits = {e: (90 * NS, 300 * NS) for e in ("to_high", "to_low")}
+    sweep_cmd._run(layouts_, (100 * MHZ, 150 * MHZ), Fraction(0), limits, "loss", None, True)
+    assert calls == [1]
+    ticks: list[int] = []
+    sweep(layouts_, [100 * MHZ, 150 * MHZ], Fraction(0), limits, progress=ticks.append)
+    assert ticks == [1, 1]  # one tick per layout x clock
