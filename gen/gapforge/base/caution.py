@@ -14,6 +14,7 @@ TEXT = " ".join(LINES)
 # The short form printed once per run at the end of terminal output (issue 10); the full TEXT
 # stays in the README, headers and reports.
 SHORT = (
-    "Caution: verify every dead time on the bench at reduced voltage with current limiting "
-    "before full power (design aid only; see README)."
+    "Caution: a design aid only; verify every dead time on the bench at reduced voltage with "
+    "current limiting before full power, on every transition, over temperature and load current "
+    "(see README)."
 )
