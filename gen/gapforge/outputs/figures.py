@@ -449,13 +449,13 @@ def distribution_figure(
 
 def _overlap_bars(fig: Figure, edges: Sequence[float], counts: Sequence[int], xa: Axis,
                   ya: Axis) -> None:
-    """Bars at or below zero dead time (an overlap) redrawn in red, at least 3 px tall so a single
-    overlap among many gaps stays visible."""
+    """Bars at or below zero dead time (an overlap) redrawn in red, tall enough that a single
+    overlap among many gaps stays visible (5 px at least)."""
     red = PALETTE["overlap"]
     base = ya(0)
     for i, c in enumerate(counts):
         if c > 0 and edges[i] < 0.0:
-            top = min(ya(c), base - 3.0)
+            top = min(ya(c), base - 5.0)
             fig.rect(xa(edges[i]), top, xa(edges[i + 1]) - xa(edges[i]), base - top, red.fill,
                      "overlap-bar", stroke=Style(red.colour, width=0.8))
 
