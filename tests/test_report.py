@@ -3,6 +3,7 @@ report is byte-identical on rerun, the command's exit codes, and a real browser 
 
 from __future__ import annotations
 
+import functools
 import math
 import os
 import re
@@ -579,7 +580,9 @@ def test_headless_browser_renders_a_non_blank_page(html: str) -> None:
 # --- issue 10: the danger first, one vocabulary, the decision's order ----------------------------
 
 
+@functools.cache
 def example_report(name: str) -> str:
+    """Each example's report, rendered once for the tests below (a pure function of its file)."""
     return render_report(plan_design(load_design(REPO / "examples" / f"{name}.toml")))
 
 
@@ -604,7 +607,10 @@ def test_sections_follow_the_decision_and_words_are_honest() -> None:
         assert '<th scope="col"></th>' not in head
 
 
-def capture_report(design_file: Path, tmp_path: Path) -> str:
+@pytest.fixture(scope="module")
+def capture_page(design_file: Path, tmp_path_factory: pytest.TempPathFactory) -> str:
+    """The demo design's report with the invented capture, made once through the command."""
+    tmp_path = tmp_path_factory.mktemp("capture-report")
     cap = tmp_path / "cap.csv"
     capture_csv(cap)
     out = tmp_path / "r.html"
@@ -613,7 +619,7 @@ def capture_report(design_file: Path, tmp_path: Path) -> str:
     return out.read_text()
 
 
-def test_no_label_overlaps_or_leaves_its_figure(design_file: Path, tmp_path: Path) -> None:
+def test_no_label_overlaps_or_leaves_its_figure(capture_page: str) -> None:
     # every figure of both examples and of a capture report (text extents estimated from font
     # size and length: tests/svg_layout.py). Before issue 10 "window min" and "window max"
     # collided in every transition zoom and window labels left the capture histograms.
@@ -622,7 +628,7 @@ def test_no_label_overlaps_or_leaves_its_figure(design_file: Path, tmp_path: Pat
     from svg_layout import curve_crossings, layout_problems
 
     pages = {name: example_report(name) for name in ("gan-buck", "motor-inverter")}
-    pages["capture"] = capture_report(design_file, tmp_path)
+    pages["capture"] = capture_page
     problems = [f"{page} {ident}: {p}" for page, text in pages.items()
                 for ident, root in svgs(text).items()
                 for p in layout_problems(root) + curve_crossings(root)]
@@ -630,8 +636,8 @@ def test_no_label_overlaps_or_leaves_its_figure(design_file: Path, tmp_path: Pat
     assert sum(len(svgs(text)) for text in pages.values()) >= 20
 
 
-def test_a_measured_overlap_is_red_with_its_own_zoom(design_file: Path, tmp_path: Path) -> None:
-    figures = svgs(capture_report(design_file, tmp_path))
+def test_a_measured_overlap_is_red_with_its_own_zoom(capture_page: str) -> None:
+    figures = svgs(capture_page)
     # period 77's -20 ns gap on to_low (see capture_csv): a red bar below zero, hatched region
     red = of_class(figures["capture-to_low"], "rect", "overlap-bar")
     assert len(red) == 1 and red[0].get("fill") == "#b0143c"
@@ -648,7 +654,7 @@ def test_a_measured_overlap_is_red_with_its_own_zoom(design_file: Path, tmp_path
     assert ticks[0] == ticks[1]
 
 
-def test_legend_entries_have_something_drawn(design_file: Path) -> None:
+def test_legend_entries_have_something_drawn() -> None:
     # a legend entry for the overlap region only where that region is drawn
     for name in ("gan-buck", "motor-inverter"):
         for root in svgs(example_report(name)).values():
