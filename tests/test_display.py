@@ -68,6 +68,7 @@ def test_one_prefix_per_line() -> None:
     assert format_range(F(27_61, 10**11), F(29_687, 10**12), "s", cut="outward") == (
         "27.61 .. 29.69 ns"
     )
+    assert format_range(F(27_61, 10**11), F(29_687, 10**12), "s", safe=True) == "27.61 .. 29.69 ns"
     # 6.25 ns beside 480 ns: ns
     assert format_many([F(1, 160_000_000), 480e-9], "s") == ["6.25 ns", "480 ns"]
     # 2 ns beside 15 us: the largest decides (us), a tiny value keeps its digits

@@ -143,13 +143,22 @@ def format_many(values: Sequence[Number], unit: str, *, digits: int = DIGITS) ->
 
 
 def format_range(
-    low: Number, high: Number, unit: str, *, digits: int = DIGITS, cut: str = "nearest"
+    low: Number,
+    high: Number,
+    unit: str,
+    *,
+    digits: int = DIGITS,
+    cut: str = "nearest",
+    safe: bool = False,
 ) -> str:
     """ "400 .. 1200 ns": one prefix, the unit written once.
 
     cut="outward" widens a worst-case range (the low end down, the high end up), "inward"
-    narrows a window (the minimum up, the maximum down); both exactly.
+    narrows a window (the minimum up, the maximum down); both exactly. `safe=True` is
+    cut="outward" (kept for callers written against the first version).
     """
+    if safe:
+        cut = "outward"
     exp3 = choose_exponent([low, high])
     down, up = {"outward": ("down", "up"), "inward": ("up", "down")}.get(cut, (cut, cut))
     lo = format_si(low, unit, digits=digits, exponent=exp3, toward=down).rsplit(" ", 1)[0]
