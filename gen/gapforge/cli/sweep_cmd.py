@@ -248,7 +248,7 @@ def sweep_text(result: Sweep, top: int | None, formula: bool = True) -> str:
             f"{result.pwm.counting}-aligned; a row must leave a pulse on both outputs"
         )
     out.append(
-        f"{count(result.points, 'point')} ({count(len(result.layouts), 'layout')} x "
+        f"{count(result.points, 'point')} ({count(len(result.layouts), 'target layout')} x "
         f"{count(len(result.clocks), 'clock')} x dividers): {len(result.feasible)} feasible, "
         f"ranked by {RANK_WORDS[result.rank]}"
     )
