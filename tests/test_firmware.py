@@ -104,7 +104,9 @@ def test_firmware_command_writes_files(tmp_path: Path) -> None:
     assert result.exit_code == 0, result.output
     assert (tmp_path / "fw/gapforge_capture_fmt.h").read_text() == render_capture_helper(16)[
         "gapforge_capture_fmt.h"]
-    assert "CAUTION" in result.output
+    # issue 10: the short caution once, last; the full text stays in the generated files
+    assert result.output.splitlines()[-1].startswith("Caution:")
+    assert result.output.count("reduced voltage") == 1
 
 
 # --- issue 14 (7): text reaching a C comment or string is escaped or refused -------------------

@@ -418,7 +418,7 @@ def test_many_declarations_keep_only_the_asked_signals(tmp_path: Path) -> None:
                     "$upscope $end $upscope $end $enddefinitions $end\n"
                     "#0 0! 1\"\n#100 0\"\n#130 1!\n")
     header = read_header(path, ["gate_h", "top.drv.gate_l"])
-    assert header.declared == n + 2 and len(header.variables) == HINT_VARS + 2
+    assert header.declared == n + 2 and len(header.variables) <= HINT_VARS + 2
     assert {v.path for v in header.variables[-2:]} == {"top.drv.gate_h", "top.drv.gate_l"}
     data = read_vcd(path, ["gate_h", "top.drv.gate_l"])
     assert data.signals["gate_h"].times.tolist() == [0, 130]

@@ -26,4 +26,4 @@ def command(out_dir: Path, counter_bits: str) -> None:
     written = write_files({out_dir / name: text for name, text in texts.items()})
     for path in written:
         click.echo(f"wrote {path}")
-    click.echo(caution.TEXT)
+    click.echo(caution.SHORT)
