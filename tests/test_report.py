@@ -45,7 +45,8 @@ frequency = "100kHz"
 counting = "center"
 
 [dead_time]
-source = "window"
+# the opt-in policy: the window stays inside the old network's short range (the zoom's span)
+source = "window-within-reference"
 
 [reference]
 r = "1k"
@@ -370,7 +371,7 @@ def test_report_is_byte_identical_on_rerun(design_file: Path, html: str) -> None
 
 def test_absent_inputs_leave_their_sections_out_and_say_so(tmp_path: Path) -> None:
     bare = tmp_path / "bare.toml"
-    head = DESIGN.split("[reference]")[0].replace('source = "window"', 'value = "50ns"')
+    head = DESIGN.split("[reference]")[0].replace('source = "window-within-reference"', 'value = "50ns"')
     bare.write_text(head + '[[output]]\ntarget = "shared-8bit-linear"\nprefix = "A"\nfile = "a.h"\n')
     text = render_report(plan_design(load_design(bare)))
     figures = svgs(text)
@@ -447,7 +448,7 @@ def test_bad_input_is_one_line_exit_2_and_writes_nothing(design_file: Path, tmp_
 def test_a_failing_design_still_gets_its_report_with_exit_1(tmp_path: Path) -> None:
     # invented: a 20 ns request against the 90 ns stage minimum -> too-short
     design = tmp_path / "short.toml"
-    text = DESIGN.replace('source = "window"', 'value = "20ns"')
+    text = DESIGN.replace('source = "window-within-reference"', 'value = "20ns"')
     design.write_text(text)
     out = tmp_path / "short.html"
     result = run(["report", str(design), "-o", str(out)], tmp_path)

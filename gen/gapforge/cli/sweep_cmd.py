@@ -285,13 +285,15 @@ def sweep_text(result: Sweep, top: int | None, formula: bool = True) -> str:
 
 def _design_limits(
     values: dict[str, Any],
-) -> tuple[dict[str, tuple[Fraction, Fraction | None]], Fraction, PwmSpec | None, Fraction]:
-    """The window of a design (its stage window within the reference's range), its tolerance,
-    its PWM and its timer clock."""
+) -> tuple[
+    dict[str, tuple[Fraction, Fraction | None]], Fraction, PwmSpec | None, Fraction, list[Layout]
+]:
+    """The window of a design (gapforge.pipeline.policy, the same numbers `build` judges
+    against), its tolerance, its PWM, its timer clock and the layouts its outputs name."""
     from pathlib import Path
 
-    from gapforge.pipeline.build import design_window
     from gapforge.pipeline.design import load_design
+    from gapforge.pipeline.policy import window_of
 
     used = [name for name in (*OPTION_KEYS, "high_side", "low_side") if values.get(name)]
     if used:
@@ -299,11 +301,12 @@ def _design_limits(
             "give either --design or the stage options, not both", "--" + used[0].replace("_", "-")
         )
     design = load_design(Path(values["design"]))
-    window = design_window(design)
+    window = window_of(design).bounds
     if window is None:
         raise GapforgeError("the design has no [stage] section to give a window", str(design.path))
     limits = {e: (lo if lo is not None else Fraction(0), hi) for e, (lo, hi) in window.items()}
-    return limits, design.clock_tol, design.pwm, design.clock_hz
+    layouts = [o.layout for o in design.outputs]
+    return limits, design.clock_tol, design.pwm, design.clock_hz, layouts
 
 
 def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | None:
@@ -395,6 +398,7 @@ def command(**values: Any) -> None:
         raise GapforgeError("give --json or --csv, not both", "--csv")
     design_pwm: PwmSpec | None = None
     design_clock: Fraction | None = None
+    design_layouts: list[Layout] = []
     if values["window_text"] is not None:
         used = [
             name for name in ("design", *OPTION_KEYS, "high_side", "low_side") if values.get(name)
@@ -405,7 +409,7 @@ def command(**values: Any) -> None:
             )
         limits = _window_limits(values["window_text"])
     elif values.get("design") is not None:
-        limits, design_tol, design_pwm, design_clock = _design_limits(values)
+        limits, design_tol, design_pwm, design_clock, design_layouts = _design_limits(values)
         if values["clock_tol"] is None:
             values["clock_tol"] = design_tol
         if (
@@ -445,6 +449,10 @@ def command(**values: Any) -> None:
             layout = load_layout(name)
         except GapforgeError as exc:
             raise exc.at("--target") from None
+        if layout.name not in seen:
+            seen.add(layout.name)
+            layouts.append(layout)
+    for layout in design_layouts:  # the user layouts a design's outputs name are swept too
         if layout.name not in seen:
             seen.add(layout.name)
             layouts.append(layout)

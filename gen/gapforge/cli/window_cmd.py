@@ -26,8 +26,9 @@ from gapforge.base.display import (
 )
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import parse_quantity, picoseconds_ceil
-from gapforge.base.schema import Reader, load_toml
+from gapforge.base.schema import Reader
 from gapforge.cli.options import json_option
+from gapforge.pipeline.policy import POLICIES, DesignWindow, design_window
 from gapforge.stage.window import (
     EDGES,
     KINDS,
@@ -35,7 +36,7 @@ from gapforge.stage.window import (
     StageSpec,
     Term,
     Window,
-    judge,
+    judge_bounds,
     read_stage,
     stage_costs,
     stage_window,
@@ -167,14 +168,7 @@ def spec_from_options(values: dict[str, Any], default_fsw: Fraction | None = Non
         if extra:
             option = "--" + extra[0].replace("_", "-")
             raise GapforgeError("give either --design or the stage options, not both", option)
-        data, _raw = load_toml(design)
-        reader = Reader(str(design))
-        table = reader.table(data, "")
-        stage = table.sub("stage", required=True)
-        reader.finish()
-        assert stage is not None
-        spec = read_stage(stage)
-        reader.finish()
+        spec, _dw = design_window_of_file(Path(design))
         return spec
     for key in ("td_off", "td_on"):
         both_sides = all(key in given.get(side, {}) for side in ("high", "low"))
@@ -189,6 +183,17 @@ def spec_from_options(values: dict[str, Any], default_fsw: Fraction | None = Non
             raise GapforgeError(message, f"--{parts[0]} {parts[1]}")
         raise GapforgeError(message, "--" + parts[-1].replace("_", "-"))
     return spec
+
+
+def design_window_of_file(path: Path) -> tuple[StageSpec, DesignWindow]:
+    """The [stage] spec of a design file and the window of the design (the same function
+    `build` uses, so both show the same numbers for the same file)."""
+    from gapforge.pipeline.design import load_window_sections
+
+    sections = load_window_sections(path)
+    if sections.stage is None:
+        raise GapforgeError("required section is missing", f"{path}: stage")
+    return sections.stage, design_window(sections.stage, sections.reference, sections.source)
 
 
 def _side_table(pairs: tuple[str, ...], option: str) -> dict[str, str]:
@@ -279,6 +284,51 @@ def window_json(
         },
         "caution": CAUTION,
     }
+
+
+def design_json(dw: DesignWindow) -> dict[str, Any]:
+    """The window of the design (policy, bounds, evidence), as `build` judges against it."""
+    assert dw.bounds is not None
+    return {
+        "policy": dw.policy,
+        "policy_means": POLICIES[dw.policy][0],
+        "basis": dw.basis,
+        "window": {
+            e: {
+                "min_s": _seconds(lo),
+                "max_s": _seconds(hi),
+                "min_ps": None if lo is None else picoseconds_ceil(lo),
+                "max_ps": None if hi is None else int(hi * 10**12),
+            }
+            for e, (lo, hi) in dw.bounds.items()
+        },
+        "old_network": None
+        if dw.reference is None
+        else {
+            e: {"min_s": float(r.min_s), "typ_s": float(r.typ_s), "max_s": float(r.max_s)}
+            for e, r in dw.reference.items()
+        },
+        "empty": dict(dw.empty),
+        "warnings": list(dw.evidence),
+    }
+
+
+def design_text(dw: DesignWindow) -> str:
+    assert dw.bounds is not None
+    out = [f"Design window (policy '{dw.policy}': {POLICIES[dw.policy][0]}; {dw.basis})"]
+    for e, (lo, hi) in dw.bounds.items():
+        low = "0 s" if lo is None else format_si(lo, "s", toward="up")
+        top = "no maximum" if hi is None else format_si(hi, "s", toward="down")
+        out.append(f"  {e}: {low} .. {top}")
+    if dw.reference is not None:
+        for e, r in dw.reference.items():
+            out.append(
+                f"  old network (evidence) {e}: {format_si(r.min_s, 's')} .. "
+                f"{format_si(r.max_s, 's')} (typical {format_si(r.typ_s, 's')})"
+            )
+    out.extend(f"  EMPTY: {why}" for why in dw.empty.values())
+    out.extend(f"warning: {w}" for w in dw.evidence)
+    return "\n".join(out) + "\n"
 
 
 def _line(term: Term) -> str:
@@ -386,8 +436,19 @@ def command(**values: Any) -> None:
     what the loss budget allows. Exit 1 on an empty window (or a chosen dead time outside it),
     2 on bad input. A design aid: verify on the bench at reduced voltage with current limiting.
     """
-    spec = spec_from_options(values)
-    window = stage_window(spec)
+    dw: DesignWindow | None = None
+    if values.get("design") is not None:
+        spec_from_options(values)  # refuses stage options given beside --design
+        spec, dw = design_window_of_file(Path(values["design"]))
+        window = dw.stage
+    else:
+        spec = spec_from_options(values)
+        window = stage_window(spec)
+    bounds = (
+        dw.bounds
+        if dw is not None and dw.bounds is not None
+        else {e: (window.edges[e].min_s, window.edges[e].max_s) for e in EDGES}
+    )
     chosen: dict[str, Fraction] = {}
     for edge, option in (("to_high", "to_high"), ("to_low", "to_low")):
         text = values.get(option) or values.get("dead_time")
@@ -400,12 +461,15 @@ def command(**values: Any) -> None:
         option = "--" + missing.replace("_", "-")
         raise GapforgeError("give both --to-high and --to-low, or --dead-time", option)
     if chosen:
-        judged = {edge: judge(window.edges[edge], chosen[edge], chosen[edge]) for edge in EDGES}
+        judged = {}
+        for e in EDGES:
+            v, low, high = judge_bounds(bounds[e][0], bounds[e][1], chosen[e], chosen[e])
+            judged[e] = (v, low if low is not None else chosen[e], high)
         dead_times = chosen
     else:
-        dead_times = {edge: window.edges[edge].min_s for edge in EDGES}
+        dead_times = {e: bounds[e][0] or Fraction(0) for e in EDGES}
     costs = stage_costs(spec, dead_times)
-    if window.empty:
+    if window.empty or (dw is not None and dw.empty):
         reason = "empty-window"
     elif judged is not None:
         bad = [judged[edge][0] for edge in EDGES if judged[edge][0] != "ok"]
@@ -415,8 +479,13 @@ def command(**values: Any) -> None:
     verdict = verdict_word(reason or "ok")
     if values["as_json"]:
         doc = window_json(window, costs, dead_times, judged, verdict, reason)
+        if dw is not None:
+            doc["design"] = design_json(dw)
         click.echo(json.dumps(doc, indent=2))
     else:
-        click.echo(window_text(window, costs, dead_times, judged, verdict, reason), nl=False)
+        text = window_text(window, costs, dead_times, judged, verdict, reason)
+        if dw is not None:
+            text = design_text(dw) + "\n" + text
+        click.echo(text, nl=False)
     if verdict != "ok":
         raise SystemExit(1)

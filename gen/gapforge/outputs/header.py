@@ -129,9 +129,15 @@ def header_text(plan: BuildPlan, op: OutputPlan) -> str:
                 if j.margin_high_s is not None:
                     margin += f", {_ns(j.margin_high_s)} below the maximum"
             banner.append(
-                f" window {e}: {_ns(lo or Fraction(0))} .. {hi_text} (power stage"
-                f"{' and analog reference' if plan.reference is not None else ''}){margin}"
+                f" window {e}: {_ns(lo or Fraction(0))} .. {hi_text} ({plan.window_basis})"
+                f"{margin}"
             )
+    if plan.design_window is not None:
+        import textwrap
+
+        # the old board's findings (evidence, not a failure of this design) stay visible here
+        for finding in plan.design_window.evidence:
+            banner += [f" {line}" for line in textwrap.wrap(f"Old network: {finding}", 94)]
     banner += ["", *(f" {line}" for line in CAUTION)]
     if not clock_exact:
         banner.append(

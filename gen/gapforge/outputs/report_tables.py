@@ -172,14 +172,15 @@ def window_tables(plan: BuildPlan) -> list[TableBlock]:
                 "edge",
                 "stage min",
                 "stage max",
-                "worst-case range of the old network",
+                "worst-case range of the old network (evidence)",
                 "window min",
                 "window max",
             ),
             tuple(rows),
             (
-                "The window is the power stage's window intersected with the worst-case range of "
-                "the old (analog) network. Minima are shown rounded up, maxima down.",
+                f"The window is the {plan.window_basis}'s (dead-time policy "
+                f"'{plan.design.source}'); the old network's range is evidence beside it. Minima "
+                "are shown rounded up, maxima down.",
             ),
         )
     )

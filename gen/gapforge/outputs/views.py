@@ -310,7 +310,7 @@ def pwm_text(lim: PwmLimits) -> str:
     ]
     per_edge = {
         edge: f"{count_word(x.dead_counts)} = {format_percent(x.share)} of the period"
-        f" of the gate command lost per period (the switch node's duty changes by it only where"
+        " (the share of the gate command lost; the switch node's duty changes by it only where"
         " the current's sign holds the node at the other rail); clock tolerance moves it "
         f"{format_si(x.tol_minus_s, 's')} shorter / {format_si(x.tol_plus_s, 's')} longer"
         for edge, x in lim.edges.items()
@@ -397,10 +397,11 @@ def plan_text(plan: BuildPlan) -> str:
         for e in EDGES:
             r = plan.reference[e]
             lines.append(
-                f"  analog reference {e}: {_t(r.min_s)} .. {_t(r.max_s)} (typical {_t(r.typ_s)})"
+                f"  old network (evidence) {e}: {_t(r.min_s)} .. {_t(r.max_s)} "
+                f"(typical {_t(r.typ_s)})"
             )
     if plan.window is not None:
-        what = "stage window" + (" within the reference's range" if plan.reference else "")
+        what = f"window ({plan.window_basis})"
         for e in EDGES:
             lo, hi = plan.window[e]
             lines.append(

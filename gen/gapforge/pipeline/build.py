@@ -1,7 +1,7 @@
 """The pipeline in one function: a design -> what to request -> fits -> limits -> verdicts.
 
     design --> reference range (analog)  --+
-           --> stage window (stage)      --+--> window --> request --> fit per output
+           --> stage window (stage)      --+--> window (policy) --> request --> fit per output
                                                                    --> PWM limits
                                                                    --> verdict and margins
 Nothing here reads or writes files (except what load_design read); rendering is elsewhere.
@@ -17,6 +17,7 @@ from typing import Any
 from gapforge.base.display import format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.pipeline.design import Design, Output
+from gapforge.pipeline.policy import DesignWindow, window_of
 from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
 from gapforge.timer.layouts import EDGES
 from gapforge.timer.limits import PwmLimits, pwm_limits
@@ -53,12 +54,18 @@ class BuildPlan:
     request: FitRequest | None
     reference: dict[str, Any] | None  # edge -> analog.EdgeRange
     stage_window: dict[str, Bounds] | None
-    window: dict[str, Bounds] | None  # stage window intersected with the reference range
+    window: dict[str, Bounds] | None  # the design's window (gapforge.pipeline.policy)
     stage: Any  # stage.Window or None (with breakdown and costs)
     outputs: tuple[OutputPlan, ...]
     verdict: str
     reasons: tuple[str, ...]
     warnings: tuple[str, ...] = ()
+    design_window: DesignWindow | None = None
+
+    @property
+    def window_basis(self) -> str:
+        """What the window is made of, in words ("power stage", ...)."""
+        return self.design_window.basis if self.design_window is not None else "none"
 
 
 def judge(window: Bounds, achieved_min: Fraction, achieved_max: Fraction) -> EdgeJudgement:
@@ -68,133 +75,26 @@ def judge(window: Bounds, achieved_min: Fraction, achieved_max: Fraction) -> Edg
     return EdgeJudgement(*judge_bounds(window[0], window[1], achieved_min, achieved_max))
 
 
-def _windows(
-    design: Design,
-) -> tuple[Any, dict[str, Any] | None, dict[str, Bounds] | None, dict[str, Bounds] | None]:
-    stage_result = None
-    reference = None
-    stage_window: dict[str, Bounds] | None = None
-    window: dict[str, Bounds] | None = None
-    if design.reference is not None:
-        from gapforge.analog.tolerance import reference_dead_times
-
-        reference = reference_dead_times(design.reference)
-    if design.stage is not None:
-        from gapforge.stage.window import stage_window as derive
-
-        stage_result = derive(design.stage)
-        stage_window = {
-            e: (stage_result.edges[e].min_s, stage_result.edges[e].max_s) for e in EDGES
-        }
-    if stage_window is not None:
-        window = dict(stage_window)
-        if reference is not None:
-            for e in EDGES:
-                lo, hi = stage_window[e]
-                r = reference[e]
-                # the reference's range narrowed to 1 ps (min up, max down): safe as limits
-                lo = r.limit_min_s if lo is None else max(lo, r.limit_min_s)
-                hi = r.limit_max_s if hi is None else min(hi, r.limit_max_s)
-                window[e] = (lo, hi)
-    return stage_result, reference, stage_window, window
-
-
-def _reference_warnings(
-    reference: dict[str, Any] | None, stage_window: dict[str, Bounds] | None
-) -> list[str]:
-    """Where the analog reference itself does not meet the power stage's window."""
-    out: list[str] = []
-    if reference is None or stage_window is None:
-        return out
-    for e in EDGES:
-        lo, hi = stage_window[e]
-        r = reference[e]
-        if lo is not None and r.min_s < lo:
-            out.append(
-                f"{e}: the analog reference's worst-case minimum "
-                f"{format_si(r.min_s, 's', toward='down')} is below the stage's minimum "
-                f"{format_si(lo, 's', toward='up')}: the old network was not safe at every "
-                "tolerance corner"
-            )
-        if hi is not None and r.max_s > hi:
-            out.append(
-                f"{e}: the analog reference's worst-case maximum "
-                f"{format_si(r.max_s, 's', toward='up')} is above the stage's maximum "
-                f"{format_si(hi, 's', toward='down')}"
-            )
-    return out
-
-
-def design_window(design: Design) -> dict[str, Bounds] | None:
-    """The window a design's dead time must fit: its stage window within the reference's range."""
-    return _windows(design)[3]
-
-
 def plan_design(design: Design) -> BuildPlan:
-    stage_result, reference, stage_window, window = _windows(design)
-    warnings = tuple(_reference_warnings(reference, stage_window))
-    if design.reference is not None and reference is not None:
-        from gapforge.analog.findings import reference_findings
-
-        # the old network's own dangers (overlap at a corner, hot-board leakage) repeated here
-        warnings = (*reference_findings(design.reference, reference), *warnings)
-    if design.clock_tol == 0:
-        warnings += (
-            "the clock tolerance is 0 ([timer] tolerance): 'safe' covers a perfect clock only",
-        )
-    reasons: list[str] = []
-    requested: dict[str, Fraction] = {}
-    for e in EDGES:
-        if design.source == "explicit":
-            assert design.dead_time is not None
-            requested[e] = design.dead_time[e]
-        elif design.source == "reference-typical":
-            assert reference is not None
-            requested[e] = reference[e].typ_s
-        elif design.source == "reference-minimum":
-            assert reference is not None
-            requested[e] = reference[e].limit_min_s  # rounded up: a request is a minimum
-            if requested[e] <= 0:
-                raise GapforgeError(
-                    f"the reference network's worst-case {e} dead time is "
-                    f"{float(requested[e]) * 1e9:.6g} ns, not positive (its outputs can overlap), "
-                    "so it cannot set the dead time; give an explicit value or a [stage] window",
-                    f"{design.path}: dead_time.source",
-                )
-        else:
-            assert window is not None
-            lo = window[e][0]
-            requested[e] = lo if lo is not None else Fraction(0)
-    empty = [
-        e
-        for e in EDGES
-        if window is not None
-        and window[e][0] is not None
-        and window[e][1] is not None
-        and window[e][0] > window[e][1]  # type: ignore[operator]
-    ]
-    if empty:
-        reasons.append(
-            "no dead time fits the window on "
-            + ", ".join(empty)
-            + (
-                " (the stage window and the reference's proven range do not overlap)"
-                if reference is not None and stage_window is not None
-                else ""
-            )
-        )
+    dw = window_of(design)
+    warnings = _plan_warnings(design, dw)
+    if dw.empty:
+        empty = ["no dead time fits the window on " + ", ".join(e for e in EDGES if e in dw.empty)]
+        empty.extend(dw.empty[e] for e in EDGES if e in dw.empty)
         return BuildPlan(
             design,
             None,
-            reference,
-            stage_window,
-            window,
-            stage_result,
+            dw.reference,
+            dw.stage_bounds,
+            dw.bounds,
+            dw.stage,
             (),
             "empty-window",
-            tuple(reasons),
+            tuple(empty),
             warnings,
+            dw,
         )
+    requested = _requested(design, dw)
     request = FitRequest(
         clock_hz=design.clock_hz,
         clock_tol=design.clock_tol,
@@ -202,8 +102,11 @@ def plan_design(design: Design) -> BuildPlan:
         to_low_s=requested["to_low"],
         rounding=design.rounding,
     )
-    outputs = tuple(_plan_output(design, o, request, window, reference) for o in design.outputs)
+    outputs = tuple(
+        _plan_output(design, o, request, dw.bounds, dw.reference) for o in design.outputs
+    )
     verdict = "ok"
+    reasons: list[str] = []
     for o in outputs:
         if o.verdict != "ok":
             verdict = o.verdict
@@ -212,15 +115,69 @@ def plan_design(design: Design) -> BuildPlan:
     return BuildPlan(
         design,
         request,
-        reference,
-        stage_window,
-        window,
-        stage_result,
+        dw.reference,
+        dw.stage_bounds,
+        dw.bounds,
+        dw.stage,
         outputs,
         verdict,
         tuple(reasons),
         warnings,
+        dw,
     )
+
+
+def _plan_warnings(design: Design, dw: DesignWindow) -> tuple[str, ...]:
+    """The old network's own dangers and its range against the stage window (evidence about the
+    old board, never a failure of the new design), and a perfect-clock tolerance."""
+    warnings: tuple[str, ...] = ()
+    if design.reference is not None and dw.reference is not None:
+        from gapforge.analog.findings import reference_findings
+
+        # the old network's own dangers (overlap at a corner, hot-board leakage) repeated here
+        warnings = tuple(reference_findings(design.reference, dw.reference))
+    warnings += dw.evidence
+    if design.clock_tol == 0:
+        warnings += (
+            "the clock tolerance is 0 ([timer] tolerance): 'safe' covers a perfect clock only",
+        )
+    return warnings
+
+
+def _requested(design: Design, dw: DesignWindow) -> dict[str, Fraction]:
+    """The dead time each edge asks for under the design's policy (a request is a minimum)."""
+    requested: dict[str, Fraction] = {}
+    for e in EDGES:
+        if design.source == "explicit":
+            assert design.dead_time is not None
+            requested[e] = design.dead_time[e]
+        elif design.source == "reference-typical":
+            assert dw.reference is not None
+            requested[e] = dw.reference[e].typ_s
+        elif design.source == "reference-minimum":
+            assert dw.reference is not None
+            requested[e] = dw.reference[e].limit_min_s  # rounded up: a request is a minimum
+        else:  # "window", "window-within-reference": the window's minimum
+            assert dw.bounds is not None
+            lo = dw.bounds[e][0]
+            requested[e] = lo if lo is not None else Fraction(0)
+        if design.source.startswith("reference") and requested[e] <= 0:
+            raise GapforgeError(
+                f"the reference network's worst-case {e} dead time is "
+                f"{float(requested[e]) * 1e9:.6g} ns, not positive (its outputs can overlap), "
+                "so it cannot set the dead time; give an explicit value or a [stage] window",
+                f"{design.path}: dead_time.source",
+            )
+    if design.source == "window-within-reference" and dw.stage_bounds is None:
+        for e in EDGES:
+            if requested[e] <= 0:
+                raise GapforgeError(
+                    f"the old network's worst-case {e} range starts at "
+                    f"{float(requested[e]) * 1e9:.6g} ns, not positive (its outputs can "
+                    "overlap), so it cannot set the dead time; add a [stage] window",
+                    f"{design.path}: dead_time.source",
+                )
+    return requested
 
 
 def _plan_output(

@@ -8,10 +8,14 @@
     [stage]      the power stage's timing and costs (read by gapforge.stage.window)
     [[output]]   target (built-in name or layout file), prefix, file, struct
 
-`source` says where the dead time to reproduce comes from: "explicit" (the values given),
-"reference-typical" or "reference-minimum" (the analog network's typical value or worst-case
-minimum), or "window" (the power stage's minimum). Without a value, the default is "window" when
-there is a [stage] section, else "reference-minimum" when there is a [reference] section.
+`source` names the dead-time policy (gapforge.pipeline.policy, where each is explained):
+"explicit", "window", "reference-typical", "reference-minimum" or "window-within-reference".
+Without a value, the default is "window" when there is a [stage] section, else
+"reference-minimum" when there is a [reference] section.
+
+`load_design` reads the file in named steps, one per section (format, timer, pwm, reference,
+stage, adaptive, dead_time, outputs); `load_window_sections` runs only the steps the window of a
+design needs (for `window --design`), so both read those sections with the same code.
 """
 
 from __future__ import annotations
@@ -24,13 +28,13 @@ from pathlib import Path
 from typing import Any
 
 from gapforge.base.errors import GapforgeError
-from gapforge.base.schema import Reader, load_toml
+from gapforge.base.schema import Reader, Table, load_toml
+from gapforge.pipeline.policy import SOURCES
 from gapforge.timer.fit import ROUNDINGS
 from gapforge.timer.layouts import EDGES, Layout, load_layout
 from gapforge.timer.limits import COUNTINGS, PwmSpec, compare_counts
 
 FORMAT_VERSION = 1
-SOURCES = ("explicit", "reference-typical", "reference-minimum", "window")
 
 _TOP = frozenset(
     {"format", "name", "description", "timer", "pwm", "dead_time", "reference", "stage", "output"}
@@ -79,70 +83,161 @@ def load_design(path: Path) -> Design:
     reader = Reader(str(path))
     top = reader.table(data, "")
     top.check_keys(_TOP, {"format", "timer", "output"})
+    _read_format(top)
+    clock, tol, clock_macro = _read_timer(top)
+    pwm = _read_pwm(top, clock)
+    reference = _read_reference(top)
+    stage = _read_stage(top, pwm)
+    adaptive = _read_adaptive(top, stage)
+    gate_driver = _read_gate_driver(top, pwm)
+    rounding, explicit, source = _read_dead_time(top, reference, stage)
+    outputs = _read_outputs(top, path)
+    reader.finish()
+    assert clock is not None
+    return Design(
+        path=path,
+        label=path.name,
+        sha256=hashlib.sha256(raw).hexdigest(),
+        name=top.string("name", path.stem),
+        description=top.string("description", ""),
+        clock_hz=clock,
+        clock_tol=tol,
+        clock_macro=clock_macro,
+        pwm=pwm,
+        dead_time=explicit,
+        rounding=rounding,
+        source=source,
+        reference=reference,
+        stage=stage,
+        outputs=tuple(outputs),
+        adaptive=adaptive,
+        gate_driver=gate_driver,
+    )
+
+
+@dataclass(frozen=True)
+class WindowSections:
+    """The sections the window of a design is computed from (see gapforge.pipeline.policy)."""
+
+    path: Path
+    pwm: PwmSpec | None
+    reference: Any
+    stage: Any
+    source: str
+
+
+def load_window_sections(path: Path) -> WindowSections:
+    """The [pwm], [reference], [stage] and [dead_time] sections of a design file, read by the
+    same steps as `load_design`; a file with only a [stage] section is enough."""
+    data, _raw = load_toml(path)
+    reader = Reader(str(path))
+    top = reader.table(data, "")
+    top.check_keys(_TOP)
+    _read_format(top)
+    pwm = _read_pwm(top, None)
+    reference = _read_reference(top)
+    stage = _read_stage(top, pwm)
+    _rounding, _explicit, source = _read_dead_time(top, reference, stage)
+    reader.finish()
+    return WindowSections(path, pwm, reference, stage, source)
+
+
+def _read_format(top: Table) -> None:
     version = top.integer("format", FORMAT_VERSION)
     if version != FORMAT_VERSION:
-        reader.problem(
+        top.reader.problem(
             "format", f"design format {version} is not supported (expected {FORMAT_VERSION})"
         )
 
-    timer = top.sub("timer", required=True) or reader.table({}, "timer")
+
+def _read_timer(top: Table) -> tuple[Fraction | None, Fraction, str]:
+    """[timer]: the clock, its tolerance and the firmware's clock macro."""
+    timer = top.sub("timer", required=True) or top.reader.table({}, "timer")
     timer.check_keys(_TIMER, {"clock"})
     clock = timer.quantity("clock", "Hz", Fraction(1))
     tol = timer.tolerance("tolerance", Fraction(0))
     clock_macro = timer.string("clock_macro", "TIMER_CLOCK_HZ")
     if not _MACRO.match(clock_macro):
-        reader.problem("timer.clock_macro", f"{clock_macro!r} is not a C identifier")
+        top.reader.problem("timer.clock_macro", f"{clock_macro!r} is not a C identifier")
+    return clock, tol, clock_macro
 
-    pwm = None
+
+def _read_pwm(top: Table, clock: Fraction | None) -> PwmSpec | None:
+    """[pwm]: frequency and counting, checked against the clock when there is one."""
     pwm_t = top.sub("pwm")
-    if pwm_t is not None:
-        pwm_t.check_keys(_PWM, {"frequency"})
-        freq = pwm_t.quantity("frequency", "Hz", Fraction(1))
-        counting = pwm_t.string("counting", "edge", COUNTINGS)
-        assert freq is not None
-        pwm = PwmSpec(freq, counting)
-        if clock is not None and not reader.problems:
-            try:
-                compare_counts(clock, pwm)
-            except GapforgeError as exc:
-                reader.problem("pwm.frequency", exc.message)
+    if pwm_t is None:
+        return None
+    pwm_t.check_keys(_PWM, {"frequency"})
+    freq = pwm_t.quantity("frequency", "Hz", Fraction(1))
+    counting = pwm_t.string("counting", "edge", COUNTINGS)
+    assert freq is not None
+    pwm = PwmSpec(freq, counting)
+    if clock is not None and not top.reader.problems:
+        try:
+            compare_counts(clock, pwm)
+        except GapforgeError as exc:
+            top.reader.problem("pwm.frequency", exc.message)
+    return pwm
 
-    reference = None
+
+def _read_reference(top: Table) -> Any:
+    """[reference]: the old analog network (read by gapforge.analog)."""
     ref_t = top.sub("reference")
-    if ref_t is not None:
-        from gapforge.analog.parameters import read_reference
+    if ref_t is None:
+        return None
+    from gapforge.analog.parameters import read_reference
 
-        reference = read_reference(ref_t)
-    stage = None
+    return read_reference(ref_t)
+
+
+def _read_stage(top: Table, pwm: PwmSpec | None) -> Any:
+    """[stage]: the power stage, switching at the PWM frequency."""
     stage_t = top.sub("stage")
-    if stage_t is not None:
-        from gapforge.stage import window as stage_mod
+    if stage_t is None:
+        return None
+    from gapforge.stage import window as stage_mod
 
-        # each switch turns on and off once per PWM period: the stage switches at the PWM
-        # frequency (the default for stage.fsw), and the loss budget's maximum depends on it
-        stage = stage_mod.read_stage(stage_t, pwm.frequency_hz if pwm is not None else None)
-        if (
-            pwm is not None
-            and stage.fsw is not None
-            and not reader.problems
-            and stage.fsw != pwm.frequency_hz
-        ):
-            reader.problem(
-                "stage.fsw",
-                f"{float(stage.fsw):.6g} Hz differs from pwm.frequency "
-                f"{float(pwm.frequency_hz):.6g} Hz (a half bridge switches once per PWM period;"
-                " drop stage.fsw or make them equal)",
-            )
+    # each switch turns on and off once per PWM period: the stage switches at the PWM
+    # frequency (the default for stage.fsw), and the loss budget's maximum depends on it
+    stage = stage_mod.read_stage(stage_t, pwm.frequency_hz if pwm is not None else None)
+    reader = top.reader
+    if (
+        pwm is not None
+        and stage.fsw is not None
+        and not reader.problems
+        and stage.fsw != pwm.frequency_hz
+    ):
+        reader.problem(
+            "stage.fsw",
+            f"{float(stage.fsw):.6g} Hz differs from pwm.frequency "
+            f"{float(pwm.frequency_hz):.6g} Hz (a half bridge switches once per PWM period;"
+            " drop stage.fsw or make them equal)",
+        )
+    return stage
 
+
+def _read_adaptive(top: Table, stage: Any) -> Any:
+    """[adaptive]: the current-indexed table (read by gapforge.stage.adaptive)."""
     from gapforge.stage.adaptive import read_adaptive
 
-    adaptive = read_adaptive(top, stage)
+    return read_adaptive(top, stage)
+
+
+def _read_gate_driver(top: Table, pwm: PwmSpec | None) -> Any:
+    """[gate_driver]: minimum pulse and bootstrap refresh (read by gapforge.timer.driver)."""
     from gapforge.timer.driver import read_gate_driver
 
     gate_driver = read_gate_driver(top)
     if gate_driver is not None and pwm is None:
-        reader.problem("gate_driver", "[gate_driver] limits the duty: it needs a [pwm] section")
+        top.reader.problem("gate_driver", "[gate_driver] limits the duty: it needs a [pwm] section")
+    return gate_driver
 
+
+def _read_dead_time(
+    top: Table, reference: Any, stage: Any
+) -> tuple[str, dict[str, Fraction] | None, str]:
+    """[dead_time]: rounding, explicit values and the policy (`source`)."""
+    reader = top.reader
     dead_t = top.sub("dead_time") or reader.table({}, "dead_time")
     dead_t.check_keys(_DEAD)
     rounding = dead_t.string("rounding", "safe", ROUNDINGS)
@@ -165,20 +260,33 @@ def load_design(path: Path) -> Design:
         else "explicit"
     )
     source = dead_t.string("source", default_source, SOURCES)
+    _check_source(top, source, explicit)
+    return rounding, explicit, source
+
+
+def _check_source(top: Table, source: str, explicit: dict[str, Fraction] | None) -> None:
+    """The policy has what it needs: its section, and no values it would ignore."""
+    reader = top.reader
     if source == "explicit" and explicit is None:
         reader.problem(
             "dead_time",
             "give value (or to_high and to_low), or a [reference] or [stage] section to derive it",
         )
-    if source.startswith("reference") and ref_t is None:
+    if source.startswith("reference") and not top.has("reference"):
         reader.problem("dead_time.source", f"{source!r} needs a [reference] section")
-    if source == "window" and stage_t is None:
+    if source == "window-within-reference" and not top.has("reference"):
+        reader.problem("dead_time.source", f"{source!r} needs a [reference] section")
+    if source == "window" and not top.has("stage"):
         reader.problem("dead_time.source", "'window' needs a [stage] section")
     if source != "explicit" and explicit is not None:
         reader.problem(
             "dead_time.source", f"{source!r} derives the dead time: drop value/to_high/to_low"
         )
 
+
+def _read_outputs(top: Table, path: Path) -> list[Output]:
+    """[[output]]: one header per layout, each with a unique prefix and file."""
+    reader = top.reader
     outputs: list[Output] = []
     prefixes: set[str] = set()
     files: set[str] = set()
@@ -216,24 +324,4 @@ def load_design(path: Path) -> Design:
         pass  # reported as a missing required key
     elif not outputs and not reader.problems:
         reader.problem("output", "list at least one [[output]]")
-    reader.finish()
-    assert clock is not None
-    return Design(
-        path=path,
-        label=path.name,
-        sha256=hashlib.sha256(raw).hexdigest(),
-        name=top.string("name", path.stem),
-        description=top.string("description", ""),
-        clock_hz=clock,
-        clock_tol=tol,
-        clock_macro=clock_macro,
-        pwm=pwm,
-        dead_time=explicit,
-        rounding=rounding,
-        source=source,
-        reference=reference,
-        stage=stage,
-        outputs=tuple(outputs),
-        adaptive=adaptive,
-        gate_driver=gate_driver,
-    )
+    return outputs
