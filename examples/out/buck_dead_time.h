@@ -14,12 +14,12 @@
  * Old network: to_high: the old network's worst-case minimum -4.915 ns is 32.515 ns short of the
  * stage minimum 27.6 ns: the old board was not safe at every tolerance corner (a finding about
  * the old board, not the new design)
- * Old network: to_high: the old network's worst-case maximum 41.836 ns is 12.149 ns above the
+ * Old network: to_high: the old network's worst-case maximum 41.835 ns is 12.148 ns above the
  * stage maximum 29.687 ns (at that corner the old board exceeded the loss budget)
  * Old network: to_low: the old network's worst-case minimum -4.915 ns is 32.515 ns short of the
  * stage minimum 27.6 ns: the old board was not safe at every tolerance corner (a finding about
  * the old board, not the new design)
- * Old network: to_low: the old network's worst-case maximum 41.836 ns is 12.149 ns above the
+ * Old network: to_low: the old network's worst-case maximum 41.835 ns is 12.148 ns above the
  * stage maximum 29.687 ns (at that corner the old board exceeded the loss budget)
  *
  * CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design
