@@ -33,10 +33,10 @@ def _old_network(path: Path) -> dict[str, object]:
 
 
 def _short(path: Path) -> dict[str, str]:
-    from gapforge.base.quantities import format_quantity
+    from gapforge.base.display import format_si
 
     return {
-        e: format_quantity(400 * NS - r.min_s, "s", 6)  # type: ignore[attr-defined]
+        e: format_si(400 * NS - r.min_s, "s")  # type: ignore[attr-defined]
         for e, r in _old_network(path).items()
     }
 
@@ -60,7 +60,7 @@ def test_build_requests_exactly_the_stage_minimum_and_warns_how_short_the_old_bo
     doc = json.loads(out)
     assert doc["verdict"] == "ok"
     # 400 ns is exactly 4e-7 s; JSON carries floats, the header the exact picoseconds
-    assert doc["requested"]["to_high"] == doc["requested"]["to_low"] == 4e-7
+    assert doc["requested_s"]["to_high"] == doc["requested_s"]["to_low"] == 4e-7
     header = (tmp_path / "out" / "sic_dead_time.h").read_text()
     assert re.search(r"SIC_DT_TO_HIGH_REQUESTED_PS\s+400000ul", header)
     assert re.search(r"SIC_DT_WINDOW_TO_HIGH_MAX_PS\s+1200000ul", header)
@@ -87,16 +87,16 @@ def test_the_opt_in_says_which_side_of_an_empty_intersection_is_empty(tmp_path: 
     code, out, err = run_cli(["build", str(design), "--json"])
     assert code == 1, err
     doc = json.loads(out)
-    assert doc["verdict"] == "empty-window"
+    assert doc["verdict"] == "fail" and doc["reason"] == "empty-window"
     why = doc["reasons"][1]
     # the old worst-case maximum (about 387 ns, narrowed down to 1 ps) is below 400 ns
-    from gapforge.base.quantities import format_quantity
+    from gapforge.base.display import format_si
 
     top = _old_network(design)["to_high"].limit_max_s  # type: ignore[attr-defined]
     assert 380 * NS < top < 400 * NS
     assert why.startswith("to_high: nothing fits at or above the stage minimum 400 ns")
     assert "lies wholly below it" in why
-    assert f"{format_quantity(400 * NS - top, 's', 6)} more" in why
+    assert f"{format_si(400 * NS - top, 's')} more" in why
     assert not list(tmp_path.glob("out/*.h"))
 
 
@@ -106,7 +106,7 @@ def test_reproducing_the_old_network_is_judged_against_the_window(tmp_path: Path
     code, out, _ = run_cli(["build", str(_variant(tmp_path, "reference-minimum")), "--json"])
     assert code == 1
     doc = json.loads(out)
-    assert doc["verdict"] == "too-short"
+    assert doc["verdict"] == "fail" and doc["reason"] == "too-short"
     assert "below the window's minimum 400 ns" in doc["reasons"][0]
 
 
@@ -148,15 +148,19 @@ def test_every_command_shows_the_same_window_for_the_same_file(
         assert re.search(rf"SIC_DT_WINDOW_{edge}_MIN_PS\s+{lo}ul", header)
         assert re.search(rf"SIC_DT_WINDOW_{edge}_MAX_PS\s+{hi}ul", header)
 
-    from gapforge.base.quantities import format_quantity
+    from gapforge.base.display import choose_exponent, format_si
 
     report = tmp_path / "r.html"
     code, _, err = run_cli(["report", str(design), "-o", str(report)])
     assert code == 0, err
     html = report.read_text()
     for lo, hi in shown.values():
-        for value in (lo, hi):
-            assert format_quantity(Fraction(value, 10**12), "s", 6) in html
+        # the report's display style: four digits, one prefix per pair, cut toward the inside
+        low, high = Fraction(lo, 10**12), Fraction(hi, 10**12)
+        exp3 = choose_exponent([low, high])
+        pair = (format_si(low, "s", toward="up", exponent=exp3),
+                format_si(high, "s", toward="down", exponent=exp3))
+        assert all(text in html for text in pair), pair
 
 
 def test_window_design_reads_a_stage_only_file_and_a_full_design_alike(tmp_path: Path) -> None:

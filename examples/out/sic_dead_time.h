@@ -11,10 +11,10 @@
  * to_low: requested 400 ns, achieved 410 ns (401.961 ns .. 418.367 ns over the clock tolerance)
  * window to_high: 400 ns .. 1.2 us (power stage); worst-case margin 1.96078 ns above the minimum, 781.633 ns below the maximum
  * window to_low: 400 ns .. 1.2 us (power stage); worst-case margin 1.96078 ns above the minimum, 781.633 ns below the maximum
- * Old network: to_high: the old network's worst-case minimum 85.848 ns is 314.152 ns short of
- * the stage minimum 400 ns: the old board was not safe at every tolerance corner (a finding
- * about the old board, not the new design)
- * Old network: to_low: the old network's worst-case minimum 94.848 ns is 305.152 ns short of the
+ * Old network: to_high: the old network's worst-case minimum 85.85 ns is 314.2 ns short of the
+ * stage minimum 400 ns: the old board was not safe at every tolerance corner (a finding about
+ * the old board, not the new design)
+ * Old network: to_low: the old network's worst-case minimum 94.85 ns is 305.2 ns short of the
  * stage minimum 400 ns: the old board was not safe at every tolerance corner (a finding about
  * the old board, not the new design)
  *

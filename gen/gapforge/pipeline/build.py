@@ -14,7 +14,6 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
-from gapforge.base.display import format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.pipeline.design import Design, Output
 from gapforge.pipeline.policy import DesignWindow, window_of

@@ -23,7 +23,7 @@ from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any
 
-from gapforge.base.quantities import format_quantity
+from gapforge.base.display import format_si
 from gapforge.timer.layouts import EDGES
 
 Bounds = tuple[Fraction | None, Fraction | None]
@@ -82,7 +82,7 @@ class DesignWindow:
 
 
 def _t(value: Fraction) -> str:
-    return format_quantity(value, "s", 6)
+    return format_si(value, "s")
 
 
 def window_of(design: Any) -> DesignWindow:
