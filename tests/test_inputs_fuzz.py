@@ -12,7 +12,6 @@ alarm). The budget per reader is a fraction of a second of cases, small enough f
 from __future__ import annotations
 
 import json
-import os
 import random
 import signal
 import time
