@@ -12,12 +12,12 @@
  * window to_high: 27.6 ns .. 29.687 ns (power stage); worst-case margin 132.988 ps above the minimum, 1.95124 ns below the maximum
  * window to_low: 27.6 ns .. 29.687 ns (power stage); worst-case margin 132.988 ps above the minimum, 1.95124 ns below the maximum
  * Old network: to_high: the old network's worst-case minimum -4.915 ns is 32.52 ns short of the
- * stage minimum 27.6 ns: the old board was not safe at every tolerance corner (a finding about
+ * stage minimum 27.6 ns: the old network was not safe at every tolerance corner (a finding about
  * the old board, not the new design)
  * Old network: to_high: the old network's worst-case maximum 41.84 ns is 12.15 ns above the
  * stage maximum 29.69 ns (at that corner the old board exceeded the loss budget)
  * Old network: to_low: the old network's worst-case minimum -4.915 ns is 32.52 ns short of the
- * stage minimum 27.6 ns: the old board was not safe at every tolerance corner (a finding about
+ * stage minimum 27.6 ns: the old network was not safe at every tolerance corner (a finding about
  * the old board, not the new design)
  * Old network: to_low: the old network's worst-case maximum 41.84 ns is 12.15 ns above the stage
  * maximum 29.69 ns (at that corner the old board exceeded the loss budget)

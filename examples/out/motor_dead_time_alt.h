@@ -12,13 +12,13 @@
  * window to_high: 852 ns .. 1.07 us (power stage); worst-case margin 2.77941 ns above the minimum, 180.332 ns below the maximum
  * window to_low: 936 ns .. 1.07 us (power stage); worst-case margin 1.5 ns above the minimum, 94.2347 ns below the maximum
  * Old network: to_high: the old network's worst-case minimum 631 ns is 221 ns short of the stage
- * minimum 852 ns: the old board was not safe at every tolerance corner (a finding about the old
- * board, not the new design)
+ * minimum 852 ns: the old network was not safe at every tolerance corner (a finding about the
+ * old board, not the new design)
  * Old network: to_high: the old network's worst-case maximum 1.447 us is 376.6 ns above the
  * stage maximum 1.07 us (at that corner the old board exceeded the loss budget)
  * Old network: to_low: the old network's worst-case minimum 640 ns is 296 ns short of the stage
- * minimum 936 ns: the old board was not safe at every tolerance corner (a finding about the old
- * board, not the new design)
+ * minimum 936 ns: the old network was not safe at every tolerance corner (a finding about the
+ * old board, not the new design)
  * Old network: to_low: the old network's worst-case maximum 1.456 us is 385.6 ns above the stage
  * maximum 1.07 us (at that corner the old board exceeded the loss budget)
  *

@@ -12,10 +12,10 @@
  * window to_high: 400 ns .. 1.2 us (power stage); worst-case margin 1.96078 ns above the minimum, 781.633 ns below the maximum
  * window to_low: 400 ns .. 1.2 us (power stage); worst-case margin 1.96078 ns above the minimum, 781.633 ns below the maximum
  * Old network: to_high: the old network's worst-case minimum 85.85 ns is 314.2 ns short of the
- * stage minimum 400 ns: the old board was not safe at every tolerance corner (a finding about
+ * stage minimum 400 ns: the old network was not safe at every tolerance corner (a finding about
  * the old board, not the new design)
  * Old network: to_low: the old network's worst-case minimum 94.85 ns is 305.2 ns short of the
- * stage minimum 400 ns: the old board was not safe at every tolerance corner (a finding about
+ * stage minimum 400 ns: the old network was not safe at every tolerance corner (a finding about
  * the old board, not the new design)
  *
  * CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design

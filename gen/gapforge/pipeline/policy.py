@@ -168,7 +168,7 @@ def _evidence(reference: dict[str, Any] | None, stage_bounds: dict[str, Bounds])
         if lo is not None and r.min_s < lo:
             out.append(
                 f"{e}: the old network's worst-case minimum {_t(r.min_s)} is {_t(lo - r.min_s)} "
-                f"short of the stage minimum {_t(lo)}: the old board was not safe at every "
+                f"short of the stage minimum {_t(lo)}: the old network was not safe at every "
                 "tolerance corner (a finding about the old board, not the new design)"
             )
         if hi is not None and r.max_s > hi:
