@@ -35,8 +35,8 @@ BUILTINS = (
     "shared-8bit-linear",
     "shared-8bit-segmented",
     "split-10bit-div4",
+    "split-10bit-tenths",
     "split-6bit-div2-reserved",
-    "split-9bit-subclock",
 )
 
 

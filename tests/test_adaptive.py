@@ -65,37 +65,37 @@ def test_gan_example_by_hand() -> None:
     soft = b1.entries["positive"]["to_low"]  # I > 0 commutates to_low (common practice)
     # worst swing in [1 A, 2 A) with 0.1 A sense error: 32 nC / 0.9 A = 35.5556 ns, up to 1 ps
     assert soft.swing_s == 35556 * F(1, 10**12)
-    # request 27.6 + 35.556 ns; step 1/(160 MHz x 16) = 390.625 ps;
-    # code = ceil(63.156 ns x 1.00005 / 390.625 ps) = ceil(161.687) = 162
+    # request 27.6 + 35.556 ns; step 1/(160 MHz x 10) = 625 ps;
+    # code = ceil(63.156 ns x 1.00005 / 625 ps) = ceil(101.05) = 102
     assert soft.requested_s == F(276, 10) * NS + soft.swing_s
-    assert soft.code == 162 and soft.soft
-    # worst case 162 x 390.625 ps / 1.00005 = 63.278 ns (fast clock, common practice)
-    assert soft.achieved_min_s == 162 * F(390625, 10**15) / (1 + F(50, 10**6))
-    # the hard edge stays at the stage minimum: ceil(27.6 ns x 1.00005 / 390.625 ps) = 71
-    assert b1.entries["positive"]["to_high"].code == 71
+    assert soft.code == 102 and soft.soft
+    # worst case 102 x 625 ps / 1.00005 = 63.747 ns (fast clock, common practice)
+    assert soft.achieved_min_s == 102 * F(625, 10**12) / (1 + F(50, 10**6))
+    # the hard edge stays at the stage minimum: ceil(27.6 ns x 1.00005 / 625 ps) = 45
+    assert b1.entries["positive"]["to_high"].code == 45
     assert not b1.entries["positive"]["to_high"].soft
     # mirrored: I < 0 commutates to_high with the same code
-    assert b1.entries["negative"]["to_high"].code == 162
+    assert b1.entries["negative"]["to_high"].code == 102
     # bin 0 (0..1 A) has no current to swing the node: policy 'max' keeps the longest code
-    # inside 75 ns at the slow clock: floor(75 ns x 0.99995 / 390.625 ps) = floor(191.99) = 191
+    # inside 75 ns at the slow clock: floor(75 ns x 0.99995 / 625 ps) = floor(119.99) = 119
     b0 = bins[0].entries["positive"]["to_low"]
-    assert b0.below_swing and not b0.soft and b0.code == 191 and b0.swing_s == 0
+    assert b0.below_swing and not b0.soft and b0.code == 119 and b0.swing_s == 0
     # ADC: 1 A / 12.5 mA = 80 codes from 2048
     assert b1.adc_codes == (2128, 1968)
     # reverse conduction in [1, 2) at 2 A with the table: 4 V x 2 A x 400 kHz x
-    # (27.7358 ns hard + (63.2843 - 16) ns after the swing) = 240.06 mW
+    # (28.1264 ns hard + (63.7532 - 16) ns after the swing) = 242.81 mW
     costs = b1.costs["positive"]
-    to_high = 71 * F(390625, 10**15) / (1 - F(50, 10**6))
-    to_low = 162 * F(390625, 10**15) / (1 - F(50, 10**6))
+    to_high = 45 * F(625, 10**12) / (1 - F(50, 10**6))
+    to_low = 102 * F(625, 10**12) / (1 - F(50, 10**6))
     assert costs.adaptive_w == 4 * 2 * F(400_000) * (to_high + to_low - 16 * NS)
-    assert math.isclose(float(costs.adaptive_w), 0.24006, rel_tol=1e-4)
+    assert math.isclose(float(costs.adaptive_w), 0.24281, rel_tol=1e-4)
 
 
 def test_gan_example_the_other_policy_turns_on_hard_at_light_load() -> None:
     a = _plan("adaptive-gan.toml")
     assert a.other is not None and a.other.policy == "hard"
     b0 = a.other.bins[0].entries["positive"]["to_low"]
-    assert b0.below_swing and b0.code == 71  # the stage minimum, as the hard edge
+    assert b0.below_swing and b0.code == 45  # the stage minimum, as the hard edge
     # a hard turn-on costs at most (16 + 16) nC x 48 V x 400 kHz = 614.4 mW (Eoss <= Qoss V)
     assert a.other.bins[0].costs["positive"].adaptive_hard_w == F(32, 10**9) * 48 * 400_000
 
@@ -168,7 +168,7 @@ def cases(draw):  # type: ignore[no-untyped-def]
         current_error=F(draw(st.integers(0, 5)), 10),
     )
     target = draw(
-        st.sampled_from(("split-9bit-subclock", "split-10bit-div4", "shared-8bit-linear"))
+        st.sampled_from(("split-10bit-tenths", "split-10bit-div4", "shared-8bit-linear"))
     )
     tol = F(draw(st.sampled_from((0, 50, 10_000))), 10**6)
     return stage, spec, target, tol
@@ -242,7 +242,7 @@ def test_swing_time_rounds_up_and_is_infinite_without_current() -> None:
 
 def test_json_interface(tmp_path: Path) -> None:
     code, out, err = run_cli(
-        ["build", str(EXAMPLES / "adaptive-gan.toml"), "--json", "--out", str(tmp_path)]
+        ["build", str(EXAMPLES / "adaptive-gan.toml"), "--json", "--out", str(tmp_path), "--parents"]
     )
     assert code == 0, err
     entry = json.loads(out)["outputs"][0]
@@ -260,7 +260,7 @@ def test_json_interface(tmp_path: Path) -> None:
 
 def test_without_adaptive_the_json_has_no_table(tmp_path: Path) -> None:
     code, out, err = run_cli(
-        ["build", str(EXAMPLES / "gan-buck.toml"), "--json", "--out", str(tmp_path)]
+        ["build", str(EXAMPLES / "gan-buck.toml"), "--json", "--out", str(tmp_path), "--parents"]
     )
     assert code == 0, err
     assert "adaptive" not in json.loads(out)["outputs"][0]
@@ -272,7 +272,7 @@ GCC = shutil.which("gcc")
 @pytest.mark.skipif(GCC is None, reason="gcc not installed")
 @pytest.mark.parametrize("design", ["adaptive-gan.toml", "adaptive-silicon.toml"])
 def test_emitted_arrays_compile_and_match_the_json(design: str, tmp_path: Path) -> None:
-    code, out, err = run_cli(["build", str(EXAMPLES / design), "--json", "--out", str(tmp_path)])
+    code, out, err = run_cli(["build", str(EXAMPLES / design), "--json", "--out", str(tmp_path), "--parents"])
     assert code == 0, err
     entry = json.loads(out)["outputs"][0]
     header = tmp_path / entry["file"]
@@ -378,7 +378,7 @@ def test_bad_adaptive_input_is_one_line(
     assert change[0] in GAN
     path = tmp_path / "d.toml"
     path.write_text(GAN.replace(change[0], change[1]), encoding="utf-8")
-    code, out, err = run_cli(["build", str(path), "--out", str(tmp_path / "o")])
+    code, out, err = run_cli(["build", str(path), "--out", str(tmp_path / "o"), "--parents"])
     assert code == 2, (out, err)
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
     assert where in err
@@ -392,7 +392,7 @@ def test_adaptive_needs_a_stage(tmp_path: Path) -> None:
     text = text.replace('source = "window"', 'source = "reference-minimum"')
     path = tmp_path / "d.toml"
     path.write_text(text, encoding="utf-8")
-    code, _, err = run_cli(["build", str(path), "--out", str(tmp_path / "o")])
+    code, _, err = run_cli(["build", str(path), "--out", str(tmp_path / "o"), "--parents"])
     assert code == 2 and "[adaptive] needs a [stage]" in err
 
 
@@ -457,7 +457,7 @@ def test_fuzzed_adaptive_sections_keep_the_promise(tmp_path: Path) -> None:
         path = tmp_path / "f.toml"
         path.write_text(text, encoding="utf-8")
         out_dir = tmp_path / f"o{runs}"
-        code, _, err = run_cli(["build", str(path), "--out", str(out_dir)])
+        code, _, err = run_cli(["build", str(path), "--out", str(out_dir), "--parents"])
         assert code in (0, 1, 2), err
         assert "Traceback" not in err
         if code == 2:
@@ -476,7 +476,7 @@ def test_report_has_the_section_with_plot_and_table(tmp_path: Path) -> None:
     assert section.count("<svg") == 1
     # both policies are drawn, and the table lists the bin codes worked out by hand above
     assert "below_swing 'max'" in section and "below_swing 'hard'" in section
-    assert "<td>to_low 162</td>" in section and "<td>to_low 191</td>" in section
+    assert "<td>to_low 102</td>" in section and "<td>to_low 119</td>" in section
     assert "every temperature and both current signs" in section
     # no section without [adaptive]
     plain = tmp_path / "p.html"
@@ -494,12 +494,12 @@ def test_gate_driver_limits_by_hand() -> None:
     plan = plan_design(load_design(EXAMPLES / "adaptive-gan.toml"))
     d = plan.outputs[0].driver
     # 160 MHz, 400 kHz centre-aligned: N = 200 compare counts, 2 clocks per count
-    # longest dead times in the table: to_high and to_low 191 sixteenths = 11.9375 clocks
+    # longest dead times in the table: to_high and to_low 119 tenths = 11.9 clocks
     # min pulse 50 ns at the fast clock: ceil(50 ns x 160 MHz x 1.00005) = ceil(8.0004) = 9
     assert d.min_pulse_clocks == 9
-    # high-side pulse 2c - 11.9375 >= 9  ->  c >= 10.47  ->  11 (the dead time alone gives 6)
+    # high-side pulse 2c - 11.9 >= 9  ->  c >= 10.45  ->  11 (the dead time alone gives 6)
     assert d.duty_min_counts == 11 and d.binds_min == "minimum pulse"
-    # bootstrap 100 ns: ceil(16.0008) = 17 clocks; 2 (200 - c) - 11.9375 >= 17 -> c <= 185.53
+    # bootstrap 100 ns: ceil(16.0008) = 17 clocks; 2 (200 - c) - 11.9 >= 17 -> c <= 185.55
     assert d.bootstrap_clocks == 17 and d.bootstrap_compare_max == 185
     # refresh in every period binds the maximum (the minimum pulse alone allows 189)
     assert d.duty_max_counts == 185 and d.binds_max == "bootstrap refresh"

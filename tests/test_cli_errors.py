@@ -24,7 +24,7 @@ counting = "center"
 [dead_time]
 value = "25ns"
 [[output]]
-target = "split-9bit-subclock"
+target = "split-10bit-tenths"
 prefix = "DT"
 file = "dt.h"
 """
@@ -33,7 +33,7 @@ SENTINEL = "/* an existing header that a failing build must leave alone */\n"
 
 BUILTIN_LIST = (
     "shared-16bit-plus-one, shared-8bit-linear, shared-8bit-segmented, split-10bit-div4, "
-    "split-6bit-div2-reserved, split-9bit-subclock"
+    "split-10bit-tenths, split-6bit-div2-reserved"
 )
 
 BAD_LAYOUT = (
@@ -82,9 +82,9 @@ DESIGNS: dict[str, tuple[str | bytes, str]] = {
     "format": (BASE.replace("format = 1", "format = 3"),
                "format: design format 3 is not supported (expected 1)"),
     "no-output": (BASE.split("[[output]]")[0], "output: required key is missing"),
-    "unknown-target": (BASE.replace('"split-9bit-subclock"', '"split-9bit-subclok"'),
-                       "output[0].target: no built-in layout named 'split-9bit-subclok'; "
-                       "did you mean 'split-9bit-subclock'? (built-ins: " + BUILTIN_LIST
+    "unknown-target": (BASE.replace('"split-10bit-tenths"', '"split-10bit-tenth"'),
+                       "output[0].target: no built-in layout named 'split-10bit-tenth'; "
+                       "did you mean 'split-10bit-tenths'? (built-ins: " + BUILTIN_LIST
                        + "; or give a path to a .toml layout file)"),
     "prefix": (BASE.replace('"DT"', '"1DT"'),
                "output[0].prefix: '1DT' is not a C identifier prefix"),
@@ -135,19 +135,19 @@ DESIGNS: dict[str, tuple[str | bytes, str]] = {
                         "characters) is too long for a quantity (at most 64 characters)"),
     "too-big": (BASE + "# " + "x" * 40_000 + "\n",
                 f"is {len(BASE) + 40_003} bytes, above the 32 KiB cap for a TOML file"),
-    "target-name-300": (BASE.replace('"split-9bit-subclock"', '"' + "a" * 300 + '"'),
+    "target-name-300": (BASE.replace('"split-10bit-tenths"', '"' + "a" * 300 + '"'),
                         "output[0].target: no built-in layout named '" + "a" * 36 + "... "
                         "(300 characters) (names are at most 64 characters; or give "
                         "a path to a .toml layout file)"),
-    "layout-device": (BASE.replace('"split-9bit-subclock"', '"/dev/zero"'),
+    "layout-device": (BASE.replace('"split-10bit-tenths"', '"/dev/zero"'),
                       "output[0].target: /dev/zero: is not a regular file (a device, FIFO or "
                       "socket?)"),
-    "layout-fifo": (BASE.replace('"split-9bit-subclock"', '"fifo.toml"'),
+    "layout-fifo": (BASE.replace('"split-10bit-tenths"', '"fifo.toml"'),
                     "output[0].target: {dir}/fifo.toml: is not a regular file (a device, FIFO "
                     "or socket?)"),
-    "layout-file-missing": (BASE.replace('"split-9bit-subclock"', '"nosuch.toml"'),
+    "layout-file-missing": (BASE.replace('"split-10bit-tenths"', '"nosuch.toml"'),
                             "output[0].target: {dir}/nosuch.toml: file not found"),
-    "layout-file-bad": (BASE.replace('"split-9bit-subclock"', '"bad-layout.toml"'),
+    "layout-file-bad": (BASE.replace('"split-10bit-tenths"', '"bad-layout.toml"'),
                         "output[0].target: {dir}/bad-layout.toml: field[1]: field 'div' "
                         "overlaps field 'gap'"),
 }
@@ -315,7 +315,7 @@ def test_unreachable_second_output_leaves_every_file_untouched(tmp_path: Path) -
     # shared-8bit-linear tops out at 255 / 160 MHz = 1.59 us
     design.write_text(
         BASE.replace('value = "25ns"', 'value = "3us"').replace(
-            '"split-9bit-subclock"', '"split-10bit-div4"').replace('"500kHz"', '"20kHz"')
+            '"split-10bit-tenths"', '"split-10bit-div4"').replace('"500kHz"', '"20kHz"')
         + '[[output]]\ntarget = "shared-8bit-linear"\nprefix = "DT2"\nfile = "dt2.h"\n'
     )
     (tmp_path / "dt.h").write_text(SENTINEL)
@@ -333,18 +333,21 @@ def test_unreachable_second_output_leaves_every_file_untouched(tmp_path: Path) -
 
 def test_check_lists_stale_and_missing_headers(tmp_path: Path) -> None:
     shutil.copy(EXAMPLES / "motor-inverter.toml", tmp_path / "m.toml")
-    code, _, err = run_cli(["build", str(tmp_path / "m.toml")])
+    code, _, err = run_cli(["build", str(tmp_path / "m.toml"), "--parents"])
     assert code == 0, err
-    code, _, err = run_cli(["build", str(tmp_path / "m.toml"), "--check"])
+    code, out, err = run_cli(["build", str(tmp_path / "m.toml"), "--check"])
     assert code == 0 and err == ""
     stale = tmp_path / "out" / "motor_dead_time.h"
     stale.write_text(stale.read_text() + "/* edited by hand */\n")
     missing = tmp_path / "out" / "motor_dead_time_alt.h"
     missing.unlink()
     before = _snapshot(tmp_path)
-    code, _, err = run_cli(["build", str(tmp_path / "m.toml"), "--check"])
+    code, out, err = run_cli(["build", str(tmp_path / "m.toml"), "--check"])
     assert code == 1
-    assert sorted(err.splitlines()) == sorted([f"stale: {stale}", f"stale: {missing}"])
+    # the answer first, then only the list (issue 11), each kind named
+    lines = out.splitlines()
+    assert lines[0] == "check fail: 1 missing, 1 stale, 0 unchanged"
+    assert lines[1:3] == [f"missing: {missing}", f"stale: {stale}"]
     assert _snapshot(tmp_path) == before  # --check writes nothing
 
 

@@ -166,15 +166,16 @@ def test_split_10bit_needs_a_coarser_divider_for_long_gaps() -> None:
 
 
 def test_subclock_layout_brief_example() -> None:
-    lay = load_layout("split-9bit-subclock")
+    lay = load_layout("split-10bit-tenths")
     r = fit(lay, request(160 * MHZ, 25 * NS, F(50, 10**6)))
-    # 25e-9 x 160e6 x 16 = 64 sub-steps; x 1.00005 = 64.0032 -> 65 sub-steps on divider 1
-    # = 65 / (16 x 160 MHz) = 25.390625 ns
+    # 25e-9 x 160e6 x 10 = 40 sub-steps; x 1.00005 = 40.002 -> 41 sub-steps on divider 1
+    # = 41 / (10 x 160 MHz) = 25.625 ns
     assert r.divider == 1
-    assert r.edges["to_high"].code == r.edges["to_low"].code == 65
-    assert r.edges["to_high"].achieved_s == F(65, 16 * 160 * 10**6)
-    # register: to_high at bit 0, to_low at bit 16, divider code 0 at bit 12 -> 0x00410041
-    assert r.register == 0x00410041
+    assert r.edges["to_high"].code == r.edges["to_low"].code == 41
+    assert r.edges["to_high"].achieved_s == F(41, 10 * 160 * 10**6)
+    # register: to_high at bit 10, to_low at bit 0, divider code 0 at bit 20:
+    # 41 x 1024 + 41 = 42025 = 0x0000a429
+    assert r.register == 0x0000A429
 
 
 def test_nearest_versus_safe() -> None:
@@ -214,34 +215,34 @@ def test_shared_field_serves_the_longer_edge() -> None:
 
 
 def test_split_layout_fits_each_edge_separately() -> None:
-    lay = load_layout("split-9bit-subclock")
-    # 14 ns and 11 ns at 160 MHz +/- 50 ppm: 14e-9 x 2.56e9 x 1.00005 = 35.8418 -> 36;
-    # 11e-9 x 2.56e9 x 1.00005 = 28.1614 -> 29 sub-steps
+    lay = load_layout("split-10bit-tenths")
+    # 14 ns and 11 ns at 160 MHz +/- 50 ppm: 14e-9 x 1.6e9 x 1.00005 = 22.4011 -> 23;
+    # 11e-9 x 1.6e9 x 1.00005 = 17.6009 -> 18 sub-steps
     r = fit(lay, request(160 * MHZ, 14 * NS, F(50, 10**6), to_low=11 * NS))
-    assert (r.edges["to_high"].code, r.edges["to_low"].code) == (36, 29)
+    assert (r.edges["to_high"].code, r.edges["to_low"].code) == (23, 18)
 
 
 def test_fit_json_from_the_command_line() -> None:
     code, out, _ = run_cli([
         "fit", "--clock", "160MHz", "--clock-tol", "50ppm", "--dead-time", "25ns",
-        "--target", "split-9bit-subclock", "--pwm", "500kHz", "--counting", "center", "--json",
+        "--target", "split-10bit-tenths", "--pwm", "500kHz", "--counting", "center", "--json",
     ])
     assert code == 0
     doc = json.loads(out)
-    assert doc["target"] == "split-9bit-subclock"
+    assert doc["target"] == "split-10bit-tenths"
     assert doc["clock_hz"] == 160e6
     assert doc["verdict"] == "ok"
-    assert doc["fields"] == {"scale": 0, "to_high_fine": 65, "to_low_fine": 65}
-    assert doc["register"] == 0x00410041
+    assert doc["fields"] == {"scale": 0, "to_high_count": 41, "to_low_count": 41}
+    assert doc["register"] == 0x0000A429
     for edge in EDGES:
         e = doc["edges"][edge]
         assert e["requested_s"] == pytest.approx(25e-9, rel=1e-15)
-        assert e["achieved_s"] == pytest.approx(65 / 2.56e9, rel=1e-15)
-        assert e["achieved_min_s"] == pytest.approx(65 / 2.56e9 / 1.00005, rel=1e-15)
-        assert e["achieved_max_s"] == pytest.approx(65 / 2.56e9 / 0.99995, rel=1e-15)
-        assert e["error_s"] == pytest.approx(1 / 2.56e9, rel=1e-12)
-        assert e["step_s"] == pytest.approx(1 / 2.56e9, rel=1e-15)
-        assert e["max_s"] == pytest.approx(511 * 8 / 2.56e9, rel=1e-15)
+        assert e["achieved_s"] == pytest.approx(41 / 1.6e9, rel=1e-15)
+        assert e["achieved_min_s"] == pytest.approx(41 / 1.6e9 / 1.00005, rel=1e-15)
+        assert e["achieved_max_s"] == pytest.approx(41 / 1.6e9 / 0.99995, rel=1e-15)
+        assert e["error_s"] == pytest.approx(1 / 1.6e9, rel=1e-12)  # 25.625 - 25 ns
+        assert e["step_s"] == pytest.approx(1 / 1.6e9, rel=1e-15)
+        assert e["max_s"] == pytest.approx(1023 * 8 / 1.6e9, rel=1e-15)
 
 
 def test_unreachable_from_the_command_line_exits_1() -> None:

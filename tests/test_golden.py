@@ -1,15 +1,18 @@
 """Golden headers: the committed examples/out/*.h are what a fresh build gives, byte for byte.
 
 Regenerate them (after a deliberate change) with
-    gapforge build examples/gan-buck.toml && gapforge build examples/motor-inverter.toml
-and review the diff before committing.
+    gapforge build examples/gan-buck.toml --self-test --record
+    gapforge build examples/motor-inverter.toml --self-test --record
+and review the diff before committing. Beside each header sit its C self-test and its JSON record.
 """
 
 from __future__ import annotations
 
 import hashlib
+import json
 import re
 import shutil
+import tomllib
 from pathlib import Path
 
 import pytest
@@ -17,24 +20,70 @@ import pytest
 from conftest import EXAMPLES, REPO, TARGETS, run_cli, run_subprocess
 from gapforge import __version__
 
-GOLDEN = {
+HEADERS = {
+    "adaptive-gan": ["out/adaptive_gan.h"],
+    "adaptive-silicon": ["out/adaptive_silicon.h"],
     "gan-buck": ["out/buck_dead_time.h"],
     "motor-inverter": ["out/motor_dead_time.h", "out/motor_dead_time_alt.h"],
+}
+EXTRAS = ["--self-test", "--record"]
+GOLDEN = {
+    design: sorted(
+        name
+        for h in headers
+        for name in (h, h.replace(".h", "_selftest.c"), h.replace(".h", ".json"))
+    )
+    for design, headers in HEADERS.items()
 }
 
 
 @pytest.mark.parametrize("design", sorted(GOLDEN))
 def test_committed_headers_are_up_to_date(design: str) -> None:
     # from the repository root, as firmware CI would run it
-    code, _, err = run_cli(["build", f"examples/{design}.toml", "--check"], cwd=REPO)
-    assert code == 0, err
-    assert "stale" not in err
+    code, out, err = run_cli(["build", f"examples/{design}.toml", "--check", *EXTRAS], cwd=REPO)
+    assert code == 0, out + err
+    n = len(GOLDEN[design])
+    assert out.splitlines()[0] == f"check ok: 0 missing, 0 stale, {n} unchanged"
 
 
 @pytest.mark.parametrize("design", sorted(GOLDEN))
 def test_check_does_not_depend_on_the_working_directory(design: str, tmp_path: Path) -> None:
-    code, _, err = run_cli(["build", str(EXAMPLES / f"{design}.toml"), "--check"], cwd=tmp_path)
+    code, _, err = run_cli(["build", str(EXAMPLES / f"{design}.toml"), "--check", *EXTRAS],
+                           cwd=tmp_path)
     assert code == 0, err
+
+
+@pytest.mark.parametrize("design", sorted(GOLDEN))
+@pytest.mark.parametrize("encoding", ["crlf", "bom", "crlf+bom"])
+def test_crlf_and_bom_copies_of_the_examples_pass_check(
+    design: str, encoding: str, tmp_path: Path
+) -> None:
+    """A Windows checkout (CRLF line ends) or an editor's byte-order mark changes the bytes of
+    the design file but not what it means: the committed outputs stay current (issue 11)."""
+    text = (EXAMPLES / f"{design}.toml").read_text(encoding="utf-8")
+    if "crlf" in encoding:
+        text = text.replace("\n", "\r\n")
+    data = text.encode("utf-8")
+    if "bom" in encoding:
+        data = b"\xef\xbb\xbf" + data
+    (tmp_path / f"{design}.toml").write_bytes(data)
+    shutil.copytree(EXAMPLES / "out", tmp_path / "out")
+    code, out, err = run_cli(["build", str(tmp_path / f"{design}.toml"), "--check", *EXTRAS])
+    assert code == 0, out + err
+    assert "0 missing, 0 stale" in out.splitlines()[0]
+
+
+def test_a_change_of_value_makes_the_header_stale_but_a_comment_does_not(tmp_path: Path) -> None:
+    text = (EXAMPLES / "gan-buck.toml").read_text(encoding="utf-8")
+    shutil.copytree(EXAMPLES / "out", tmp_path / "out")
+    design = tmp_path / "gan-buck.toml"
+    design.write_text("# a new comment, keys unchanged\n" + text.replace(" = ", "   =   "))
+    code, out, _ = run_cli(["build", str(design), "--check"])
+    assert code == 0, out
+    design.write_text(text.replace('tolerance = "50ppm"', 'tolerance = "51ppm"'))
+    code, out, _ = run_cli(["build", str(design), "--check"])
+    assert code == 1
+    assert out.splitlines()[1].startswith("stale: ")
 
 
 @pytest.mark.parametrize("design", sorted(GOLDEN))
@@ -43,7 +92,8 @@ def test_fresh_build_equals_golden_and_reruns_are_byte_identical(
 ) -> None:
     first, second = tmp_path / "a", tmp_path / "b"
     for out in (first, second):
-        code, _, err = run_cli(["build", str(EXAMPLES / f"{design}.toml"), "--out", str(out)])
+        code, _, err = run_cli(["build", str(EXAMPLES / f"{design}.toml"), "--out", str(out),
+                                "--parents", *EXTRAS])
         assert code == 0, err
     for rel in GOLDEN[design]:
         golden = (EXAMPLES / rel).read_bytes()
@@ -57,18 +107,26 @@ def test_fresh_build_equals_golden_and_reruns_are_byte_identical(
 @pytest.mark.parametrize("design", sorted(GOLDEN))
 def test_provenance_names_inputs_by_hash_and_has_no_timestamp(design: str) -> None:
     design_path = EXAMPLES / f"{design}.toml"
-    design_sha = hashlib.sha256(design_path.read_bytes()).hexdigest()
-    for rel in GOLDEN[design]:
+    design_sha = _meaning_sha256(design_path)
+    for rel in HEADERS[design]:
         text = (EXAMPLES / rel).read_text(encoding="utf-8")
         assert f"Generated by gapforge {__version__}" in text
         assert f"design file {design}.toml sha256 {design_sha}" in text
         layout = re.search(r"layout targets/([\w.-]+\.toml) sha256 ([0-9a-f]{64})", text)
         assert layout is not None
-        assert layout.group(2) == hashlib.sha256((TARGETS / layout.group(1)).read_bytes()).hexdigest()
+        assert layout.group(2) == _meaning_sha256(TARGETS / layout.group(1))
         assert not re.search(r"\b20\d\d-\d\d-\d\d\b|\d\d:\d\d:\d\d", text)  # no date or time
         assert "/work/" not in text and str(REPO) not in text  # no absolute paths
         assert "reduced voltage with current" in text  # the caution
         assert text.endswith("\n") and "\r" not in text
+
+
+def _meaning_sha256(path: Path) -> str:
+    """The documented canonical form, computed here with the standard library alone: the parsed
+    TOML (tomllib) as JSON with sorted keys, no spaces, UTF-8 (issue 11)."""
+    data = tomllib.loads(path.read_text(encoding="utf-8-sig"))
+    text = json.dumps(data, sort_keys=True, ensure_ascii=False, separators=(",", ":"))
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
 def test_user_layout_provenance_is_independent_of_how_the_design_is_named(
@@ -92,3 +150,8 @@ def test_user_layout_provenance_is_independent_of_how_the_design_is_named(
     code, _, err = run_subprocess(["build", "project/d.toml", "--check"], cwd=tmp_path)
     assert code == 0, err
     assert (project / "dt.h").read_bytes() == golden
+    # the layout file converted to CRLF with a byte-order mark means the same: still current
+    layout = project / "my-layout.toml"
+    layout.write_bytes(b"\xef\xbb\xbf" + layout.read_bytes().replace(b"\n", b"\r\n"))
+    code, out, err = run_subprocess(["build", "d.toml", "--check"], cwd=project)
+    assert code == 0, out + err

@@ -47,7 +47,7 @@ def built(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, list[dict[str
     entries: list[dict[str, Any]] = []
     for design in DESIGNS:
         code, stdout, stderr = run_cli(
-            ["build", str(EXAMPLES / f"{design}.toml"), "--out", str(out), "--json"]
+            ["build", str(EXAMPLES / f"{design}.toml"), "--out", str(out), "--json", "--parents"]
         )
         assert code == 0, stderr
         doc = json.loads(stdout)
@@ -206,12 +206,18 @@ def test_firmware_clock_macro_mismatch_is_an_error(
     out, entries = built
     buck = next(e for e in entries if e["prefix"] == "BUCK_DT")
     header = out / buck["file"]
-    # the firmware's own clock macro (clock_macro = "APP_TIMER_CLOCK_HZ" in gan-buck.toml)
-    wrong = _compile_with(header, ["-DAPP_TIMER_CLOCK_HZ=170000000ul"], tmp_path)
+    # the firmware's own clock macro (clock_macro = "BOARD_PWM_CLOCK_HZ" in gan-buck.toml)
+    wrong = _compile_with(header, ["-DBOARD_PWM_CLOCK_HZ=170000000ul"], tmp_path)
     assert wrong.returncode != 0
-    assert "APP_TIMER_CLOCK_HZ differs from the timer clock" in wrong.stderr
-    assert "#error" in wrong.stderr
-    right = _compile_with(header, ["-DAPP_TIMER_CLOCK_HZ=160000000ul"], tmp_path)
+    # C99: the negative-array typedef names the problem (C11 and the preprocessor form: see
+    # tests/test_header_guards.py)
+    assert "BUCK_DT_clock_differs_rerun_gapforge_build" in wrong.stderr
+    pre = _compile_with(header, ["-DBOARD_PWM_CLOCK_HZ=170000000ul",
+                                 "-DGAPFORGE_CLOCK_CHECK_PREPROCESSOR"], tmp_path)
+    assert pre.returncode != 0
+    assert "BOARD_PWM_CLOCK_HZ differs from the timer clock" in pre.stderr
+    assert "#error" in pre.stderr
+    right = _compile_with(header, ["-DBOARD_PWM_CLOCK_HZ=160000000ul"], tmp_path)
     assert right.returncode == 0, right.stderr
     absent = _compile_with(header, [], tmp_path)
     assert absent.returncode == 0, absent.stderr
@@ -685,12 +691,12 @@ INVENTED = {
     "edge-whole-period-tol0": ("100MHz", "0%", "100kHz", "edge", 'value = "150ns"',
                                "split-10bit-div4"),
     "edge-fractional-period-5pct-window": ("100MHz", "5%", "30kHz", "edge",
-                                           'source = "window"', "split-9bit-subclock"),
+                                           'source = "window"', "split-10bit-tenths"),
     "center-fractional-period-odd-ppb": ("170MHz", "12.3456789ppm", "48kHz", "center",
                                          'value = "400ns"', "shared-8bit-segmented"),
     "center-subclock-asymmetric-tol0": ("150MHz", "0", "75kHz", "center",
                                         'to_high = "33.3ns"\nto_low = "51ns"',
-                                        "split-9bit-subclock"),
+                                        "split-10bit-tenths"),
     "edge-short-period-asymmetric-5pct": ("64MHz", "5%", "2.1MHz", "edge",
                                           'to_high = "100ns"\nto_low = "140ns"',
                                           "split-10bit-div4"),

@@ -76,7 +76,7 @@ def test_builtin_encodings_by_hand() -> None:
     f = load_layout("shared-16bit-plus-one").field_named("gap_minus_one")
     assert (f.decode(0), f.decode(65535)) == (1, 65536)
     # shared-8bit-segmented: top 2 bits select; 0x96 = select 2, low 22 -> 192 + 22 x 4 = 280
-    g = load_layout("shared-8bit-segmented").field_named("gap_code")
+    g = load_layout("shared-8bit-segmented").field_named("gap")
     assert g.decode(0x96) == 280
     assert [g.decode(c) for c in (0, 63, 64, 127, 128, 191, 192, 255)] == [
         0, 63, 64, 190, 192, 444, 448, 952,
@@ -85,9 +85,9 @@ def test_builtin_encodings_by_hand() -> None:
     h = load_layout("split-6bit-div2-reserved").field_named("to_high_count")
     assert h.table[0][:2] == (2, 3) and h.table[1][:2] == (2, 3)
     assert h.reserved == frozenset({0, 1})
-    # split-9bit-subclock: 16 sub-steps per clock, 2-bit divider field
-    sub = load_layout("split-9bit-subclock")
-    assert sub.sub_steps == 16 and sub.dividers == (1, 2, 4, 8) and sub.divider_field == "scale"
+    # split-10bit-tenths: 10 sub-steps per clock, 2-bit divider field
+    sub = load_layout("split-10bit-tenths")
+    assert sub.sub_steps == 10 and sub.dividers == (1, 2, 4, 8) and sub.divider_field == "scale"
 
 
 # ---------------------------------------------------------------------------------------------
@@ -272,17 +272,17 @@ def test_a_valid_user_layout_file_loads(tmp_path: Path) -> None:
 
 
 def test_targets_show_json_at_a_clock() -> None:
-    code, out, err = run_cli(["targets", "show", "split-9bit-subclock", "--clock", "160MHz",
+    code, out, err = run_cli(["targets", "show", "split-10bit-tenths", "--clock", "160MHz",
                               "--json"])
     assert code == 0, err
     doc = json.loads(out)
-    assert doc["name"] == "split-9bit-subclock" and doc["sub_steps"] == 16
-    assert [f["name"] for f in doc["fields"]] == ["to_high_fine", "to_low_fine", "scale"]
-    # step = divider / (16 x 160 MHz): 390.625 ps x divider; longest = 511 steps
+    assert doc["name"] == "split-10bit-tenths" and doc["sub_steps"] == 10
+    assert [f["name"] for f in doc["fields"]] == ["scale", "to_high_count", "to_low_count"]
+    # step = divider / (10 x 160 MHz): 625 ps x divider; longest = 1023 steps
     for row, div in zip(doc["ranges"], (1, 2, 4, 8), strict=True):
         assert row["divider"] == div
-        assert row["step_s"] == div / 2.56e9
-        assert row["edges"]["to_high"]["max_s"] == pytest.approx(511 * div / 2.56e9, rel=1e-15)
+        assert row["step_s"] == div / 1.6e9
+        assert row["edges"]["to_high"]["max_s"] == pytest.approx(1023 * div / 1.6e9, rel=1e-15)
 
 
 def test_targets_list_json() -> None:

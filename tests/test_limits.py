@@ -55,15 +55,15 @@ def test_edge_aligned_whole_counts() -> None:
 
 
 def test_center_aligned_with_sub_clock_dead_time() -> None:
-    r = fitted("split-9bit-subclock", 160 * MHZ, 25 * NS, F(50, 10**6))  # 65 sub-steps
+    r = fitted("split-10bit-tenths", 160 * MHZ, 25 * NS, F(50, 10**6))  # 41 sub-steps
     lim = pwm_limits(r, PwmSpec(500 * KHZ, "center"))
     # N = 160e6 / (2 x 500e3) = 160, period 2N = 320 clocks
     assert (lim.counts, lim.period_counts, lim.exact) == (160, 320, True)
-    # dead time 65 / 16 = 4.0625 clocks; c must exceed 4.0625 / 2 = 2.03125 -> c >= 3;
-    # low side: 160 - c > 2.03125 -> c <= 157
-    assert lim.edges["to_high"].dead_counts == F(65, 16)
+    # dead time 41 / 10 = 4.1 clocks; c must exceed 4.1 / 2 = 2.05 -> c >= 3;
+    # low side: 160 - c > 2.05 -> c <= 157
+    assert lim.edges["to_high"].dead_counts == F(41, 10)
     assert (lim.duty_min_counts, lim.duty_max_counts) == (3, 157)
-    assert lim.edges["to_high"].share == F(65, 16 * 320)  # 1.27 %
+    assert lim.edges["to_high"].share == F(41, 10 * 320)  # 1.28 %
 
 
 def test_non_integer_period_reports_the_real_frequency() -> None:
@@ -131,14 +131,14 @@ def test_too_long_share_exits_1_from_the_command_line() -> None:
 def test_pwm_json_from_the_command_line() -> None:
     code, out, _ = run_cli([
         "fit", "--clock", "160MHz", "--clock-tol", "50ppm", "--dead-time", "25ns",
-        "--target", "split-9bit-subclock", "--pwm", "500kHz", "--counting", "center", "--json",
+        "--target", "split-10bit-tenths", "--pwm", "500kHz", "--counting", "center", "--json",
     ])
     assert code == 0
     pwm = json.loads(out)["pwm"]
     assert (pwm["compare_counts"], pwm["period_counts"]) == (160, 320)
     assert (pwm["duty_min_counts"], pwm["duty_max_counts"]) == (3, 157)
     assert pwm["real_hz"] == 500e3 and pwm["exact"] is True
-    assert pwm["edges"]["to_low"]["dead_counts"] == 4.0625
+    assert pwm["edges"]["to_low"]["dead_counts"] == 4.1
 
 
 def test_pwm_faster_than_two_counts_is_bad_input() -> None:

@@ -105,7 +105,7 @@ sub_steps = 1
 dividers = [1, 2]
 divider_field = "div"
 [[field]]
-name = "gap_code"
+name = "gap"
 role = "both"
 offset = 0
 width = 7

@@ -1,41 +1,67 @@
-"""`gapforge build`: fit every output of a design file and write the C headers."""
+"""`gapforge build`: fit every output of a design file and write the C headers.
+
+The first lines are the answer (per output: verdict, register word, worst-case dead times, or
+every reason it fails); the build report follows. Writing is all or nothing: every output's path
+is checked first (no two the same file once normalised or ignoring case, none inside another, no
+unportable character), a header whose bytes would not change is left untouched ("unchanged"),
+and missing folders are created only with --parents. `--check` writes nothing and lists missing,
+stale and unchanged files; its text, JSON and exit code agree.
+"""
 
 from __future__ import annotations
 
 import sys
-from pathlib import Path
+from pathlib import Path, PurePosixPath
+from typing import Any
 
 import click
 
 from gapforge.base.caution import SHORT as CAUTION
-from gapforge.base.files import write_files
+from gapforge.base.errors import GapforgeError
+from gapforge.base.files import check_output_set, commit, compare, prepare
 from gapforge.cli.options import diagram_options, emit_json, json_option
-from gapforge.outputs.header import render_headers
+from gapforge.outputs.answer import plan_answer
 from gapforge.outputs.views import plan_json, plan_text
-from gapforge.pipeline.build import plan_design
+from gapforge.pipeline.build import BuildPlan, plan_design
 from gapforge.pipeline.design import load_design
+from gapforge.timer.limits import counter_problem
+
+# refused in an output's file name: control characters, and what Windows file systems or a C
+# #include "..." line cannot hold
+_UNPORTABLE = set('"*<>|?:\\') | {chr(c) for c in range(32)} | {chr(127)}
 
 
 @click.command()
 @click.argument("design", type=click.Path(dir_okay=False, path_type=Path))
-@click.option(
-    "--out",
-    "out_dir",
-    type=click.Path(file_okay=False, path_type=Path),
-    default=None,
-    help="Directory for the headers (default: the design file's directory).",
-)
-@click.option(
-    "--check",
-    is_flag=True,
-    help="Write nothing; exit 1 listing headers that are missing or stale (for CI).",
-)
+@click.option("--out", "out_dir", type=click.Path(file_okay=False, path_type=Path), default=None,
+              help="Directory for the headers (default: the design file's directory).")
+@click.option("--parents", is_flag=True,
+              help="Create missing folders for the outputs (without it a missing folder is an "
+              "error, and a failed build never creates one).")
+@click.option("--check", is_flag=True,
+              help="Write nothing; list missing, stale and unchanged files; exit 1 when any is "
+              "missing or stale (for CI).")
+@click.option("--details", is_flag=True, help="With --check: print the build report too.")
+@click.option("--self-test", "self_test", is_flag=True,
+              help="Also write <header>_selftest.c beside each header: a C program that "
+              "recomputes the derived macros (compile and run it in firmware CI).")
+@click.option("--record", is_flag=True,
+              help="Also write <header>.json beside each header: the fitted values as a "
+              "versioned JSON record (schema gapforge-dead-time-record).")
+@click.option("--strict", is_flag=True,
+              help="Refuse (exit 1, nothing written) when a PWM count does not fit the design's "
+              "[pwm] counter_bits, instead of warning.")
 @diagram_options
 @json_option
 def command(
     design: Path,
     out_dir: Path | None,
+    parents: bool,
     check: bool,
+    details: bool,
+    self_test: bool,
+    record: bool,
+    strict: bool,
     no_diagram: bool,
     ascii_only: bool,
     as_json: bool,
@@ -44,36 +70,127 @@ def command(
 
     Nothing is written unless every output fits: an error leaves existing files untouched.
     """
-    loaded = load_design(design)
-    plan = plan_design(loaded)
-    if as_json:
-        emit_json(plan_json(plan))
-    else:
-        click.echo(plan_text(plan))
-        if not no_diagram and plan.outputs and plan.outputs[0].fit.ok:
-            from gapforge.outputs.diagram import pair_diagram_for_fit
-
-            first = plan.outputs[0]
-            click.echo("")
-            click.echo(pair_diagram_for_fit(first.fit, first.limits, ascii_only=ascii_only))
-    if plan.verdict != "ok":
-        if not as_json:
-            click.echo("nothing written: fix the verdict above first", err=True)
-            click.echo(CAUTION)
-        sys.exit(1)
-    directory = out_dir if out_dir is not None else design.parent
-    texts = {directory / name: text for name, text in render_headers(plan).items()}
+    plan = plan_design(load_design(design))
+    problems = _strict_problems(plan) if strict else []
+    ok = plan.verdict == "ok" and not problems
+    texts = _texts(plan, design, out_dir, self_test, record) if ok else {}
     if check:
-        stale = [
-            p for p, t in texts.items() if not p.is_file() or p.read_text(encoding="utf-8") != t
-        ]
-        for p in stale:
-            click.echo(f"stale: {p}", err=True)
-        if not as_json:
-            click.echo(CAUTION)
-        sys.exit(1 if stale else 0)
-    written = write_files(texts)
-    if not as_json:
-        for p in written:
-            click.echo(f"wrote {p}")
+        _check(plan, texts, ok, problems, details, no_diagram, ascii_only, as_json)
+        return
+    prepared = prepare(texts, parents=parents)  # every path and folder checked before output
+    if as_json:
+        doc = plan_json(plan)
+        if not ok:
+            doc["strict"] = problems
+            emit_json(doc)
+            sys.exit(1)
+        outcome = commit(prepared)
+        doc["files"] = {"written": [str(p) for p in outcome.written],
+                        "unchanged": [str(p) for p in outcome.unchanged]}
+        emit_json(doc)
+        return
+    _report(plan, problems, no_diagram, ascii_only)
+    if not ok:
+        click.echo("nothing written: fix the verdict above first", err=True)
         click.echo(CAUTION)
+        sys.exit(1)
+    outcome = commit(prepared)
+    for p in outcome.written:
+        click.echo(f"wrote {p}")
+    for p in outcome.unchanged:
+        click.echo(f"unchanged {p}")
+    click.echo(CAUTION)
+
+
+def _strict_problems(plan: BuildPlan) -> list[str]:
+    return [
+        f"{op.output.prefix}: {counter_problem(op.limits)}"
+        for op in plan.outputs
+        if op.limits is not None and counter_problem(op.limits)
+    ]
+
+
+def _texts(
+    plan: BuildPlan, design: Path, out_dir: Path | None, self_test: bool, record: bool
+) -> dict[Path, str]:
+    """Every file of the build, rendered, with its path checked before anything is written."""
+    from gapforge.outputs.header import header_text
+
+    directory = out_dir if out_dir is not None else design.parent
+    texts: dict[Path, str] = {}
+    paths: list[Path] = []  # every target, duplicates kept (pathlib already folds "./")
+    for i, op in enumerate(plan.outputs):
+        name = op.output.file
+        bad = sorted({c for c in name if c in _UNPORTABLE})
+        if bad:
+            shown = ", ".join(repr(c) for c in bad)
+            raise GapforgeError(f"unportable character(s) {shown} in the file name",
+                                f"{design}: output[{i}].file")
+        texts[directory / name] = header_text(plan, op)
+        paths.append(directory / name)
+        if self_test:
+            from gapforge.outputs.selftest import selftest_name, selftest_text
+
+            texts[directory / selftest_name(name)] = selftest_text(plan, op)
+            paths.append(directory / selftest_name(name))
+        if record:
+            from gapforge.outputs.record import record_text
+
+            json_name = str(PurePosixPath(name).with_suffix(".json"))
+            texts[directory / json_name] = record_text(plan, op)
+            paths.append(directory / json_name)
+    check_output_set(paths)
+    return texts
+
+
+def _report(plan: BuildPlan, problems: list[str], no_diagram: bool, ascii_only: bool) -> None:
+    for line in plan_answer(plan):
+        click.echo(line)
+    for line in problems:
+        click.echo(f"fail (strict): {line}")
+    click.echo("")
+    click.echo(plan_text(plan))
+    if not no_diagram and plan.outputs and plan.outputs[0].fit.ok:
+        from gapforge.outputs.diagram import pair_diagram_for_fit
+
+        first = plan.outputs[0]
+        click.echo("")
+        click.echo(pair_diagram_for_fit(first.fit, first.limits, ascii_only=ascii_only))
+
+
+def _check(
+    plan: BuildPlan,
+    texts: dict[Path, str],
+    ok: bool,
+    problems: list[str],
+    details: bool,
+    no_diagram: bool,
+    ascii_only: bool,
+    as_json: bool,
+) -> None:
+    """Compare without writing; the verdict is ok only when every file is present and current."""
+    outcome = compare(texts)
+    verdict = "ok" if ok and not outcome.missing and not outcome.stale else "fail"
+    lists = {"missing": outcome.missing, "stale": outcome.stale, "unchanged": outcome.unchanged}
+    if as_json:
+        doc: dict[str, Any] = plan_json(plan)
+        doc["verdict"] = verdict  # the check's: ok only when the design builds and all is current
+        doc["check"] = {k: [str(p) for p in v] for k, v in lists.items()}
+        doc["strict"] = problems
+        emit_json(doc)
+    else:
+        counts = ", ".join(f"{len(v)} {k}" for k, v in lists.items())
+        if ok:
+            click.echo(f"check {verdict}: {counts}")
+        else:
+            click.echo("check fail: the design does not build, so no file can be current")
+            for line in [*plan_answer(plan), *problems]:
+                click.echo(f"  {line}")
+        for kind, paths in lists.items():
+            for p in paths:
+                click.echo(f"{kind}: {p}")
+        if details:
+            click.echo("")
+            _report(plan, problems, no_diagram, ascii_only)
+        click.echo(CAUTION)
+    sys.exit(0 if verdict == "ok" else 1)

@@ -109,6 +109,10 @@ def command(
         doc["reason"] = "" if verdict == "ok" else verdict
         emit_json(doc)
     else:
+        from gapforge.outputs.answer import fit_answer
+
+        click.echo(fit_answer(result, verdict))  # the answer first (issue 10)
+        click.echo("")
         click.echo(fit_text(result, limits))
         if not no_diagram and result.ok:
             from gapforge.outputs.diagram import pair_diagram_for_fit

@@ -25,6 +25,8 @@ from gapforge.cli.options import Quantity
 @click.option("--glitch", type=Quantity("s", allow_zero=True), default="0", show_default=True,
               help="Pulses shorter than this are glitches: listed, never hidden (a gap ends at "
               "the first on-edge, glitch or not); an on-pulse glitch fails the capture.")
+@click.option("--parents", is_flag=True,
+              help="Create missing folders of --output (without it a missing folder is an error).")
 def command(
     design: Path,
     output: Path,
@@ -34,6 +36,7 @@ def command(
     active_low_high: bool,
     active_low_low: bool,
     glitch: Fraction,
+    parents: bool,
 ) -> None:
     """Write an HTML design report: timing diagrams, the analog reference's node ramps, the
     quantization staircases, Monte Carlo and capture histograms, tables of inputs, results,
@@ -76,7 +79,7 @@ def command(
                             active_low_low=active_low_low)
         measurement = measure_capture(gate, limits=capture_limits(plan), glitch_width_s=glitch)
     text = render_report(plan, measurement)
-    written = write_files({output: text})
+    written = write_files({output: text}, parents=parents)
     # the answer first: the verdicts in the one vocabulary, then what was written
     click.echo(f"report: design {verdict_word(plan.verdict)}"
                + ("" if measurement is None else f", capture {capture_word(measurement.verdict)}")

@@ -19,7 +19,7 @@ from gapforge.pipeline.design import Design, Output
 from gapforge.pipeline.policy import DesignWindow, window_of
 from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
 from gapforge.timer.layouts import EDGES
-from gapforge.timer.limits import PwmLimits, pwm_limits
+from gapforge.timer.limits import PwmLimits, counter_problem, pwm_limits
 
 VERDICTS = ("ok", "unreachable", "empty-window", "too-short", "too-long")
 
@@ -106,11 +106,10 @@ def plan_design(design: Design) -> BuildPlan:
     )
     verdict = "ok"
     reasons: list[str] = []
-    for o in outputs:
+    for o in outputs:  # every failing output's reasons; the verdict is the first failure's
         if o.verdict != "ok":
-            verdict = o.verdict
+            verdict = o.verdict if verdict == "ok" else verdict
             reasons.extend(f"{o.output.prefix}: {r}" for r in o.reasons)
-            break
     return BuildPlan(
         design,
         request,
@@ -201,6 +200,8 @@ def _plan_output(
         return OutputPlan(output, result, None, {}, "unreachable", tuple(reasons), ())
     limits = pwm_limits(result, design.pwm) if design.pwm is not None else None
     warnings.extend(w for w in fit_warnings(result) if not w.startswith("the clock tolerance"))
+    if limits is not None and counter_problem(limits):
+        warnings.append(counter_problem(limits))  # refused under `build --strict`
     verdict = "ok"
     for e in EDGES:
         edge = result.edges[e]
@@ -208,8 +209,8 @@ def _plan_output(
         if window is not None:
             j = judge(window[e], edge.achieved_min_s, edge.achieved_max_s)
             judgements[e] = j
-            if j.verdict != "ok" and verdict == "ok":
-                verdict = j.verdict
+            if j.verdict != "ok":  # every failing edge's reason; the verdict is the first's
+                verdict = j.verdict if verdict == "ok" else verdict
                 reasons.append(_reason(e, j, window[e], edge.achieved_min_s, edge.achieved_max_s))
         if reference is not None:
             r = reference[e]

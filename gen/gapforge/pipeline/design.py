@@ -2,7 +2,7 @@
 
     format = 1
     [timer]      clock, tolerance, clock_macro
-    [pwm]        frequency, counting = "edge" | "center"
+    [pwm]        frequency, counting = "edge" | "center", counter_bits (optional)
     [dead_time]  value (both edges) or to_high / to_low, rounding, source
     [reference]  the analog RC-diode-Schmitt network (read by gapforge.analog)
     [stage]      the power stage's timing and costs (read by gapforge.stage.window)
@@ -20,7 +20,6 @@ design needs (for `window --design`), so both read those sections with the same 
 
 from __future__ import annotations
 
-import hashlib
 import re
 from dataclasses import dataclass
 from fractions import Fraction
@@ -28,6 +27,7 @@ from pathlib import Path
 from typing import Any
 
 from gapforge.base.errors import GapforgeError
+from gapforge.base.provenance import content_sha256
 from gapforge.base.schema import Reader, Table, load_toml
 from gapforge.pipeline.policy import SOURCES
 from gapforge.timer.fit import ROUNDINGS
@@ -41,7 +41,7 @@ _TOP = frozenset(
     | {"adaptive", "gate_driver"}
 )
 _TIMER = frozenset({"clock", "tolerance", "clock_macro"})
-_PWM = frozenset({"frequency", "counting"})
+_PWM = frozenset({"frequency", "counting", "counter_bits"})
 _DEAD = frozenset({"value", "to_high", "to_low", "rounding", "source"})
 _OUTPUT = frozenset({"target", "prefix", "file", "struct"})
 
@@ -79,7 +79,7 @@ class Design:
 
 
 def load_design(path: Path) -> Design:
-    data, raw = load_toml(path)
+    data, _raw = load_toml(path)
     reader = Reader(str(path))
     top = reader.table(data, "")
     top.check_keys(_TOP, {"format", "timer", "output"})
@@ -97,7 +97,7 @@ def load_design(path: Path) -> Design:
     return Design(
         path=path,
         label=path.name,
-        sha256=hashlib.sha256(raw).hexdigest(),
+        sha256=content_sha256(data),  # what the file means (issue 11), not its bytes
         name=top.string("name", path.stem),
         description=top.string("description", ""),
         clock_hz=clock,
@@ -170,8 +170,10 @@ def _read_pwm(top: Table, clock: Fraction | None) -> PwmSpec | None:
     pwm_t.check_keys(_PWM, {"frequency"})
     freq = pwm_t.quantity("frequency", "Hz", Fraction(1))
     counting = pwm_t.string("counting", "edge", COUNTINGS)
+    # optional width of the PWM counter: a period or compare count that does not fit warns
+    bits = pwm_t.integer("counter_bits", 0, 2, 64) if pwm_t.has("counter_bits") else None
     assert freq is not None
-    pwm = PwmSpec(freq, counting)
+    pwm = PwmSpec(freq, counting, bits)
     if clock is not None and not top.reader.problems:
         try:
             compare_counts(clock, pwm)

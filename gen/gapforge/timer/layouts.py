@@ -25,6 +25,7 @@ from functools import cached_property
 from pathlib import Path
 
 from gapforge.base.errors import GapforgeError, quoted
+from gapforge.base.provenance import content_sha256
 from gapforge.base.schema import Reader, Table, load_toml
 
 EDGES = ("to_high", "to_low")
@@ -304,7 +305,7 @@ def parse_layout(data: dict[str, object], raw: bytes, source: str, default_name:
         summary=summary,
         description=description.strip(),
         source=source,
-        sha256=hashlib.sha256(raw).hexdigest(),
+        sha256=content_sha256(data),  # what the file means (issue 11), not its bytes
         register_bits=register_bits,
         sub_steps=sub_steps,
         dividers=dividers,

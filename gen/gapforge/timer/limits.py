@@ -29,6 +29,7 @@ COUNTINGS = ("edge", "center")
 class PwmSpec:
     frequency_hz: Fraction
     counting: str = "edge"
+    counter_bits: int | None = None  # the PWM counter's width, when known
 
     def __post_init__(self) -> None:
         if self.frequency_hz <= 0:
@@ -91,6 +92,22 @@ def compare_counts(clock_hz: Fraction, spec: PwmSpec) -> int:
             "at least 2 are needed"
         )
     return counts
+
+
+def counter_problem(lim: PwmLimits) -> str:
+    """Why the PWM counts do not fit the counter width ("" when they do, or no width is given).
+
+    The counter runs 0..N-1 and the compare value reaches N (100 % duty), so N itself must fit:
+    N <= 2^bits - 1.
+    """
+    bits = lim.spec.counter_bits
+    if bits is None or lim.counts <= (1 << bits) - 1:
+        return ""
+    return (
+        f"the PWM needs a compare value of {lim.counts} counts (top count {lim.counts - 1}), "
+        f"more than a {bits}-bit counter holds ({(1 << bits) - 1}): lower the timer clock, use a "
+        "prescaler or raise the PWM frequency"
+    )
 
 
 def pwm_limits(result: FitResult, spec: PwmSpec) -> PwmLimits:

@@ -1,0 +1,80 @@
+"""The first lines of `fit` and `build`: the answer before the breakdown (issue 10).
+
+Per output: the verdict, the register word (hexadecimal, padded to the register width) and the
+achieved worst-case dead time of each edge over the clock tolerance; for a failing output every
+reason. Display rounds to four significant digits toward the safe side: a worst-case minimum
+down, a worst-case maximum up (the exact values stay in JSON and headers).
+"""
+
+from __future__ import annotations
+
+from fractions import Fraction
+
+from gapforge.pipeline.build import BuildPlan, OutputPlan
+from gapforge.timer.fit import FitResult
+from gapforge.timer.layouts import EDGES
+
+_PREFIXES = ((Fraction(1), "s"), (Fraction(1, 10**3), "ms"), (Fraction(1, 10**6), "us"),
+             (Fraction(1, 10**9), "ns"), (Fraction(1, 10**12), "ps"))
+
+
+def seconds(value: Fraction, *, up: bool, digits: int = 4) -> str:
+    """Four significant digits, rounded down (or up), in one engineering unit."""
+    if value == 0:
+        return "0 s"
+    scale, unit = next(((s, u) for s, u in _PREFIXES if abs(value) >= s), _PREFIXES[-1])
+    scaled = value / scale
+    exponent = len(str(abs(scaled.numerator) // abs(scaled.denominator))) - digits
+    quantum = Fraction(10) ** exponent
+    steps = scaled / quantum
+    whole = -(-steps.numerator // steps.denominator) if up else steps.numerator // steps.denominator
+    rounded = whole * quantum
+    decimals = max(0, -exponent)
+    text = f"{float(rounded):.{decimals}f}"
+    return f"{text} {unit}"
+
+
+def register_text(result: FitResult) -> str:
+    assert result.register is not None
+    digits = max(1, result.layout.register_bits // 4)
+    return f"register 0x{result.register:0{digits}x}"
+
+
+def worst_case_text(result: FitResult) -> str:
+    parts = []
+    for e in EDGES:
+        edge = result.edges[e]
+        assert edge.achieved_min_s is not None and edge.achieved_max_s is not None
+        parts.append(
+            f"{e} {seconds(edge.achieved_min_s, up=False)} .. {seconds(edge.achieved_max_s, up=True)}"
+        )
+    lo = {result.edges[e].achieved_min_s for e in EDGES}
+    hi = {result.edges[e].achieved_max_s for e in EDGES}
+    if len(lo) == 1 and len(hi) == 1:
+        return "worst case both edges " + parts[0].split(" ", 1)[1]
+    return "worst case " + ", ".join(parts)
+
+
+def fit_answer(result: FitResult, verdict: str) -> str:
+    """One line: the fit's answer."""
+    word = "ok" if verdict == "ok" else "fail"
+    if not result.ok:
+        return f"{word}: {result.layout.name} cannot reach the request ({result.verdict})"
+    return f"{word}: {register_text(result)}, {worst_case_text(result)}"
+
+
+def output_answer(op: OutputPlan) -> str:
+    p = op.output.prefix
+    if op.verdict == "ok":
+        return f"ok: {p} {register_text(op.fit)}, {worst_case_text(op.fit)}"
+    reasons = "; ".join(op.reasons) or op.verdict
+    if op.fit.ok:
+        return f"fail: {p} {register_text(op.fit)}, {worst_case_text(op.fit)}: {reasons}"
+    return f"fail: {p}: {reasons}"
+
+
+def plan_answer(plan: BuildPlan) -> list[str]:
+    """One line per output (every failing output with every reason), or the plan's reason."""
+    if not plan.outputs:
+        return [f"fail: {r}" for r in plan.reasons] or [f"fail: {plan.verdict}"]
+    return [output_answer(op) for op in plan.outputs]
