@@ -77,6 +77,6 @@ def test_build_and_its_json_repeat_the_coupling_finding(tmp_path: Path) -> None:
         lines.append(line)
     design = tmp_path / "cj.toml"
     design.write_text("\n".join(lines) + "\n", encoding="utf-8")
-    _code, out, _err = run_cli(["build", str(design), "--json"], cwd=tmp_path)
+    _code, out, _err = run_cli(["build", str(design), "--json", "--parents"], cwd=tmp_path)
     warnings = json.loads(out)["warnings"]
     assert any("junction capacitance (30 pF at 0 V) is 91 % of C" in w for w in warnings)
