@@ -25,6 +25,7 @@ HEADERS = {
     "adaptive-silicon": ["out/adaptive_silicon.h"],
     "gan-buck": ["out/buck_dead_time.h"],
     "motor-inverter": ["out/motor_dead_time.h", "out/motor_dead_time_alt.h"],
+    "sic-inverter": ["out/sic_dead_time.h"],
 }
 EXTRAS = ["--self-test", "--record"]
 GOLDEN = {
