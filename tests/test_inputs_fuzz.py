@@ -159,7 +159,7 @@ def test_fuzz_design_files_through_build_and_window(
     for n, rng in _cases(9_000):
         design.write_bytes(_mutate(rng, DESIGN))
         before = _files(tmp_path)
-        code, out, err = _run(["build", str(design), "--json", "--out", str(out_dir)], capsys)
+        code, out, err = _run(["build", str(design), "--json", "--out", str(out_dir), "--parents"], capsys)
         _check(f"design case {n}", code, out, err, str(design))
         if code != 0:
             assert _files(tmp_path) == before, f"design case {n}: a file was written"

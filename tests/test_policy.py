@@ -55,7 +55,7 @@ def test_build_requests_exactly_the_stage_minimum_and_warns_how_short_the_old_bo
 ) -> None:
     # failed before the policy change: the old network's range narrowed the window to nothing
     # (empty-window, exit 1, nothing written) although 400 ns .. 1.2 us is easy to meet
-    code, out, err = run_cli(["build", str(SIC), "--out", str(tmp_path), "--json"])
+    code, out, err = run_cli(["build", str(SIC), "--out", str(tmp_path), "--json", "--parents"])
     assert code == 0, err
     doc = json.loads(out)
     assert doc["verdict"] == "ok"
@@ -72,7 +72,7 @@ def test_build_requests_exactly_the_stage_minimum_and_warns_how_short_the_old_bo
     assert f"{far['to_high']} short" in short[0] and f"{far['to_low']} short" in short[1]
     finding = f"{far['to_high']} short of the stage minimum 400 ns"
     # ... and the finding stays visible in the text, the header comment and the report
-    code, text, _ = run_cli(["build", str(SIC), "--out", str(tmp_path), "--no-diagram"])
+    code, text, _ = run_cli(["build", str(SIC), "--out", str(tmp_path), "--no-diagram", "--parents"])
     assert code == 0 and finding in text
     comment = " ".join(header.replace("\n *", " ").split())  # the comment's wrapped lines
     assert finding in comment
@@ -84,7 +84,7 @@ def test_build_requests_exactly_the_stage_minimum_and_warns_how_short_the_old_bo
 
 def test_the_opt_in_says_which_side_of_an_empty_intersection_is_empty(tmp_path: Path) -> None:
     design = _variant(tmp_path, "window-within-reference")
-    code, out, err = run_cli(["build", str(design), "--json"])
+    code, out, err = run_cli(["build", str(design), "--json", "--parents"])
     assert code == 1, err
     doc = json.loads(out)
     assert doc["verdict"] == "fail" and doc["reason"] == "empty-window"
@@ -103,7 +103,7 @@ def test_the_opt_in_says_which_side_of_an_empty_intersection_is_empty(tmp_path: 
 def test_reproducing_the_old_network_is_judged_against_the_window(tmp_path: Path) -> None:
     # the old worst-case minimum (85.849 ns) is far below the stage minimum: the new design
     # fails (exit 1), and the reason names the window, not the old board
-    code, out, _ = run_cli(["build", str(_variant(tmp_path, "reference-minimum")), "--json"])
+    code, out, _ = run_cli(["build", str(_variant(tmp_path, "reference-minimum")), "--json", "--parents"])
     assert code == 1
     doc = json.loads(out)
     assert doc["verdict"] == "fail" and doc["reason"] == "too-short"
@@ -132,7 +132,7 @@ def test_every_command_shows_the_same_window_for_the_same_file(
     def ps(value: float) -> int:
         return round(value * 1e12)
 
-    code, out, err = run_cli(["build", str(design), "--json", "--out", str(tmp_path)])
+    code, out, err = run_cli(["build", str(design), "--json", "--out", str(tmp_path), "--parents"])
     assert code == 0, err
     built = json.loads(out)["window"]
     assert {e: (ps(w["min_s"]), ps(w["max_s"])) for e, w in built.items()} == shown
