@@ -202,7 +202,7 @@ def test_shared_divider_compromise_is_explained(tmp_path: Path) -> None:
                       .replace('tolerance = "100ppm"', 'tolerance = "0"')
                       .replace('"50kHz"', '"10kHz"')
                       + _output("split-10bit-div4", "A", "a.h"))
-    code, _, err = run_cli(["build", str(design), "--record"])
+    code, out, err = run_cli(["build", str(design), "--record"])
     assert code == 0, err
     header = (tmp_path / "a.h").read_text()
     note = ("to_high is 10 ns longer than its own best code: the divider is shared, and to_low is "
@@ -211,6 +211,7 @@ def test_shared_divider_compromise_is_explained(tmp_path: Path) -> None:
     assert note in " ".join(line.lstrip(" *") for line in header.splitlines())
     record = json.loads((tmp_path / "a.json").read_text())
     assert record["shared"] == [note]
+    assert out.splitlines()[1] == f"  A shared: {note}"  # in the answer block too
 
 
 # ---------------------------------------------------------------------------------------------

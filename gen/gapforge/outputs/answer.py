@@ -11,6 +11,7 @@ from __future__ import annotations
 from fractions import Fraction
 
 from gapforge.pipeline.build import BuildPlan, OutputPlan
+from gapforge.timer.compromise import compromises
 from gapforge.timer.fit import FitResult
 from gapforge.timer.layouts import EDGES
 
@@ -77,4 +78,9 @@ def plan_answer(plan: BuildPlan) -> list[str]:
     """One line per output (every failing output with every reason), or the plan's reason."""
     if not plan.outputs:
         return [f"fail: {r}" for r in plan.reasons] or [f"fail: {plan.verdict}"]
-    return [output_answer(op) for op in plan.outputs]
+    lines = []
+    for op in plan.outputs:
+        lines.append(output_answer(op))
+        # an edge a shared divider or field moved from its own best code: which, how far, why
+        lines += [f"  {op.output.prefix} shared: {c.text()}" for c in compromises(op.fit)]
+    return lines
