@@ -35,6 +35,7 @@ from gapforge.outputs.svg import (
     nice_ticks,
     place_labels,
     step_points,
+    text_width,
     vline,
     x_axis,
     y_axis,
@@ -170,12 +171,14 @@ def transition_figure(
     band_x(fig, xa(float(amin)), xa(float(amax)), 60, 200, PALETTE["tolerance"],
            f"tolerance-{edge}")
     labels = []
-    for bound, name in ((lo, "min"), (hi, "max")):
+    for bound, name, side in ((lo, "min", -1), (hi, "max", +1)):
         if bound is not None:
             vline(fig, xa(float(bound)), 56, 204, PALETTE["window"], f"window-{name}")
-            labels.append((xa(float(bound)), f"window {name}"))
-    # close edges: the max label steps down a row instead of covering the min label
-    place_labels(fig, labels, 40, cls="window-label")
+            # the min label left of its line, the max label right of its line (clear of both
+            # lines); place_labels keeps them inside the figure and apart
+            half = text_width(f"window {name}", 10) / 2
+            labels.append((xa(float(bound)) + side * (half + 4), f"window {name}"))
+    place_labels(fig, labels, 70, cls="window-label")
     vline(fig, xa(float(requested)), 56, 204, PALETTE["request"], "request")
     fig.polyline(_wave([(x_lo, 1), (0.0, 0)], x_hi, xa, rows[off_key], amp), PALETTE[off_key],
                  f"gate-{off_key}")
