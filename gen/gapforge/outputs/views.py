@@ -9,8 +9,15 @@ from fractions import Fraction
 from typing import Any
 
 from gapforge.base import caution
-from gapforge.base.display import both_edges, format_percent, format_si, significant, verdict_word
-from gapforge.base.quantities import format_bound, format_quantity, format_tolerance
+from gapforge.base.display import (
+    both_edges,
+    format_percent,
+    format_range,
+    format_si,
+    significant,
+    verdict_word,
+)
+from gapforge.base.quantities import format_quantity, format_tolerance
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.fit import FitResult, fit_warnings, step_seconds
 from gapforge.timer.layouts import EDGES, Layout, describe_codes
@@ -24,17 +31,26 @@ def _f(x: Fraction | None) -> float | None:
 
 
 def _t(x: Fraction | None) -> str:
-    return "-" if x is None else format_quantity(x, "s", 6)
+    """A nominal time for display, in the one number style (four significant digits)."""
+    return "-" if x is None else format_si(x, "s")
 
 
 def _down(x: Fraction | None) -> str:
-    """A guaranteed minimum for display: cut toward shorter, never rounded up past the truth."""
-    return "-" if x is None else format_bound(x, "s", "down")
+    """A guaranteed minimum (or a margin) for display: cut toward shorter, never rounded up past
+    the truth."""
+    return "-" if x is None else format_si(x, "s", toward="down")
 
 
 def _up(x: Fraction | None) -> str:
     """A maximum (or a required minimum) for display: cut toward longer."""
-    return "-" if x is None else format_bound(x, "s", "up")
+    return "-" if x is None else format_si(x, "s", toward="up")
+
+
+def _range(lo: Fraction | None, hi: Fraction | None) -> str:
+    """A worst-case range with one prefix, widened outward (the minimum cut down, the maximum up)."""
+    if lo is None or hi is None:
+        return f"{_down(lo)} .. {_up(hi)}"
+    return format_range(lo, hi, "s", cut="outward")
 
 
 def table(headers: list[str], rows: list[list[str]]) -> str:
@@ -397,7 +413,7 @@ def plan_text(plan: BuildPlan) -> str:
         for e in EDGES:
             r = plan.reference[e]
             lines.append(
-                f"  old network (evidence) {e}: {_t(r.min_s)} .. {_t(r.max_s)} "
+                f"  old network (evidence) {e}: {_range(r.min_s, r.max_s)} "
                 f"(typical {_t(r.typ_s)})"
             )
     if plan.window is not None:
@@ -405,13 +421,15 @@ def plan_text(plan: BuildPlan) -> str:
         for e in EDGES:
             lo, hi = plan.window[e]
             lines.append(
-                f"  {what} {e}: {_up(lo)} .. {_down(hi) if hi is not None else 'no maximum'}"
+                f"  {what} {e}: "
+                + (format_range(lo, hi, "s", cut="inward") if hi is not None and lo is not None
+                   else f"{_up(lo)} .. no maximum")
             )
     for w in plan.warnings:
         lines.append(f"warning: {w}")
     if plan.request is not None:
         lines.append(
-            "  requested: " + ", ".join(f"{e} {_t(plan.request.requested(e))}" for e in EDGES)
+            "  requested: " + ", ".join(f"{e} {_up(plan.request.requested(e))}" for e in EDGES)
         )
     rows = []
     for op in plan.outputs:
@@ -488,7 +506,7 @@ def _output_rows(op: OutputPlan) -> list[list[str]]:
     for e in EDGES:
         x = op.fit.edges[e]
         j = op.judgements.get(e)
-        margin = "-" if j is None else f"{_t(j.margin_low_s)} / {_t(j.margin_high_s)}"
+        margin = "-" if j is None else f"{_down(j.margin_low_s)} / {_down(j.margin_high_s)}"
         rows.append(
             [
                 op.output.prefix if e == "to_high" else "",
@@ -496,7 +514,7 @@ def _output_rows(op: OutputPlan) -> list[list[str]]:
                 e,
                 "-" if x.code is None else str(x.code),
                 _t(x.achieved_s),
-                f"{_down(x.achieved_min_s)} .. {_up(x.achieved_max_s)}",
+                _range(x.achieved_min_s, x.achieved_max_s),
                 margin,
                 op.verdict if e == "to_high" else "",
             ]
