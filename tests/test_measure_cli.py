@@ -160,7 +160,9 @@ def _serial_run(monkeypatch: pytest.MonkeyPatch, data: bytes, args: list[str],
 
     def writer() -> None:
         if opened.wait(timeout=60):
-            os.write(master, data)
+            view = memoryview(data)
+            while view:  # os.write may take only part of it when the terminal's buffer is full
+                view = view[os.write(master, view):]
 
     thread = threading.Thread(target=writer, daemon=True)
     thread.start()
