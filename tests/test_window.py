@@ -203,3 +203,17 @@ def test_bad_per_switch_options_name_the_option(args: list[str], where: str) -> 
     assert code == 2
     assert len(err.strip().splitlines()) == 1
     assert err.startswith(f"gapforge: error: {where}: ")
+
+
+def test_design_window_answers_on_the_first_line() -> None:
+    # issue 10: with --design the answer (verdict and both windows) still leads; the policy block
+    # and the old network's evidence follow it. The invented SiC example's stage window is
+    # 400 ns .. 1.2 us on both edges (examples/sic-inverter.toml).
+    from conftest import run_cli
+
+    root = Path(__file__).resolve().parents[1]
+    code, out, _ = run_cli(["window", "--design", str(root / "examples" / "sic-inverter.toml")])
+    assert code == 0
+    lines = out.splitlines()
+    assert lines[0] == "window: ok - both edges: 400 .. 1200 ns (loss budget)"
+    assert lines[1].startswith("Design window (policy 'window'")

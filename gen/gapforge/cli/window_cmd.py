@@ -323,8 +323,9 @@ def design_text(dw: DesignWindow) -> str:
     if dw.reference is not None:
         for e, r in dw.reference.items():
             out.append(
-                f"  old network (evidence) {e}: {format_si(r.min_s, 's')} .. "
-                f"{format_si(r.max_s, 's')} (typical {format_si(r.typ_s, 's')})"
+                f"  old network (evidence) {e}: "
+                f"{format_range(r.min_s, r.max_s, 's', cut='outward')} "
+                f"(typical {format_si(r.typ_s, 's')})"
             )
     out.extend(f"  EMPTY: {why}" for why in dw.empty.values())
     out.extend(f"warning: {w}" for w in dw.evidence)
@@ -485,7 +486,9 @@ def command(**values: Any) -> None:
     else:
         text = window_text(window, costs, dead_times, judged, verdict, reason)
         if dw is not None:
-            text = design_text(dw) + "\n" + text
+            # the answer stays the first line; the design's policy block follows it
+            answer, _, rest = text.partition("\n")
+            text = answer + "\n" + design_text(dw) + "\n" + rest
         click.echo(text, nl=False)
     if verdict != "ok":
         raise SystemExit(1)
