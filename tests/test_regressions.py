@@ -208,3 +208,26 @@ def test_issue9_a_gan_vsd_measured_at_the_gate_off_bias_gets_it_added_once() -> 
     code, out, err = run_cli([*base, "--vsd-at-gate-off"])
     assert code == 0, err
     assert json.loads(out)["costs"]["reverse_voltage_v"] == 5.0
+
+
+def test_issue_15_junction_coupling_finding_reaches_build_json_and_report(tmp_path: Path) -> None:
+    # issue 15: a diode whose junction capacitance (30 pF) is 250 % of C (12 pF) couples the step
+    # straight onto the node; the old network's finding is named in build (text and JSON) and in
+    # the report's verdict box, while the new design (window policy) still fits: exit 0.
+    example = Path(__file__).resolve().parents[1] / "examples" / "sic-inverter.toml"
+    text = example.read_text(encoding="utf-8")
+    text = text.replace('c = "100p"', 'c = "12p"').replace('r = "2.2k"', 'r = "10k"')
+    text = text.replace("CJO=1.5p", "CJO=30p")
+    design = tmp_path / "coupled.toml"
+    design.write_text(text, encoding="utf-8")
+    finding = "junction capacitance (30 pF at 0 V) is 250 % of C"
+    code, out, _ = run_cli(["build", str(design), "--out", str(tmp_path / "o"), "--parents"])
+    assert code == 0 and finding in out
+    code, out, _ = run_cli(["build", str(design), "--check", "--json", "--details"])
+    assert finding in out
+    report = tmp_path / "r.html"
+    code, _, _ = run_cli(["report", str(design), "-o", str(report)])
+    assert code == 0
+    html = report.read_text(encoding="utf-8")
+    box = html[: html.index("CAUTION")]  # the verdict box stands above the caution
+    assert finding in box
