@@ -30,7 +30,7 @@ from conftest import BUILTINS, EXAMPLES, run_cli
 
 # -Wconversion passes too, so it is part of the set
 WARNINGS = ["-Wall", "-Wextra", "-Wpedantic", "-Werror", "-Wconversion"]
-DESIGNS = ("gan-buck", "motor-inverter")
+DESIGNS = ("gan-buck", "motor-inverter", "adaptive-gan", "adaptive-silicon")
 
 
 def _compiler(name: str) -> str:
@@ -52,7 +52,7 @@ def built(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, list[dict[str
         assert code == 0, stderr
         doc = json.loads(stdout)
         entries.extend(doc["outputs"])
-    assert len(entries) == 3
+    assert len(entries) == 5  # gan-buck 1, motor-inverter 2, adaptive-gan 1, adaptive-silicon 1
     for entry in entries:
         assert (out / entry["file"]).is_file()
     return out, entries
@@ -704,7 +704,7 @@ def test_derived_macros_of_the_examples_recomputed_in_c(
         doc = json.loads(stdout)
         assert doc["window"] is not None  # both examples carry a [stage] window
         checked += _check_limits(EXAMPLES / f"{design}.toml", out, doc, tmp_path)
-    assert checked == 3
+    assert checked == 5
 
 
 STAGE_TOML = (
