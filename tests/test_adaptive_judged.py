@@ -90,8 +90,7 @@ def _gan(tmp_path: Path, edit: dict[str, str] | None = None) -> Path:
 
 
 def _adaptive(path: Path):  # type: ignore[no-untyped-def]
-    plan = plan_design(load_design(path))
-    return plan, plan.outputs[0]
+    return plan_design(load_design(path)).outputs[0]
 
 
 # ---------------------------------------------------------------------------------------------
@@ -146,7 +145,7 @@ def test_turning_once_gives_2c_minus_1_clocks() -> None:
 
 def test_turn_clocks_is_a_design_input(tmp_path: Path) -> None:
     path = _gan(tmp_path, {'counting = "center"': 'counting = "center"\nturn_clocks = 2'})
-    plan, op = _adaptive(path)
+    op = _adaptive(path)
     assert op.limits.spec.turn_clocks == 2
     # two clocks at each turn: the table's longest 11.9 clocks need 2c > 11.9, c >= 6
     assert op.limits.duty_min_counts == 6
@@ -169,11 +168,11 @@ def test_fit_takes_the_convention() -> None:
     # 2c > 4.1 -> c >= 3; 2c - 1 > 4.1 -> c >= 3 as well; the low side: 2(N - c) > 4.1 ->
     # c <= 157; 2(N - c) + 1 > 4.1 -> c <= 158 (turning once gives the low side a clock)
     assert set(mins.values()) == {3}
-    code, out, _ = run_cli(base + ["--turn-clocks", "1"])
+    code, out, _ = run_cli([*base, "--turn-clocks", "1"])
     assert json.loads(out)["pwm"]["duty_max_counts"] == 158
     code, out, _ = run_cli(base)
     assert json.loads(out)["pwm"]["duty_max_counts"] == 157
-    code, _, err = run_cli(base[:-3] + ["--turn-clocks", "1"])  # edge-aligned (default)
+    code, _, err = run_cli([*base[:-3], "--turn-clocks", "1"])  # edge-aligned (default)
     assert code == 2 and "--turn-clocks" in err
 
 
@@ -203,7 +202,7 @@ def test_every_entry_is_judged_by_the_same_rule(tmp_path: Path) -> None:
     # recomputed here from the entries with the walked counter's edge-aligned rule (c clocks)
     design = tmp_path / "si150.toml"
     design.write_text(SI150)
-    plan, op = _adaptive(design)
+    op = _adaptive(design)
     a = op.adaptive
     n = op.limits.counts
     failing = set()
@@ -222,7 +221,7 @@ def test_gan_header_duty_limits_hold_for_the_whole_table(tmp_path: Path) -> None
     # the shipped example: bin 0 uses code 119 = 11.9 clocks (tenths of a clock); the fixed word
     # 4.5. Unstated turning: the high command 2c - 1 must exceed 11.9 -> c >= 7 (the old
     # header's 3 held for 4.5 clocks only); the low side 2(N - c) > 11.9 -> c <= 194
-    plan, op = _adaptive(EXAMPLES / "adaptive-gan.toml")
+    op = _adaptive(EXAMPLES / "adaptive-gan.toml")
     assert max(b.entries[s][e].code for b in op.adaptive.table.bins for s in SIGNS
                for e in EDGES) == 119
     assert (op.limits.duty_min_counts, op.limits.duty_max_counts) == (7, 194)
@@ -257,7 +256,7 @@ def test_gate_driver_limits_judged_per_bin(tmp_path: Path) -> None:
 
 def test_explicit_policy_sets_the_table_floor(tmp_path: Path) -> None:
     path = _gan(tmp_path, {'source = "window"': 'source = "explicit"\nvalue = "60ns"'})
-    plan, op = _adaptive(path)
+    op = _adaptive(path)
     a = op.adaptive
     assert a.floor_s == {"to_high": 60 * NS, "to_low": 60 * NS}  # max(27.6 ns, 60 ns)
     for b in a.table.bins:
@@ -266,6 +265,7 @@ def test_explicit_policy_sets_the_table_floor(tmp_path: Path) -> None:
                 # a request is a minimum (common practice): every entry at the fast clock
                 assert b.entries[sign][e].achieved_min_s >= 60 * NS, (b.current_min_a, sign, e)
     code, out, _ = run_cli(["build", str(path)])
+    assert code == 0
     assert "table floor per edge = max(stage minimum, the request of dead-time policy" in out
     assert "'explicit'): to_high 60 ns, to_low 60 ns" in out
 
@@ -275,7 +275,7 @@ def test_explicit_policy_sets_the_table_floor(tmp_path: Path) -> None:
 
 
 def test_hard_turn_on_taken_where_it_is_worst() -> None:
-    plan, op = _adaptive(EXAMPLES / "adaptive-gan.toml")
+    op = _adaptive(EXAMPLES / "adaptive-gan.toml")
     a = op.adaptive
     bound = F(32, 10**9) * 48 * 400_000  # (16 + 16) nC x 48 V x 400 kHz = 614.4 mW
     b0 = a.table.bins[0]
@@ -314,7 +314,7 @@ def test_fundamental_integrated_over_bins_matches_fourier_quadrature(tmp_path: P
     # bin's hard edge changes and the top bin alone is wrong (the 4 % case)
     path = _gan(tmp_path, {'target = "split-10bit-tenths"': 'target = "shared-8bit-linear"',
                            'adc_bits = 12': 'adc_bits = 12\npeak_current = "20A"'})
-    plan, op = _adaptive(path)
+    op = _adaptive(path)
     a = op.adaptive
     inv = a.inverter
     assert inv is not None
@@ -344,10 +344,11 @@ def test_fundamental_integrated_over_bins_matches_fourier_quadrature(tmp_path: P
 
 
 def test_threshold_line_includes_the_current_error() -> None:
-    plan, op = _adaptive(EXAMPLES / "adaptive-gan.toml")
+    op = _adaptive(EXAMPLES / "adaptive-gan.toml")
     # 32 nC / (75 - 27.6) ns = 675.1 mA true (charge balance), + 100 mA error = 775.1 mA measured
     assert op.adaptive.threshold_a["positive"] == F(32, 10**9) / (F(474, 10) * NS) + F(1, 10)
     code, out, _ = run_cli(["build", str(EXAMPLES / "adaptive-gan.toml"), "--check", "--details"])
+    assert code == 0
     assert "above about 775.2 mA measured (the current error 100 mA included" in out
 
 
@@ -367,7 +368,7 @@ def test_c_node_adds_its_charge_to_the_swing(tmp_path: Path) -> None:
     # charge balance Q = C x V: 100 pF at 48 V = 4.8 nC more; bin [1 A, 2 A) swings
     # (32 + 4.8) nC / 0.9 A = 40.889 ns (Erickson & Maksimovic ch. 20)
     path = _gan(tmp_path, {'qoss = "16nC"': 'qoss = "16nC"\nc_node = "100pF"'})
-    plan, op = _adaptive(path)
+    op = _adaptive(path)
     a = op.adaptive
     assert a.spec.swing_charge == F(32, 10**9) + F(100, 10**12) * 48
     soft = a.table.bins[1].entries["positive"]["to_low"]
@@ -375,6 +376,7 @@ def test_c_node_adds_its_charge_to_the_swing(tmp_path: Path) -> None:
     code, out, _ = run_cli(["build", str(path)])
     assert "c_node 100 pF x Vbus" in out
     code, out, _ = run_cli(["build", str(EXAMPLES / "adaptive-gan.toml"), "--check", "--details"])
+    assert code == 0
     assert "add the node's other capacitance (inductor winding, layout)" in out
     path = _gan(tmp_path, {'qoss = "16nC"': 'qoss = "16nC"\nc_node = "100pF"',
                            'bus_voltage = "48V"\n': ""})
@@ -384,6 +386,7 @@ def test_c_node_adds_its_charge_to_the_swing(tmp_path: Path) -> None:
 
 def test_adc_half_lsb_is_stated() -> None:
     code, out, _ = run_cli(["build", str(EXAMPLES / "adaptive-gan.toml"), "--check", "--details"])
+    assert code == 0
     # a mid-tread converter's code k covers (k - 1/2 .. k + 1/2) LSB (common practice)
     assert "a mid-tread converter enters a code half an LSB (6.25 mA) early" in out
     header = (EXAMPLES / "out" / "adaptive_gan.h").read_text()

@@ -251,9 +251,10 @@ def _plan_output(
         verdict = "too-long" if verdict == "ok" else verdict
         reasons.extend(table_reasons)
     driver = _driver(design, result, limits, adaptive)
-    if driver is not None and driver.verdict != "ok" and verdict == "ok":
-        verdict = driver.verdict
-        reasons.append(driver.reason)
+    if driver is not None and driver.verdict != "ok":
+        verdict = driver.verdict if verdict == "ok" else verdict
+        scope = "" if adaptive is None else "over every entry of the current-indexed table: "
+        reasons.append(scope + driver.reason)
     return OutputPlan(
         output, result, limits, judgements, verdict, tuple(reasons), tuple(warnings), costs,
         adaptive, driver,

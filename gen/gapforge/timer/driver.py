@@ -32,7 +32,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from fractions import Fraction
 
-from gapforge.base.quantities import ceil_fraction, floor_fraction
+from gapforge.base.quantities import ceil_fraction
 from gapforge.base.schema import Table
 from gapforge.timer.limits import PwmLimits, duty_range
 
