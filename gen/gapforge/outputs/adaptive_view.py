@@ -151,6 +151,28 @@ def _amps(b: Bin) -> str:
     return f"{format_si(b.current_min_a, 'A')} .. {top}"
 
 
+def _measurement_lines(plan: AdaptivePlan) -> list[str]:
+    """The threshold per sign (a measured current: the error included) and the ADC's half LSB."""
+    spec = plan.spec
+    lines = []
+    for sign in SIGNS:
+        thr = plan.threshold_a[sign]
+        if thr is not None:
+            lines.append(
+                f"  {sign} current: the swing fits the window above about "
+                f"{format_si(thr, 'A', toward='up')} measured (the current error"
+                f" {format_si(spec.current_error, 'A')} included; before rounding to codes)"
+            )
+    if spec.adc is not None:
+        lines.append(
+            "  ADC: each bin starts at the code rounded away from 0 A; a mid-tread converter"
+            " enters a code half an LSB"
+            f" ({format_si(spec.adc.amps_per_code / 2, 'A')}) early, so current_error"
+            f" ({format_si(spec.current_error, 'A')}) must include that half LSB"
+        )
+    return lines
+
+
 def _charge_words(plan: AdaptivePlan) -> str:
     spec = plan.spec
     if spec.c_node is not None:
@@ -230,21 +252,7 @@ def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
         " hard turn-on at the bin's smallest current less the error, fastest clock: at most"
         " (swing charge) x Vbus x fsw where the swing does not finish (Eoss <= Qoss x V)"
     )
-    for sign in SIGNS:
-        thr = plan.threshold_a[sign]
-        if thr is not None:
-            lines.append(
-                f"  {sign} current: the swing fits the window above about "
-                f"{format_si(thr, 'A', toward='up')} measured (the current error"
-                f" {format_si(spec.current_error, 'A')} included; before rounding to codes)"
-            )
-    if spec.adc is not None:
-        lines.append(
-            "  ADC: each bin starts at the code rounded away from 0 A; a mid-tread converter"
-            " enters a code half an LSB"
-            f" ({format_si(spec.adc.amps_per_code / 2, 'A')}) early, so current_error"
-            f" ({format_si(spec.current_error, 'A')}) must include that half LSB"
-        )
+    lines.extend(_measurement_lines(plan))
     if plan.inverter is not None:
         inv = plan.inverter
         lines.append(
