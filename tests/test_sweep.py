@@ -440,7 +440,10 @@ def fits_pwm(row: Any, frequency: Fraction, counting: str) -> bool:
     d_low = dead_counts(raw, row.edges["to_low"].steps, row.divider)
     if max(d_high, d_low) * 2 >= n * per:  # at least half a period
         return False
-    return any(per * c > d_high and per * (n - c) > d_low for c in range(n + 1))
+    # centre-aligned without a stated turning convention: the high side's command is the worse
+    # of 2c (two clocks at each turn) and 2c - 1 (turning at the top once); issue 19
+    short = 1 if counting == "center" else 0
+    return any(per * c - short > d_high and per * (n - c) > d_low for c in range(n + 1))
 
 
 def shortest_safe_steps(row: Any, tol: Fraction, limits: Limits, edge: str) -> int:
