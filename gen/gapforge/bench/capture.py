@@ -81,6 +81,10 @@ class GateCapture:
     resolution_ticks: int = 1  # a measured gap is within this many ticks of the true gap
     lost_events: int = 0  # edges known to be missing (a serial stream's sequence gaps)
     time_unit_assumed: bool = False  # the file states no time unit (a VCD without $timescale)
+    # every change is an edge report (a serial stream): a level reported twice means a lost edge;
+    # elsewhere (a VCD's vectors and $dumpall, sampled levels) a level may be restated
+    edge_events: bool = False
+    resolution_origin: str = "one tick"  # where the resolution comes from, in words
 
 
 # one chunk of change events of both gates in time order: times (ticks), sides (0 = high side,
@@ -110,10 +114,18 @@ class CaptureStream:
         lost_events: int = 0,
         time_unit_assumed: bool = False,
         position: Callable[[], int] | None = None,
+        edge_events: bool = False,
+        resolution_origin: str = "one tick",
+        inferred: Callable[[], tuple[int, str] | None] | None = None,
     ) -> None:
         if resolution_ticks < 1:
             raise ValueError("resolution_ticks must be at least 1")
         self.time_unit_assumed = time_unit_assumed
+        self.edge_events = edge_events
+        self.resolution_origin = resolution_origin
+        # a coarser resolution the file implies (its stated sample rate, or the common step of
+        # its change times), final once a pass has been read to the end
+        self.inferred = inferred if inferred is not None else (lambda: None)
         self.position = position  # bytes of the source read so far (None: not a file stream)
         self.tick_s = tick_s
         self.source = source
@@ -152,7 +164,8 @@ class CaptureStream:
                              self._finished, high_initial=self.high_initial,
                              low_initial=self.low_initial, resolution_ticks=self.resolution_ticks,
                              lost_events=self.lost_events, time_unit_assumed=self.time_unit_assumed,
-                             position=position)
+                             position=position, edge_events=self.edge_events,
+                             resolution_origin=self.resolution_origin, inferred=self.inferred)
 
     @property
     def end(self) -> int:
@@ -190,7 +203,9 @@ def stream_of(capture: GateCapture) -> CaptureStream:
                          high_initial=capture.high_initial, low_initial=capture.low_initial,
                          resolution_ticks=capture.resolution_ticks,
                          lost_events=capture.lost_events,
-                         time_unit_assumed=capture.time_unit_assumed)
+                         time_unit_assumed=capture.time_unit_assumed,
+                         edge_events=capture.edge_events,
+                         resolution_origin=capture.resolution_origin)
 
 
 def _merge(
@@ -278,11 +293,13 @@ def make_capture(
     resolution_ticks: int = 1,
     lost_events: int = 0,
     time_unit_assumed: bool = False,
+    resolution_origin: str = "one tick",
 ) -> GateCapture:
     """Build a capture from raw levels (as recorded), applying the polarity options.
 
     `edges_only`: every change is an edge, so each signal's level before its first change is
-    the opposite of that change (a stream of edge reports). `resolution_ticks`: a measured gap
+    the opposite of that change (a stream of edge reports), and a level reported twice means an
+    edge in between was lost. `resolution_ticks`: a measured gap
     is within this many ticks of the true one (1 = one tick)."""
     if resolution_ticks < 1:
         raise ValueError("resolution_ticks must be at least 1")
@@ -296,7 +313,8 @@ def make_capture(
     hi0 = int(1 - hv[0]) if edges_only and hv.size and hv[0] <= 1 else 2
     lo0 = int(1 - lv[0]) if edges_only and lv.size and lv[0] <= 1 else 2
     return GateCapture(tick_s, ht, hv, lt, lv, max(last, end or 0), source, warnings, hi0, lo0,
-                       resolution_ticks, lost_events, time_unit_assumed)
+                       resolution_ticks, lost_events, time_unit_assumed, edge_events=edges_only,
+                       resolution_origin=resolution_origin)
 
 
 def load_capture(

@@ -22,8 +22,11 @@ Transitions are read from the joint state of the two gates (high side, low side)
   and then leaves both gates off again). A missing-edge finding that a glitch explains (a gate
   on for a glitch and off again, or off for a glitch and on again) is not listed.
 - a missing edge: a dead time that ends with the same gate turning on again (the other gate never
-  turned on), a level reported twice in a row (an edge between them was lost), or an edge the
-  capture itself reports lost (a serial stream's sequence gap). With a window set, a capture
+  turned on), in a stream of edge reports (the serial stream) a level reported twice in a row
+  (an edge between them was lost), or an edge the capture itself reports lost (a serial
+  stream's sequence gap). A VCD restates levels (a vector is written whole when any of its
+  bits changes, `$dumpall` writes every value again) and a sampled CSV repeats them: a
+  restated level is no evidence of a lost edge there and changes nothing. With a window set, a capture
   with missing edges, or with an unknown level after the first known levels (a dead time
   through x/z cannot be measured), cannot prove the dead time: the verdict is "inconclusive"
   (exit 1) unless something fails outright.
@@ -256,7 +259,8 @@ def _findings(raw: Engine, stream: CaptureStream, has_window: bool) -> _Found:
 
 def _run(stream: CaptureStream, chunks: Iterator[Events], worst: int, width: int) -> Engine:
     """One pass over the events."""
-    engine = Engine(stream.tick_s, (stream.high_initial, stream.low_initial), worst, width)
+    engine = Engine(stream.tick_s, (stream.high_initial, stream.low_initial), worst, width,
+                    edge_events=stream.edge_events)
     for chunk in chunks:
         engine.feed(*chunk)
     engine.finish(stream.end)
