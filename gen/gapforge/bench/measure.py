@@ -96,12 +96,14 @@ def measure_capture(
     for p in percentiles:
         if not 0 <= p <= 100:
             raise GapforgeError(f"percentile {p} must be between 0 and 100", "--percentiles")
-    resolution = _resolution(stream, resolution_s)
+    if resolution_s is not None and resolution_s <= 0:
+        raise GapforgeError("the resolution must be above zero", "--resolution")
     width = ceil_fraction(glitch_width_s / tick) if glitch_width_s > 0 else 0
     try:
         raw = _run(stream, stream.chunks(), worst, width)
     except UnorderedTimes:
         raw = _run(stream, stream.sorted_chunks(), worst, width)
+    resolution, origin = _resolution(stream, resolution_s)
     _require_transitions(raw, stream.source or "capture")
     limits = dict(limits or {})
     has_window = any(
@@ -136,6 +138,7 @@ def measure_capture(
         warnings=stream.warnings,
         mean_period_s=raw.record.mean_period(tick),
         resolution_s=tick * resolution,
+        resolution_origin=origin,
         possible_overlaps=found.possible,
         glitch_count=raw.glitch.total,
         missing_edge_count=found.missing_count,
@@ -143,14 +146,20 @@ def measure_capture(
     )
 
 
-def _resolution(stream: CaptureStream, resolution_s: Fraction | None) -> int:
-    """The capture's resolution in ticks, widened (never narrowed) by `resolution_s`."""
-    resolution = stream.resolution_ticks
+def _resolution(stream: CaptureStream, resolution_s: Fraction | None) -> tuple[int, str]:
+    """The resolution in ticks and where it comes from (read after a pass): the capture's own
+    floor, the coarser one its file implies (a stated sample rate, the common step of its
+    change times), or `resolution_s` instead of the implied one (never below the floor)."""
+    floor, origin = stream.resolution_ticks, stream.resolution_origin
     if resolution_s is not None:
-        if resolution_s <= 0:
-            raise GapforgeError("the resolution must be above zero", "--resolution")
-        resolution = max(resolution, ceil_fraction(resolution_s / stream.tick_s))  # up: safe
-    return resolution
+        given = ceil_fraction(resolution_s / stream.tick_s)  # up: safe
+        if given >= floor:
+            return given, "--resolution"
+        return floor, f"{origin} (--resolution is finer than the capture can state)"
+    inferred = stream.inferred()
+    if inferred is not None and inferred[0] > floor:
+        return inferred
+    return floor, origin
 
 
 def _require_transitions(raw: Engine, where: str) -> None:

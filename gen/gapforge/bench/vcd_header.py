@@ -64,6 +64,7 @@ class Header:
     body_offset: int
     timescale_given: bool = True
     declared: int = 0  # every $var in the file
+    sample_rate_hz: Fraction | None = None  # a rate the header's $comment states ("at 16 MHz")
 
 
 def parse_timescale(words: Sequence[str], where: str) -> Fraction:
@@ -76,6 +77,20 @@ def parse_timescale(words: Sequence[str], where: str) -> Fraction:
             f"bad $timescale {shown!r} (expected 1, 10 or 100 and s, ms, us, ns, ps, fs)", where
         )
     return int(match.group(1)) * TIME_UNITS[match.group(2)]
+
+
+_RATE = re.compile(rb"\bat\s+(\d{1,12}(?:\.\d{1,12})?)\s*([kMG]?)Hz\b")
+_RATE_PREFIX = {b"": 1, b"k": 10**3, b"M": 10**6, b"G": 10**9}
+
+
+def stated_rate(text: bytes) -> Fraction | None:
+    """The sample rate a logic analyser states in a comment ("... channels at 16 MHz"), exact;
+    None when the comment states none."""
+    match = _RATE.search(text)
+    if match is None:
+        return None
+    rate = Fraction(match.group(1).decode("ascii")) * _RATE_PREFIX[match.group(2)]
+    return rate if rate > 0 else None
 
 
 _REF = re.compile(r"^(?P<name>[^\[]+?)(?:\[(?P<msb>-?\d+)(?::(?P<lsb>-?\d+))?\])?$")
@@ -149,7 +164,7 @@ def read_header(path: Path, names: Sequence[str] | None = None) -> Header:
         raise GapforgeError("no $var declarations", where)
     given = reader.timescale is not None
     return Header(reader.timescale or DEFAULT_TIMESCALE, tuple(reader.variables), body_offset,
-                  given, reader.declared)
+                  given, reader.declared, reader.rate)
 
 
 def _interesting(leaves: set[bytes] | None) -> Callable[[bytes], object]:
@@ -186,6 +201,7 @@ class _Declarations:
         self.scopes: list[str] = []
         self.variables: list[Variable] = []
         self.timescale: Fraction | None = None
+        self.rate: Fraction | None = None  # a sample rate stated in a $comment
         self.read = 0  # $var commands parsed
         self.declared = 0  # $var words in the header
 
@@ -213,6 +229,8 @@ class _Declarations:
         elif word == b"$timescale":
             args = [w.decode("ascii") for w in words[1:]]
             self.timescale = parse_timescale(args, f"{self.where}: $timescale")
+        elif word == b"$comment" and self.rate is None:
+            self.rate = stated_rate(body[len(b"$comment"):])
         # $comment, $date, $version and unknown header commands carry only text
 
     def _var(self, args: list[bytes]) -> None:
