@@ -370,7 +370,10 @@ def _kind(path: Path) -> str:
             start = handle.read(256).lstrip()
     except OSError as exc:
         raise GapforgeError(f"cannot read: {exc.strerror}", str(path)) from None
-    return "vcd" if start.startswith(b"$") else "csv"
+    # a VCD, or one with another tool's line in front (the VCD reader says what it found)
+    vcd = start.startswith(b"$") or any(
+        word in start for word in (b"$date", b"$version", b"$timescale", b"$scope", b"$var"))
+    return "vcd" if vcd else "csv"
 
 
 __all__ = ["CaptureStream", "CsvData", "Events", "GateCapture", "UnorderedTimes", "invert",

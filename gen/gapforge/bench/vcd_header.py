@@ -3,7 +3,7 @@
 The header is read up to `$enddefinitions $end` and cut into commands at each `$end`. A header
 may declare a million signals of which two are wanted, so a `$var` is parsed into a `Variable`
 only when its name could be one asked for (same last name component) or when it is among the
-first `HINT_VARS` commands (the names offered in a did-you-mean hint); the others are only
+first `HINT_VARS` commands (the names listed when a requested one is not found); the others are only
 counted, and a C-level test skips them before any Python work. Every command is still checked for its shape (a word outside a command, a command
 without `$end`, an `$upscope` without a `$scope`).
 
@@ -14,7 +14,6 @@ measurement cannot judge a window with an assumed unit.
 
 from __future__ import annotations
 
-import difflib
 import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -24,7 +23,7 @@ from pathlib import Path
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import TIME_UNITS
 
-HINT_VARS = 2000  # declarations kept whatever their name, for did-you-mean hints
+HINT_VARS = 2000  # declarations kept whatever their name, to list when a name is not found
 DEFAULT_TIMESCALE = Fraction(1, 10**9)
 
 
@@ -144,6 +143,7 @@ def read_header(path: Path, names: Sequence[str] | None = None) -> Header:
         bad = next(i for i, b in enumerate(head) if b > 127)
         line = head[:bad].count(b"\n") + 1
         raise GapforgeError("binary data in the VCD header", f"{where}:{line}")
+    _before_declarations(head, where)
     leaves = None if names is None else {_leaf(n).encode("ascii", "replace") for n in names}
     reader = _Declarations(where, leaves)
     commands = _commands(head)
@@ -165,6 +165,21 @@ def read_header(path: Path, names: Sequence[str] | None = None) -> Header:
     given = reader.timescale is not None
     return Header(reader.timescale or DEFAULT_TIMESCALE, tuple(reader.variables), body_offset,
                   given, reader.declared, reader.rate)
+
+
+def _before_declarations(head: bytes, where: str) -> None:
+    """A line before the first $ command (another tool's metadata, e.g. "META ...") is
+    refused with what the file seems to be and what is expected."""
+    start = head.lstrip()
+    if not start or start.startswith(b"$"):
+        return
+    first = start.split(b"\n", 1)[0].strip()
+    line = head[: len(head) - len(start)].count(b"\n") + 1
+    shown = first[:40].decode("ascii", "replace")
+    raise GapforgeError(
+        f"the line {shown!r} comes before the VCD declarations: the file seems to be a value "
+        "change dump with another tool's line in front; a VCD begins with a $ command ($date, "
+        "$timescale, $scope, $var): remove the lines before it", f"{where}:{line}")
 
 
 def _interesting(leaves: set[bytes] | None) -> Callable[[bytes], object]:
@@ -236,7 +251,7 @@ class _Declarations:
     def _var(self, args: list[bytes]) -> None:
         self.read += 1
         if self.leaves is not None and self.read > HINT_VARS:
-            ref = b"".join(args[3:])
+            ref = b" ".join(args[3:])
             if ref.split(b"[", 1)[0] not in self.leaves:
                 return  # not asked for: counted only
         text = [a.decode("ascii") for a in args]
@@ -251,7 +266,9 @@ def _parse_var(args: list[str], scopes: list[str], where: str) -> Variable:
     if not size_text.isdigit() or len(size_text) > 9 or int(size_text) < 1:
         shown = " ".join(args)[:60]
         raise GapforgeError(f"$var {shown!r}: size must be a positive integer", where)
-    ref = "".join(args[3:])
+    # the reference as written: a logic analyser writes a channel name with spaces as typed
+    # ("High Side PWM"); a range written apart ("data [7:0]") joins its name
+    ref = re.sub(r"\s+\[", "[", " ".join(args[3:]))
     match = _REF.match(ref)
     if not match:
         shown = " ".join(args)[:60]
@@ -311,13 +328,10 @@ def select(header: Header, name: str, where: str) -> Selection:
 
 
 def _hint(header: Header, wanted: str, base: str) -> str:
+    """The names the file has (no guess: a close name may be the other gate)."""
+    del wanted, base
     names = sorted({v.display() for v in header.variables})
-    leaves = [w.path.rsplit(".", 1)[-1] for w in header.variables]
-    close = difflib.get_close_matches(base.rsplit(".", 1)[-1], leaves, n=1)
-    hint = difflib.get_close_matches(wanted, names, n=1) or [
-        v.display() for v in header.variables if v.path.rsplit(".", 1)[-1] in close
-    ][:1]
-    if hint:
-        return f"; did you mean {hint[0]!r}?"
-    more = f" (of {header.declared})" if header.declared > len(names) else ""
-    return f"; the file has {', '.join(names[:12])}{more}"
+    more = f" (of {header.declared} declared)" if header.declared > len(names) else ""
+    shown = ", ".join(repr(n) for n in names[:24])
+    rest = f" and {len(names) - 24} more" if len(names) > 24 else ""
+    return f"; the file has {shown}{rest}{more}"
