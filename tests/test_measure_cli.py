@@ -125,7 +125,7 @@ def test_design_file(tmp_path: Path) -> None:
     expected = measurement_expectations(design)
     path = _vcd(tmp_path / "ok.vcd", 30, 40)
     result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low", "gate_l",
-                                      "--design", str(design), "--json"])
+                                      "--design", str(design), "--output", "MOTOR_DT", "--json"])
     assert result.exit_code in (0, 1), result.output
     doc = json.loads(result.output)
     for edge in ("to_high", "to_low"):

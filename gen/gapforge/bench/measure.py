@@ -84,6 +84,7 @@ def measure_capture(
     bins: int = 20,
     worst: int = 5,
     resolution_s: Fraction | None = None,
+    limits_source: str = "",
 ) -> Measurement:
     """Measure every dead time, overlap, glitch and missing edge; judge against `limits`.
 
@@ -139,6 +140,7 @@ def measure_capture(
         mean_period_s=raw.record.mean_period(tick),
         resolution_s=tick * resolution,
         resolution_origin=origin,
+        limits_source=limits_source,
         possible_overlaps=found.possible,
         glitch_count=raw.glitch.total,
         missing_edge_count=found.missing_count,
@@ -208,14 +210,17 @@ def _judge_edges(raw: Engine, limits: Mapping[str, Limits], tick: Fraction, reso
         if unproven and not below:
             out.reasons.append(f"{name}: {unproven} transition(s) with no dead time proven "
                                "(gap less than the capture resolution)")
+        r = tick * resolution  # a gap is proven outside the prediction only beyond r
         if lim.predicted_min_s is not None and st.min_s is not None and (
-            st.min_s < lim.predicted_min_s
+            st.min_s + r < lim.predicted_min_s
         ):
-            out.notes.append(f"{name}: shortest measured gap is below the predicted minimum")
+            out.notes.append(f"{name}: shortest measured gap is below the predicted minimum "
+                             "by more than the resolution")
         if lim.predicted_max_s is not None and st.max_s is not None and (
-            st.max_s > lim.predicted_max_s
+            st.max_s - r > lim.predicted_max_s
         ):
-            out.notes.append(f"{name}: longest measured gap is above the predicted maximum")
+            out.notes.append(f"{name}: longest measured gap is above the predicted maximum "
+                             "by more than the resolution")
     return out
 
 

@@ -128,6 +128,8 @@ def _edge_lines(m: Measurement) -> list[str]:
         if st.above_window:
             lines.append(f"{name}: {count(st.above_window, 'gap')} not proven below the window "
                          f"maximum by the resolution ({_q(m.resolution_s)})")
+    if m.limits_source:
+        lines.append(f"Compared with: {m.limits_source}")
     if m.window_judged:
         lines.append(f"Judged with the resolution {_q(m.resolution_s)}: a gap passes only if "
                      "gap - resolution >= min and gap + resolution <= max.")
@@ -199,6 +201,7 @@ def measurement_json(m: Measurement, stream: SerialResult | None = None) -> dict
         "tick_s": float(m.tick_s),
         "resolution_s": float(m.resolution_s),
         "resolution_origin": m.resolution_origin,
+        "limits_source": m.limits_source,
         "duration_s": float(m.duration_s),
         "edges": {name: _edge_json(m, name) for name in EDGE_NAMES},
         "overlaps": len(m.overlaps),
