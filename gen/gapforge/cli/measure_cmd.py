@@ -170,9 +170,13 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
         if stream.garbage_stop:
             raise GapforgeError(stream.stop_reason, serial_url)
         if stream.capture is None:
+            from gapforge.bench.serial_stream import HEADER_EVERY
+
             raise GapforgeError(
                 f"no capture header received ({stream.status.lines} lines, stopped: "
-                f"{stream.stop_reason})", serial_url)
+                f"{stream.stop_reason}); the capture firmware must repeat its header line every "
+                f"{HEADER_EVERY} lines (gfcap_header_due in `gapforge firmware`'s helper)",
+                serial_url)
         gate = stream.capture
     else:
         if capture is None:
@@ -234,6 +238,13 @@ def _at_terminal(as_json: bool) -> bool:
 
 
 def _progress(status: StreamStatus) -> None:
+    if status.clock_hz is None:
+        from gapforge.bench.serial_stream import HEADER_EVERY
+
+        click.echo(f"\rwaiting for the next capture header (the firmware repeats it every "
+                   f"{HEADER_EVERY} lines): {status.lines} lines so far, "
+                   f"{status.elapsed_s:.1f} s   ", err=True, nl=False)
+        return
     click.echo(
         f"\r{status.transitions} transitions, {status.edges} edges, {status.lines} lines, {status.garbage} garbage, "
         f"{status.lost_lines} lost, {status.elapsed_s:.1f} s   ",
