@@ -4,6 +4,7 @@ exact window judgement at the tick boundary."""
 from __future__ import annotations
 
 import itertools
+import re
 from fractions import Fraction
 from unittest import mock
 
@@ -573,3 +574,46 @@ def test_glitches_and_possible_overlaps_against_a_per_event_loop(
     assert [(int(o.at_s / TICK), int(o.duration_s / TICK)) for o in m.possible_overlaps] == runs
     if runs:
         assert m.verdict == "fail"
+
+
+# --- issue 20: a restated level (a VCD vector written whole, a $dumpall checkpoint, a repeated
+# sample) is no evidence of anything: it never changes a result -------------------------------
+
+def _restated(times: list[int], levels: list[int], picks: list[tuple[int, int]], end: int,
+              ) -> tuple[list[int], list[int]]:
+    """The same signal with its current level written again: after change i (index picked
+    modulo the count), somewhere before the next change (or the end), `offset` into that span."""
+    out = [(t, i, 0, v) for i, (t, v) in enumerate(zip(times, levels, strict=True))]
+    for index, offset in picks:
+        i = index % len(times)
+        stop = times[i + 1] if i + 1 < len(times) else end
+        at = times[i] + offset % (stop - times[i] + 1)
+        out.append((at, i, 1, levels[i]))  # after change i, before change i + 1
+    out.sort()
+    return [e[0] for e in out], [e[3] for e in out]
+
+
+@settings(max_examples=200, deadline=None)
+@given(events, st.lists(st.tuples(st.integers(0, 99), st.integers(0, 999)), max_size=12),
+       st.lists(st.tuples(st.integers(0, 99), st.integers(0, 999)), max_size=12),
+       st.sampled_from([0, 3, 20]))
+def test_restated_levels_never_change_a_result(
+    evs: list[tuple[int, bool, int]], high_picks: list[tuple[int, int]],
+    low_picks: list[tuple[int, int]], glitch: int,
+) -> None:
+    cap = _capture(evs, edges_only=False)
+    if cap.high_times.size == 0 or cap.low_times.size == 0:
+        return
+    kwargs = {"glitch_width_s": glitch * TICK, "worst": 3,
+              "limits": {"to_high": Limits(2 * TICK, 30 * TICK)}}
+    ht, hv = _restated(cap.high_times.tolist(), cap.high_levels.tolist(), high_picks, cap.end)
+    lt, lv = _restated(cap.low_times.tolist(), cap.low_levels.tolist(), low_picks, cap.end)
+    restated = make_capture(TICK, (np.array(ht, np.int64), np.array(hv, np.uint8)),
+                            (np.array(lt, np.int64), np.array(lv, np.uint8)), end=cap.end)
+    try:
+        plain = measure_capture(cap, **kwargs)  # type: ignore[arg-type]
+    except GapforgeError as exc:
+        with pytest.raises(GapforgeError, match=re.escape(exc.message[:20])):
+            measure_capture(restated, **kwargs)  # type: ignore[arg-type]
+        return
+    assert _summary(measure_capture(restated, **kwargs)) == _summary(plain)  # type: ignore[arg-type]

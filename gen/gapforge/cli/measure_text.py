@@ -170,6 +170,15 @@ def _f(value: Fraction | None) -> float | None:
     return None if value is None else float(value)
 
 
+def _median(stats: EdgeStats) -> float | None:
+    """The median gap in seconds (numpy's linear percentile 50), whatever --percentiles asks."""
+    import numpy as np
+
+    if not stats.count:
+        return None
+    return float(np.percentile(stats.gaps_ticks, 50)) * float(stats.tick_s)
+
+
 def _edge_json(m: Measurement, name: str) -> dict[str, Any]:
     stats = m.edge(name)
     lim = m.limits.get(name)
@@ -179,6 +188,7 @@ def _edge_json(m: Measurement, name: str) -> dict[str, Any]:
         "max_s": _f(stats.max_s),
         "mean_s": stats.mean_s,
         "std_s": stats.std_s,
+        "p50_s": _median(stats),
         "percentiles_s": {f"p{p:g}": v for p, v in stats.percentiles},
         "histogram": {"edges_s": list(stats.histogram_edges_s),
                       "counts": list(stats.histogram_counts)},
