@@ -64,6 +64,7 @@ def test_the_named_output_is_the_prediction(tmp_path: Path) -> None:
     path = _vcd(tmp_path / "c.vcd", 870, 950)
     code, doc, _ = _measure([str(path), "--high", "gate_h", "--low", "gate_l", "--design",
                              str(MOTOR), "--output", "MOTOR_DT_ALT"])
+    assert code == 0, doc  # 870 ns and 950 ns, inside the design's window by more than 1 ns
     edges = doc["edges"]
     assert isinstance(edges, dict)
     for edge in ("to_high", "to_low"):
