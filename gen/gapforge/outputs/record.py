@@ -18,7 +18,7 @@ from typing import Any
 from gapforge import __version__
 from gapforge.base import caution
 from gapforge.base.quantities import picoseconds_ceil, picoseconds_floor
-from gapforge.outputs.header import clock_macro_value, fields_msb_first
+from gapforge.outputs.header_checks import clock_macro_value, fields_msb_first
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.compromise import compromises
 from gapforge.timer.layouts import EDGES
