@@ -246,5 +246,5 @@ def test_hysteresis_may_only_widen_the_default(tmp_path: Path) -> None:
     # default: current_error 0.1 A + half of 12.5 mA = 106.25 mA
     text = ADAPTIVE_GAN.replace("adc_bits = 12", 'adc_bits = 12\nhysteresis = "0.1A"')
     (tmp_path / "d.toml").write_text(text)
-    code, out, err = run_cli(["build", str(tmp_path / "d.toml"), "--parents"])
+    code, _, err = run_cli(["build", str(tmp_path / "d.toml"), "--parents"])
     assert code == 2 and "adaptive.hysteresis" in err and "0.10625 A" in err, err

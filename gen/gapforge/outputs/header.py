@@ -322,7 +322,7 @@ def _clock_check_block(plan: BuildPlan, op: OutputPlan) -> list[str]:
     return [
         f"/* Clock cross-check, when the firmware defines {m} before including this header:",
         "   a typedef whose array size turns negative, an error on every C and C++ compiler, that",
-        "   also accepts a macro written with a cast, e.g. ((uint32_t)100000000u). Define",
+        "   also accepts a macro written with a cast, e.g. ((unsigned long)100000000ul). Define",
         "   GAPFORGE_CLOCK_CHECK_PREPROCESSOR as well to get an #error with the message for a",
         "   plain literal. */",
         f"#if defined({m})",
