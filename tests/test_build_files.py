@@ -327,7 +327,8 @@ def test_self_test_of_every_layout_compiles_runs_and_catches_an_edit(tmp_path: P
 
 
 RECORD_KEYS = ["schema", "schema_version", "generator", "design", "layout", "prefix", "header",
-               "timer", "register", "fields", "edges", "pwm", "shared", "verdict", "caution"]
+               "timer", "register", "fields", "edges", "pwm", "shared", "gate_driver", "adaptive", "verdict",
+               "caution"]  # gate_driver and adaptive: issue 22 (keys may be added)
 
 
 def test_record_has_stable_keys_and_matches_the_header() -> None:

@@ -48,6 +48,10 @@ _UNPORTABLE = set('"*<>|?:\\') | {chr(c) for c in range(32)} | {chr(127)}
 @click.option("--record", is_flag=True,
               help="Also write <header>.json beside each header: the fitted values as a "
               "versioned JSON record (schema gapforge-dead-time-record).")
+@click.option("--depfile", type=click.Path(dir_okay=False, path_type=Path), default=None,
+              help="Also write a Make/Ninja depfile: every file written depends on the design, "
+              "every layout file and the templates (so a firmware build reruns gapforge when one "
+              "changes).")
 @click.option("--strict", is_flag=True,
               help="Refuse (exit 1, nothing written) when a PWM count does not fit the design's "
               "[pwm] counter_bits, instead of warning.")
@@ -61,6 +65,7 @@ def command(
     details: bool,
     self_test: bool,
     record: bool,
+    depfile: Path | None,
     strict: bool,
     no_diagram: bool,
     ascii_only: bool,
@@ -74,6 +79,10 @@ def command(
     problems = _strict_problems(plan) if strict else []
     ok = plan.verdict == "ok" and not problems
     texts = _texts(plan, design, out_dir, self_test, record) if ok else {}
+    if depfile is not None and texts:
+        from gapforge.outputs.depfile import depfile_text
+
+        texts[depfile] = depfile_text(plan, sorted(texts))
     if check:
         _check(plan, texts, ok, problems, details, no_diagram, ascii_only, as_json)
         return
