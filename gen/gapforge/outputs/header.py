@@ -126,7 +126,7 @@ def clock_macro_value(plan: BuildPlan) -> int:
 
 
 def _banner(plan: BuildPlan, op: OutputPlan) -> list[str]:
-    lines = [*_provenance_lines(plan, op), "", *_timing_lines(plan, op)]
+    lines = [*_provenance_lines(plan, op), "", *_verdict_lines(op), *_timing_lines(plan, op)]
     lines += _field_lines(op)
     lines += ["", *_write_example(op)]
     lines += ["", *_convention_lines(plan, op)]
@@ -134,6 +134,17 @@ def _banner(plan: BuildPlan, op: OutputPlan) -> list[str]:
     if plan.design.clock_hz.denominator != 1:
         lines.append("Note: the timer clock is not a whole number of hertz; the macro is rounded up.")
     return [f" {c_text.comment(line)}" if line else "" for line in lines]
+
+
+def _verdict_lines(op: OutputPlan) -> list[str]:
+    """An inconclusive output is written because it was asked for, and says so (issue 19)."""
+    if op.verdict == "ok":
+        return []
+    import textwrap
+
+    text = f"VERDICT: {op.verdict} - {'; '.join(op.reasons)}. Written because the design asked"
+    text += " for it; gapforge build exits 1 for it. Judge it against the power stage first."
+    return [*textwrap.wrap(text, 94), ""]
 
 
 def _provenance_lines(plan: BuildPlan, op: OutputPlan) -> list[str]:

@@ -107,6 +107,7 @@ def record(plan: BuildPlan, op: OutputPlan) -> dict[str, Any]:
         "pwm": _pwm(op),
         "shared": [c.text() for c in compromises(fit)],
         "verdict": op.verdict,
+        "reason": "; ".join(op.reasons) if op.verdict != "ok" else "",
         "caution": caution.TEXT,
     }
 
