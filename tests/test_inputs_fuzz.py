@@ -178,7 +178,7 @@ def test_fuzz_layout_files_through_targets_and_fit(
         code, out, err = _run(["targets", "show", str(layout), "--clock", "100MHz", "--json"],
                               capsys)
         _check(f"layout case {n}", code, out, err, str(layout))
-        code, out, err = _run(["fit", "--clock", "100MHz", "--dead-time", "200ns", "--target",
+        code, out, err = _run(["fit", "--clock", "100MHz", "--clock-tol", "0ppm", "--dead-time", "200ns", "--target",
                                str(layout), "--json"], capsys)
         _check(f"layout case {n} (fit)", code, out, err, str(layout))
         assert _files(tmp_path) == before, f"layout case {n}: a file was written"

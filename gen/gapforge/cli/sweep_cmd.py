@@ -432,7 +432,6 @@ def command(**values: Any) -> None:
             raise GapforgeError("differs from --pwm (a half bridge switches once per PWM period)",
                                 "--fsw")
         limits = limits_of(stage_window(spec))
-    values["clock_tol"] = require_clock_tol(values["clock_tol"])
     pwm = _pwm_spec(values, design_pwm)
     if values["clock_texts"]:
         clocks = parse_clocks(values["clock_texts"])
@@ -440,6 +439,7 @@ def command(**values: Any) -> None:
         clocks = (design_clock,)
     else:
         raise GapforgeError("required (or give --design FILE to sweep at its clock)", "--clocks")
+    values["clock_tol"] = require_clock_tol(values["clock_tol"])
     names = list(values["targets"])
     if values["builtins"] or not names:
         names = builtin_names() + [n for n in names if n not in builtin_names()]

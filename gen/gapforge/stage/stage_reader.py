@@ -78,22 +78,12 @@ def read_stage(table: Table, default_fsw: Fraction | None = None) -> StageSpec:
         if sub is not None:
             sub.check_keys(SIDE_KEYS)
         sides[side] = sub
-    for key in SIDE_TERMS:
-        present = [sub is not None and sub.has(key) for sub in sides.values()]
-        if not table.has(key) and not all(present):
-            missing = next(s for s, here in zip(SIDES, present, strict=True) if not here)
-            target = sides[missing] or table
-            target.reader.problem(target.key_path(key), missing_term(key))
-    for key in SHARED_TERMS:
-        if not table.has(key):
-            table.reader.problem(table.key_path(key), missing_term(key))
     timings = {side: _read_timing(table, sides[side]) for side in SIDES}
 
     def time(key: str) -> Fraction:
         value = table.quantity(key, "s", Fraction(0), allow_zero=True)
         return value if value is not None else Fraction(0)
 
-    _require_for_maximum(table)
     margin = table.quantity("margin", "", DEFAULT_MARGIN)
     kind = table.string("kind", "silicon", KINDS)
     current = table.quantity("current", "A", Fraction(0), allow_zero=True, allow_negative=True)
@@ -125,6 +115,9 @@ def read_stage(table: Table, default_fsw: Fraction | None = None) -> StageSpec:
         bus_voltage=table.quantity("bus_voltage", "V", required=False),
         defaulted=frozenset(defaulted),
     )
+    # a value given wrongly is named first; then every term left out, then the maximum's inputs
+    _require_terms(table, sides)
+    _require_for_maximum(table)
     if not table.reader.problems:
         for side, key, message in stage_problems(spec):
             where = table.key_path(key)
@@ -133,6 +126,19 @@ def read_stage(table: Table, default_fsw: Fraction | None = None) -> StageSpec:
                 where = side_table.key_path(key)
             table.reader.problem(where, message)
     return spec
+
+
+def _require_terms(table: Table, sides: dict[str, Table | None]) -> None:
+    """Every term of the minimum's sum, per switch (shared or per side) or shared."""
+    for key in SIDE_TERMS:
+        present = [sub is not None and sub.has(key) for sub in sides.values()]
+        if not table.has(key) and not all(present):
+            missing = next(s for s, here in zip(SIDES, present, strict=True) if not here)
+            target = sides[missing] or table
+            target.reader.problem(target.key_path(key), missing_term(key))
+    for key in SHARED_TERMS:
+        if not table.has(key):
+            table.reader.problem(table.key_path(key), missing_term(key))
 
 
 def _require_for_maximum(table: Table) -> None:
