@@ -123,7 +123,7 @@ def test_too_long_share_exits_1_from_the_command_line() -> None:
     ])
     assert code == 1
     doc = json.loads(out)
-    assert doc["verdict"] == "fail" and doc["reason"] == "too-long"
+    assert doc["verdict"] == "fail" and doc["reason"].startswith("too-long: ")
     assert doc["pwm"]["verdict"] == "fail" and doc["pwm"]["reason"].startswith("too-long")
     assert doc["pwm"]["edges"]["to_high"]["share"] == 0.5
 
