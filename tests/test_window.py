@@ -148,7 +148,7 @@ def test_bad_input_is_one_line_exit_2_in_a_subprocess() -> None:
 def test_bad_options(args: list[str], where: str, words: str) -> None:
     from gapforge.base.errors import GapforgeError
 
-    if "--design" not in args and where != "--td-on" or "100ns" in args:
+    if ("--design" not in args and where != "--td-on") or "100ns" in args:
         # every other term stated, so the problem under test is the one named (issue 19)
         args = [*args, "--t-fall", "0ns", "--mismatch", "0ns", "--isolator-skew", "0ns",
                 "--timer-skew", "0ns"]
