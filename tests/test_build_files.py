@@ -330,7 +330,7 @@ def test_self_test_of_every_layout_compiles_runs_and_catches_an_edit(tmp_path: P
 
 
 RECORD_KEYS = ["schema", "schema_version", "generator", "design", "layout", "prefix", "header",
-               "timer", "register", "fields", "edges", "pwm", "shared", "verdict", "caution"]
+               "timer", "register", "fields", "edges", "pwm", "shared", "verdict", "reason", "caution"]
 
 
 def test_record_has_stable_keys_and_matches_the_header() -> None:

@@ -263,7 +263,7 @@ def test_unreachable_from_the_command_line_exits_1() -> None:
     ])
     assert code == 1
     # 255 / 160 MHz = 1.59375 us exactly; four digits cut toward the safe side (down) show 1.593
-    assert ("unreachable: to_high request 2 us is longer than the layout can guarantee: at most "
+    assert ("fail: to_high request 2 us is longer than the layout can guarantee: at most "
             "1.593 us at the fast clock") in out
     assert "reduced voltage" in out  # the caution is always printed
 
