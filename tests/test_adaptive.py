@@ -154,6 +154,8 @@ def cases(draw):  # type: ignore[no-untyped-def]
         high=high,
         low=low,
         mismatch=draw(st.integers(0, 5)) * NS,
+        isolator_skew=F(0),
+        timer_skew=F(0),
         margin=F(draw(st.integers(10, 15)), 10),
         kind="gan",
         vsd=F(2),
