@@ -11,6 +11,7 @@ import click
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import parse_quantity
+from gapforge.cli.measure_scope import SCOPE_KEYS, run_scope, scope_options, wants_scope
 from gapforge.cli.measure_text import measurement_diagram, measurement_json, measurement_text
 from gapforge.cli.options import Quantity, diagram_options, emit_json, json_option
 
@@ -61,7 +62,7 @@ def build_limits(
 
 
 @click.command()
-@click.argument("capture", required=False, type=click.Path(path_type=Path, dir_okay=False))
+@click.argument("captures", nargs=-1, type=click.Path(path_type=Path, dir_okay=False))
 @click.option("--high", default=None, help="High-side gate signal: hierarchical name (top.gate_h, "
               "top.bus[3]) or CSV column.")
 @click.option("--low", default=None, help="Low-side gate signal, named like --high.")
@@ -99,13 +100,14 @@ def build_limits(
               help="Stop the stream when no data arrives for this long.")
 @diagram_options
 @json_option
-def command(capture: Path | None, high: str | None, low: str | None, active_low_high: bool,
+@scope_options  # issue 21: analog (volts) captures, cli/measure_scope.py
+def command(captures: tuple[Path, ...], high: str | None, low: str | None, active_low_high: bool,
             active_low_low: bool, design: Path | None, window: str | None, glitch: Fraction,
             resolution: Fraction | None, timescale_text: str | None, percentiles: str,
             bins: int, worst: int,
             serial_url: str | None, baud: int, max_transitions: int | None,
             duration: Fraction | None, idle_timeout: Fraction,
-            no_diagram: bool, ascii_only: bool, as_json: bool) -> None:
+            no_diagram: bool, ascii_only: bool, as_json: bool, **scope: Any) -> None:
     """Measure every dead time in a capture (VCD or gapforge CSV) or a live serial stream.
 
     Exit 1 on any overlap (both gates on), any possible overlap (one gate x/z while the other
@@ -117,6 +119,19 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
     from gapforge.bench.measure import measure_capture
 
     pcts = _percentiles(percentiles)
+    # issue 21: an oscilloscope export (volts) goes to cli/measure_scope.py
+    if serial_url is None and captures and wants_scope(captures, scope):
+        run_scope(captures, high, low, scope, design=design, limits=build_limits(window, design),
+                  glitch=glitch, percentiles=pcts, bins=bins, worst=worst, resolution=resolution,
+                  timescale_given=timescale_text is not None, as_json=as_json,
+                  no_diagram=no_diagram, ascii_only=ascii_only,
+                  active_low=active_low_high or active_low_low)
+    if len(captures) > 1:
+        raise GapforgeError("several files are read only as an analog capture (one channel "
+                            "per file)", "measure")
+    if any(scope.get(k) is not None for k in SCOPE_KEYS):
+        raise GapforgeError("analog options apply to oscilloscope exports (volts)", "measure")
+    capture = captures[0] if captures else None
     timescale = None
     if timescale_text is not None:
         from gapforge.bench.vcd_header import parse_timescale
