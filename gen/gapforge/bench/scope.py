@@ -6,7 +6,8 @@ With a hysteresis H a gate changes state only when it goes above threshold + H/2
 threshold - H/2 (off); the instant of that change is the LAST crossing of the threshold itself
 before it (the reference-level instant of IEEE 181: linear interpolation between the two
 samples around the crossing), so ringing that stays inside the band makes no extra edge and does
-not move the instant. With H = 0 a sample exactly at the threshold keeps the state. `--level`
+not move the instant. With H = 0 a sample exactly at the threshold keeps the state. The level at
+the start of the capture is read against the threshold itself (the band only guards changes). `--level`
 asks for a reference level between the two state levels found by the histogram method of
 IEEE 181 (the mode of the lower and of the upper half of the channel's range).
 
@@ -178,7 +179,7 @@ class _Crossings:
     upper: float
     lower: float
     where: str
-    state: int = 0  # 0 unknown, 1 on, -1 off
+    state: int = 0  # 0 unknown (no sample off the threshold yet), 1 on, -1 off
     last_t: float | None = None
     last_v: float = 0.0
     last_up: float | None = None  # the latest threshold crossing instants seen
@@ -198,6 +199,9 @@ class _Crossings:
         if self.last_t is not None:
             t = np.concatenate(([self.last_t], t))
             v = np.concatenate(([self.last_v], v))
+        if self.state == 0 and not self._first_level(t, v):
+            self.last_t, self.last_v = float(t[-1]), float(v[-1])
+            return
         decided = np.zeros(v.size, dtype=np.int8)
         decided[v > self.upper] = 1
         decided[v < self.lower] = -1
@@ -218,8 +222,6 @@ class _Crossings:
                 if (idx < 0).any():
                     inst = np.where(idx < 0, last if last is not None else np.nan, inst)
                 out_t[sel] = inst
-            if self.state == 0 and change.size:  # the first known level: at its own sample
-                out_t[0] = t[change[0]]
             self.times.append(out_t)
             self.levels.append(np.where(to > 0, 1, 0).astype(np.uint8))
             self.state = int(now[-1])
@@ -234,6 +236,18 @@ class _Crossings:
             if downs[1].size:
                 self.last_down = float(downs[1][-1])
         self.last_t, self.last_v = float(t[-1]), float(v[-1])
+
+    def _first_level(self, t: Floats, v: Floats) -> bool:
+        """The level before any state change is read against the threshold itself (a gate is
+        on above it): an event at the first sample off the threshold. False: none yet."""
+        off_threshold = np.flatnonzero(v != self.threshold)
+        if off_threshold.size == 0:
+            return False
+        k = int(off_threshold[0])
+        self.state = 1 if v[k] > self.threshold else -1
+        self.times.append(np.array([t[k]]))
+        self.levels.append(np.array([1 if self.state > 0 else 0], dtype=np.uint8))
+        return True
 
     def _check_times(self, block: Block, t: Floats) -> None:
         if self.first_t is None:
@@ -335,7 +349,9 @@ def read_scope(files: list[Path], high: str, low: str, settings: ScopeSettings) 
             raise GapforgeError("the resolution must be above zero", "--resolution")
         resolution = settings.resolution_s
     else:
-        resolution = Fraction(spacing)
+        # the interval as printed (nine significant digits: float noise of the differences
+        # of printed times is far below), then whole femtoseconds rounded up
+        resolution = Fraction(f"{spacing:.9g}")
     res_ticks = max(1, math.ceil(resolution / TICK_S))
     ticks = {side: _ticks(got[side].times, getattr(settings, f"deskew_{side}_s")) for side in SIDES}
     end = max(_tick(got["high"].last_s), _tick(got["low"].last_s))
