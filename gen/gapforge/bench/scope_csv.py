@@ -194,8 +194,10 @@ def _layout(path: Path, header: tuple[int, list[str]], units: list[str] | None, 
     return ScopeFile(path, time_unit, scale, tuple(columns), offset, data_line)
 
 
-def blocks(sf: ScopeFile, wanted: list[int], chunk_bytes: int = CHUNK_BYTES) -> Iterator[Block]:
-    """Blocks of samples of the channel columns `wanted` (indexes into sf.columns)."""
+def blocks(sf: ScopeFile, wanted: list[int], chunk_bytes: int | None = None) -> Iterator[Block]:
+    """Blocks of samples of the channel columns `wanted` (indexes into sf.columns), read
+    `chunk_bytes` (default CHUNK_BYTES) at a time."""
+    chunk_bytes = chunk_bytes or CHUNK_BYTES
     ncols = len(sf.columns) + 1
     scales = np.array([sf.columns[k].to_volts or 1.0 for k in wanted])
     picks = [0] + [k + 1 for k in wanted]
