@@ -234,3 +234,36 @@ def test_random_layouts_match_a_per_line_reading(tmp_path: Path) -> None:
         got = _values(path, chunk=rng.choice([32, 256, 4096]))
         assert got[0].tolist() == [e[0] for e in expect]
         assert got[1][:, 0].tolist() == [e[1] for e in expect]
+
+
+def test_report_draws_the_traces_around_the_worst_gap_and_the_overlap(tmp_path: Path) -> None:
+    # an invented capture with one overlap (the high gate on 2 ns before the low gate is off):
+    # the report holds the analog section with both figures, instants at the measured times,
+    # and no two labels overlapping or leaving their figure (tests/svg_layout.py)
+    from svg_layout import layout_problems, svgs
+
+    times = [k * 1e-9 for k in range(300)]
+    high = [6.0 if (40 <= k < 100) or (198 <= k < 260) else 0.0 for k in range(300)]
+    low = [15.0 if k < 10 or 130 <= k < 200 else 0.0 for k in range(300)]
+    path = _gates(tmp_path / "o.csv", times, high, low)
+    out = tmp_path / "r.html"
+    code, _, err = run_cli(["report", str(REPO / "examples" / "gan-buck.toml"), "-o", str(out),
+                            "--capture", str(path), "--high", "gh", "--low", "gl",
+                            "--threshold", "3V"])
+    assert code == 1, err  # the overlap fails the capture
+    html = out.read_text()
+    figures = svgs(html)
+    assert {"scope-worst", "scope-overlap"} <= set(figures)
+    for ident in ("scope-worst", "scope-overlap"):
+        assert layout_problems(figures[ident]) == []
+    assert "Thresholds: high side 3 V, low side 3 V" in html
+    root = figures["scope-overlap"]
+    xs = sorted(float(e.get("x1") or 0) for e in root.iter("{http://www.w3.org/2000/svg}line")
+                if e.get("class") == "instant")
+    assert len(xs) == 2 and xs[1] > xs[0]
+    # the overlap by hand (IEEE 181 instants): high rises 0 -> 6 V between 197 and 198 ns, 3 V
+    # at 197.5 ns; low falls 15 -> 0 V between 199 and 200 ns, 3 V at 199 + 12/15 ns: 2.3 ns
+    _, text, _ = run_cli(["measure", str(path), "--high", "gh", "--low", "gl", "--threshold",
+                          "3V", "--json"])
+    event = json.loads(text)["overlap_events"][0]
+    assert event["at_s"] == pytest.approx(197.5e-9) and event["duration_s"] == pytest.approx(2.3e-9)

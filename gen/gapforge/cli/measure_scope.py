@@ -206,6 +206,20 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
     sys.exit(1 if result.failed else 0)
 
 
+def report_scope(capture: Path, high: str, low: str, scope: dict[str, Any], limits: Any,
+                 glitch: Fraction) -> tuple[Measurement, tuple[Any, ...]]:
+    """`report --capture` on an oscilloscope export: the measurement and its report section."""
+    from gapforge.bench.measure import measure_capture
+    from gapforge.bench.scope import read_scope
+    from gapforge.outputs.scope_figure import scope_section
+
+    if any(scope.get(k) is not None for k in ("node", "bus", "soft_within", "current")):
+        raise GapforgeError("the switch-node check is made by `gapforge measure`", "report")
+    cap = read_scope([capture], high, low, settings_from(scope, None))
+    result = measure_capture(cap.stream, limits=limits, glitch_width_s=glitch)
+    return result, (scope_section(cap, result),)
+
+
 def soft_check(design: Path | None, current: Fraction | None,
                node: NodeResult | None) -> list[str]:
     """With --design, --current and --node: the edges the table calls soft, measured hard."""
