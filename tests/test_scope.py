@@ -128,7 +128,7 @@ def test_deskew_and_stated_resolution(tmp_path: Path) -> None:
     times = [k * 1e-9 for k in range(10)]
     path = _gates(tmp_path / "d.csv", times, [0, 0, 0, 0, 0, 0, 0, 4, 4, 4],
                   [10, 10, 10, 0, 0, 0, 0, 0, 0, 0])
-    code, out, _ = run_cli(["measure", str(path), "--high", "gh", "--low", "gl", "--threshold",
+    _, out, _ = run_cli(["measure", str(path), "--high", "gh", "--low", "gl", "--threshold",
                             "3V", "--deskew-high", "1.5ns", "--deskew-low", "-0.25ns",
                             "--resolution", "100ps", "--json"])
     doc = json.loads(out)
@@ -193,7 +193,7 @@ def test_soft_check_against_the_adaptive_table(tmp_path: Path) -> None:
         rows = "".join(f"{t:.6e},{h},{lo},{n}\n" for t, h, lo, n in zip(times, high, low, node,
                                                                           strict=True))
         path = _write(tmp_path / "n.csv", "Time,gh,gl,sw\n" + rows)
-        code, out, err = run_cli(["measure", str(path), "--high", "gh", "--low", "gl",
+        code, out, _ = run_cli(["measure", str(path), "--high", "gh", "--low", "gl",
                                   "--threshold", "2.5V", "--node", "sw", "--bus", "400V",
                                   "--design", str(design), "--current", "3.2A", "--json"])
         doc = json.loads(out)

@@ -13,8 +13,10 @@ is deleted afterwards (never commit it), then in separate processes:
   crossings and every gap (the node column is read too, as a third channel would be).
 
 Peak memory is each process's growth of the peak resident set over its baseline after imports
-(Linux VmHWM after a reset through /proc/self/clear_refs; elsewhere ru_maxrss). The ratio is
-gapforge's time over loadtxt's, measured in this run (below 1: faster).
+(Linux VmHWM after a reset through /proc/self/clear_refs; elsewhere ru_maxrss). The readers run
+in interleaved rounds (`--repeat`, default 2) and each one's best time counts, so a burst of load
+on a shared machine does not decide the ratio; the ratio is gapforge's time over loadtxt's,
+measured in this run (below 1: faster).
 """
 
 from __future__ import annotations
@@ -58,17 +60,23 @@ def generate(path: Path, points: int, seed: int = 1) -> None:
 
 def run_loadtxt(path: Path) -> dict[str, object]:
     data = np.loadtxt(path, delimiter=",", skiprows=2)
-    return {"rows": int(data.shape[0]), "checksum": float(data[:, 1].sum())}
+    return {"rows": int(data.shape[0]), "checksum": _checksum(data[:, 1:])}
+
+
+def _checksum(values: np.ndarray) -> int:
+    """The bits of every value summed modulo 2**64: equal only for identical float64 values
+    (whatever the order of the blocks)."""
+    return int(np.ascontiguousarray(values).view(np.uint64).sum(dtype=np.uint64))
 
 
 def run_reader(path: Path) -> dict[str, object]:
     from gapforge.bench.scope_csv import blocks, read_layout
 
     sf = read_layout(path)
-    rows, checksum = 0, 0.0
+    rows, checksum = 0, 0
     for b in blocks(sf, [0, 1, 2]):
         rows += b.times.size
-        checksum += float(b.values[:, 0].sum())
+        checksum = (checksum + _checksum(b.values)) % 2**64
     return {"rows": rows, "checksum": checksum}
 
 
@@ -130,6 +138,7 @@ def main() -> None:
     parser.add_argument("--points", type=int, default=10_000_000)
     parser.add_argument("--dir", default=None)
     parser.add_argument("--keep", action="store_true")
+    parser.add_argument("--repeat", type=int, default=2, help="interleaved rounds (best counts)")
     parser.add_argument("--child", nargs=2, help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child:
@@ -147,11 +156,14 @@ def main() -> None:
         t0 = time.perf_counter()
         subprocess.run(["wc", "-l", str(path)], check=True, capture_output=True)
         print(f"{'wc -l':<18} {time.perf_counter() - t0:>8.2f} s")
-        rows = {}
-        for reader in RUNNERS:
-            proc = subprocess.run([sys.executable, __file__, "--child", reader, str(path)],
-                                  capture_output=True, text=True, check=True)
-            rows[reader] = json.loads(proc.stdout)
+        rows: dict[str, dict] = {}
+        for _ in range(args.repeat):  # interleaved rounds; the best time of each reader counts
+            for reader in RUNNERS:
+                proc = subprocess.run([sys.executable, __file__, "--child", reader, str(path)],
+                                      capture_output=True, text=True, check=True)
+                row = json.loads(proc.stdout)
+                if reader not in rows or row["seconds"] < rows[reader]["seconds"]:
+                    rows[reader] = row
         base = float(rows["loadtxt"]["seconds"])
         print(f"{'reader':<18} {'seconds':>8} {'MB/s':>7} {'peak MB':>8} {'vs loadtxt':>10}  result")
         for reader, row in rows.items():
@@ -159,7 +171,7 @@ def main() -> None:
             print(f"{reader:<18} {sec:>8.2f} {size_mb / sec:>7.0f} {float(row['peak_mb']):>8.0f} "
                   f"{sec / base:>9.2f}x  {row['result']}")
         same = rows["loadtxt"]["result"] == rows["gapforge-reader"]["result"]
-        print(f"reader and loadtxt agree (rows, checksum of gate_h): {same}")
+        print(f"reader and loadtxt read identical float64 values (rows, bit checksum): {same}")
     finally:
         if not args.keep:
             path.unlink(missing_ok=True)

@@ -256,7 +256,7 @@ class _Crossings:
             raise GapforgeError(f"times beyond {_MAX_ABS_S:g} s are not supported",
                                 block_where(self.where, block, 0))
         carried = self.last_t is not None
-        dt = np.diff(np.concatenate(([self.last_t], t)) if carried else t)
+        dt = np.diff(np.concatenate((np.array([self.last_t or 0.0]), t)) if carried else t)
         if dt.size:
             bad = dt <= 0
             if bad.any():
@@ -365,15 +365,14 @@ def read_scope(files: list[Path], high: str, low: str, settings: ScopeSettings) 
 
 
 def _tick(t: float) -> int:
-    return int(round(t * _TICKS_PER_S))
+    return round(t * _TICKS_PER_S)
 
 
 def _ticks(times: Floats, deskew: Fraction) -> npt.NDArray[np.int64]:
     if np.isnan(times).any():
         raise GapforgeError("internal: a state change without its crossing", "capture")
-    out = np.rint(times * _TICKS_PER_S).astype(np.int64) - int(round(deskew / TICK_S))
-    # deskew may reorder nothing within one channel (a constant shift); keep it sorted anyway
-    return out
+    # a deskew is one constant shift per channel: the channel's order stays
+    return np.rint(times * _TICKS_PER_S).astype(np.int64) - round(deskew / TICK_S)
 
 
 def turn_ons_s(edges: ChannelEdges, deskew: Fraction) -> Floats:

@@ -35,7 +35,6 @@ import math
 import re
 from collections.abc import Iterator
 from dataclasses import dataclass
-from fractions import Fraction
 from pathlib import Path
 
 import numpy as np
@@ -261,10 +260,10 @@ def _fast(body: bytes, ncols: int, picks: list[int]) -> tuple[Floats, Floats] | 
     if not (kinds[:, -1] == 10).all() or (ncols > 1 and not (kinds[:, :-1] == 44).all()):
         return None
     ends = stops.reshape(-1, ncols)
-    starts = np.empty_like(stops)
-    starts[0] = 0
-    starts[1:] = stops[:-1] + 1
-    starts = starts.reshape(-1, ncols)
+    flat = np.empty_like(stops)
+    flat[0] = 0
+    flat[1:] = stops[:-1] + 1
+    starts = flat.reshape(-1, ncols)
     out = []
     for c in picks:
         col = _fixed_column(b, starts[:, c], ends[:, c])
