@@ -79,6 +79,18 @@ def test_layout_units_comments_crlf_negative_times(tmp_path: Path) -> None:
     assert v[:, 1].tolist() == [-2.5, 10.0, 3.0]
 
 
+def test_spice_style_names_and_stem_addressing(tmp_path: Path) -> None:
+    # 'V(gh)' is a name, not a unit; 'time_ns' and '[mV]' are units
+    path = _write(tmp_path / "sp.csv", "time_ns,V(gh),gl [mV],gate_v\n0,0,9000,1\n1,5,0,1\n")
+    sf = scope_csv.read_layout(path)
+    assert [c.name for c in sf.columns] == ["V(gh)", "gl", "gate"]
+    assert sf.columns[2].raw == "gate_v" and sf.time_scale == 1e-9
+    from gapforge.bench.scope import locate
+
+    assert locate([path], "gate_v", "--high").index == 2  # the header cell as written
+    assert locate([path], "sp:gl", "--low").index == 1
+
+
 def test_units_row(tmp_path: Path) -> None:
     path = _write(tmp_path / "r.csv", "TIME,gh,node\nsecond,Volt,kV\n0,1,0.4\n1e-9,2,0.2\n")
     sf = scope_csv.read_layout(path)

@@ -146,10 +146,11 @@ def locate(files: list[Path], name: str, option: str) -> Channel:
     stem, _, column = name.rpartition(":")
     for lay in layouts:
         names = [c.name for c in lay.columns]
-        if stem and lay.path.stem == stem and column in names:
-            found.append(Channel(name, lay, names.index(column)))
-        elif not stem and name in names:
-            found.append(Channel(name, lay, names.index(name)))
+        raws = [c.raw for c in lay.columns]
+        if stem and lay.path.stem == stem and (column in names or column in raws):
+            found.append(Channel(name, lay, (names if column in names else raws).index(column)))
+        elif not stem and (name in names or name in raws):
+            found.append(Channel(name, lay, (names if name in names else raws).index(name)))
         elif not stem and lay.path.stem == name and len(names) == 1:
             found.append(Channel(name, lay, 0))
     if len(found) > 1:

@@ -63,6 +63,7 @@ class Column:
     name: str
     unit: str
     to_volts: float | None
+    raw: str = ""  # the header cell as written ('V(gate_h)', 'CH1 [mV]')
 
 
 @dataclass(frozen=True)
@@ -107,10 +108,20 @@ def _cells(line: str) -> list[str]:
     return [c.strip().strip('"').strip() for c in line.split(",")]
 
 
+_OTHER_UNITS = {"a", "ma", "ka", "w", "%", "ohm", "hz"}  # not volts, still units
+
+
+def _is_unit(text: str) -> bool:
+    low = text.lower()
+    return low in TIME_SCALE or low in VOLT_SCALE or low in _OTHER_UNITS or text in TIME_SCALE
+
+
 def _split_unit(cell: str) -> tuple[str, str | None]:
-    """'Time (s)' -> ('Time', 's'); 'time_ns' -> ('time', 'ns'); 'CH1' -> ('CH1', None)."""
+    """'Time (s)' -> ('Time', 's'); 'time_ns' -> ('time', 'ns'); 'CH1' -> ('CH1', None);
+    'V(gate_h)' stays whole (what is in the parentheses is not a unit)."""
     match = _UNIT_IN_NAME.match(cell)
-    if match:
+    if match and match.group(1).strip() and _is_unit((match.group(2) or match.group(3) or "")
+                                                      .strip()):
         return match.group(1).strip(), (match.group(2) or match.group(3) or "").strip()
     if "_" in cell:
         head, tail = cell.rsplit("_", 1)
@@ -189,7 +200,7 @@ def _layout(path: Path, header: tuple[int, list[str]], units: list[str] | None, 
         if name in seen:
             raise GapforgeError(f"two columns are named {quoted(name)}", where)
         seen.add(name)
-        columns.append(Column(name, unit, VOLT_SCALE.get(unit.lower())))
+        columns.append(Column(name, unit, VOLT_SCALE.get(unit.lower()), header[1][k]))
     return ScopeFile(path, time_unit, scale, tuple(columns), offset, data_line)
 
 

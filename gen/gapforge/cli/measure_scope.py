@@ -175,6 +175,9 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
     for path in files:
         if not path.exists():
             raise GapforgeError("no such file", str(path))
+        if path.suffix.lower() == ".vcd":
+            raise GapforgeError("thresholds apply to oscilloscope exports (CSV in volts); a VCD "
+                                "holds logic levels", str(path))
     settings = settings_from(scope, resolution)
     _check_node_options(scope, design)
     current = None
