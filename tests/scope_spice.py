@@ -118,7 +118,7 @@ def scope_samples(run: Run, interval: float, *, skew: dict[str, float] | None = 
 
 
 def write_csv(path: Path, channels: dict[str, tuple[np.ndarray, np.ndarray]],
-              names: list[str], units: bool = True) -> Path:
+              names: list[str], units: bool = True, fmt: str = "%.6e") -> Path:
     """One scope-like CSV of the named channels (they share one time axis)."""
     t = channels[names[0]][0]
     cols = [t] + [channels[n][1] for n in names]
@@ -127,5 +127,5 @@ def write_csv(path: Path, channels: dict[str, tuple[np.ndarray, np.ndarray]],
         f.write("Time," + ",".join(names) + "\n")
         if units:
             f.write("s," + ",".join("V" for _ in names) + "\n")
-        np.savetxt(f, np.column_stack(cols), delimiter=",", fmt="%.6e")
+        np.savetxt(f, np.column_stack(cols), delimiter=",", fmt=fmt)
     return path

@@ -154,7 +154,11 @@ def test_uneven_spacing_is_reported(tmp_path: Path) -> None:
     path = _gates(tmp_path / "e.csv", times, [0, 0, 0, 0, 0, 4, 4, 4], [9, 9, 0, 0, 0, 0, 0, 0])
     cap = read_scope([path], "gh", "gl", SETTINGS)
     assert any("unevenly spaced" in w for w in cap.warnings)
-    assert cap.resolution_s == Fraction(2, 10**9)  # the longest interval
+    # the edges' crossings lie in 1 ns intervals (low at 1..2 ns, high at 5..6 ns): the 2 ns
+    # interval without a crossing does not widen the resolution
+    assert cap.resolution_s == Fraction(1, 10**9)
+    wide = _gates(tmp_path / "w.csv", times, [0, 0, 0, 0, 4, 4, 4, 4], [9, 9, 0, 0, 0, 0, 0, 0])
+    assert read_scope([wide], "gh", "gl", SETTINGS).resolution_s == Fraction(2, 10**9)
 
 
 def test_one_file_per_channel_by_stem(tmp_path: Path) -> None:

@@ -191,3 +191,18 @@ def _crossing(t: np.ndarray, v: np.ndarray, level: float, rising: bool, after: f
     hits = ((a < level) & (b >= level)) if rising else ((a > level) & (b <= level))
     k = int(np.flatnonzero(hits & (t[:-1] >= after))[0])
     return float(t[k] + (level - a[k]) / (b[k] - a[k]) * (t[k + 1] - t[k]))
+
+
+def test_simulator_steps_unevenly_spaced(full: Run, tmp_path: Path) -> None:
+    # ngspice's own time points (its step varies): reported as unevenly spaced; the resolution
+    # is the longest step around a crossing that made an edge (at most the 20 ps maximum step)
+    keep = np.concatenate(([True], np.diff(full.t) > 0))  # ngspice may repeat a breakpoint
+    samples = {n: (full.t[keep], w[keep]) for n, w in (("gh", full.gh), ("gl", full.gl),
+                                                        ("sw", full.sw))}
+    path = write_csv(tmp_path / "steps.csv", samples, ["gh", "gl", "sw"], fmt="%.14e")
+    _, doc, _ = _measure([str(path), "--high", "gh", "--low", "gl", *THRESHOLDS, *HYSTERESIS])
+    assert any("unevenly spaced" in w for w in doc["warnings"])
+    assert 0 < doc["resolution_s"] <= 0.02e-9 * 1.001
+    truth = _gaps(full)
+    for edge in ("to_high", "to_low"):  # ngspice prints meas results to 7 digits: 0.1 ps here
+        assert doc["edges"][edge]["min_s"] == pytest.approx(min(truth[edge]), abs=2e-12)

@@ -18,10 +18,13 @@ probe's deskew (its extra delay) is subtracted from its channel's instants. The 
 integer ticks of 1 fs (rounded to the nearest; the sample interval is at least a thousand times
 coarser) and feed the same gap engine as logic captures (`measure.measure_capture`).
 
-Resolution: the longest sample interval of the gate channels (an instant interpolated inside a
-sample interval may still be off by less than one interval when the edge is not straight),
-unless the user states another (`--resolution`). Unevenly spaced samples (the longest interval
-more than 5 % above the shortest, beyond print rounding) are reported.
+Resolution: the sample interval (an instant interpolated inside a sample interval may still be
+off by less than one interval when the edge is not straight), unless the user states another
+(`--resolution`). Precisely: the longest interval around a threshold crossing that made an edge,
+which is the sample interval of an evenly sampled capture and, for unevenly spaced samples (a
+circuit simulator's own steps), the coarsest step where an instant was taken. Unevenly spaced
+samples (the longest interval more than 5 % above the shortest, beyond print rounding) are
+reported.
 
 The switch node (`--node NAME --bus 400V`): at every gate turn-on, the node voltage interpolated
 at the turn-on instant, as a share of the bus. A high-side turn-on is soft when the node is
@@ -96,6 +99,7 @@ class ChannelEdges:
     state_levels_v: tuple[float, float] | None  # (low, high) with --level
     min_interval_s: float
     max_interval_s: float
+    crossing_interval_s: float  # the longest sample interval around a crossing that made an edge
     samples: int
     first_s: float
     last_s: float
@@ -172,6 +176,9 @@ def _samples(chan: Channel) -> Iterator[tuple[Block, Floats]]:
         yield block, block.values[:, 0]
 
 
+_Found = tuple[npt.NDArray[np.intp], Floats, Floats]
+
+
 @dataclass
 class _Crossings:
     """The streaming state machine of one gate (module docstring)."""
@@ -183,8 +190,10 @@ class _Crossings:
     state: int = 0  # 0 unknown (no sample off the threshold yet), 1 on, -1 off
     last_t: float | None = None
     last_v: float = 0.0
-    last_up: float | None = None  # the latest threshold crossing instants seen
-    last_down: float | None = None
+    # the latest threshold crossings seen: (instant, the sample interval around it)
+    last_up: tuple[float, float] | None = None
+    last_down: tuple[float, float] | None = None
+    crossing_dt: float = 0.0  # the longest sample interval around a crossing that made an edge
     min_dt: float = math.inf
     max_dt: float = 0.0
     samples: int = 0
@@ -198,8 +207,8 @@ class _Crossings:
             return
         self._check_times(block, t)
         if self.last_t is not None:
-            t = np.concatenate(([self.last_t], t))
-            v = np.concatenate(([self.last_v], v))
+            t = np.concatenate((np.array([self.last_t]), t))
+            v = np.concatenate((np.array([self.last_v]), v))
         if self.state == 0 and not self._first_level(t, v):
             self.last_t, self.last_v = float(t[-1]), float(v[-1])
             return
@@ -207,6 +216,7 @@ class _Crossings:
         decided[v > self.upper] = 1
         decided[v < self.lower] = -1
         at = np.flatnonzero(decided)
+        crossings = self._instants(t, v)
         if at.size:
             now = decided[at]
             before = np.empty_like(now)
@@ -214,28 +224,27 @@ class _Crossings:
             before[1:] = now[:-1]
             change = at[now != before]
             to = decided[change]
-            ups, downs = self._instants(t, v)
             out_t = np.empty(change.size)
-            for direction, found, last in ((1, ups, self.last_up), (-1, downs, self.last_down)):
+            for direction, found, last in zip((1, -1), crossings, (self.last_up, self.last_down),
+                                              strict=True):
                 sel = to == direction
                 idx = np.searchsorted(found[0], change[sel], side="right") - 1
-                inst = found[1][np.maximum(idx, 0)] if found[1].size else np.zeros(idx.size)
-                if (idx < 0).any():
-                    inst = np.where(idx < 0, last if last is not None else np.nan, inst)
+                here = idx >= 0
+                inst = np.full(idx.size, np.nan if last is None else last[0])
+                spans = np.full(idx.size, 0.0 if last is None else last[1])
+                inst[here] = found[1][idx[here]]
+                spans[here] = found[2][idx[here]]
                 out_t[sel] = inst
+                if spans.size:  # the interval around each crossing used
+                    self.crossing_dt = max(self.crossing_dt, float(spans.max()))
             self.times.append(out_t)
             self.levels.append(np.where(to > 0, 1, 0).astype(np.uint8))
             self.state = int(now[-1])
-            if ups[1].size:
-                self.last_up = float(ups[1][-1])
-            if downs[1].size:
-                self.last_down = float(downs[1][-1])
-        else:
-            ups, downs = self._instants(t, v)
-            if ups[1].size:
-                self.last_up = float(ups[1][-1])
-            if downs[1].size:
-                self.last_down = float(downs[1][-1])
+        ups, downs = crossings
+        if ups[1].size:
+            self.last_up = (float(ups[1][-1]), float(ups[2][-1]))
+        if downs[1].size:
+            self.last_down = (float(downs[1][-1]), float(downs[2][-1]))
         self.last_t, self.last_v = float(t[-1]), float(v[-1])
 
     def _first_level(self, t: Floats, v: Floats) -> bool:
@@ -268,23 +277,24 @@ class _Crossings:
             self.max_dt = max(self.max_dt, float(dt.max()))
         self.samples += t.size
 
-    def _instants(self, t: Floats, v: Floats) -> tuple[tuple[npt.NDArray[np.intp], Floats],
-                                                       tuple[npt.NDArray[np.intp], Floats]]:
-        """Every upward and downward crossing of the threshold: (sample index after, instant)."""
+    def _instants(self, t: Floats, v: Floats) -> tuple[_Found, _Found]:
+        """Every upward and downward crossing of the threshold: (sample index after, instant,
+        the sample interval around it)."""
         th = self.threshold
         a, b = v[:-1], v[1:]
         out = []
         for hits in ((a <= th) & (b > th), (a >= th) & (b < th)):
             k = np.flatnonzero(hits)
-            frac = (th - a[k]) / (b[k] - a[k])
-            out.append((k + 1, t[k] + frac * (t[k + 1] - t[k])))
+            span = t[k + 1] - t[k]
+            out.append((k + 1, t[k] + (th - a[k]) / (b[k] - a[k]) * span, span))
         return out[0], out[1]
 
     def result(self, levels_v: tuple[float, float] | None) -> ChannelEdges:
         times = np.concatenate(self.times) if self.times else np.zeros(0)
         levels = np.concatenate(self.levels) if self.levels else np.zeros(0, dtype=np.uint8)
         return ChannelEdges(times, levels, self.threshold, levels_v,
-                            self.min_dt if self.samples > 1 else 0.0, self.max_dt, self.samples,
+                            self.min_dt if self.samples > 1 else 0.0, self.max_dt,
+                            self.crossing_dt, self.samples,
                             self.first_t or 0.0, self.last_t or 0.0)
 
 
@@ -342,8 +352,11 @@ def read_scope(files: list[Path], high: str, low: str, settings: ScopeSettings) 
         if e.max_interval_s > UNEVEN * e.min_interval_s:
             warnings.append(f"{chans[side].layout.where}: samples are unevenly spaced "
                             f"({e.min_interval_s:.4g} s to {e.max_interval_s:.4g} s): the "
-                            "resolution is the longest interval")
-    spacing = max(got["high"].max_interval_s, got["low"].max_interval_s)
+                            "resolution is the longest interval around a crossing")
+    # the instants' uncertainty: the longest interval around a crossing that made an edge (the
+    # sample interval of an evenly sampled capture); without such crossings, the longest one
+    spacing = max(got["high"].crossing_interval_s, got["low"].crossing_interval_s) or max(
+        got["high"].max_interval_s, got["low"].max_interval_s)
     stated = settings.resolution_s is not None
     if settings.resolution_s is not None:
         if settings.resolution_s <= 0:

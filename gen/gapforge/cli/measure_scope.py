@@ -270,6 +270,7 @@ def _reference_json(cap: ScopeCapture, side: str) -> dict[str, Any]:
         "samples": edges.samples,
         "sample_interval_min_s": edges.min_interval_s,
         "sample_interval_max_s": edges.max_interval_s,
+        "crossing_interval_max_s": edges.crossing_interval_s,
     }
 
 
@@ -315,7 +316,7 @@ def analog_lines(cap: ScopeCapture) -> list[str]:
         lines.append(f"  {side} side: {quoted(chan.layout.columns[chan.index].name)} in "
                      f"{chan.layout.path.name}, {how}, deskew {format_si(skew, 's')}, "
                      f"{e.samples} samples every {format_si(e.max_interval_s, 's')}")
-    basis = "stated" if cap.resolution_stated else "the longest sample interval"
+    basis = "stated" if cap.resolution_stated else "the sample interval around the crossings"
     lines.append(f"  hysteresis {_v(cap.settings.hysteresis_v)}; resolution "
                  f"{format_si(cap.resolution_s, 's')} ({basis}); instants by linear "
                  "interpolation at the threshold (IEEE 181)")

@@ -153,7 +153,8 @@ def scope_section(cap: ScopeCapture, m: Measurement) -> Section:
         f"{format_si(cap.threshold_v('low'), 'V')}; hysteresis {format_si(s.hysteresis_v, 'V')}"
         f"; deskew high {format_si(s.deskew_high_s, 's')}, low {format_si(s.deskew_low_s, 's')}"
         f"; resolution {format_si(cap.resolution_s, 's')} ("
-        + ("stated" if cap.resolution_stated else "the longest sample interval") + ").",
+        + ("stated" if cap.resolution_stated else "the sample interval around the crossings")
+        + ").",
         "What the capture cannot show: anything faster than its sampling (ringing between two "
         "samples, a spike narrower than the interval) and anything the probes' bandwidth filters.",
     ]
