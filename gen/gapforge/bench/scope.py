@@ -384,7 +384,8 @@ def _tick(t: float) -> int:
 
 def _ticks(times: Floats, deskew: Fraction) -> npt.NDArray[np.int64]:
     if np.isnan(times).any():
-        raise GapforgeError("internal: a state change without its crossing", "capture")
+        raise GapforgeError("a state change without a threshold crossing (report this)",
+                            "capture")
     # a deskew is one constant shift per channel: the channel's order stays
     return np.rint(times * _TICKS_PER_S).astype(np.int64) - round(deskew / TICK_S)
 
@@ -411,10 +412,14 @@ def node_shares(files: list[Path], name: str, bus_v: Fraction, within: Fraction,
     for block, v in _samples(chan):
         t = block.times
         if last is not None:
-            t = np.concatenate(([last[0]], t))
-            v = np.concatenate(([last[1]], v))
+            t = np.concatenate((np.array([last[0]]), t))
+            v = np.concatenate((np.array([last[1]]), v))
+        fell = np.flatnonzero(np.diff(t) <= 0)
+        if fell.size:
+            row = int(fell[0]) + (0 if last is not None else 1)
+            raise GapforgeError("sample times must increase", block_where(chan.where, block, row))
         for edge, inst in at.items():
-            lo, hi = np.searchsorted(inst, [t[0], t[-1]], side="left")
+            lo = int(np.searchsorted(inst, t[0], side="left"))
             hi = int(np.searchsorted(inst, t[-1], side="right"))
             if hi > lo:
                 values[edge][lo:hi] = np.interp(inst[lo:hi], t, v)

@@ -110,6 +110,9 @@ def command(captures: tuple[Path, ...], high: str | None, low: str | None, activ
             no_diagram: bool, ascii_only: bool, as_json: bool, **scope: Any) -> None:
     """Measure every dead time in a capture (VCD or gapforge CSV) or a live serial stream.
 
+    An oscilloscope export in volts (one file, or one file per channel) needs --threshold (or
+    --threshold-high/--threshold-low, or --level): see the README, "Oscilloscope captures".
+
     Exit 1 on any overlap (both gates on), any possible overlap (one gate x/z while the other
     is on or unknown), or any gap not proven inside the window with the capture's resolution
     (gap - resolution >= min, gap + resolution <= max); with a window, also on an on-pulse
