@@ -320,7 +320,8 @@ def state_levels(chan: Channel, bins: int = 1000) -> tuple[float, float]:
             float(centres[half + int(np.argmax(counts[half:]))]))
 
 
-def _edges_of(chan: Channel, ref: Reference, hysteresis: float) -> ChannelEdges:
+def _machine(chan: Channel, ref: Reference, hysteresis: float) -> tuple[_Crossings,
+                                                                        tuple[float, float] | None]:
     levels = None
     if ref.threshold_v is not None:
         th = float(ref.threshold_v)
@@ -328,12 +329,25 @@ def _edges_of(chan: Channel, ref: Reference, hysteresis: float) -> ChannelEdges:
         assert ref.level_percent is not None
         levels = state_levels(chan)
         th = levels[0] + float(ref.level_percent) / 100 * (levels[1] - levels[0])
-    machine = _Crossings(th, th + hysteresis / 2, th - hysteresis / 2, chan.where)
-    for block, v in _samples(chan):
-        machine.feed(block, v)
-    if machine.samples < 2:
-        raise GapforgeError("fewer than two samples", chan.where)
-    return machine.result(levels)
+    return _Crossings(th, th + hysteresis / 2, th - hysteresis / 2, chan.where), levels
+
+
+def _edges(chans: dict[str, Channel], settings: ScopeSettings) -> dict[str, ChannelEdges]:
+    """Both gates' edges; channels that share a file are read in one pass."""
+    hyst = float(settings.hysteresis_v)
+    made = {side: _machine(chans[side], getattr(settings, side), hyst) for side in SIDES}
+    files: dict[Path, list[str]] = {}
+    for side in SIDES:
+        files.setdefault(chans[side].layout.path, []).append(side)
+    for sides in files.values():
+        layout = chans[sides[0]].layout
+        for block in blocks(layout, [chans[side].index for side in sides]):
+            for j, side in enumerate(sides):
+                made[side][0].feed(block, block.values[:, j])
+    for side in SIDES:
+        if made[side][0].samples < 2:
+            raise GapforgeError("fewer than two samples", chans[side].where)
+    return {side: made[side][0].result(made[side][1]) for side in SIDES}
 
 
 def read_scope(files: list[Path], high: str, low: str, settings: ScopeSettings) -> ScopeCapture:
@@ -344,8 +358,7 @@ def read_scope(files: list[Path], high: str, low: str, settings: ScopeSettings) 
     if (chans["high"].layout.path == chans["low"].layout.path
             and chans["high"].index == chans["low"].index):
         raise GapforgeError("--high and --low name the same channel", "--low")
-    hyst = float(settings.hysteresis_v)
-    got = {side: _edges_of(chans[side], getattr(settings, side), hyst) for side in SIDES}
+    got = _edges(chans, settings)
     warnings = []
     for side in SIDES:
         e = got[side]
