@@ -28,7 +28,7 @@ F = TypeVar("F", bound=Callable[..., Any])
 
 THRESHOLD_OPTIONS = "--threshold, --threshold-high/--threshold-low or --level"
 SCOPE_KEYS = ("threshold", "threshold_high", "threshold_low", "level", "hysteresis",
-              "deskew_high", "deskew_low", "node", "bus", "soft_within", "current")
+              "deskew_high", "deskew_low", "node", "bus", "soft_within")
 
 
 def scope_options(f: F) -> F:
@@ -52,9 +52,6 @@ def scope_options(f: F) -> F:
         ("--bus", "The bus voltage the node swings to, e.g. 400V."),
         ("--soft-within", "A turn-on is soft when the node is within this share of the rail "
          "the switch connects it to [default: 10%]."),
-        ("--current", "Operating current during the capture (positive out of the switch "
-         "node), e.g. 3.2A; with --design and --node the edge the table calls soft must be "
-         "measured soft."),
     ]
     for name, text in reversed(opts):
         f = click.option(name, default=None, help=text)(f)
@@ -154,12 +151,24 @@ def _check_node_options(scope: dict[str, Any], design: Path | None) -> None:
         raise GapforgeError("--soft-within needs --node and --bus", "--soft-within")
 
 
+def logic_capture(files: tuple[Path, ...], scope: dict[str, Any]) -> Path | None:
+    """The one file of a logic capture (analog options and several files refused)."""
+    if len(files) > 1:
+        raise GapforgeError("several files are read only as an analog capture (one channel "
+                            "per file)", "measure")
+    if any(scope.get(k) is not None for k in SCOPE_KEYS):
+        raise GapforgeError("analog options apply to oscilloscope exports (volts)", "measure")
+    return files[0] if files else None
+
+
 def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope: dict[str, Any],
-              *, design: Path | None, limits: Any, glitch: Fraction,
-              percentiles: tuple[float, ...], bins: int, worst: int,
-              resolution: Fraction | None, timescale_given: bool, as_json: bool,
-              no_diagram: bool, ascii_only: bool, active_low: bool) -> None:
-    """Read, measure, check the node, print, exit (0 ok, 1 not ok)."""
+              *, design: Path | None, limits: tuple[Any, str], current: Fraction | None,
+              glitch: Fraction, percentiles: tuple[float, ...], bins: int, worst: int,
+              resolution: Fraction | None, flags: tuple[bool, bool, bool, bool, bool]) -> None:
+    """Read, measure, check the node, print, exit (0 ok, 1 not ok). `limits`: the judged
+    limits and what they come from; `flags`: --timescale given, --json, --no-diagram,
+    --ascii, an --active-low-* option given."""
+    timescale_given, as_json, no_diagram, ascii_only, active_low = flags
     from gapforge.bench.measure import measure_capture
     from gapforge.bench.scope import node_shares, read_scope
     from gapforge.cli.measure_text import measurement_json, measurement_text
@@ -180,12 +189,10 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
                                 "holds logic levels", str(path))
     settings = settings_from(scope, resolution)
     _check_node_options(scope, design)
-    current = None
-    if scope.get("current") is not None:
-        current = _signed(scope["current"], "A", "--current")
     cap = read_scope(list(files), high, low, settings)
-    result = measure_capture(cap.stream, limits=limits, glitch_width_s=glitch,
-                             percentiles=percentiles, bins=bins, worst=worst)
+    result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
+                             percentiles=percentiles, bins=bins, worst=worst,
+                             limits_source=limits[1])
     node = None
     if scope.get("node") is not None:
         within = (_percent(scope["soft_within"], "--soft-within")
@@ -216,7 +223,7 @@ def report_scope(capture: Path, high: str, low: str, scope: dict[str, Any], limi
     from gapforge.bench.scope import read_scope
     from gapforge.outputs.scope_figure import scope_section
 
-    if any(scope.get(k) is not None for k in ("node", "bus", "soft_within", "current")):
+    if any(scope.get(k) is not None for k in ("node", "bus", "soft_within")):
         raise GapforgeError("the switch-node check is made by `gapforge measure`", "report")
     cap = read_scope([capture], high, low, settings_from(scope, None))
     result = measure_capture(cap.stream, limits=limits, glitch_width_s=glitch)
@@ -342,4 +349,5 @@ def node_lines(node: NodeResult | None) -> list[str]:
     return lines
 
 
-__all__ = ["SCOPE_KEYS", "THRESHOLD_OPTIONS", "run_scope", "scope_options", "wants_scope"]
+__all__ = ["SCOPE_KEYS", "THRESHOLD_OPTIONS", "logic_capture", "run_scope", "scope_options",
+           "wants_scope"]
