@@ -91,7 +91,7 @@ def _looks_analog(path: Path) -> bool:
         return False
     rows = [r.strip() for r in head.splitlines()[:60]]
     rows = [r for r in rows if r and not r.startswith("#")]
-    if len(rows) < 2 or rows[0].startswith("$"):
+    if len(rows) < 2 or rows[0].startswith(("$", ";")):  # a VCD; a logic analyser's own CSV
         return False
     header = rows[0].split(",")
     if header[1:] == ["signal", "level"]:
