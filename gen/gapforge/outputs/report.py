@@ -95,7 +95,8 @@ def capture_word(verdict: str) -> str:
     return {"pass": "ok", "measured": "inconclusive"}.get(verdict, verdict_word(verdict))
 
 
-def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
+def render_report(plan: BuildPlan, capture: Measurement | None = None,
+                  extra: tuple[Section, ...] = ()) -> str:
     """The whole report as HTML text (self-contained: inline CSS and SVG, no scripts).
 
     Sections follow the decision: results, the window (what the stage needs, with the old
@@ -132,6 +133,7 @@ def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
         timing_section(plan),
         *adaptive_sections(plan),
         capture_section(plan, capture),
+        *extra,  # issue 21: the analog capture's traces (outputs/scope_figure.py)
         Section(
             "inputs",
             "Inputs",
