@@ -147,6 +147,13 @@ def test_deskew_and_stated_resolution(tmp_path: Path) -> None:
     # 6.75 - 1.5 - (2.7 + 0.25) = 2.3 ns
     assert doc["edges"]["to_high"]["min_s"] == pytest.approx(2.3e-9, abs=1e-15)
     assert doc["resolution_s"] == pytest.approx(1e-10) and doc["analog"]["resolution_basis"] == "stated"
+    assert doc["resolution_origin"] == "--resolution"
+    # without --resolution: the sample interval (1 ns here), and the text says where it came from
+    _, out, _ = run_cli(["measure", str(path), "--high", "gh", "--low", "gl", "--threshold",
+                         "3V", "--json"])
+    doc = json.loads(out)
+    assert doc["resolution_s"] == pytest.approx(1e-9)
+    assert doc["resolution_origin"] == "the sample interval around the crossings"
 
 
 def test_uneven_spacing_is_reported(tmp_path: Path) -> None:

@@ -386,7 +386,9 @@ def read_scope(files: list[Path], high: str, low: str, settings: ScopeSettings) 
 
     gate = GateCapture(TICK_S, ticks["high"], got["high"].levels, ticks["low"], got["low"].levels,
                        end, ", ".join(sorted({str(c.layout.path) for c in chans.values()})),
-                       tuple(warnings), 2, 2, res_ticks)
+                       tuple(warnings), 2, 2, res_ticks,
+                       resolution_origin="--resolution" if stated
+                       else "the sample interval around the crossings")
     return ScopeCapture(stream_of(gate), settings, got["high"], got["low"], chans,
                         TICK_S * res_ticks, stated, tuple(warnings))
 
