@@ -19,7 +19,7 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 from typing import Any
 
-from gapforge.base.display import count, format_range, format_si
+from gapforge.base.display import count, format_percent, format_range, format_si
 from gapforge.outputs.svg import (
     INK,
     PALETTE,
@@ -43,6 +43,7 @@ from gapforge.outputs.svg import (
 
 LEFT, RIGHT = 120.0, 30.0  # the timing figure's margins
 MC_BINS = 40  # histogram bars
+MIN_BAND_PX = 1.0  # a shaded band narrower than a pixel is not drawn (nor listed in a legend)
 
 Window = tuple[Fraction | None, Fraction | None]  # a dead-time window's min and max, if any
 
@@ -98,17 +99,22 @@ def timing_figure(pt: PairTiming, prefix: str, windows: Mapping[str, Window], id
     styles = {"command": Style(INK, "", "none", 1.2), "high": PALETTE["high"], "low": PALETTE["low"]}
     names = {"command": "PWM command", "high": "high-side gate", "low": "low-side gate"}
     # dead-time intervals shaded (both gates off), tolerance bands, window edges
+    drawn_band = drawn_window = False
     for edge, start, dead in (("to_high", on, pt.to_high), ("to_low", off, pt.to_low)):
         end = start + float(dead[0])
         band_x(fig, xa(start), xa(end), rows["high"] - amp - 8, rows["low"] + 8,
                Style(INK, fill="#e9ecf1", opacity=1.0), f"gap-{edge}")
-        band_x(fig, xa(start + float(dead[1])), xa(start + float(dead[2])),
-               rows["high"] - amp - 8, rows["low"] + 8, PALETTE["tolerance"], f"tolerance-{edge}")
+        if _wide(xa, start + float(dead[1]), start + float(dead[2])):
+            band_x(fig, xa(start + float(dead[1])), xa(start + float(dead[2])),
+                   rows["high"] - amp - 8, rows["low"] + 8, PALETTE["tolerance"],
+                   f"tolerance-{edge}")
+            drawn_band = True
         lo, hi = windows[edge]
         for bound, name in ((lo, "min"), (hi, "max")):
             if bound is not None:
                 vline(fig, xa(start + float(bound)), rows["command"] - amp - 10, rows["low"] + 14,
                       PALETTE["window"], f"window-{name}-{edge}")
+                drawn_window = True
     for key, y in rows.items():
         pts = _wave(levels[key], period, xa, y, amp)
         fig.polyline(pts, styles[key], f"gate-{key}")
@@ -119,13 +125,16 @@ def timing_figure(pt: PairTiming, prefix: str, windows: Mapping[str, Window], id
         label = f"{edge} {eng(float(dead[0]), 's')}"
         dimension(fig, xa(start), xa(start + float(dead[0])), rows["command"] - amp - 14, label,
                   PALETTE["high"] if edge == "to_high" else PALETTE["low"], f"dim-{edge}")
-    legend(fig, LEFT, height - 14, [
+    entries = [
         ("high-side gate", PALETTE["high"], "line"),
         ("low-side gate", PALETTE["low"], "line"),
         ("dead time", Style(INK, fill="#e9ecf1"), "bar"),
-        ("clock-tolerance band", PALETTE["tolerance"], "band"),
-        ("window edges", PALETTE["window"], "line"),
-    ])
+    ]
+    if drawn_band:
+        entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
+    if drawn_window:
+        entries.append(("window edges", PALETTE["window"], "line"))
+    legend(fig, LEFT, height - 14, entries)
     return fig.render()
 
 
@@ -168,8 +177,10 @@ def transition_figure(
     if lo is not None:
         band_x(fig, xa(float(lo)), xa(float(hi) if hi is not None else x_hi), 60, 200,
                PALETTE["window"], f"window-{edge}")
-    band_x(fig, xa(float(amin)), xa(float(amax)), 60, 200, PALETTE["tolerance"],
-           f"tolerance-{edge}")
+    band = _wide(xa, amin, amax)
+    if band:
+        band_x(fig, xa(float(amin)), xa(float(amax)), 60, 200, PALETTE["tolerance"],
+               f"tolerance-{edge}")
     labels = []
     for bound, name, side in ((lo, "min", -1), (hi, "max", +1)):
         if bound is not None:
@@ -192,7 +203,8 @@ def transition_figure(
     entries = [("request", PALETTE["request"], "line")]
     if lo is not None:
         entries.append(("window", PALETTE["window"], "band"))
-    entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
+    if band:
+        entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
     legend(fig, 20, height - 18, entries)
     fig.text(xa(x_lo) + 2, 282,
              f"worst case {format_range(amin, amax, 's', cut='outward')}; "
@@ -328,26 +340,26 @@ def staircase_figure(
         fig.rect(xa.start, ya(min(w_hi, y_hi)), xa.end - xa.start,
                  ya(max(w_lo, y_lo)) - ya(min(w_hi, y_hi)), PALETTE["window"].fill, "window",
                  opacity=PALETTE["window"].opacity)
-    y_axis(fig, ya, xa.start, nice_ticks(y_lo, y_hi, 6), "s", "achieved (nominal)",
+    y_axis(fig, ya, xa.start, nice_ticks(y_lo, y_hi, 6), "s", "achieved at nominal clock",
            grid_to=xa.end)
     x_axis(fig, xa, ya.start, nice_ticks(y_lo, y_hi, 6), "s", "requested")
     fig.line(xa(y_lo), ya(y_lo), xa(y_hi), ya(y_hi), Style("#b8bec8", "1 3", "none", 1.0),
              "identity")
     pts = step_points([float(b) for b in sc.breaks_s], y_vals, xa, ya)
     fig.polyline(pts, Style(INK, "", "none", 1.6), "staircase")
-    for v in y_vals:
-        fig.marker(xa.start, ya(v), PALETTE["representable"], "representable", 3.5)
     vline(fig, xa(float(sc.requested_s)), ya.end, ya.start, PALETTE["request"], "request")
     fig.marker(xa(float(sc.requested_s)), ya(float(sc.chosen_s)), PALETTE["chosen"], "chosen", 5)
     # right of and below the chosen point: the rising staircase runs above it there
     fig.text(xa(float(sc.requested_s)) + 8, ya(float(sc.chosen_s)) + 16,
              f"chosen {eng(float(sc.chosen_s), 's')}", size=10, cls="chosen-label")
-    legend(fig, 20, height - 30, [
-        ("representable value", PALETTE["representable"], "marker"),
+    entries = [
+        ("achieved (each step a code)", Style(INK, "", "none", 1.6), "line"),
         ("chosen", PALETTE["chosen"], "marker"),
         ("request", PALETTE["request"], "line"),
-        ("window", PALETTE["window"], "band"),
-    ])
+    ]
+    if los:
+        entries.append(("window", PALETTE["window"], "band"))
+    legend(fig, 20, height - 30, entries)
     return fig.render()
 
 
@@ -379,6 +391,32 @@ def _bins(
     return [float(e) for e in edges], [int(c) for c in counts]
 
 
+def outside_counts(values: Any, window: Window) -> tuple[int, int]:
+    """How many values lie below the window's minimum and above its maximum."""
+    import numpy as np
+
+    arr = np.asarray(values, dtype=float)
+    lo, hi = window
+    below = int(np.count_nonzero(arr < float(lo))) if lo is not None else 0
+    above = int(np.count_nonzero(arr > float(hi))) if hi is not None else 0
+    return below, above
+
+
+def _outside_bins(values: Any, window: Window, edges: Sequence[float]) -> list[int]:
+    """Per bin, the values outside the window (a bin across a window edge holds both kinds)."""
+    import numpy as np
+
+    arr = np.asarray(values, dtype=float)
+    lo, hi = window
+    mask = np.zeros(arr.shape, dtype=bool)
+    if lo is not None:
+        mask |= arr < float(lo)
+    if hi is not None:
+        mask |= arr > float(hi)
+    counts, _ = np.histogram(arr[mask], bins=len(edges) - 1, range=(edges[0], edges[-1]))
+    return [int(c) for c in counts]
+
+
 def distribution_figure(
     values: Any,
     *,
@@ -391,32 +429,46 @@ def distribution_figure(
     ident: str,
     x_range: tuple[float, float] | None = None,
     count_top: int | None = None,
+    worst: tuple[Fraction, Fraction] | None = None,
 ) -> str:
     """A histogram of dead times with the window and the digital value (or the prediction).
 
-    Side-by-side histograms pass one `x_range` and `count_top` so their axes compare.
+    The x axis holds every value, the window, the digital value's band and the worst-case range
+    (`worst`, bracketed and labelled "worst case"). Values outside the window are drawn in their
+    own colour and their share is written on the plot. Side-by-side histograms pass one
+    `x_range` and `count_top` so their axes compare.
     """
     marks = [float(x) for x in window if x is not None]
     if digital is not None:
         marks += [float(digital[1]), float(digital[2])]
     if predicted is not None:
         marks += [float(predicted[0]), float(predicted[1])]
+    if worst is not None:
+        marks += [float(worst[0]), float(worst[1])]
     edges, counts = _bins(values, marks, x_range)
     top = max(counts) if counts else 1
     if count_top is not None:
         top = max(top, count_top)
-    width, height = 480, 340
+    width, height = 480, 380
     xa = Axis(edges[0], edges[-1], 70.0, width - 20.0)
     _, c_hi = nice_range(0.0, 1.1 * float(max(top, 1)), 5)
-    ya = Axis(0.0, c_hi, 250.0, 50.0)
+    ya = Axis(0.0, c_hi, 290.0, 92.0)
     title = f"{what}: {edge}"
     fig = Figure(ident, width, height, title, f"Histogram of {what} with the window.")
-    fig.text(70, 22, f"{title} ({len(values)} values)", size=12, cls="figure-title",
+    fig.text(20, 22, f"{title} ({len(values)} values)", size=12, cls="figure-title",
              weight="bold")
-    if digital is not None:
+    entries: list[tuple[str, Style, str]] = []
+    has_window = any(x is not None for x in window)
+    below = above = 0
+    if has_window:
+        below, above = outside_counts(values, window)
+        n = max(1, len(values))
+        fig.text(20, 40, f"outside the window: {format_percent(Fraction(below, n))} below, "
+                 f"{format_percent(Fraction(above, n))} above", size=11, cls="outside-share")
+    if digital is not None and _wide(xa, digital[1], digital[2]):
         band_x(fig, xa(float(digital[1])), xa(float(digital[2])), ya.end, ya.start,
                PALETTE["tolerance"], "digital-band")
-    if predicted is not None:
+    if predicted is not None and _wide(xa, predicted[0], predicted[1]):
         band_x(fig, xa(float(predicted[0])), xa(float(predicted[1])), ya.end, ya.start,
                PALETTE["tolerance"], "predicted-band")
     overlap = edges[0] < 0.0
@@ -424,9 +476,21 @@ def distribution_figure(
         band_x(fig, xa.start, xa(min(0.0, edges[-1])), ya.end, ya.start, PALETTE["overlap"],
                "overlap-region", hatched=True)
     histogram(fig, edges, counts, xa, ya, style, "bar")
+    if not has_window:
+        entries.append((what, style, "bar"))
+    elif below + above < len(values):  # some bars (or parts of bars) stay in the base colour
+        entries.append((f"{what}, inside the window", style, "bar"))
+    if has_window:
+        outside = _outside_bins(values, window, edges)
+        histogram(fig, edges, outside, xa, ya, PALETTE["outside"], "outside-bar")
+        if any(outside):
+            entries.append(("outside the window", PALETTE["outside"], "bar"))
     _overlap_bars(fig, edges, counts, xa, ya)
     y_axis(fig, ya, xa.start, nice_ticks(0.0, c_hi, 5), "", "count", grid_to=xa.end)
     x_axis(fig, xa, ya.start, nice_ticks(edges[0], edges[-1], 6), "s", "dead time")
+    if worst is not None:
+        _worst_bracket(fig, xa, ya, worst)
+        entries.append(("worst case", PALETTE["worst"], "line"))
     labels = []
     for bound, name in zip(window, ("min", "max"), strict=True):
         if bound is not None:
@@ -434,7 +498,6 @@ def distribution_figure(
             vline(fig, x, ya.end - 6, ya.start, PALETTE["window"], f"window-{name}")
             labels.append((x, f"window {name}"))
     place_labels(fig, labels, ya.end - 10, cls="window-label", left=xa.start)
-    entries = [(what, style, "bar")]
     if labels:
         entries.append(("window", PALETTE["window"], "line"))
     if overlap:
@@ -442,12 +505,33 @@ def distribution_figure(
     if digital is not None:
         vline(fig, xa(float(digital[0])), ya.end, ya.start, PALETTE["digital"], "digital")
         fig.marker(xa(float(digital[0])), ya.end, PALETTE["digital"], "digital-marker")
-        entries += [("digital value", PALETTE["digital"], "line"),
-                    ("clock-tolerance band", PALETTE["tolerance"], "band")]
-    if predicted is not None:
+        entries.append(("digital value", PALETTE["digital"], "line"))
+        if _wide(xa, digital[1], digital[2]):
+            entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
+    if predicted is not None and _wide(xa, predicted[0], predicted[1]):
         entries.append(("predicted range", PALETTE["tolerance"], "band"))
     legend(fig, 20, height - 30, entries)
     return fig.render()
+
+
+def _wide(xa: Axis, lo: Fraction | float, hi: Fraction | float) -> bool:
+    """A band at least a pixel wide: a narrower one is neither drawn nor listed in a legend."""
+    return abs(xa(float(hi)) - xa(float(lo))) >= MIN_BAND_PX
+
+
+def _worst_bracket(fig: Figure, xa: Axis, ya: Axis, worst: tuple[Fraction, Fraction]) -> None:
+    """The worst-case range as a bracket above the plot, labelled, with dotted lines down."""
+    style = PALETTE["worst"]
+    x0, x1 = xa(float(worst[0])), xa(float(worst[1]))
+    y = ya.end - 24
+    fig.line(x0, y, x1, y, style, "worst-case")
+    fig.line(x0, y - 4, x0, y + 4, style, "worst-case-end")
+    fig.line(x1, y - 4, x1, y + 4, style, "worst-case-end")
+    for x, name in ((x0, "min"), (x1, "max")):
+        fig.line(x, ya.end, x, ya.start, Style(style.colour, "1 3", "none", 1.0),
+                 f"worst-case-{name}")
+    label = f"worst case {format_range(worst[0], worst[1], 's', cut='outward')}"
+    place_labels(fig, [((x0 + x1) / 2, label)], y - 7, cls="worst-case-label", left=xa.start)
 
 
 def _overlap_bars(fig: Figure, edges: Sequence[float], counts: Sequence[int], xa: Axis,
@@ -494,7 +578,7 @@ def overlap_zoom_figure(at_s: Fraction, duration_s: Fraction, ident: str) -> str
     xa = Axis(x_lo, x_hi, 90.0, width - 20.0)
     fig = Figure(ident, width, height, "A measured overlap to scale",
                  "Both gates on together (shoot-through), from the capture's time stamps.")
-    fig.text(20, 22, f"overlap at {format_si(at_s, 's', digits=9)}: both gates on for "
+    fig.text(20, 22, f"overlap at {format_si(at_s, 's')}: both gates on for "
              f"{format_si(duration_s, 's')}", size=12, cls="figure-title", weight="bold")
     rows = {"early": 80.0, "late": 150.0}
     amp = 30.0

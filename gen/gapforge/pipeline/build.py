@@ -14,6 +14,7 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
+from gapforge.base.display import format_range
 from gapforge.base.errors import GapforgeError
 from gapforge.pipeline.design import Design, Output
 from gapforge.pipeline.policy import DesignWindow, window_of
@@ -216,9 +217,10 @@ def _plan_output(
             r = reference[e]
             if edge.achieved_min_s < r.limit_min_s or edge.achieved_max_s > r.limit_max_s:
                 warnings.append(
-                    f"{e}: digital range {float(edge.achieved_min_s) * 1e9:.6g}.."
-                    f"{float(edge.achieved_max_s) * 1e9:.6g} ns lies outside what the reference "
-                    f"network proved ({float(r.min_s) * 1e9:.6g}..{float(r.max_s) * 1e9:.6g} ns)"
+                    f"{e}: digital range "
+                    f"{format_range(edge.achieved_min_s, edge.achieved_max_s, 's', cut='outward')}"
+                    " lies outside what the reference network proved ("
+                    f"{format_range(r.min_s, r.max_s, 's', cut='inward')})"
                 )
     if limits is not None and limits.verdict != "ok" and verdict == "ok":
         verdict = limits.verdict
