@@ -632,13 +632,15 @@ def test_no_label_overlaps_or_leaves_its_figure(capture_page: str) -> None:
     # collided in every transition zoom and window labels left the capture histograms.
     # No drawn curve may run through a label either (the node plots' delay labels crossed their
     # ramps, the staircases' "chosen" labels their steps).
-    from svg_layout import curve_crossings, layout_problems
+    # Issue 23: no legend entry without something drawn, no label crossed by a straight line.
+    from svg_layout import curve_crossings, layout_problems, legend_problems, line_crossings
 
     pages = {name: example_report(name) for name in ("gan-buck", "motor-inverter")}
     pages["capture"] = capture_page
     problems = [f"{page} {ident}: {p}" for page, text in pages.items()
                 for ident, root in svgs(text).items()
-                for p in layout_problems(root) + curve_crossings(root)]
+                for p in layout_problems(root) + curve_crossings(root) + legend_problems(root)
+                + line_crossings(root)]
     assert not problems, "\n".join(problems)
     assert sum(len(svgs(text)) for text in pages.values()) >= 20
 

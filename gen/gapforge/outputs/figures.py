@@ -349,9 +349,10 @@ def staircase_figure(
     fig.polyline(pts, Style(INK, "", "none", 1.6), "staircase")
     vline(fig, xa(float(sc.requested_s)), ya.end, ya.start, PALETTE["request"], "request")
     fig.marker(xa(float(sc.requested_s)), ya(float(sc.chosen_s)), PALETTE["chosen"], "chosen", 5)
-    # right of and below the chosen point: the rising staircase runs above it there
-    fig.text(xa(float(sc.requested_s)) + 8, ya(float(sc.chosen_s)) + 16,
-             f"chosen {eng(float(sc.chosen_s), 's')}", size=10, cls="chosen-label")
+    # left of and above the chosen point: the rising staircase and the identity line both run
+    # below it there, and the request line stays right of the label
+    fig.text(xa(float(sc.requested_s)) - 8, ya(float(sc.chosen_s)) - 10,
+             f"chosen {eng(float(sc.chosen_s), 's')}", anchor="end", size=10, cls="chosen-label")
     entries = [
         ("achieved (each step a code)", Style(INK, "", "none", 1.6), "line"),
         ("chosen", PALETTE["chosen"], "marker"),
@@ -449,10 +450,10 @@ def distribution_figure(
     top = max(counts) if counts else 1
     if count_top is not None:
         top = max(top, count_top)
-    width, height = 480, 380
+    width, height = 480, 390
     xa = Axis(edges[0], edges[-1], 70.0, width - 20.0)
     _, c_hi = nice_range(0.0, 1.1 * float(max(top, 1)), 5)
-    ya = Axis(0.0, c_hi, 290.0, 92.0)
+    ya = Axis(0.0, c_hi, 300.0, 104.0)
     title = f"{what}: {edge}"
     fig = Figure(ident, width, height, title, f"Histogram of {what} with the window.")
     fig.text(20, 22, f"{title} ({len(values)} values)", size=12, cls="figure-title",
@@ -480,11 +481,8 @@ def distribution_figure(
         entries.append((what, style, "bar"))
     elif below + above < len(values):  # some bars (or parts of bars) stay in the base colour
         entries.append((f"{what}, inside the window", style, "bar"))
-    if has_window:
-        outside = _outside_bins(values, window, edges)
-        histogram(fig, edges, outside, xa, ya, PALETTE["outside"], "outside-bar")
-        if any(outside):
-            entries.append(("outside the window", PALETTE["outside"], "bar"))
+    if has_window and _outside_bars(fig, _outside_bins(values, window, edges), edges, xa, ya):
+        entries.append(("outside the window", PALETTE["outside"], "bar"))
     _overlap_bars(fig, edges, counts, xa, ya)
     y_axis(fig, ya, xa.start, nice_ticks(0.0, c_hi, 5), "", "count", grid_to=xa.end)
     x_axis(fig, xa, ya.start, nice_ticks(edges[0], edges[-1], 6), "s", "dead time")
@@ -497,7 +495,8 @@ def distribution_figure(
             x = xa(float(bound))
             vline(fig, x, ya.end - 6, ya.start, PALETTE["window"], f"window-{name}")
             labels.append((x, f"window {name}"))
-    place_labels(fig, labels, ya.end - 10, cls="window-label", left=xa.start)
+    # labels that would touch stack upward (a row down would run into the lines they name)
+    place_labels(fig, labels, ya.end - 10, cls="window-label", left=xa.start, row=-12.0)
     if labels:
         entries.append(("window", PALETTE["window"], "line"))
     if overlap:
@@ -523,7 +522,7 @@ def _worst_bracket(fig: Figure, xa: Axis, ya: Axis, worst: tuple[Fraction, Fract
     """The worst-case range as a bracket above the plot, labelled, with dotted lines down."""
     style = PALETTE["worst"]
     x0, x1 = xa(float(worst[0])), xa(float(worst[1]))
-    y = ya.end - 24
+    y = ya.end - 36
     fig.line(x0, y, x1, y, style, "worst-case")
     fig.line(x0, y - 4, x0, y + 4, style, "worst-case-end")
     fig.line(x1, y - 4, x1, y + 4, style, "worst-case-end")
@@ -532,6 +531,23 @@ def _worst_bracket(fig: Figure, xa: Axis, ya: Axis, worst: tuple[Fraction, Fract
                  f"worst-case-{name}")
     label = f"worst case {format_range(worst[0], worst[1], 's', cut='outward')}"
     place_labels(fig, [((x0 + x1) / 2, label)], y - 7, cls="worst-case-label", left=xa.start)
+
+
+def _outside_bars(fig: Figure, outside: Sequence[int], edges: Sequence[float], xa: Axis,
+                  ya: Axis) -> bool:
+    """Values outside the window drawn in their own colour over the bars, at least 3 px tall so
+    a rare one stays visible (bins at or below zero are the overlap's red bars). True if any."""
+    style = PALETTE["outside"]
+    base = ya(0)
+    drawn = False
+    for i, c in enumerate(outside):
+        if c <= 0 or edges[i] < 0.0:
+            continue
+        top = min(ya(c), base - 3.0)
+        fig.rect(xa(edges[i]), top, xa(edges[i + 1]) - xa(edges[i]), base - top, style.fill,
+                 "outside-bar", stroke=Style(style.colour, width=0.8))
+        drawn = True
+    return drawn
 
 
 def _overlap_bars(fig: Figure, edges: Sequence[float], counts: Sequence[int], xa: Axis,
@@ -591,5 +607,6 @@ def overlap_zoom_figure(at_s: Fraction, duration_s: Fraction, ident: str) -> str
     fig.text(84, rows["early"] - 10, "turning on", anchor="end", size=10, cls="row-label")
     fig.text(84, rows["late"] - 10, "still on", anchor="end", size=10, cls="row-label")
     x_axis(fig, xa, 172, nice_ticks(x_lo, x_hi, 8), "s", "time from the overlap's start")
-    legend(fig, 20, height - 14, [("both gates on", PALETTE["overlap"], "band")])
+    legend(fig, 20, height - 14, [("both gates on", replace(PALETTE["overlap"], opacity=0.35),
+                                   "band")])
     return fig.render()
