@@ -168,7 +168,7 @@ def cases(draw):  # type: ignore[no-untyped-def]
         current_error=F(draw(st.integers(0, 5)), 10),
     )
     target = draw(
-        st.sampled_from(("split-10bit-tenths", "split-10bit-div4", "shared-8bit-linear"))
+        st.sampled_from(("split-10bit-tenths", "split-10bit-div1-8", "shared-8bit-linear"))
     )
     tol = F(draw(st.sampled_from((0, 50, 10_000))), 10**6)
     return stage, spec, target, tol

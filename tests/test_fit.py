@@ -155,7 +155,7 @@ def test_divider_choice_and_tie_break_on_finer_step() -> None:
 
 
 def test_split_10bit_needs_a_coarser_divider_for_long_gaps() -> None:
-    lay = load_layout("split-10bit-div4")
+    lay = load_layout("split-10bit-div1-8")
     # 10 us at 160 MHz = 1600 counts > 1023; /2: 800 counts; 800 x 2 / 160 MHz = 10 us exactly
     r = fit(lay, request(160 * MHZ, 10 * US))
     assert (r.divider, r.edges["to_high"].code, r.edges["to_high"].achieved_s) == (2, 800, 10 * US)

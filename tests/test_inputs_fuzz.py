@@ -50,7 +50,7 @@ mismatch = "5ns"
 current = "10A"
 loss_budget = "2W"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "DT"
 file = "dt.h"
 """

@@ -367,3 +367,17 @@ def test_the_largest_allowed_segmented_layout_decodes_by_arithmetic(tmp_path: Pa
     steps, codes = f.table
     assert steps == codes == tuple(range(1 << 16))
     assert f.decode(0xFFFF) == 0xFFFF and f.decode(0x0400) == 0x0400
+
+
+def test_a_renamed_builtin_still_loads_with_a_warning_and_is_listed_by_its_new_name() -> None:
+    # issue 23: "split-10bit-div4" read as divide-by-4 while its divider field selects 1, 2, 4
+    # or 8 (targets/split-10bit-div1-8.toml: dividers = [1, 2, 4, 8]); the old name loads the
+    # same layout with one warning line on stderr; `targets` lists only the new name
+    assert load_layout("split-10bit-div4").name == "split-10bit-div1-8"
+    assert load_layout("split-10bit-div1-8").dividers == (1, 2, 4, 8)
+    assert "split-10bit-div4" not in builtin_names()
+    code, out, _ = run_cli(["targets"])
+    assert code == 0 and "split-10bit-div1-8" in out and "split-10bit-div4" not in out
+    code, out, err = run_cli(["targets", "show", "split-10bit-div4"])
+    assert code == 0 and "split-10bit-div1-8" in out
+    assert err.count("\n") == 1 and "renamed 'split-10bit-div1-8'" in err

@@ -18,7 +18,7 @@ tolerance = "50ppm"
 [dead_time]
 value = "100ns"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "DT"
 file = "dt.h"
 """
@@ -191,9 +191,9 @@ def test_issue9_every_caution_names_transitions_temperature_and_load_current() -
     words = "on every transition, over temperature and load current"
     assert words in caution.TEXT
     # `targets show` prints dead-time ranges: it carries the caution too (text and JSON)
-    code, out, _ = run_cli(["targets", "show", "split-10bit-div4", "--clock", "100MHz"])
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8", "--clock", "100MHz"])
     assert code == 0 and words in out
-    code, out, _ = run_cli(["targets", "show", "split-10bit-div4", "--json"])
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8", "--json"])
     assert code == 0 and words in json.loads(out)["caution"]
 
 

@@ -10,7 +10,14 @@ import click
 from gapforge.base.caution import SHORT as CAUTION
 from gapforge.base.display import verdict_word
 from gapforge.base.errors import GapforgeError
-from gapforge.cli.options import Quantity, clock_options, diagram_options, emit_json, json_option
+from gapforge.cli.options import (
+    Quantity,
+    clock_options,
+    diagram_options,
+    emit_json,
+    json_option,
+    warn_renamed,
+)
 from gapforge.outputs.views import fit_json, fit_text
 from gapforge.timer.fit import ROUNDINGS, FitRequest, fit
 from gapforge.timer.layouts import load_layout
@@ -85,6 +92,7 @@ def command(
         layout = load_layout(target)
     except GapforgeError as exc:
         raise exc.at("--target") if exc.where is None else exc from None
+    warn_renamed(target)
     if divider_code is not None and not 0 <= divider_code < len(layout.dividers):
         raise GapforgeError(
             f"divider code {divider_code} is not one of 0..{len(layout.dividers) - 1} "

@@ -22,7 +22,7 @@ from gapforge.base.display import (
 )
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_tolerance
-from gapforge.cli.options import Quantity, Tolerance, json_option
+from gapforge.cli.options import Quantity, Tolerance, json_option, warn_renamed
 from gapforge.cli.window_cmd import (
     CAUTION,
     MIN_FORMULA,
@@ -449,6 +449,7 @@ def command(**values: Any) -> None:
             layout = load_layout(name)
         except GapforgeError as exc:
             raise exc.at("--target") from None
+        warn_renamed(name)
         if layout.name not in seen:
             seen.add(layout.name)
             layouts.append(layout)

@@ -14,12 +14,12 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
-from gapforge.base.display import format_range
+from gapforge.base.display import format_range, format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.pipeline.design import Design, Output
 from gapforge.pipeline.policy import DesignWindow, window_of
 from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
-from gapforge.timer.layouts import EDGES
+from gapforge.timer.layouts import EDGES, rename_warning
 from gapforge.timer.limits import PwmLimits, counter_problem, pwm_limits
 
 VERDICTS = ("ok", "unreachable", "empty-window", "too-short", "too-long")
@@ -195,11 +195,15 @@ def _plan_output(
             edge = result.edges[e]
             if edge.requested_s > edge.max_min_s:
                 reasons.append(
-                    f"{e} request {float(edge.requested_s) * 1e9:.6g} ns is above the layout's "
-                    f"maximum {float(edge.max_min_s) * 1e9:.6g} ns (worst case at the fast clock)"
+                    f"{e} request {format_si(edge.requested_s, 's', toward='up')} is above the "
+                    f"layout's maximum {format_si(edge.max_min_s, 's', toward='down')} (worst "
+                    "case at the fast clock)"
                 )
         return OutputPlan(output, result, None, {}, "unreachable", tuple(reasons), ())
     limits = pwm_limits(result, design.pwm) if design.pwm is not None else None
+    renamed = rename_warning(output.target)
+    if renamed is not None:
+        warnings.append(renamed)
     warnings.extend(w for w in fit_warnings(result) if not w.startswith("the clock tolerance"))
     if limits is not None and counter_problem(limits):
         warnings.append(counter_problem(limits))  # refused under `build --strict`
