@@ -29,6 +29,7 @@ from gapforge.analog.network import (
 )
 from gapforge.analog.parameters import LEVEL_PRESETS, PARAMETERS, network_from_options
 from gapforge.analog.preferred import RANKINGS, SERIES_NAMES
+from gapforge.base.display import format_range
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_quantity, parse_quantity, parse_tolerance
 from gapforge.cli.analog_text import render_text
@@ -87,7 +88,9 @@ def _network_options(f: F) -> F:
               help="Smallest acceptable dead time: report the share of samples below it; exit 1 "
               "when the worst case falls below it.")
 @click.option("--suggest", "suggest_t", default=None,
-              help="Propose preferred-value R/C pairs for this typical dead time.")
+              help="MIN:MAX (e.g. 114ns:300ns): list the preferred-value R/C pairs whose "
+              "worst-case range of the dead time lies inside that window, best centred first. "
+              "A single time: pairs near that typical dead time.")
 @click.option("--suggest-for", type=click.Choice(list(PAIR_KEYS)), default="to_high",
               show_default=True, help="Which dead time --suggest aims at.")
 @click.option("--suggest-rank", type=click.Choice(list(RANKINGS)), default="worst-case",
@@ -159,7 +162,7 @@ def _run(
     below = parse_quantity(min_dead, "s", "--min-dead") if min_dead is not None else None
     warn_share = parse_tolerance(leakage_warn, "--leakage-warn")
     model_share = parse_tolerance(model_warn, "--model-warn")
-    target = parse_quantity(suggest_t, "s", "--suggest") if suggest_t is not None else None
+    target, window = _suggest_arg(suggest_t)
     with _progress_bar(samples) as progress:
         report = analyse(
             net,
@@ -173,6 +176,7 @@ def _run(
             warn_share=warn_share,
             model_share=model_share,
             target=target,
+            window=window,
             suggest_for=suggest_for,
             suggest_rank=suggest_rank,
             r_series=series,
@@ -184,6 +188,21 @@ def _run(
         click.echo(render_text(report), nl=False)
     if report["limit_violated"]:
         sys.exit(1)
+
+
+def _suggest_arg(text: str | None) -> tuple[Fraction | None, tuple[Fraction, Fraction] | None]:
+    """--suggest: a typical dead time, or a window MIN:MAX (0 < MIN < MAX)."""
+    if text is None:
+        return None, None
+    if ":" not in text:
+        return parse_quantity(text, "s", "--suggest"), None
+    low_text, _, high_text = text.partition(":")
+    low = parse_quantity(low_text, "s", "--suggest")
+    high = parse_quantity(high_text, "s", "--suggest")
+    if not low < high:
+        raise GapforgeError(f"{text!r}: the window's MIN must be below its MAX (e.g. "
+                            "114ns:300ns)", "--suggest")
+    return None, (low, high)
 
 
 @contextlib.contextmanager
@@ -250,6 +269,7 @@ class _Options:
     warn_share: Fraction = DEFAULT_LEAKAGE_SHARE
     model_share: Fraction = Fraction(1, 10)
     target: Fraction | None = None
+    window: tuple[Fraction, Fraction] | None = None
     suggest_for: str = "to_high"
     suggest_rank: str = "worst-case"
     r_series: str = "E96"
@@ -288,10 +308,14 @@ def analyse(net: ReferenceNetwork, **options: Any) -> dict[str, Any]:
         out.data["simulation"] = _simulation(net, opts.warn_share, float(opts.model_share),
                                              out.data["edges"], out.warnings, leakage_warned)
         out.limit_violated = out.limit_violated or out.data["simulation"]["leakage_warning"]
-    if opts.target is not None:
+    if opts.target is not None or opts.window is not None:
         _suggest_step(net, opts, out)
     out.data["warnings"] = out.warnings
     out.data["limit_violated"] = out.limit_violated
+    # the one vocabulary (README): a violated limit (overlap, --min-dead, hot leakage, no pair
+    # for --suggest) is "fail"
+    out.data["verdict"] = "fail" if out.limit_violated else "ok"
+    out.data["min_dead_s"] = float(opts.below) if opts.below is not None else None
     return out.data
 
 
@@ -322,7 +346,8 @@ def _edges_step(net: ReferenceNetwork, wc: Any, out: _Report) -> None:
     out.data.update({
         "caution": CAUTION,
         "parameters": {
-            name: {"value": text, "default": is_default, "source": source}
+            name: {"value": text, "default": is_default,
+                   "source": source if is_default else "given"}
             for name, text, is_default, source in describe_parameters(net)
         },
         "edges": edges,
@@ -358,6 +383,8 @@ def _pair_step(net: ReferenceNetwork, wc: Any, opts: _Options, out: _Report) -> 
                 f"--min-dead {format_quantity(opts.below, 's')}"
             )
     out.data["can_overlap"] = any(wc.pair[k].min_s <= 0 for k in PAIR_KEYS)
+    out.data["below_min_dead"] = [k for k in PAIR_KEYS
+                                  if opts.below is not None and wc.pair[k].min_s < opts.below]
 
 
 def _findings_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> bool:
@@ -465,14 +492,21 @@ def _monte_carlo_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> No
 
 
 def _suggest_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> None:
-    """Preferred R/C pairs for the wanted dead time; none safe is a violated limit."""
-    from gapforge.analog.preferred import suggest
+    """Preferred R/C pairs for the wanted dead time (or whose worst case fits the wanted
+    window); none safe is a violated limit."""
+    from gapforge.analog.preferred import suggest, suggest_window
 
-    assert opts.target is not None
-    found = suggest(net, opts.target, key=opts.suggest_for, r_series=opts.r_series,
-                    c_series=opts.c_series, rank=opts.suggest_rank, min_dead_s=opts.below)
+    if opts.window is not None:
+        found = suggest_window(net, *opts.window, key=opts.suggest_for, r_series=opts.r_series,
+                               c_series=opts.c_series, min_dead_s=opts.below)
+    else:
+        assert opts.target is not None
+        found = suggest(net, opts.target, key=opts.suggest_for, r_series=opts.r_series,
+                        c_series=opts.c_series, rank=opts.suggest_rank, min_dead_s=opts.below)
     out.data["suggestions"] = {
-        "target_s": float(opts.target),
+        "target_s": float(opts.target) if opts.target is not None else None,
+        "window": None if opts.window is None else {
+            "min_s": float(opts.window[0]), "max_s": float(opts.window[1])},
         "dead_time": opts.suggest_for,
         "r_series": opts.r_series,
         "c_series": opts.c_series,
@@ -484,6 +518,15 @@ def _suggest_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> None:
     }
     if not found.pairs:
         out.limit_violated = True
+        if opts.window is not None:
+            out.warnings.append(
+                f"--suggest: none of the {found.candidates} preferred pairs tried gives a "
+                f"worst-case {opts.suggest_for} inside "
+                f"{format_range(*opts.window, 's', cut='inward')}"
+                + (" with every dead time at least --min-dead" if opts.below is not None else "")
+            )
+            return
+        assert opts.target is not None
         out.warnings.append(
             f"--suggest: none of the {found.candidates} preferred pairs near "
             f"{format_quantity(opts.target, 's')} is safe over the tolerances (every one's "
