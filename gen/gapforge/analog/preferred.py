@@ -20,9 +20,8 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 
 from gapforge.analog.network import PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
-from gapforge.base.display import format_range
+from gapforge.base.display import format_range, format_si
 from gapforge.base.errors import GapforgeError
-from gapforge.base.quantities import format_quantity
 
 # Mantissas in units of 0.1 (E6, E12, E24) and 0.01 (E48, E96, E192).
 E6: tuple[int, ...] = (10, 15, 22, 33, 47, 68)
@@ -136,11 +135,11 @@ def _unsafe_reasons(
     for key in PAIR_KEYS:
         low = ranges[key].min_s  # rounded down: the safe side of a minimum
         if low <= 0:
-            reasons.append(f"{key} worst-case minimum {format_quantity(low, 's')} is not "
-                           "positive (both outputs on together)")
+            reasons.append(f"{key} worst-case minimum {format_si(low, 's', toward='down')} is "
+                           "not positive (both outputs on together)")
         elif min_dead_s is not None and low < min_dead_s:
-            reasons.append(f"{key} worst-case minimum {format_quantity(low, 's')} is below the "
-                           f"minimum dead time {format_quantity(min_dead_s, 's')}")
+            reasons.append(f"{key} worst-case minimum {format_si(low, 's', toward='down')} is "
+                           f"below the minimum dead time {format_si(min_dead_s, 's')}")
     return tuple(reasons)
 
 
