@@ -381,3 +381,16 @@ def test_a_renamed_builtin_still_loads_with_a_warning_and_is_listed_by_its_new_n
     code, out, err = run_cli(["targets", "show", "split-10bit-div4"])
     assert code == 0 and "split-10bit-div1-8" in out
     assert err.count("\n") == 1 and "renamed 'split-10bit-div1-8'" in err
+
+
+def test_targets_show_lists_fields_most_significant_first() -> None:
+    # issue 23: as the headers do (DEVELOPERS.md: "Fields ... are listed most significant
+    # first"); split-10bit-div1-8 has div at bits 28..29, to_low_count 16..25, to_high_count 0..9
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8"])
+    assert code == 0
+    names = [line.split()[0] for line in out.splitlines()
+             if line.split() and line.split()[0] in ("div", "to_low_count", "to_high_count")]
+    assert names == ["div", "to_low_count", "to_high_count"]
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8", "--json"])
+    offsets = [f["offset"] for f in json.loads(out)["fields"]]
+    assert offsets == sorted(offsets, reverse=True) == [28, 16, 0]

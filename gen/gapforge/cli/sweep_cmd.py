@@ -17,6 +17,7 @@ from gapforge.base.display import (
     choose_exponent,
     count,
     format_range,
+    format_register,
     format_si,
     verdict_word,
 )
@@ -193,7 +194,7 @@ def _row_cells(rank: int, row: SweepRow, exp3: int) -> list[str]:
     lo = min(e.achieved_min_s for e in row.edges.values())
     hi = max(e.achieved_max_s for e in row.edges.values())
     span = format_range(lo, hi, "s", cut='outward')
-    register = "-" if row.register is None else f"0x{row.register:X}"
+    register = "-" if row.register is None else format_register(row.register, row.register_bits)
     return [
         str(rank),
         row.layout,
@@ -221,7 +222,7 @@ def best_line(result: Sweep) -> str:
     codes = both_edges({edge: f"code {row.edges[edge].code}" for edge in EDGES})
     lo = min(e.achieved_min_s for e in row.edges.values())
     hi = max(e.achieved_max_s for e in row.edges.values())
-    register = "" if row.register is None else f", register 0x{row.register:X}"
+    register = "" if row.register is None else f", register {format_register(row.register, row.register_bits)}"
     return (
         f"sweep: best {row.layout} at {format_si(row.clock_hz, 'Hz')} /{row.divider}, "
         f"{'; '.join(codes)}{register}: worst case {format_range(lo, hi, 's', cut='outward')}"
