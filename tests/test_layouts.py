@@ -165,8 +165,8 @@ BAD_LAYOUTS: dict[str, tuple[str, str]] = {
         HEAD + "[clock]\ndividers = [1, 2]\n" + BOTH8
         + '[[field]]\nname = "div"\nrole = "divider"\noffset = 8\nwidth = 1\n',
         # the same omission is also reported as "name the divider field here"
-        "clock.divider_field: required when more than one divider is listed "
-        "(and 1 more problem)",
+        "2 problems: clock.divider_field: required when more than one divider is listed; "
+        "clock.divider_field: name the divider field here",
     ),
     "divider-zero": (
         HEAD + '[clock]\ndividers = [1, 0]\ndivider_field = "div"\n' + BOTH8
@@ -238,8 +238,23 @@ def test_all_problems_are_collected_and_counted(tmp_path: Path) -> None:
     with pytest.raises(GapforgeError) as info:
         load_layout(str(path))
     line = info.value.line()
-    assert line.startswith(f"{path}: field[0].widht: unknown key; did you mean 'width'?")
-    assert line.endswith("(and 1 more problem)")
+    # issue 23: every problem listed at once, each with its key path and hint, on one line
+    assert line.startswith(f"{path}: 2 problems: field[0].widht: unknown key; did you mean "
+                           "'width'?")
+    assert line.endswith("field[0].width: required key is missing")
+    assert "\n" not in line
+
+
+def test_many_problems_list_the_first_ten_and_count_the_rest(tmp_path: Path) -> None:
+    # twelve misspelt keys: ten listed with their hints, "and 2 more problems"
+    path = tmp_path / "many.toml"
+    path.write_text(HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidth = 8\n'
+                    + "".join(f"extra{i} = 1\n" for i in range(12)))
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
+    line = info.value.line()
+    assert line.count("unknown key") == 10 and line.endswith("; and 2 more problems")
+    assert line.startswith(f"{path}: 12 problems: ")
 
 
 def test_toml_syntax_error_keeps_the_line_number(tmp_path: Path) -> None:
