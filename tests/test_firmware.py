@@ -158,3 +158,75 @@ def test_protocol_2_lines_carry_the_check() -> None:
     line = checked("#GFCAP 2 clock_hz=50000000 counter_bits=16")
     assert parse_line(line.encode()) == Header(2, 50_000_000, 16)
     assert "#define GFCAP_PROTOCOL       2u" in render_capture_helper(16)["gapforge_capture_fmt.h"]
+
+
+# An invented running stream (issue 20): the firmware sends its header at start-up and again
+# whenever gfcap_header_due says so; a reader joins at an arbitrary byte.
+STREAM_C = r"""
+#include <stdio.h>
+#include "gapforge_capture_fmt.h"
+
+static char line[GFCAP_BUFFER_SIZE];
+static uint16_t since = 0u;
+static uint8_t seq = 0u;
+
+static void header(void) { fputs(gfcap_format_header(line, sizeof line, 50000000u) ? line : "FAILED\n", stdout); }
+static void sent(size_t n) {
+    fputs(n ? line : "FAILED\n", stdout);
+    if (gfcap_header_due(&since)) { header(); }
+}
+
+int main(void)
+{
+    uint32_t t = 1000u;
+    unsigned k;
+    header();
+    for (k = 0u; k < 400u; k++) {
+        sent(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_LOW, 0u, (gfcap_counter_t)t, seq++));
+        sent(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_HIGH, 1u, (gfcap_counter_t)(t + 11u), seq++));
+        sent(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_HIGH, 0u, (gfcap_counter_t)(t + 5011u), seq++));
+        sent(gfcap_format_edge(line, sizeof line, GFCAP_SIDE_LOW, 1u, (gfcap_counter_t)(t + 5024u), seq++));
+        sent(gfcap_format_keepalive(line, sizeof line, (gfcap_counter_t)(t + 30000u), seq++));
+        t += 50000u;
+    }
+    return 0;
+}
+"""
+
+
+@pytest.mark.skipif(CC is None, reason="no C compiler on this machine")
+def test_joining_a_running_stream_at_any_byte(tmp_path: Path) -> None:
+    import random
+
+    from gapforge.bench.serial_protocol import HEADER_EVERY
+
+    assert CC is not None
+    for name, text in render_capture_helper(16).items():
+        (tmp_path / name).write_text(text)
+    (tmp_path / "main.c").write_text(STREAM_C)
+    exe = tmp_path / "stream"
+    build = subprocess.run([CC, *FLAGS, "-o", str(exe), "main.c", "gapforge_capture_fmt.c"],
+                           cwd=tmp_path, capture_output=True, text=True, check=False)
+    assert build.returncode == 0, build.stderr
+    data = subprocess.run([str(exe)], capture_output=True, check=True, timeout=20).stdout
+    assert b"FAILED" not in data
+    headers = data.count(b"#GFCAP")
+    assert headers == 1 + (400 * 5) // HEADER_EVERY  # start-up, then every HEADER_EVERY lines
+    rng = random.Random(20)  # seeded: arbitrary bytes, the same every run
+    last_header = data.rfind(b"#GFCAP")
+    for start in [0, 1, 7, *(rng.randrange(0, last_header) for _ in range(12))]:
+        dec = LineDecoder()
+        for k in range(start, len(data), 61):  # arrives in pieces, as from a port
+            dec.feed(data[k : k + 61])
+        dec.finish()
+        cap = dec.capture("joined")
+        assert cap is not None, start
+        assert dec.status.garbage == 0 and dec.status.lost_lines == 0, start
+        m = measure_capture(cap)
+        # every hand-over after the header is measured exactly (the outside reference: the
+        # gaps the C program wrote, 11 and 13 counts)
+        assert set(m.to_high.gaps_ticks.tolist()) == {11}, start
+        assert set(m.to_low.gaps_ticks.tolist()) <= {13}, start
+        assert m.missing_edge_count == 0 and m.verdict == "ok", start
+        if start > 0:
+            assert any("joined a running stream" in w for w in cap.warnings), start

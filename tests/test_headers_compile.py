@@ -30,7 +30,7 @@ from conftest import BUILTINS, EXAMPLES, run_cli
 
 # -Wconversion passes too, so it is part of the set
 WARNINGS = ["-Wall", "-Wextra", "-Wpedantic", "-Werror", "-Wconversion"]
-DESIGNS = ("gan-buck", "motor-inverter")
+DESIGNS = ("gan-buck", "motor-inverter", "adaptive-gan", "adaptive-silicon")
 
 
 def _compiler(name: str) -> str:
@@ -52,7 +52,7 @@ def built(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, list[dict[str
         assert code == 0, stderr
         doc = json.loads(stdout)
         entries.extend(doc["outputs"])
-    assert len(entries) == 3
+    assert len(entries) == 5  # gan-buck 1, motor-inverter 2, adaptive-gan 1, adaptive-silicon 1
     for entry in entries:
         assert (out / entry["file"]).is_file()
     return out, entries
@@ -406,10 +406,13 @@ def test_prefixes_differing_in_case_get_distinct_include_guards(tmp_path: Path) 
 # rounded to the nearest whole count (gapforge.timer.limits; ties round up). The usable duty is found by
 # simulation, not a formula: for every compare value c in 0..N the program walks one period count
 # by count (edge: counter = t; centre: counter = t on the way up, 2N - 1 - t on the way down, so
-# each count is one tick), commands the high side while counter < c and the low side otherwise,
+# each count is one tick, visiting 0 and N - 1 twice; or, for a counter that turns at the top
+# once, 0..N up and N - 1..1 down; a design that does not state which is checked under both, a
+# pulse needed under each: issue 19), commands the high side while counter < c and the low side otherwise,
 # and finds the shortest run of each command in the period (runs wrap around the period end). An
 # output produces a pulse when that run, in sub-steps, exceeds the dead time before its turn-on:
-# run x SUB_STEPS > dead steps x DIVIDER (to_high delays the high side, to_low the low side). The
+# run x SUB_STEPS > dead steps x DIVIDER (to_high delays the high side, to_low the low side;
+# with a current-indexed table the longest entry of each edge, from the build's JSON). The
 # first and last c giving both pulses must equal DUTY_MIN/MAX_COUNTS, with every c between them
 # also giving both (one contiguous range).
 
@@ -470,24 +473,27 @@ static void worst_ps(uint64_t steps, int fast, const char *edge) {
     printf("%s %s_rec %llu\n", edge, fast ? "min" : "max", (unsigned long long)q.lo);
 }
 
-/* 1 when the high side is commanded on at count t of the period, compare value c */
-static int high_cmd(uint64_t t, uint64_t c) {
+/* 1 when the high side is commanded on at count t of the period, compare value c; turn: clocks
+   the centre-aligned counter spends at each turning point (2: 0..N-1, N-1..0; 1: 0..N, N-1..1) */
+static int high_cmd(uint64_t t, uint64_t c, int turn) {
 #if CENTER
-    uint64_t counter = t < COMPARE ? t : 2u * COMPARE - 1u - t;
+    uint64_t counter = turn == 2 ? (t < COMPARE ? t : 2u * COMPARE - 1u - t)
+                                 : (t <= COMPARE ? t : 2u * COMPARE - t);
 #else
     uint64_t counter = t;
+    (void)turn;
 #endif
     return counter < c;
 }
 
 /* shortest run of `level` in one period (wrapping); 0 when there is no edge at all */
-static uint64_t shortest_run(uint64_t c, int level) {
+static uint64_t shortest_run(uint64_t c, int level, int turn) {
     uint64_t t, best = 0u;
     for (t = 0u; t < PERIOD; ++t) {
         uint64_t prev = t == 0u ? PERIOD - 1u : t - 1u;
-        if ((high_cmd(t, c) == level) && (high_cmd(prev, c) != level)) {
+        if ((high_cmd(t, c, turn) == level) && (high_cmd(prev, c, turn) != level)) {
             uint64_t n = 0u, u = t;
-            while (n < PERIOD && high_cmd(u, c) == level) {
+            while (n < PERIOD && high_cmd(u, c, turn) == level) {
                 ++n;
                 u = u + 1u == PERIOD ? 0u : u + 1u;
             }
@@ -503,7 +509,10 @@ static int pulse(uint64_t run, uint64_t dead_steps) {
 """
 
 
-def _limits_program(header: Path, prefix: str, pwm_hz: Fraction) -> str:
+def _limits_program(
+    header: Path, prefix: str, pwm_hz: Fraction, turns: tuple[int, ...] = (2,),
+    dead: dict[str, str] | None = None,
+) -> str:
     """A C99 program printing the derived macros next to their recomputation from primitives."""
     p = prefix
     lines = [
@@ -548,10 +557,16 @@ def _limits_program(header: Path, prefix: str, pwm_hz: Fraction) -> str:
                 f'    printf("window {e} {side.lower()} %llu\\n", (unsigned long long){macro});',
                 "#endif",
             ]
+    dead = dead or {e: f"(uint64_t){p}_{e}_STEPS" for e in ("TO_HIGH", "TO_LOW")}
+    both = " && ".join(
+        f"pulse(shortest_run(c, 1, {t}), {dead['TO_HIGH']})"
+        f" && pulse(shortest_run(c, 0, {t}), {dead['TO_LOW']})"
+        for t in turns
+    )
     lines += [
         "    for (c = 0u; c <= COMPARE; ++c) {",
-        f"        int high = pulse(shortest_run(c, 1), (uint64_t){p}_TO_HIGH_STEPS);",
-        f"        int low = pulse(shortest_run(c, 0), (uint64_t){p}_TO_LOW_STEPS);",
+        f"        int high = {both};",
+        "        int low = 1;",
         "        if (high && low) {",
         "            if (count == 0u) first = c;",
         "            last = c;",
@@ -612,7 +627,18 @@ def _check_limits(design_file: Path, out: Path, doc: dict[str, Any], tmp_path: P
         header = out / entry["file"]
         src = tmp_path / f"limits_{entry['prefix']}.c"
         exe = tmp_path / f"limits_{entry['prefix']}"
-        src.write_text(_limits_program(header, entry["prefix"], pwm_hz))
+        turn = design["pwm"].get("turn_clocks")
+        center = entry["pwm"]["counting"] == "center"
+        turns = (2,) if not center else ((turn,) if turn is not None else (1, 2))
+        dead = None
+        if entry.get("adaptive"):  # the table's longest entry per edge (issue 19)
+            dead = {}
+            for edge in ("to_high", "to_low"):
+                steps = [entry["edges"][edge]["steps"]] + [
+                    b[s][edge]["steps"] for b in entry["adaptive"] for s in ("positive", "negative")
+                ]
+                dead[edge.upper()] = f"(uint64_t){max(steps)}u"
+        src.write_text(_limits_program(header, entry["prefix"], pwm_hz, turns, dead))
         proc = subprocess.run([compiler, "-std=c99", *WARNINGS, "-O1", str(src), "-o", str(exe)],
                               capture_output=True, text=True)
         assert proc.returncode == 0, proc.stderr
@@ -678,7 +704,7 @@ def test_derived_macros_of_the_examples_recomputed_in_c(
         doc = json.loads(stdout)
         assert doc["window"] is not None  # both examples carry a [stage] window
         checked += _check_limits(EXAMPLES / f"{design}.toml", out, doc, tmp_path)
-    assert checked == 3
+    assert checked == 5
 
 
 STAGE_TOML = (

@@ -104,13 +104,13 @@ def test_share_of_half_a_period_is_too_long() -> None:
     # 20 MHz edge: N = 8 counts, 4 / 8 = exactly half a period -> refused
     lim = pwm_limits(r, PwmSpec(20 * MHZ, "edge"))
     assert lim.verdict == "too-long"
-    assert lim.reason == "a dead time of 50 % of the PWM period is at least half a period"
+    assert lim.reason == "to_high 4 clocks is 50 % of the PWM period (8 clocks): at least half a period"
     # 160 / 9 MHz: N = 9; 4 / 9 < 1/2, but c >= 5 for a high pulse and c <= 4 for a low pulse
     lim = pwm_limits(r, PwmSpec(F(160, 9) * MHZ, "edge"))
     assert lim.counts == 9
     assert (lim.duty_min_counts, lim.duty_max_counts) == (5, 4)
     assert lim.verdict == "too-long"
-    assert lim.reason == "no commanded duty gives a pulse on both outputs"
+    assert lim.reason.startswith("no commanded duty gives a pulse on both outputs")
     # N = 10: c in 5..5 still works: ok
     lim = pwm_limits(r, PwmSpec(16 * MHZ, "edge"))
     assert (lim.duty_min_counts, lim.duty_max_counts, lim.verdict) == (5, 5, "ok")

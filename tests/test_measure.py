@@ -4,6 +4,7 @@ exact window judgement at the tick boundary."""
 from __future__ import annotations
 
 import itertools
+import re
 from fractions import Fraction
 from unittest import mock
 
@@ -303,11 +304,15 @@ def test_missing_edges() -> None:
     judged = measure_capture(make_capture(TICK, (ht, hv), (lt, lv)),
                              limits={"to_high": Limits(10 * TICK, None)})
     assert judged.verdict == "inconclusive" and judged.failed
-    # a level reported twice: the edge between is lost
+    # a level reported twice in a stream of edge reports: the edge between is lost
     lt2 = np.array([0, 100, 350, 650], dtype=np.int64)
     lv2 = np.array([1, 0, 0, 1], dtype=np.uint8)
-    m2 = measure_capture(make_capture(TICK, (ht, hv), (lt2, lv2)))
+    m2 = measure_capture(make_capture(TICK, (ht, hv), (lt2, lv2), edges_only=True))
     assert any("twice" in f.text for f in m2.missing_edges)
+    # the same rows from a file that restates levels (a VCD vector, $dumpall, a sample): no
+    # evidence of a lost edge (IEEE 1364-2005 18.2: a vector change writes the whole vector)
+    m3 = measure_capture(make_capture(TICK, (ht, hv), (lt2, lv2)))
+    assert m3.missing_edge_count == 0 and not m3.missing_edges
 
 
 def test_no_edges_is_bad_input() -> None:
@@ -332,7 +337,8 @@ def _stream(cap: GateCapture, cuts: list[int]) -> CaptureStream:
             yield whole[0][a:b], whole[1][a:b], whole[2][a:b]
 
     return CaptureStream(cap.tick_s, "chunked", chunks, chunks, lambda: (cap.end, ()),
-                         high_initial=cap.high_initial, low_initial=cap.low_initial)
+                         high_initial=cap.high_initial, low_initial=cap.low_initial,
+                         edge_events=cap.edge_events)
 
 
 def _summary(m: Measurement) -> tuple[object, ...]:
@@ -568,3 +574,46 @@ def test_glitches_and_possible_overlaps_against_a_per_event_loop(
     assert [(int(o.at_s / TICK), int(o.duration_s / TICK)) for o in m.possible_overlaps] == runs
     if runs:
         assert m.verdict == "fail"
+
+
+# --- issue 20: a restated level (a VCD vector written whole, a $dumpall checkpoint, a repeated
+# sample) is no evidence of anything: it never changes a result -------------------------------
+
+def _restated(times: list[int], levels: list[int], picks: list[tuple[int, int]], end: int,
+              ) -> tuple[list[int], list[int]]:
+    """The same signal with its current level written again: after change i (index picked
+    modulo the count), somewhere before the next change (or the end), `offset` into that span."""
+    out = [(t, i, 0, v) for i, (t, v) in enumerate(zip(times, levels, strict=True))]
+    for index, offset in picks:
+        i = index % len(times)
+        stop = times[i + 1] if i + 1 < len(times) else end
+        at = times[i] + offset % (stop - times[i] + 1)
+        out.append((at, i, 1, levels[i]))  # after change i, before change i + 1
+    out.sort()
+    return [e[0] for e in out], [e[3] for e in out]
+
+
+@settings(max_examples=200, deadline=None)
+@given(events, st.lists(st.tuples(st.integers(0, 99), st.integers(0, 999)), max_size=12),
+       st.lists(st.tuples(st.integers(0, 99), st.integers(0, 999)), max_size=12),
+       st.sampled_from([0, 3, 20]))
+def test_restated_levels_never_change_a_result(
+    evs: list[tuple[int, bool, int]], high_picks: list[tuple[int, int]],
+    low_picks: list[tuple[int, int]], glitch: int,
+) -> None:
+    cap = _capture(evs, edges_only=False)
+    if cap.high_times.size == 0 or cap.low_times.size == 0:
+        return
+    kwargs = {"glitch_width_s": glitch * TICK, "worst": 3,
+              "limits": {"to_high": Limits(2 * TICK, 30 * TICK)}}
+    ht, hv = _restated(cap.high_times.tolist(), cap.high_levels.tolist(), high_picks, cap.end)
+    lt, lv = _restated(cap.low_times.tolist(), cap.low_levels.tolist(), low_picks, cap.end)
+    restated = make_capture(TICK, (np.array(ht, np.int64), np.array(hv, np.uint8)),
+                            (np.array(lt, np.int64), np.array(lv, np.uint8)), end=cap.end)
+    try:
+        plain = measure_capture(cap, **kwargs)  # type: ignore[arg-type]
+    except GapforgeError as exc:
+        with pytest.raises(GapforgeError, match=re.escape(exc.message[:20])):
+            measure_capture(restated, **kwargs)  # type: ignore[arg-type]
+        return
+    assert _summary(measure_capture(restated, **kwargs)) == _summary(plain)  # type: ignore[arg-type]

@@ -44,8 +44,10 @@ def _run(args: list[str]) -> subprocess.CompletedProcess[str]:
 
 def test_pass_json(tmp_path: Path) -> None:
     path = _vcd(tmp_path / "ok.vcd", 30, 40)
+    # the changes lie on a 10 ns step; --resolution states the simulator's exactness
     result = CliRunner().invoke(cli, ["measure", str(path), "--high", "top.gate_h", "--low",
-                                      "top.gate_l", "--window", "25ns:50ns", "--json"])
+                                      "top.gate_l", "--window", "25ns:50ns", "--json",
+                                      "--resolution", "1ns"])
     assert result.exit_code == 0, result.output
     doc = json.loads(result.output)
     assert doc["edges"]["to_high"]["count"] == 20
@@ -123,7 +125,7 @@ def test_design_file(tmp_path: Path) -> None:
     expected = measurement_expectations(design)
     path = _vcd(tmp_path / "ok.vcd", 30, 40)
     result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low", "gate_l",
-                                      "--design", str(design), "--json"])
+                                      "--design", str(design), "--output", "MOTOR_DT", "--json"])
     assert result.exit_code in (0, 1), result.output
     doc = json.loads(result.output)
     for edge in ("to_high", "to_low"):
@@ -306,13 +308,17 @@ def test_diagram_notes_an_overlapping_hand_over() -> None:
     m = measure_capture(make_capture(Fraction(1, 10**9), (ht, hv), (lt, lv)))
     assert m.to_high.min_s == Fraction(-4, 10**9) and m.mean_period_s == Fraction(1000, 10**9)
     text = measurement_diagram(m, ascii_only=True)
-    assert "to_high -4 ns" in text and "to_low 30 ns" in text
+    # issue 20: an overlap is never drawn as a dead time (before, the picture showed a gap
+    # labelled "to_high -4 ns"): no picture, the overlap said in words
+    assert "to_high -4 ns" not in text and "to_high 4 ns overlap" in text
+    assert "no timing diagram" in text and "both gates on" in text
+    assert len(text.splitlines()) == 1  # no drawn waveform
     from gapforge.cli.measure_text import answer_line
 
     # issue 10: a negative gap is said as an overlap, one prefix for both edges
     assert answer_line(m) == ("fail: 2 overlaps (both gates on); shortest gap to_high 4 ns "
                               "overlap, to_low 30 ns")
-    assert "overlap" in text.splitlines()[-1]
+    assert "overlap" in text
 
 
 # --- review S3-S5: resolution, unknown levels, glitches (VCDs written by pyvcd) --------------
@@ -404,10 +410,20 @@ def test_sampled_csv_judged_with_one_sample(tmp_path: Path) -> None:
     assert "resolution 10 ns" in text and "gap - resolution >= min" in text
 
 
-def test_resolution_option_widens(tmp_path: Path) -> None:
+def test_resolution_option_overrides(tmp_path: Path) -> None:
     path = _vcd(tmp_path / "ok.vcd", 30, 40)
     args = [str(path), "--high", "gate_h", "--low", "gate_l", "--window", "25ns:50ns"]
-    assert _invoke(args)[0] == 0  # 30 - 1 >= 25 and 40 + 1 <= 50
+    # every change lies on a 10 ns step (10 ticks of 1 ns): taken as the sample period, the
+    # safe side, and said: 30 - 10 = 20 < 25
+    code, doc = _invoke(args)
+    assert code == 1 and doc["resolution_s"] == pytest.approx(10e-9)
+    assert "common step" in str(doc["resolution_origin"])
+    # the writer is a simulator, exact to its tick: --resolution says so
+    code, doc = _invoke([*args, "--resolution", "1ns"])  # 30 - 1 >= 25 and 40 + 1 <= 50
+    assert code == 0 and doc["resolution_origin"] == "--resolution"
+    # never below the file's own tick
+    code, doc = _invoke([*args, "--resolution", "1ps"])
+    assert code == 0 and doc["resolution_s"] == pytest.approx(1e-9)
     code, doc = _invoke([*args, "--resolution", "6ns"])  # 30 - 6 = 24 < 25
     assert code == 1 and doc["resolution_s"] == pytest.approx(6e-9)
     assert doc["edges"]["to_high"]["below_window"] == 20  # type: ignore[index]

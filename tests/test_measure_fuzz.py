@@ -13,6 +13,7 @@ from __future__ import annotations
 import json
 import os
 import random
+import re
 import signal
 import time
 from collections.abc import Iterator
@@ -39,6 +40,12 @@ _CSV = ("# invented capture\ntime_ns,signal,level\n0,gh,0\n0,gl,1\n"
         + "".join(f"{k * 1000 + 100},gl,0\n{k * 1000 + 130.5},gh,1\n{k * 1000 + 600},gh,0\n"
                   f"{k * 1000 + 640},gl,1\n" for k in range(6)))
 _SAMPLED = "# sample_period: 10ns\ngh,gl\n" + "0,1\n0,0\n1,0\n1,0\n0,0\n0,1\n" * 5
+# issue 20: a logic analyser's '#'-commented export (rate, names with spaces) and scope-style
+# times with a sign and an exponent
+_RATE = ("# Samplerate: 16 MHz\n# Channels (2/8): High Side, Low Side\nHigh Side,Low Side\n"
+         + "0,1\n0,0\n1,0\n1,0\n0,0\n0,1\n" * 5)
+_EXPONENT = ("time_s,gh,gl\n" + "".join(f"{(k - 20) * 1e-8:.3E},{int(k % 6 in (2, 3))},"
+                                        f"{int(k % 6 in (0, 5))}\n" for k in range(30)))
 _TOKENS = [b"$end", b"$comment", b"$dumpoff", b"$dumpon", b"#", b"#99999999999999999999",
            b"#-5", b"b", b"b1x0z", b"r1.5", b"x!", b"1", b"$var", b"$scope", b"$upscope",
            b"\x00", b"\xff\xfe", b"$timescale 7ns $end", b"\n", b" ", b",", b",,,", b"x", b"z",
@@ -111,6 +118,7 @@ def _check(case: str, code: int, out: str, err: str, folder: Path, before: set[s
         assert len(lines) == 1 and lines[0].startswith("gapforge: error:"), f"{case}: {err!r}"
         assert len(lines[0]) < 500, f"{case}: error line of {len(lines[0])} characters"
         assert out == "", f"{case}: output on error"
+        assert not re.search(r"(^|[\s(:,=])b'", lines[0]), f"{case}: a bytes literal: {lines[0]}"
     else:
         doc = json.loads(out)
         assert doc["verdict"] in ("ok", "fail", "inconclusive"), case
@@ -130,6 +138,8 @@ def _cases(seed_base: int) -> Iterator[random.Random]:
     ("vcd", _VCD.encode(), ["top.bus[2]", "gate_l"]),
     ("csv", _CSV.encode(), ["gh", "gl"]),
     ("csv", _SAMPLED.encode(), ["gh", "gl"]),
+    ("csv", _RATE.encode(), ["High Side", "Low Side"]),
+    ("csv", _EXPONENT.encode(), ["gh", "gl"]),
 ])
 def test_fuzz_capture_files(tmp_path: Path, capsys: pytest.CaptureFixture[str], kind: str,
                             base: bytes, names: list[str]) -> None:

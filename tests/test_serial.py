@@ -45,7 +45,9 @@ def test_decoder_unwraps_and_counts_problems() -> None:
         dec.feed(data[k : k + 7].replace(b"\n", b"\r\n"))
     dec.feed(b"H1 00")  # a partial line at the end
     dec.finish()
-    assert dec.status.garbage == 1 and dec.status.partial == 1 and dec.status.lost_lines == 0
+    # the noise came before the first header: skipped while waiting for it, not garbage
+    assert dec.status.garbage == 0 and dec.status.before_header == 1
+    assert dec.status.partial == 1 and dec.status.lost_lines == 0
     cap = dec.capture("test")
     assert cap is not None and cap.tick_s == Fraction(1, CLOCK)
     m = measure_capture(cap)
@@ -63,11 +65,25 @@ def test_lost_lines_seen_by_sequence() -> None:
     assert dec.status.lost_lines == 1
 
 
-def test_second_header_stops() -> None:
+def test_repeated_header_continues_and_another_one_stops() -> None:
+    # the firmware repeats its header (issue 20): the same clock and width change nothing
+    whole = _lines(6, 0)
+    header, body = whole.split(b"\n", 1)
+    rows = body.split(b"\n")
+    repeated = b"\n".join([header, *rows[:9], header, *rows[9:]])
     dec = LineDecoder()
-    dec.feed(_lines(2, 0) + _lines(2, 0))
-    assert dec.stopped is not None and "restarted" in dec.stopped
-    assert dec.status.edges == 8
+    dec.feed(repeated)
+    dec.finish()
+    plain = LineDecoder()
+    plain.feed(whole)
+    plain.finish()
+    assert dec.stopped is None and dec.status.headers == 2 and dec.status.lost_lines == 0
+    assert (dec.times, dec.levels) == (plain.times, plain.levels)
+    # a header with another clock: the firmware restarted with other settings
+    other = LineDecoder()
+    other.feed(_lines(2, 0) + checked("#GFCAP 2 clock_hz=5000 counter_bits=16").encode() + b"\n")
+    assert other.stopped is not None and "restarted" in other.stopped
+    assert other.status.edges == 8 and dec.status.edges == 24
 
 
 def _feed(port: serial.SerialBase, data: bytes) -> threading.Thread:
@@ -297,7 +313,8 @@ def test_only_garbage_ends_the_capture() -> None:
     dec = LineDecoder()
     dec.feed(b"\xfe\x13garbage at the wrong baud rate\n" * (GARBAGE_RUN + 10))
     assert dec.garbage_stop and dec.stopped is not None and "in a row" in dec.stopped
-    assert dec.status.garbage == GARBAGE_RUN
+    # before any header the lines are skipped while waiting for one; the run still ends it
+    assert dec.status.before_header + dec.status.garbage == GARBAGE_RUN
     endless = LineDecoder()  # binary junk without line ends: every MAX_LINE bytes is one line
     for _ in range(GARBAGE_RUN * 2):
         endless.feed(bytes(range(1, 100)))
@@ -322,3 +339,15 @@ def test_read_serial_stops_on_a_garbage_stream() -> None:
     stop.set()
     thread.join(timeout=10)
     assert result.garbage_stop and "undecodable lines in a row" in result.stop_reason
+
+
+def test_the_reader_says_it_waits_for_the_header(capsys: pytest.CaptureFixture[str]) -> None:
+    # issue 20: joined mid-way, the progress line says it waits for the repeated header
+    from gapforge.bench.serial_stream import HEADER_EVERY
+    from gapforge.cli.measure_cmd import _progress
+
+    _progress(StreamStatus(lines=12))
+    err = capsys.readouterr().err
+    assert "waiting for the next capture header" in err and f"every {HEADER_EVERY} lines" in err
+    _progress(StreamStatus(lines=12, clock_hz=CLOCK, counter_bits=16))
+    assert "waiting" not in capsys.readouterr().err

@@ -440,7 +440,10 @@ def fits_pwm(row: Any, frequency: Fraction, counting: str) -> bool:
     d_low = dead_counts(raw, row.edges["to_low"].steps, row.divider)
     if max(d_high, d_low) * 2 >= n * per:  # at least half a period
         return False
-    return any(per * c > d_high and per * (n - c) > d_low for c in range(n + 1))
+    # centre-aligned without a stated turning convention: the high side's command is the worse
+    # of 2c (two clocks at each turn) and 2c - 1 (turning at the top once); issue 19
+    short = 1 if counting == "center" else 0
+    return any(per * c - short > d_high and per * (n - c) > d_low for c in range(n + 1))
 
 
 def shortest_safe_steps(row: Any, tol: Fraction, limits: Limits, edge: str) -> int:
@@ -471,8 +474,8 @@ def test_worked_example_rows_that_fit_the_window_but_not_the_pwm() -> None:
     # /2: 10 counts is under half of 21, but c > 10 and 21 - c > 10 leave no whole c
     assert reasons[2].startswith("pwm: no commanded duty gives a pulse on both outputs")
     # /4: 12 counts and /8: 16 counts are at least half of 21 (57.1 % and 76.2 %)
-    assert reasons[4].startswith("pwm: a dead time of 57.14 % of the PWM period")
-    assert reasons[8].startswith("pwm: a dead time of 76.19 % of the PWM period")
+    assert reasons[4].startswith("pwm: to_high 12 clocks is 57.14 % of the PWM period")
+    assert reasons[8].startswith("pwm: to_high 16 clocks is 76.19 % of the PWM period")
     for divider in (2, 4, 8):
         assert "4.75 MHz edge-aligned PWM, 21 counts per period" in reasons[divider]
     for row in result.infeasible:  # the window alone is met: only the PWM fails
@@ -585,7 +588,7 @@ def test_cli_design_pwm_is_the_default_and_options_override_it() -> None:
     # 27.6 ns is 4.4 counts, over half a period
     code, out, err = run_cli(["sweep", "--window", "27.6ns:29.687ns", "--clocks", "160MHz",
                               "--pwm", "20MHz", "--counting", "edge"])
-    assert code == 1 and "pwm: a dead time of" in out
+    assert code == 1 and "% of the PWM period" in out
 
 
 def test_cli_counting_without_a_pwm_is_an_error() -> None:

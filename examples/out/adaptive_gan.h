@@ -34,6 +34,9 @@
  * below the compare value (0: low side only, N: high side only) and each dead time delaying
  * its output's turn-on; outside GAN_AD_DUTY_MIN_COUNTS..GAN_AD_DUTY_MAX_COUNTS one output
  * never pulses.
+ * Counting: centre-aligned, turning convention not stated ([pwm] turn_clocks): the worse of 2c
+ * and 2c - 1 clocks for each output. The duty limits hold for every entry of the
+ * current-indexed table and the fixed word.
  *
  * CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design
  * aid, not a guarantee: verify every dead time on the bench at reduced voltage with current
@@ -84,8 +87,8 @@
 #define GAN_AD_PWM_PERIOD_COUNTS   400u  /* timer clocks per PWM period, 400 kHz */
 #define GAN_AD_PWM_TOP_COUNTS      199u  /* highest counter value, N-1 (for a period register that takes the top count) */
 #define GAN_AD_PWM_COMPARE_COUNTS  200u  /* N: compare value for 100 % duty */
-#define GAN_AD_DUTY_MIN_COUNTS     3u    /* smallest compare value that still gives a high-side pulse */
-#define GAN_AD_DUTY_MAX_COUNTS     197u  /* largest compare value that still gives a low-side pulse */
+#define GAN_AD_DUTY_MIN_COUNTS     7u    /* smallest compare value that still gives a high-side pulse */
+#define GAN_AD_DUTY_MAX_COUNTS     194u  /* largest compare value that still gives a low-side pulse */
 
 /* Gate driver limits */
 #define GAN_AD_DRIVER_DUTY_MIN_COUNTS  11u   /* smallest compare value, set by the minimum pulse */
@@ -192,7 +195,7 @@ typedef char gan_ad_adapt_neg_to_high_min_ps_size_check[(sizeof(gan_ad_adapt_neg
 /* to_low worst case (fastest clock), ps rounded down, negative current */
 static const uint16_t gan_ad_adapt_neg_to_low_min_ps[] = {28123u, 28123u, 28123u, 28123u, 28123u, 28123u};
 typedef char gan_ad_adapt_neg_to_low_min_ps_size_check[(sizeof(gan_ad_adapt_neg_to_low_min_ps) / sizeof(gan_ad_adapt_neg_to_low_min_ps[0]) == GAN_AD_ADAPT_BINS) ? 1 : -1];
-/* positive current: bin k while code >= this */
+/* positive current: bin k while code >= this (a mid-tread ADC enters a code half an LSB early: current_error includes it) */
 static const uint16_t gan_ad_adapt_pos_edge_adc[] = {2048u, 2128u, 2208u, 2368u, 2688u, 3328u};
 typedef char gan_ad_adapt_pos_edge_adc_size_check[(sizeof(gan_ad_adapt_pos_edge_adc) / sizeof(gan_ad_adapt_pos_edge_adc[0]) == GAN_AD_ADAPT_BINS) ? 1 : -1];
 /* negative current: bin k while code <= this */

@@ -34,6 +34,9 @@
  * below the compare value (0: low side only, N: high side only) and each dead time delaying
  * its output's turn-on; outside SI_AD_DUTY_MIN_COUNTS..SI_AD_DUTY_MAX_COUNTS one output
  * never pulses.
+ * Counting: centre-aligned, turning convention not stated ([pwm] turn_clocks): the worse of 2c
+ * and 2c - 1 clocks for each output. The duty limits hold for every entry of the
+ * current-indexed table and the fixed word.
  *
  * CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design
  * aid, not a guarantee: verify every dead time on the bench at reduced voltage with current
@@ -84,8 +87,8 @@
 #define SI_AD_PWM_PERIOD_COUNTS   8000u  /* timer clocks per PWM period, 20 kHz */
 #define SI_AD_PWM_TOP_COUNTS      3999u  /* highest counter value, N-1 (for a period register that takes the top count) */
 #define SI_AD_PWM_COMPARE_COUNTS  4000u  /* N: compare value for 100 % duty */
-#define SI_AD_DUTY_MIN_COUNTS     29u    /* smallest compare value that still gives a high-side pulse */
-#define SI_AD_DUTY_MAX_COUNTS     3971u  /* largest compare value that still gives a low-side pulse */
+#define SI_AD_DUTY_MIN_COUNTS     40u    /* smallest compare value that still gives a high-side pulse */
+#define SI_AD_DUTY_MAX_COUNTS     3960u  /* largest compare value that still gives a low-side pulse */
 
 /* Gate driver limits */
 #define SI_AD_DRIVER_DUTY_MIN_COUNTS  64u    /* smallest compare value, set by the minimum pulse */

@@ -44,6 +44,8 @@
  * below the compare value (0: low side only, N: high side only) and each dead time delaying
  * its output's turn-on; outside BUCK_DT_DUTY_MIN_COUNTS..BUCK_DT_DUTY_MAX_COUNTS one output
  * never pulses.
+ * Counting: centre-aligned, turning convention not stated ([pwm] turn_clocks): the worse of 2c
+ * and 2c - 1 clocks for each output. The duty limits hold for the fixed dead time.
  *
  * CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design
  * aid, not a guarantee: verify every dead time on the bench at reduced voltage with current

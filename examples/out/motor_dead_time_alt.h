@@ -44,6 +44,8 @@
  * below the compare value (0: low side only, N: high side only) and each dead time delaying
  * its output's turn-on; outside MOTOR_DT_ALT_DUTY_MIN_COUNTS..MOTOR_DT_ALT_DUTY_MAX_COUNTS one output
  * never pulses.
+ * Counting: centre-aligned, turning convention not stated ([pwm] turn_clocks): the worse of 2c
+ * and 2c - 1 clocks for each output. The duty limits hold for the fixed dead time.
  *
  * CAUTION: a wrong dead time can destroy a power stage and hurt people. gapforge is a design
  * aid, not a guarantee: verify every dead time on the bench at reduced voltage with current
@@ -94,7 +96,7 @@
 #define MOTOR_DT_ALT_PWM_PERIOD_COUNTS   16000u  /* timer clocks per PWM period, 20 kHz */
 #define MOTOR_DT_ALT_PWM_TOP_COUNTS      7999u   /* highest counter value, N-1 (for a period register that takes the top count) */
 #define MOTOR_DT_ALT_PWM_COMPARE_COUNTS  8000u   /* N: compare value for 100 % duty */
-#define MOTOR_DT_ALT_DUTY_MIN_COUNTS     140u    /* smallest compare value that still gives a high-side pulse */
+#define MOTOR_DT_ALT_DUTY_MIN_COUNTS     141u    /* smallest compare value that still gives a high-side pulse */
 #define MOTOR_DT_ALT_DUTY_MAX_COUNTS     7846u   /* largest compare value that still gives a low-side pulse */
 
 /* Self-checks: the header refuses to compile when it no longer matches its inputs. */

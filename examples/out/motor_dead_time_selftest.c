@@ -39,8 +39,8 @@ int main(void) {
     expect((uint64_t)MOTOR_DT_WINDOW_TO_LOW_MIN_PS == 0u || within((uint64_t)MOTOR_DT_TO_LOW_STEPS * (uint64_t)MOTOR_DT_DIVIDER, k, (uint64_t)MOTOR_DT_WINDOW_TO_LOW_MIN_PS - 1u, ppb, 1), "MOTOR_DT to_low worst case at or above the window minimum");
     expect((uint64_t)MOTOR_DT_PWM_PERIOD_COUNTS == (uint64_t)MOTOR_DT_PWM_COMPARE_COUNTS * (MOTOR_DT_PWM_COUNTING_CENTER ? 2u : 1u), "MOTOR_DT_PWM_PERIOD_COUNTS is N or 2N");
     expect((uint64_t)MOTOR_DT_PWM_TOP_COUNTS + 1u == (uint64_t)MOTOR_DT_PWM_COMPARE_COUNTS, "MOTOR_DT_PWM_TOP_COUNTS is N - 1");
-    expect(((uint64_t)MOTOR_DT_TO_HIGH_STEPS * MOTOR_DT_DIVIDER / ((uint64_t)(MOTOR_DT_PWM_COUNTING_CENTER ? 2u : 1u) * MOTOR_DT_SUB_STEPS) + 1u) == (uint64_t)MOTOR_DT_DUTY_MIN_COUNTS, "MOTOR_DT_DUTY_MIN_COUNTS");
-    expect(((uint64_t)MOTOR_DT_PWM_COMPARE_COUNTS - ((uint64_t)MOTOR_DT_TO_LOW_STEPS * MOTOR_DT_DIVIDER / ((uint64_t)(MOTOR_DT_PWM_COUNTING_CENTER ? 2u : 1u) * MOTOR_DT_SUB_STEPS) + 1u)) == (uint64_t)MOTOR_DT_DUTY_MAX_COUNTS, "MOTOR_DT_DUTY_MAX_COUNTS");
+    expect(((((uint64_t)MOTOR_DT_TO_HIGH_STEPS * MOTOR_DT_DIVIDER) + 1u * (uint64_t)MOTOR_DT_SUB_STEPS) / ((uint64_t)(MOTOR_DT_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)MOTOR_DT_SUB_STEPS) + 1u) == (uint64_t)MOTOR_DT_DUTY_MIN_COUNTS, "MOTOR_DT_DUTY_MIN_COUNTS");
+    expect(((uint64_t)MOTOR_DT_PWM_COMPARE_COUNTS - (((uint64_t)MOTOR_DT_TO_LOW_STEPS * MOTOR_DT_DIVIDER) + (uint64_t)(MOTOR_DT_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)MOTOR_DT_SUB_STEPS) / ((uint64_t)(MOTOR_DT_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)MOTOR_DT_SUB_STEPS)) == (uint64_t)MOTOR_DT_DUTY_MAX_COUNTS, "MOTOR_DT_DUTY_MAX_COUNTS");
     (void)k;
     (void)ppb;
     if (failures == 0) printf("ok\n");

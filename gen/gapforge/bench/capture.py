@@ -4,31 +4,7 @@ In memory a capture is a `GateCapture`: for the high-side and the low-side gate,
 as int64 counts of one tick (`tick_s`, an exact Fraction of a second) and the levels after the
 polarity is applied (1 = gate on, 0 = off, 2 = unknown x, 3 = high impedance z).
 
-CSV format (gapforge capture CSV, version 1)
--------------------------------------------
-Lines starting with '#' are comments, except directive lines `# key: value`. Blank lines are
-skipped. The first other line is the header; its columns choose one of two layouts:
-
-Edge events - header `time_<unit>,signal,level`::
-
-    time_ns,signal,level
-    0,gate_h,0
-    0,gate_l,1
-    100,gate_l,0
-    131.25,gate_h,1
-
-Sampled levels - header `time_<unit>,<name>,<name>...` (a time column), or only signal names with
-a directive `# sample_period: 10ns` before the header (row k is at k * period)::
-
-    # sample_period: 2ns
-    gate_h,gate_l
-    0,1
-    0,0
-    1,0
-
-<unit> is s, ms, us, ns, ps or fs; times are decimal numbers, read exactly. Levels are 0, 1, x or
-z. In the sampled layout an edge is placed at the first sample that shows the new level, so a
-measured gap is accurate to one sample period.
+The CSV format is described in `capture_csv`.
 
 Resolution
 ----------
@@ -46,8 +22,6 @@ A logic analyser may sample more coarsely than its file's time unit: `gapforge m
 
 from __future__ import annotations
 
-import math
-import re
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -57,10 +31,7 @@ import numpy as np
 import numpy.typing as npt
 
 from gapforge.base.errors import GapforgeError
-from gapforge.base.quantities import TIME_UNITS
-
-_LEVELS = {"0": 0, "1": 1, "x": 2, "X": 2, "z": 3, "Z": 3}
-_DECIMAL = re.compile(r"^[+]?(\d+(\.\d*)?|\.\d+)$")
+from gapforge.bench.capture_csv import CsvData, read_csv
 
 
 @dataclass(frozen=True)
@@ -81,6 +52,12 @@ class GateCapture:
     resolution_ticks: int = 1  # a measured gap is within this many ticks of the true gap
     lost_events: int = 0  # edges known to be missing (a serial stream's sequence gaps)
     time_unit_assumed: bool = False  # the file states no time unit (a VCD without $timescale)
+    # every change is an edge report (a serial stream): a level reported twice means a lost edge;
+    # elsewhere (a VCD's vectors and $dumpall, sampled levels) a level may be restated
+    edge_events: bool = False
+    resolution_origin: str = "one tick"  # where the resolution comes from, in words
+    # a coarser resolution the file implies (bench.resolution), (ticks, origin); None: none
+    inferred: tuple[int, str] | None = None
 
 
 # one chunk of change events of both gates in time order: times (ticks), sides (0 = high side,
@@ -110,10 +87,18 @@ class CaptureStream:
         lost_events: int = 0,
         time_unit_assumed: bool = False,
         position: Callable[[], int] | None = None,
+        edge_events: bool = False,
+        resolution_origin: str = "one tick",
+        inferred: Callable[[], tuple[int, str] | None] | None = None,
     ) -> None:
         if resolution_ticks < 1:
             raise ValueError("resolution_ticks must be at least 1")
         self.time_unit_assumed = time_unit_assumed
+        self.edge_events = edge_events
+        self.resolution_origin = resolution_origin
+        # a coarser resolution the file implies (its stated sample rate, or the common step of
+        # its change times), final once a pass has been read to the end
+        self.inferred = inferred if inferred is not None else (lambda: None)
         self.position = position  # bytes of the source read so far (None: not a file stream)
         self.tick_s = tick_s
         self.source = source
@@ -152,7 +137,8 @@ class CaptureStream:
                              self._finished, high_initial=self.high_initial,
                              low_initial=self.low_initial, resolution_ticks=self.resolution_ticks,
                              lost_events=self.lost_events, time_unit_assumed=self.time_unit_assumed,
-                             position=position)
+                             position=position, edge_events=self.edge_events,
+                             resolution_origin=self.resolution_origin, inferred=self.inferred)
 
     @property
     def end(self) -> int:
@@ -190,7 +176,10 @@ def stream_of(capture: GateCapture) -> CaptureStream:
                          high_initial=capture.high_initial, low_initial=capture.low_initial,
                          resolution_ticks=capture.resolution_ticks,
                          lost_events=capture.lost_events,
-                         time_unit_assumed=capture.time_unit_assumed)
+                         time_unit_assumed=capture.time_unit_assumed,
+                         edge_events=capture.edge_events,
+                         resolution_origin=capture.resolution_origin,
+                         inferred=lambda: capture.inferred)
 
 
 def _merge(
@@ -238,22 +227,35 @@ def open_capture(
             levels = np.where(sides == (0 if active_low_high else 1), _INVERT[levels], levels)
         return times, sides, levels
 
+    from gapforge.base.display import format_si
+    from gapforge.bench.resolution import StepWatch
+
+    watch = StepWatch()
+
     def ordered() -> Iterator[Events]:
+        watch.reset()  # a new pass
         try:
             for chunk in events.chunks():
+                watch.see(chunk[0])
                 yield polarity(chunk)
         except VcdUnordered as exc:
             raise UnorderedTimes(str(exc)) from None
 
     def whole() -> Iterator[Events]:
+        watch.reset()
         for chunk in events.sorted_chunks():
+            watch.see(chunk[0])
             yield polarity(chunk)
 
-    # resolution: one tick of the $timescale
+    unit = format_si(events.timescale_s, "s")
+    # resolution: one tick of the $timescale, or the sample period the file implies
     return CaptureStream(events.timescale_s, str(path), ordered, whole,
                          lambda: (events.end_time, events.warnings), resolution_ticks=1,
                          time_unit_assumed=events.timescale_assumed,
-                         position=lambda: events.bytes_read)
+                         position=lambda: events.bytes_read,
+                         resolution_origin=f"one tick of the file's $timescale ({unit})",
+                         inferred=lambda: watch.inferred(events.header.sample_rate_hz,
+                                                         events.timescale_s, unit))
 
 
 def invert(levels: npt.NDArray[np.uint8]) -> npt.NDArray[np.uint8]:
@@ -278,11 +280,13 @@ def make_capture(
     resolution_ticks: int = 1,
     lost_events: int = 0,
     time_unit_assumed: bool = False,
+    resolution_origin: str = "one tick",
 ) -> GateCapture:
     """Build a capture from raw levels (as recorded), applying the polarity options.
 
     `edges_only`: every change is an edge, so each signal's level before its first change is
-    the opposite of that change (a stream of edge reports). `resolution_ticks`: a measured gap
+    the opposite of that change (a stream of edge reports), and a level reported twice means an
+    edge in between was lost. `resolution_ticks`: a measured gap
     is within this many ticks of the true one (1 = one tick)."""
     if resolution_ticks < 1:
         raise ValueError("resolution_ticks must be at least 1")
@@ -296,7 +300,8 @@ def make_capture(
     hi0 = int(1 - hv[0]) if edges_only and hv.size and hv[0] <= 1 else 2
     lo0 = int(1 - lv[0]) if edges_only and lv.size and lv[0] <= 1 else 2
     return GateCapture(tick_s, ht, hv, lt, lv, max(last, end or 0), source, warnings, hi0, lo0,
-                       resolution_ticks, lost_events, time_unit_assumed)
+                       resolution_ticks, lost_events, time_unit_assumed, edge_events=edges_only,
+                       resolution_origin=resolution_origin)
 
 
 def load_capture(
@@ -315,9 +320,16 @@ def load_capture(
 
         if high == low:
             raise GapforgeError("--high and --low name the same signal", str(path))
+        from dataclasses import replace
+
+        from gapforge.base.display import format_si
+        from gapforge.bench.resolution import StepWatch
         data = read_vcd(path, [high, low], timescale=timescale)
         h, lo = data.signals[high], data.signals[low]
-        return make_capture(
+        watch = StepWatch()
+        watch.see(np.sort(np.concatenate([h.times, lo.times])))
+        unit = format_si(data.timescale_s, "s")
+        return replace(make_capture(
             data.timescale_s,
             (h.times, h.values),
             (lo.times, lo.values),
@@ -327,7 +339,8 @@ def load_capture(
             active_low_low=active_low_low,
             warnings=data.warnings,
             time_unit_assumed=data.timescale_assumed,
-        )
+            resolution_origin=f"one tick of the file's $timescale ({unit})",
+        ), inferred=watch.inferred(data.sample_rate_hz, data.timescale_s, unit))
     if timescale is not None:
         raise GapforgeError("--timescale applies to VCD files only (a CSV names its unit in the "
                             "time column)", str(path))
@@ -342,6 +355,7 @@ def load_capture(
         active_low_low=active_low_low,
         resolution_ticks=csv.resolution_ticks,
         warnings=csv.warnings,
+        resolution_origin=csv.resolution_origin,
     )
 
 
@@ -356,214 +370,11 @@ def _kind(path: Path) -> str:
             start = handle.read(256).lstrip()
     except OSError as exc:
         raise GapforgeError(f"cannot read: {exc.strerror}", str(path)) from None
-    return "vcd" if start.startswith(b"$") else "csv"
+    # a VCD, or one with another tool's line in front (the VCD reader says what it found)
+    vcd = start.startswith(b"$") or any(
+        word in start for word in (b"$date", b"$version", b"$timescale", b"$scope", b"$var"))
+    return "vcd" if vcd else "csv"
 
 
-Signals = dict[str, tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8]]]
-
-
-@dataclass(frozen=True)
-class CsvData:
-    """A capture CSV read: the tick, {name: (times, levels)}, the end tick, the resolution."""
-
-    tick_s: Fraction
-    signals: Signals
-    end: int
-    resolution_ticks: int
-    warnings: tuple[str, ...] = ()
-
-
-def read_csv(path: Path, names: list[str]) -> CsvData:
-    """Read a gapforge capture CSV (either layout, see the module docstring)."""
-    where = str(path)
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise GapforgeError(f"cannot read: {exc.strerror}", where) from None
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError:
-        raise GapforgeError("not a text file (binary data)", where) from None
-    if "\x00" in text:
-        raise GapforgeError("not a text file (binary data)", where)
-    directives: dict[str, str] = {}
-    header: list[str] | None = None
-    rows: list[tuple[int, list[str]]] = []
-    for number, line in enumerate(text.splitlines(), start=1):
-        stripped = line.strip()
-        if not stripped:
-            continue
-        if stripped.startswith("#"):
-            match = re.match(r"#\s*([a-z_]+)\s*:\s*(.+)$", stripped)
-            if match and header is None:
-                directives[match.group(1)] = match.group(2).strip()
-            continue
-        cells = [c.strip() for c in stripped.split(",")]
-        if header is None:
-            header = cells
-            header_line = number
-            continue
-        if len(cells) != len(header):
-            raise GapforgeError(
-                f"{len(cells)} columns, the header has {len(header)}", f"{where}:{number}"
-            )
-        rows.append((number, cells))
-    if header is None:
-        raise GapforgeError("empty capture (no header line)", where)
-    if not rows:
-        raise GapforgeError("no data rows (no edges)", where)
-    time_unit: Fraction | None = None
-    if header[0].startswith("time_"):
-        unit = header[0][5:]
-        if unit not in TIME_UNITS:
-            raise GapforgeError(
-                f"time column {header[0]!r}: unit must be one of {', '.join(TIME_UNITS)}",
-                f"{where}:{header_line}",
-            )
-        time_unit = TIME_UNITS[unit]
-    if time_unit is not None and header[1:] == ["signal", "level"]:
-        return _edges(rows, names, time_unit, where)
-    return _samples(rows, header, header_line, names, time_unit, directives, where)
-
-
-_MAX_TIME_TEXT = 60  # characters of one time cell
-_TICK_LIMIT = 2**62  # ticks held in int64 with room for differences
-
-
-def _exact_times(texts: list[tuple[int, str]], where: str) -> tuple[list[Fraction], int]:
-    values: list[Fraction] = []
-    denominator = 1
-    for number, cell in texts:
-        if len(cell) > _MAX_TIME_TEXT:
-            raise GapforgeError(f"time {cell[:24]!r}... is longer than {_MAX_TIME_TEXT} characters",
-                                f"{where}:{number}")
-        if not _DECIMAL.match(cell):
-            raise GapforgeError(f"time {cell!r} is not a non-negative decimal number", f"{where}:{number}")
-        value = Fraction(cell)
-        denominator = math.lcm(denominator, value.denominator)
-        values.append(value)
-    return values, denominator
-
-
-@dataclass(frozen=True)
-class _Ticks:
-    """Times as integer ticks that numpy's int64 holds: `tick` (in the file's unit), the ticks,
-    the resolution in ticks and what had to change to fit."""
-
-    tick: Fraction
-    ticks: list[int]
-    resolution: int
-    warnings: tuple[str, ...]
-
-
-def _fit_ticks(values: list[Fraction], denominator: int, unit: Fraction, where: str) -> _Ticks:
-    """The finest decimal step as the tick when every time fits in int64 ticks. Otherwise the
-    times count from the first row; and when even the span does not fit (many decimals over a
-    long capture) the tick is coarsened by powers of ten, each time rounded down, and the
-    resolution becomes two ticks (the rounding and the writer's precision, each under one)."""
-    ticks = [int(v * denominator) for v in values]
-    if max(ticks) < _TICK_LIMIT:
-        return _Ticks(unit / denominator, ticks, 1, ())
-    origin = min(ticks)
-    ticks = [t - origin for t in ticks]
-    start = f"{float(values[ticks.index(0)] * unit):g} s"
-    if max(ticks) < _TICK_LIMIT:
-        return _Ticks(unit / denominator, ticks, 1, (
-            f"{where}: times are counted from the first time ({start}): the absolute times do "
-            "not fit 64-bit ticks",))
-    factor = 10 ** (len(str(max(ticks) // _TICK_LIMIT)) )
-    while max(ticks) // factor >= _TICK_LIMIT:
-        factor *= 10
-    tick = unit * factor / denominator
-    return _Ticks(tick, [t // factor for t in ticks], 2, (
-        f"{where}: times are counted from the first time ({start}) and rounded down to "
-        f"{float(tick):g} s to fit 64-bit ticks; the resolution is two such steps",))
-
-
-def _level(cell: str, where: str) -> int:
-    if cell not in _LEVELS:
-        raise GapforgeError(f"level {cell!r} must be 0, 1, x or z", where)
-    return _LEVELS[cell]
-
-
-def _check_names(names: list[str], present: list[str], where: str) -> None:
-    import difflib
-
-    for name in names:
-        if name not in present:
-            hint = difflib.get_close_matches(name, present, n=1)
-            more = f"; did you mean {hint[0]!r}?" if hint else f"; the file has {', '.join(present)}"
-            raise GapforgeError(f"no signal {name!r} in the capture{more}", where)
-
-
-def _edges(
-    rows: list[tuple[int, list[str]]], names: list[str], unit: Fraction, where: str
-) -> CsvData:
-    times, denominator = _exact_times([(n, cells[0]) for n, cells in rows], where)
-    present = sorted({cells[1] for _, cells in rows})
-    _check_names(names, present, where)
-    out: Signals = {}
-    for i in range(1, len(times)):
-        if times[i] < times[i - 1]:
-            raise GapforgeError("times must not go backwards", f"{where}:{rows[i][0]}")
-    fitted = _fit_ticks(times, denominator, unit, where)
-    ticks = fitted.ticks
-    for name in names:
-        sel = [(ticks[i], _level(cells[2], f"{where}:{n}")) for i, (n, cells) in enumerate(rows)
-               if cells[1] == name]
-        out[name] = (
-            np.array([t for t, _ in sel], dtype=np.int64),
-            np.array([v for _, v in sel], dtype=np.uint8),
-        )
-    # resolution: one tick, the finest decimal step of the times as written (two when coarsened)
-    return CsvData(fitted.tick, out, ticks[-1], fitted.resolution, fitted.warnings)
-
-
-def _samples(
-    rows: list[tuple[int, list[str]]],
-    header: list[str],
-    header_line: int,
-    names: list[str],
-    unit: Fraction | None,
-    directives: dict[str, str],
-    where: str,
-) -> CsvData:
-    from gapforge.base.quantities import parse_quantity
-
-    first_signal = 1 if unit is not None else 0
-    columns = header[first_signal:]
-    _check_names(names, columns, f"{where}:{header_line}")
-    warnings: tuple[str, ...] = ()
-    resolution = 1  # with a sample period: one tick is one sample period
-    if unit is not None:
-        times, denominator = _exact_times([(n, cells[0]) for n, cells in rows], where)
-        for i in range(1, len(times)):
-            if times[i] <= times[i - 1]:
-                raise GapforgeError("sample times must increase", f"{where}:{rows[i][0]}")
-        fitted = _fit_ticks(times, denominator, unit, where)
-        ticks, tick, warnings = fitted.ticks, fitted.tick, fitted.warnings
-        resolution = fitted.resolution
-    else:
-        if "sample_period" not in directives:
-            raise GapforgeError(
-                "sampled levels need a time_<unit> column or a '# sample_period: 10ns' line "
-                "(edge events need the header time_<unit>,signal,level)",
-                f"{where}:{header_line}",
-            )
-        tick = parse_quantity(directives["sample_period"], "s", f"{where}: sample_period")
-        ticks = list(range(len(rows)))
-    out: Signals = {}
-    t = np.array(ticks, dtype=np.int64)
-    spacing = np.diff(t)  # spacing[k - 1]: from sample k - 1 to sample k
-    rounding = resolution - 1  # a coarsened tick adds one tick of rounding
-    for name in names:
-        col = first_signal + columns.index(name)
-        levels = np.array([_level(cells[col], f"{where}:{n}") for n, cells in rows], dtype=np.uint8)
-        keep = np.ones(levels.size, dtype=bool)
-        keep[1:] = levels[1:] != levels[:-1]
-        out[name] = (t[keep], levels[keep])
-        changed = np.flatnonzero(keep[1:])  # sample k = changed + 1 shows a new level
-        if unit is not None and changed.size:
-            # the edge lies somewhere after the sample before: the longest such spacing
-            resolution = max(resolution, int(spacing[changed].max()) + rounding)
-    return CsvData(tick, out, ticks[-1], resolution, warnings)
+__all__ = ["CaptureStream", "CsvData", "Events", "GateCapture", "UnorderedTimes", "invert",
+           "load_capture", "make_capture", "open_capture", "read_csv", "stream_of"]

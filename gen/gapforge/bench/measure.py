@@ -22,8 +22,11 @@ Transitions are read from the joint state of the two gates (high side, low side)
   and then leaves both gates off again). A missing-edge finding that a glitch explains (a gate
   on for a glitch and off again, or off for a glitch and on again) is not listed.
 - a missing edge: a dead time that ends with the same gate turning on again (the other gate never
-  turned on), a level reported twice in a row (an edge between them was lost), or an edge the
-  capture itself reports lost (a serial stream's sequence gap). With a window set, a capture
+  turned on), in a stream of edge reports (the serial stream) a level reported twice in a row
+  (an edge between them was lost), or an edge the capture itself reports lost (a serial
+  stream's sequence gap). A VCD restates levels (a vector is written whole when any of its
+  bits changes, `$dumpall` writes every value again) and a sampled CSV repeats them: a
+  restated level is no evidence of a lost edge there and changes nothing. With a window set, a capture
   with missing edges, or with an unknown level after the first known levels (a dead time
   through x/z cannot be measured), cannot prove the dead time: the verdict is "inconclusive"
   (exit 1) unless something fails outright.
@@ -81,6 +84,7 @@ def measure_capture(
     bins: int = 20,
     worst: int = 5,
     resolution_s: Fraction | None = None,
+    limits_source: str = "",
 ) -> Measurement:
     """Measure every dead time, overlap, glitch and missing edge; judge against `limits`.
 
@@ -93,12 +97,14 @@ def measure_capture(
     for p in percentiles:
         if not 0 <= p <= 100:
             raise GapforgeError(f"percentile {p} must be between 0 and 100", "--percentiles")
-    resolution = _resolution(stream, resolution_s)
+    if resolution_s is not None and resolution_s <= 0:
+        raise GapforgeError("the resolution must be above zero", "--resolution")
     width = ceil_fraction(glitch_width_s / tick) if glitch_width_s > 0 else 0
     try:
         raw = _run(stream, stream.chunks(), worst, width)
     except UnorderedTimes:
         raw = _run(stream, stream.sorted_chunks(), worst, width)
+    resolution, origin = _resolution(stream, resolution_s)
     _require_transitions(raw, stream.source or "capture")
     limits = dict(limits or {})
     has_window = any(
@@ -133,6 +139,8 @@ def measure_capture(
         warnings=stream.warnings,
         mean_period_s=raw.record.mean_period(tick),
         resolution_s=tick * resolution,
+        resolution_origin=origin,
+        limits_source=limits_source,
         possible_overlaps=found.possible,
         glitch_count=raw.glitch.total,
         missing_edge_count=found.missing_count,
@@ -140,14 +148,20 @@ def measure_capture(
     )
 
 
-def _resolution(stream: CaptureStream, resolution_s: Fraction | None) -> int:
-    """The capture's resolution in ticks, widened (never narrowed) by `resolution_s`."""
-    resolution = stream.resolution_ticks
+def _resolution(stream: CaptureStream, resolution_s: Fraction | None) -> tuple[int, str]:
+    """The resolution in ticks and where it comes from (read after a pass): the capture's own
+    floor, the coarser one its file implies (a stated sample rate, the common step of its
+    change times), or `resolution_s` instead of the implied one (never below the floor)."""
+    floor, origin = stream.resolution_ticks, stream.resolution_origin
     if resolution_s is not None:
-        if resolution_s <= 0:
-            raise GapforgeError("the resolution must be above zero", "--resolution")
-        resolution = max(resolution, ceil_fraction(resolution_s / stream.tick_s))  # up: safe
-    return resolution
+        given = ceil_fraction(resolution_s / stream.tick_s)  # up: safe
+        if given >= floor:
+            return given, "--resolution"
+        return floor, f"{origin} (--resolution is finer than the capture can state)"
+    inferred = stream.inferred()
+    if inferred is not None and inferred[0] > floor:
+        return inferred
+    return floor, origin
 
 
 def _require_transitions(raw: Engine, where: str) -> None:
@@ -196,14 +210,17 @@ def _judge_edges(raw: Engine, limits: Mapping[str, Limits], tick: Fraction, reso
         if unproven and not below:
             out.reasons.append(f"{name}: {unproven} transition(s) with no dead time proven "
                                "(gap less than the capture resolution)")
+        r = tick * resolution  # a gap is proven outside the prediction only beyond r
         if lim.predicted_min_s is not None and st.min_s is not None and (
-            st.min_s < lim.predicted_min_s
+            st.min_s + r < lim.predicted_min_s
         ):
-            out.notes.append(f"{name}: shortest measured gap is below the predicted minimum")
+            out.notes.append(f"{name}: shortest measured gap is below the predicted minimum "
+                             "by more than the resolution")
         if lim.predicted_max_s is not None and st.max_s is not None and (
-            st.max_s > lim.predicted_max_s
+            st.max_s - r > lim.predicted_max_s
         ):
-            out.notes.append(f"{name}: longest measured gap is above the predicted maximum")
+            out.notes.append(f"{name}: longest measured gap is above the predicted maximum "
+                             "by more than the resolution")
     return out
 
 
@@ -256,7 +273,8 @@ def _findings(raw: Engine, stream: CaptureStream, has_window: bool) -> _Found:
 
 def _run(stream: CaptureStream, chunks: Iterator[Events], worst: int, width: int) -> Engine:
     """One pass over the events."""
-    engine = Engine(stream.tick_s, (stream.high_initial, stream.low_initial), worst, width)
+    engine = Engine(stream.tick_s, (stream.high_initial, stream.low_initial), worst, width,
+                    edge_events=stream.edge_events)
     for chunk in chunks:
         engine.feed(*chunk)
     engine.finish(stream.end)

@@ -6,7 +6,7 @@ boundary must not change: the current level of each gate, the changes at the las
 each gate. Each batch of complete timestamps goes through named steps (`Engine._batch`):
 
 1. `_changes`: each change's joint state (high * 4 + low), a level reported twice (a missing
-   edge), the glitch watch, the levels carried on;
+   edge in a stream of edge reports; a restated level elsewhere), the glitch watch, the levels carried on;
 2. `_distinct`: the joint state after all changes at one timestamp, only where it changes, the
    capture's first state, unknown levels and possible overlaps;
 3. `_transitions`: overlaps whose end is now known, and the transition patterns over three
@@ -203,8 +203,12 @@ class Engine:
     """Incremental measurement over time-ordered events with carried state (module docstring).
     `width`: pulses shorter than this many ticks are glitches (zero-width ones always)."""
 
-    def __init__(self, tick: Fraction, initial: tuple[int, int], worst: int, width: int = 0) -> None:
+    def __init__(self, tick: Fraction, initial: tuple[int, int], worst: int, width: int = 0,
+                 edge_events: bool = False) -> None:
         self.tick = tick
+        # a level reported twice is a lost edge only in a stream of edge reports; a VCD restates
+        # levels (a vector written whole, a $dumpall checkpoint) and a sample repeats them
+        self.edge_events = edge_events
         self.initial = initial
         self.glitch = _GlitchWatch(tick, initial, max(width, 1))
         self.record = _GapRecord(tick, worst)
@@ -294,13 +298,13 @@ class Engine:
         h = np.where(from_high >= 0, lev[from_high], np.uint8(self.level[0])).astype(np.uint8)
         lo = np.where(from_low >= 0, lev[from_low], np.uint8(self.level[1])).astype(np.uint8)
         state = cast(npt.NDArray[np.uint8], (h << 2) | lo)
-        # a change that leaves the joint state as it was repeats its side's level: if that level
-        # is clean, an edge in between was lost
+        # a change that leaves the joint state as it was repeats its side's level: in a stream
+        # of edge reports, if that level is clean, an edge in between was lost
         same = np.empty(n, dtype=bool)
         same[0] = int(state[0]) == (self.level[0] << 2) | self.level[1]
         np.equal(state[1:], state[:-1], out=same[1:])
         any_same = bool(same.any())
-        if any_same:
+        if any_same and self.edge_events:
             repeat = np.flatnonzero(same & (lev <= 1))
             if repeat.size:
                 self._repeat_findings(repeat, t, is_high, lev, from_high, from_low)

@@ -183,6 +183,8 @@ class Measurement:
     glitch_count: int = 0  # every glitch (the listed ones are the first 1000 per side)
     missing_edge_count: int = 0  # every missing edge, with the capture's own lost events
     window_judged: bool = False  # a window was given (else only overlaps decide the verdict)
+    resolution_origin: str = ""  # where the resolution comes from, in words
+    limits_source: str = ""  # what the limits come from (a window, a design's output/entry)
 
     def edge(self, name: str) -> EdgeStats:
         return self.to_high if name == "to_high" else self.to_low

@@ -13,7 +13,10 @@ Every header, edge and keep-alive line ends in ` *XX`: the CRC-8 of the bytes be
 "CRC-8/SMBUS", check value 0xF4 for the ASCII digits 1..9). A line whose check does not match is
 corrupt: it is dropped and, since the sequence number then skips, counted as lost. Edge lines are
 `<H|L><0|1> <counter, hex> <sequence, 2 hex digits>`; the sequence counts every edge and
-keep-alive line modulo 256. Other lines starting with '#' are comments. Lines end with LF (CR LF
+keep-alive line modulo 256. The header is sent at start-up and repeated after every
+`HEADER_EVERY` edge and keep-alive lines, so a reader that opens the port while the controller
+is already streaming (the usual case on a bench) waits for the next header and decodes from
+there; a repeated header that states the same clock and counter width changes nothing. Other lines starting with '#' are comments. Lines end with LF (CR LF
 is accepted). Protocol 1 (the same lines without the check) is refused with a clear reason: a
 single corrupted digit there can move an edge silently.
 
@@ -27,6 +30,7 @@ import re
 from dataclasses import dataclass
 
 PROTOCOL = 2
+HEADER_EVERY = 256  # the firmware repeats its header after this many edge and keep-alive lines
 MAX_LINE = 96  # longest line the reader accepts (the longest protocol line is 57 characters)
 
 _VERSION = re.compile(rb"^#GFCAP (\d{1,9})(?: |$)")

@@ -38,6 +38,7 @@ from gapforge.base.errors import GapforgeError
 from gapforge.bench.capture import GateCapture, make_capture
 from gapforge.bench.serial_order import CounterClock, ReorderBuffer, SequenceTracker
 from gapforge.bench.serial_protocol import (
+    HEADER_EVERY,
     MAX_LINE,
     PROTOCOL,
     Bad,
@@ -48,7 +49,7 @@ from gapforge.bench.serial_protocol import (
     parse_line,
 )
 
-__all__ = ["GARBAGE_RUN", "MAX_LINE", "PROTOCOL", "LineDecoder", "SerialResult", "StreamStatus",
+__all__ = ["GARBAGE_RUN", "HEADER_EVERY", "MAX_LINE", "PROTOCOL", "LineDecoder", "SerialResult", "StreamStatus",
            "open_port", "read_serial"]
 
 GARBAGE_RUN = 256  # undecodable lines in a row that end a capture
@@ -66,7 +67,8 @@ class StreamStatus:
     partial: int = 0
     lost_lines: int = 0
     reordered: int = 0
-    before_header: int = 0
+    before_header: int = 0  # lines before the first header (a stream joined mid-way)
+    headers: int = 0  # header lines received (the firmware repeats it)
     clock_hz: int | None = None
     counter_bits: int | None = None
     elapsed_s: float = 0.0
@@ -178,6 +180,14 @@ class LineDecoder:
             return
         parsed = parse_line(line)
         if isinstance(parsed, Bad):
+            if self.status.clock_hz is None and self.status.garbage_run + 1 < GARBAGE_RUN:
+                # joined mid-way: skipped while waiting for the next header (a run of them
+                # still ends the capture: a wrong baud rate never shows a header)
+                self.status.before_header += 1
+                self.status.garbage_run += 1
+                if not self.status.first_garbage:
+                    self.status.first_garbage = line[:40].decode("ascii", "replace")
+                return
             self._undecodable(line, parsed.corrupt)
             return
         self.status.garbage_run = 0
@@ -202,8 +212,14 @@ class LineDecoder:
 
     def _header(self, header: Header) -> None:
         if self.status.clock_hz is not None:
-            self._stop("a second header arrived (the capture firmware restarted)", keep=True)
+            if (header.clock_hz, header.counter_bits) == (self.status.clock_hz,
+                                                           self.status.counter_bits):
+                self.status.headers += 1  # the firmware repeats its header: nothing changes
+                return
+            self._stop("a header with another clock or counter width arrived (the capture "
+                       "firmware restarted with other settings)", keep=True)
             return
+        self.status.headers += 1
         self.status.clock_hz = header.clock_hz
         self.status.counter_bits = header.counter_bits
         self._clock = CounterClock(header.counter_bits)
@@ -294,6 +310,10 @@ class LineDecoder:
                             f"(first: {s.first_garbage!r})")
         if s.partial:
             warnings.append(f"{s.partial} partial line(s) at the end")
+        if s.before_header:
+            warnings.append(f"joined a running stream: {s.before_header} line(s) before the "
+                            "first header were skipped (the firmware repeats its header every "
+                            f"{HEADER_EVERY} lines)")
         return tuple(warnings)
 
 

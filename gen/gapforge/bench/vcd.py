@@ -75,6 +75,7 @@ class VcdData:
     end_time: int
     warnings: tuple[str, ...] = field(default=())
     timescale_assumed: bool = False  # no $timescale in the file and none stated
+    sample_rate_hz: Fraction | None = None  # a sample rate the header's $comment states
 
 
 def _timescale(header: Header, stated: Fraction | None, place: str) -> tuple[Fraction, tuple[str, ...], bool]:
@@ -189,7 +190,8 @@ def read_vcd(
             tlist[:] = [times]
             vlist[:] = [values]
         signals[sel.name] = SignalChanges(sel.name, times, values)
-    return VcdData(unit, signals, state.time, unit_warnings + _warnings(state, place), assumed)
+    return VcdData(unit, signals, state.time, unit_warnings + _warnings(state, place), assumed,
+                   header.sample_rate_hz)
 
 
 def _warnings(state: State, place: str) -> tuple[str, ...]:

@@ -174,7 +174,7 @@ def _check(arr: npt.NDArray[np.uint8], t: _Tokens, state: State, last: bool) -> 
         bad = bad[~t.ignore[bad]]
     if bad.size:
         pos = int(t.starts[bad[0]])
-        token = bytes(arr[pos : min(int(t.ends[bad[0]]), pos + 20)])
+        token = _shown(bytes(arr[pos : min(int(t.ends[bad[0]]), pos + 20)]))
         raise GapforgeError(f"unexpected token {token!r} in the value changes",
                             where_at(state, pos))
     # a scalar value is followed by its code in the same token: a bare '1' has lost its code
@@ -320,7 +320,7 @@ def _keywords(
         elif word == b"$dumpoff":
             dumpoff.append(i)
         elif word not in _BODY_KEYWORDS:
-            raise GapforgeError(f"unexpected keyword {word[:20]!r} in the value changes",
+            raise GapforgeError(f"unexpected keyword {_shown(word[:20])!r} in the value changes",
                                 where_at(state, int(starts[i])))
     if open_at is not None:
         marks[open_at] += 1
@@ -388,6 +388,11 @@ def _parse_times(
         raise GapforgeError("bad timestamp (not a decimal number)",
                             where_at(state, int(starts[bad_i])))
     return value.view(np.int64)
+
+
+def _shown(data: bytes) -> str:
+    """Bytes of the file as text for a message (never a Python b'...' literal)."""
+    return data.decode("ascii", "backslashreplace")
 
 
 def where_at(state: State, pos: int) -> str:

@@ -3,7 +3,7 @@
 The header is read up to `$enddefinitions $end` and cut into commands at each `$end`. A header
 may declare a million signals of which two are wanted, so a `$var` is parsed into a `Variable`
 only when its name could be one asked for (same last name component) or when it is among the
-first `HINT_VARS` commands (the names offered in a did-you-mean hint); the others are only
+first `HINT_VARS` commands (the names listed when a requested one is not found); the others are only
 counted, and a C-level test skips them before any Python work. Every command is still checked for its shape (a word outside a command, a command
 without `$end`, an `$upscope` without a `$scope`).
 
@@ -14,7 +14,6 @@ measurement cannot judge a window with an assumed unit.
 
 from __future__ import annotations
 
-import difflib
 import re
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -24,7 +23,7 @@ from pathlib import Path
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import TIME_UNITS
 
-HINT_VARS = 2000  # declarations kept whatever their name, for did-you-mean hints
+HINT_VARS = 2000  # declarations kept whatever their name, to list when a name is not found
 DEFAULT_TIMESCALE = Fraction(1, 10**9)
 
 
@@ -64,6 +63,7 @@ class Header:
     body_offset: int
     timescale_given: bool = True
     declared: int = 0  # every $var in the file
+    sample_rate_hz: Fraction | None = None  # a rate the header's $comment states ("at 16 MHz")
 
 
 def parse_timescale(words: Sequence[str], where: str) -> Fraction:
@@ -76,6 +76,20 @@ def parse_timescale(words: Sequence[str], where: str) -> Fraction:
             f"bad $timescale {shown!r} (expected 1, 10 or 100 and s, ms, us, ns, ps, fs)", where
         )
     return int(match.group(1)) * TIME_UNITS[match.group(2)]
+
+
+_RATE = re.compile(rb"\bat\s+(\d{1,12}(?:\.\d{1,12})?)\s*([kMG]?)Hz\b")
+_RATE_PREFIX = {b"": 1, b"k": 10**3, b"M": 10**6, b"G": 10**9}
+
+
+def stated_rate(text: bytes) -> Fraction | None:
+    """The sample rate a logic analyser states in a comment ("... channels at 16 MHz"), exact;
+    None when the comment states none."""
+    match = _RATE.search(text)
+    if match is None:
+        return None
+    rate = Fraction(match.group(1).decode("ascii")) * _RATE_PREFIX[match.group(2)]
+    return rate if rate > 0 else None
 
 
 _REF = re.compile(r"^(?P<name>[^\[]+?)(?:\[(?P<msb>-?\d+)(?::(?P<lsb>-?\d+))?\])?$")
@@ -129,6 +143,7 @@ def read_header(path: Path, names: Sequence[str] | None = None) -> Header:
         bad = next(i for i, b in enumerate(head) if b > 127)
         line = head[:bad].count(b"\n") + 1
         raise GapforgeError("binary data in the VCD header", f"{where}:{line}")
+    _before_declarations(head, where)
     leaves = None if names is None else {_leaf(n).encode("ascii", "replace") for n in names}
     reader = _Declarations(where, leaves)
     commands = _commands(head)
@@ -149,7 +164,22 @@ def read_header(path: Path, names: Sequence[str] | None = None) -> Header:
         raise GapforgeError("no $var declarations", where)
     given = reader.timescale is not None
     return Header(reader.timescale or DEFAULT_TIMESCALE, tuple(reader.variables), body_offset,
-                  given, reader.declared)
+                  given, reader.declared, reader.rate)
+
+
+def _before_declarations(head: bytes, where: str) -> None:
+    """A line before the first $ command (another tool's metadata, e.g. "META ...") is
+    refused with what the file seems to be and what is expected."""
+    start = head.lstrip()
+    if not start or start.startswith(b"$"):
+        return
+    first = start.split(b"\n", 1)[0].strip()
+    line = head[: len(head) - len(start)].count(b"\n") + 1
+    shown = first[:40].decode("ascii", "replace")
+    raise GapforgeError(
+        f"the line {shown!r} comes before the VCD declarations: the file seems to be a value "
+        "change dump with another tool's line in front; a VCD begins with a $ command ($date, "
+        "$timescale, $scope, $var): remove the lines before it", f"{where}:{line}")
 
 
 def _interesting(leaves: set[bytes] | None) -> Callable[[bytes], object]:
@@ -186,6 +216,7 @@ class _Declarations:
         self.scopes: list[str] = []
         self.variables: list[Variable] = []
         self.timescale: Fraction | None = None
+        self.rate: Fraction | None = None  # a sample rate stated in a $comment
         self.read = 0  # $var commands parsed
         self.declared = 0  # $var words in the header
 
@@ -213,12 +244,14 @@ class _Declarations:
         elif word == b"$timescale":
             args = [w.decode("ascii") for w in words[1:]]
             self.timescale = parse_timescale(args, f"{self.where}: $timescale")
+        elif word == b"$comment" and self.rate is None:
+            self.rate = stated_rate(body[len(b"$comment"):])
         # $comment, $date, $version and unknown header commands carry only text
 
     def _var(self, args: list[bytes]) -> None:
         self.read += 1
         if self.leaves is not None and self.read > HINT_VARS:
-            ref = b"".join(args[3:])
+            ref = b" ".join(args[3:])
             if ref.split(b"[", 1)[0] not in self.leaves:
                 return  # not asked for: counted only
         text = [a.decode("ascii") for a in args]
@@ -233,7 +266,9 @@ def _parse_var(args: list[str], scopes: list[str], where: str) -> Variable:
     if not size_text.isdigit() or len(size_text) > 9 or int(size_text) < 1:
         shown = " ".join(args)[:60]
         raise GapforgeError(f"$var {shown!r}: size must be a positive integer", where)
-    ref = "".join(args[3:])
+    # the reference as written: a logic analyser writes a channel name with spaces as typed
+    # ("High Side PWM"); a range written apart ("data [7:0]") joins its name
+    ref = re.sub(r"\s+\[", "[", " ".join(args[3:]))
     match = _REF.match(ref)
     if not match:
         shown = " ".join(args)[:60]
@@ -293,13 +328,10 @@ def select(header: Header, name: str, where: str) -> Selection:
 
 
 def _hint(header: Header, wanted: str, base: str) -> str:
+    """The names the file has (no guess: a close name may be the other gate)."""
+    del wanted, base
     names = sorted({v.display() for v in header.variables})
-    leaves = [w.path.rsplit(".", 1)[-1] for w in header.variables]
-    close = difflib.get_close_matches(base.rsplit(".", 1)[-1], leaves, n=1)
-    hint = difflib.get_close_matches(wanted, names, n=1) or [
-        v.display() for v in header.variables if v.path.rsplit(".", 1)[-1] in close
-    ][:1]
-    if hint:
-        return f"; did you mean {hint[0]!r}?"
-    more = f" (of {header.declared})" if header.declared > len(names) else ""
-    return f"; the file has {', '.join(names[:12])}{more}"
+    more = f" (of {header.declared} declared)" if header.declared > len(names) else ""
+    shown = ", ".join(repr(n) for n in names[:24])
+    rest = f" and {len(names) - 24} more" if len(names) > 24 else ""
+    return f"; the file has {shown}{rest}{more}"

@@ -66,6 +66,13 @@ from gapforge.timer.limits import COUNTINGS, PwmSpec, compare_counts, pwm_limits
     show_default=True,
     help="PWM counting: edge-aligned up, or center-aligned up/down.",
 )
+@click.option(
+    "--turn-clocks",
+    type=click.IntRange(1, 2),
+    default=None,
+    help="Centre-aligned: clocks the counter spends at 0 and at the top (2: compare c gives 2c "
+    "clocks; 1: it turns at the top once, 2c - 1). Default: the worse of the two.",
+)
 @diagram_options
 @json_option
 def command(
@@ -79,6 +86,7 @@ def command(
     divider_code: int | None,
     pwm: Fraction | None,
     counting: str,
+    turn_clocks: int | None,
     no_diagram: bool,
     ascii_only: bool,
     as_json: bool,
@@ -99,13 +107,17 @@ def command(
             f"for layout {layout.name}",
             "--divider-code",
         )
+    if turn_clocks is not None and (pwm is None or counting != "center"):
+        raise GapforgeError("needs --pwm F --counting center", "--turn-clocks")
+    spec = None
     if pwm is not None:
         try:
-            compare_counts(clock, PwmSpec(pwm, counting))
+            spec = PwmSpec(pwm, counting, None, turn_clocks)
+            compare_counts(clock, spec)
         except GapforgeError as exc:
             raise exc.at("--pwm") from None
     result = fit(layout, FitRequest(clock, clock_tol, high, low, rounding), divider_code)
-    limits = pwm_limits(result, PwmSpec(pwm, counting)) if pwm is not None and result.ok else None
+    limits = pwm_limits(result, spec) if spec is not None and result.ok else None
     verdict = (
         result.verdict
         if limits is None

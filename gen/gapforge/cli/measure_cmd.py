@@ -38,26 +38,43 @@ def parse_window(text: str) -> tuple[Fraction | None, Fraction | None]:
 
 
 def build_limits(
-    window: str | None, design: Path | None
-) -> dict[str, Limits]:
+    window: str | None, design: Path | None, output: str | None = None,
+    current: Fraction | None = None,
+) -> tuple[dict[str, Limits], str]:
+    """Per-edge limits and what they come from, in words: the design's window and the
+    prediction of one output (its table entry at `current`), then `window` over both edges."""
     from gapforge.bench.measure import EDGES, Limits
 
     per_edge: dict[str, list[Fraction | None]] = {edge: [None, None, None, None] for edge in EDGES}
+    source = ""
+    if design is None and (output is not None or current is not None):
+        raise GapforgeError("--output and --current select what a design predicts: give --design",
+                            "--output" if output is not None else "--current")
     if design is not None:
-        from gapforge.pipeline.build import measurement_expectations
+        from gapforge.pipeline.expectations import design_expectation
 
         try:
-            expected = measurement_expectations(design)
+            expected = design_expectation(design, output, current)
         except GapforgeError as exc:
-            raise exc if exc.where and str(design) in exc.where else exc.at(str(design)) from None
+            raise exc if exc.where and (str(design) in exc.where or exc.where.startswith("--")
+                                        ) else exc.at(str(design)) from None
         for edge in EDGES:
-            if edge in expected:
-                per_edge[edge] = list(expected[edge])
+            if edge in expected.per_edge:
+                per_edge[edge] = list(expected.per_edge[edge])
+        source = f"design {design.name}, {expected.source}"
     if window is not None:
         low, high = parse_window(window)
         for edge in EDGES:
             per_edge[edge][0], per_edge[edge][1] = low, high
-    return {edge: Limits(*values) for edge, values in per_edge.items()}
+        source = f"--window {window}" + (f" (prediction: {source})" if source else "")
+    return {edge: Limits(*values) for edge, values in per_edge.items()}, source
+
+
+def _current(text: str | None) -> Fraction | None:
+    """--current: the operating current, a signed quantity in A."""
+    if text is None:
+        return None
+    return parse_quantity(text, "A", "--current", allow_zero=True, allow_negative=True)
 
 
 @click.command()
@@ -69,14 +86,21 @@ def build_limits(
 @click.option("--active-low-low", is_flag=True, help="The low-side signal is active low.")
 @click.option("--design", type=click.Path(path_type=Path, dir_okay=False), default=None,
               help="Design file: judge against its window and predicted dead time.")
+@click.option("--output", "output_name", default=None,
+              help="With --design: the output (its prefix) the capture runs; required when the "
+              "design has several.")
+@click.option("--current", "current_text", default=None,
+              help="With --design and a load-indexed table ([adaptive]): the operating current "
+              "(e.g. 5A, -5A); the capture is compared with the entry of its bin.")
 @click.option("--window", default=None, help="Dead-time window MIN:MAX for both edges, e.g. "
               "20ns:80ns (overrides the design's window).")
 @click.option("--glitch", type=Quantity("s", allow_zero=True), default="0", show_default=True,
               help="Pulses shorter than this are glitches: listed, never hidden (a gap ends at "
               "the first on-edge, glitch or not); with a window, an on-pulse glitch fails.")
 @click.option("--resolution", type=Quantity("s"), default=None,
-              help="Widen the capture's resolution to this (e.g. a logic analyser's sample "
-              "period when its file states a finer time unit); never narrows it.")
+              help="The capture's resolution (e.g. a logic analyser's sample period); instead "
+              "of the one the file implies (its stated sample rate or the common step of its "
+              "change times), never below one tick of the file.")
 @click.option("--timescale", "timescale_text", default=None,
               help="The time unit of a VCD without $timescale, e.g. 1ns or 10ps (without it "
               "such a file is read in 1 ns and a window cannot be judged: inconclusive).")
@@ -100,7 +124,8 @@ def build_limits(
 @diagram_options
 @json_option
 def command(capture: Path | None, high: str | None, low: str | None, active_low_high: bool,
-            active_low_low: bool, design: Path | None, window: str | None, glitch: Fraction,
+            active_low_low: bool, design: Path | None, output_name: str | None,
+            current_text: str | None, window: str | None, glitch: Fraction,
             resolution: Fraction | None, timescale_text: str | None, percentiles: str,
             bins: int, worst: int,
             serial_url: str | None, baud: int, max_transitions: int | None,
@@ -122,7 +147,7 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
         from gapforge.bench.vcd_header import parse_timescale
 
         timescale = parse_timescale([timescale_text], "--timescale")
-    limits = build_limits(window, design)
+    limits, limits_source = build_limits(window, design, output_name, _current(current_text))
     stream: SerialResult | None = None
     bar: Any = None
     gate: GateCapture | CaptureStream
@@ -145,9 +170,13 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
         if stream.garbage_stop:
             raise GapforgeError(stream.stop_reason, serial_url)
         if stream.capture is None:
+            from gapforge.bench.serial_stream import HEADER_EVERY
+
             raise GapforgeError(
                 f"no capture header received ({stream.status.lines} lines, stopped: "
-                f"{stream.stop_reason})", serial_url)
+                f"{stream.stop_reason}); the capture firmware must repeat its header line every "
+                f"{HEADER_EVERY} lines (gfcap_header_due in `gapforge firmware`'s helper)",
+                serial_url)
         gate = stream.capture
     else:
         if capture is None:
@@ -166,7 +195,8 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
             gate = gate.observed(lambda done: bar.update(max(done - bar.pos, 0)))
     try:
         result = measure_capture(gate, limits=limits, glitch_width_s=glitch, percentiles=pcts,
-                                 bins=bins, worst=worst, resolution_s=resolution)
+                                 bins=bins, worst=worst, resolution_s=resolution,
+                                 limits_source=limits_source)
     except GapforgeError as exc:
         if bar is not None:
             bar.render_finish()
@@ -208,6 +238,13 @@ def _at_terminal(as_json: bool) -> bool:
 
 
 def _progress(status: StreamStatus) -> None:
+    if status.clock_hz is None:
+        from gapforge.bench.serial_stream import HEADER_EVERY
+
+        click.echo(f"\rwaiting for the next capture header (the firmware repeats it every "
+                   f"{HEADER_EVERY} lines): {status.lines} lines so far, "
+                   f"{status.elapsed_s:.1f} s   ", err=True, nl=False)
+        return
     click.echo(
         f"\r{status.transitions} transitions, {status.edges} edges, {status.lines} lines, {status.garbage} garbage, "
         f"{status.lost_lines} lost, {status.elapsed_s:.1f} s   ",

@@ -60,11 +60,15 @@ def measurement_diagram(m: Measurement, ascii_only: bool = False) -> str:
     if to_high is None or to_low is None:
         missing = "to_high" if to_high is None else "to_low"
         return f"(no timing diagram: no {missing} transitions measured)"
+    # a shoot-through is never drawn as a dead time: no picture, and why
+    shown = [f"{name} {_gap(format_si(abs(v), 's'), v) if v < 0 else 'no dead time (0 s)'}"
+             for name, v in (("to_high", to_high), ("to_low", to_low)) if v <= 0]
+    if shown:
+        return ("(no timing diagram: the shortest gap is not a dead time - "
+                + "; ".join(shown) + ": both gates on, see the overlaps above)")
     text = pair_diagram(to_high, to_low, m.mean_period_s, ascii_only=ascii_only)
     lines = ["Timing (shortest measured gaps"
              + (f", mean period {_q(m.mean_period_s)}):" if m.mean_period_s else "):"), text]
-    if to_high <= 0 or to_low <= 0:
-        lines.append("      a gap of zero or less means the gates overlap: drawn at minimum width")
     return "\n".join(lines)
 
 
@@ -83,8 +87,8 @@ def _overlap_lines(m: Measurement) -> list[str]:
 
 
 def _capture_lines(m: Measurement, stream: SerialResult | None) -> list[str]:
-    lines = [f"Capture: {m.source} (tick {_q(m.tick_s)}, resolution {_q(m.resolution_s)}, "
-             f"{_q(m.duration_s)} long)"]
+    lines = [f"Capture: {m.source} (tick {_q(m.tick_s)}, {_q(m.duration_s)} long)",
+             f"Resolution: {_q(m.resolution_s)}, from {m.resolution_origin or 'one tick'}"]
     if stream is not None:
         s = stream.status
         lines.append(f"Stream stopped: {stream.stop_reason}; {count(s.transitions, 'transition')}, "
@@ -118,8 +122,14 @@ def _edge_lines(m: Measurement) -> list[str]:
         if st.shortest:
             worst = ", ".join(f"{_q(i.gap_s)} at {_q(i.at_s)}" for i in st.shortest)
             lines.append(f"{name} shortest: {worst}")
-        if st.below_window or st.above_window:
-            lines.append(f"{name}: {st.below_window} below, {st.above_window} above the window")
+        if st.below_window:
+            lines.append(f"{name}: {count(st.below_window, 'gap')} not proven above the window "
+                         f"minimum by the resolution ({_q(m.resolution_s)})")
+        if st.above_window:
+            lines.append(f"{name}: {count(st.above_window, 'gap')} not proven below the window "
+                         f"maximum by the resolution ({_q(m.resolution_s)})")
+    if m.limits_source:
+        lines.append(f"Compared with: {m.limits_source}")
     if m.window_judged:
         lines.append(f"Judged with the resolution {_q(m.resolution_s)}: a gap passes only if "
                      "gap - resolution >= min and gap + resolution <= max.")
@@ -160,6 +170,15 @@ def _f(value: Fraction | None) -> float | None:
     return None if value is None else float(value)
 
 
+def _median(stats: EdgeStats) -> float | None:
+    """The median gap in seconds (numpy's linear percentile 50), whatever --percentiles asks."""
+    import numpy as np
+
+    if not stats.count:
+        return None
+    return float(np.percentile(stats.gaps_ticks, 50)) * float(stats.tick_s)
+
+
 def _edge_json(m: Measurement, name: str) -> dict[str, Any]:
     stats = m.edge(name)
     lim = m.limits.get(name)
@@ -169,6 +188,7 @@ def _edge_json(m: Measurement, name: str) -> dict[str, Any]:
         "max_s": _f(stats.max_s),
         "mean_s": stats.mean_s,
         "std_s": stats.std_s,
+        "p50_s": _median(stats),
         "percentiles_s": {f"p{p:g}": v for p, v in stats.percentiles},
         "histogram": {"edges_s": list(stats.histogram_edges_s),
                       "counts": list(stats.histogram_counts)},
@@ -190,6 +210,8 @@ def measurement_json(m: Measurement, stream: SerialResult | None = None) -> dict
         "source": m.source,
         "tick_s": float(m.tick_s),
         "resolution_s": float(m.resolution_s),
+        "resolution_origin": m.resolution_origin,
+        "limits_source": m.limits_source,
         "duration_s": float(m.duration_s),
         "edges": {name: _edge_json(m, name) for name in EDGE_NAMES},
         "overlaps": len(m.overlaps),

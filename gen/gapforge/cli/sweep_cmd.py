@@ -321,7 +321,15 @@ def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | N
         if counting is not None:
             raise GapforgeError("needs --pwm F (or a design with a [pwm] section)", "--counting")
         return None
-    return PwmSpec(frequency, counting if counting is not None else "edge")
+    counting = counting if counting is not None else "edge"
+    # the design's counter width and turning convention stay while its counting does
+    same = design_pwm is not None and design_pwm.counting == counting
+    return PwmSpec(
+        frequency,
+        counting,
+        design_pwm.counter_bits if same and design_pwm is not None else None,
+        design_pwm.turn_clocks if same and design_pwm is not None else None,
+    )
 
 
 @click.command(name="sweep")

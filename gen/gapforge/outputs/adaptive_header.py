@@ -6,7 +6,9 @@ entries use the fixed fit's divider (`P_DIVIDER_CODE`): only the edge fields cha
 Firmware use: with |I| measured, bin k is the largest k with |I| >= `p_adapt_edge_ma[k]` (edges
 rounded UP to a milliampere, so a bin is entered only at or above its true edge); with the ADC
 scaling, code >= `p_adapt_pos_edge_adc[k]` for positive current, code <= `p_adapt_neg_edge_adc[k]`
-for negative current (codes rounded away from zero current, the same safe side).
+for negative current (codes rounded away from zero current, the same safe side). A mid-tread
+converter enters a code half an LSB early, so the design's `current_error` must include half an
+LSB besides the sensor's own error.
 """
 
 from __future__ import annotations
@@ -145,7 +147,9 @@ def _arrays(plan: AdaptivePlan) -> list[tuple[str, list[int], str]]:
         zero = plan.spec.adc.zero
         pos = [zero if b.adc_codes is None else b.adc_codes[0] for b in bins]
         neg = [zero if b.adc_codes is None else b.adc_codes[1] for b in bins]
-        arrays.append(("pos_edge_adc", pos, "positive current: bin k while code >= this"))
+        arrays.append(("pos_edge_adc", pos, "positive current: bin k while code >= this"
+                       " (a mid-tread ADC enters a code half an LSB early: current_error"
+                       " includes it)"))
         arrays.append(("neg_edge_adc", neg, "negative current: bin k while code <= this"))
     if plan.inverter is not None:
         for s in SIGNS:

@@ -56,6 +56,7 @@ def bin_json(b: Bin) -> dict[str, Any]:
         else {
             sign: {
                 "current_a": float(c.current_a),
+                "hard_current_a": float(c.hard_current_a),
                 "reverse_conduction_fixed_w": float(c.fixed_w),
                 "reverse_conduction_adaptive_w": float(c.adaptive_w),
                 "saved_w": float(c.fixed_w - c.adaptive_w),
@@ -83,6 +84,10 @@ def model_json(plan: AdaptivePlan) -> dict[str, Any]:
         "qoss_high_c": float(spec.qoss_high),
         "qoss_low_c": float(spec.qoss_low),
         "qoss_total_c": float(spec.qoss_total),
+        "c_node_f": _f(spec.c_node),
+        "swing_charge_c": float(spec.swing_charge),
+        "floor_s": {e: float(v) for e, v in plan.floor_s.items()},
+        "policy_source": plan.policy_source,
         "commutated_edge": dict(COMMUTATED),
         "pre_swing_s": {e: float(v) for e, v in plan.pre_swing_s.items()},
         "threshold_a": {s: _f(v) for s, v in plan.threshold_a.items()},
@@ -148,6 +153,41 @@ def _amps(b: Bin) -> str:
     return f"{format_si(b.current_min_a, 'A')} .. {top}"
 
 
+def _measurement_lines(plan: AdaptivePlan) -> list[str]:
+    """The threshold per sign (a measured current: the error included) and the ADC's half LSB."""
+    spec = plan.spec
+    lines = []
+    for sign in SIGNS:
+        thr = plan.threshold_a[sign]
+        if thr is not None:
+            lines.append(
+                f"  {sign} current: the swing fits the window above about "
+                f"{format_si(thr, 'A', toward='up')} measured (the current error"
+                f" {format_si(spec.current_error, 'A')} included; before rounding to codes)"
+            )
+    if spec.adc is not None:
+        lines.append(
+            "  ADC: each bin starts at the code rounded away from 0 A; a mid-tread converter"
+            " enters a code half an LSB"
+            f" ({format_si(spec.adc.amps_per_code / 2, 'A')}) early, so current_error"
+            f" ({format_si(spec.current_error, 'A')}) must include that half LSB"
+        )
+    return lines
+
+
+def _charge_words(plan: AdaptivePlan) -> str:
+    spec = plan.spec
+    if spec.c_node is not None:
+        return (
+            f"Qoss,high + Qoss,low + c_node {format_si(spec.c_node, 'F')} x Vbus, charge"
+            " balance Q = C x V"
+        )
+    return (
+        "Qoss,high + Qoss,low only: add the node's other capacitance (inductor winding, layout)"
+        " as [stage] c_node"
+    )
+
+
 def _state(x: Entry) -> str:
     return "soft" if x.soft else ("below swing" if x.below_swing else "hard")
 
@@ -157,8 +197,12 @@ def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
     lines = [
         f"{prefix}: dead time by load current (below_swing '{spec.below_swing}'); the load "
         "commutates to_low for I > 0 (out of the switch node), to_high for I < 0; swing = "
-        f"{format_si(spec.qoss_total, 'C')} / |I|; the chain before the swing "
-        + ", ".join(f"{e} {_t(plan.pre_swing_s[e])}" for e in EDGES),
+        f"{format_si(spec.swing_charge, 'C')} / |I| ({_charge_words(plan)}); the chain before"
+        " the swing " + ", ".join(f"{e} {_t(plan.pre_swing_s[e])}" for e in EDGES),
+        "  table floor per edge = max(stage minimum, the request of dead-time policy"
+        f" '{plan.policy_source}'): "
+        + ", ".join(f"{e} {format_si(plan.floor_s[e], 's', toward='up')}" for e in EDGES)
+        + "; a soft edge asks for max(floor, stage minimum + swing)",
     ]
     rows = []
     for b in plan.table.bins:
@@ -204,26 +248,23 @@ def adaptive_text(prefix: str, plan: AdaptivePlan) -> str:
         "  fixed comparison: "
         + ", ".join(f"{e} code {fixed[e].code}" for e in EDGES)
         + " on every bin (the table's longest entries: what a fixed dead time needs for the"
-        " same transitions); reverse conduction at each bin's largest current (top bin: its"
-        " lower edge), slowest clock (common practice); hard turn-on: at most (Qoss,high +"
-        " Qoss,low) x Vbus x fsw where the swing does not finish (Eoss <= Qoss x V)"
+        " same transitions); each cost where it is worst in the bin, the current error"
+        f" {format_si(spec.current_error, 'A')} counted: reverse conduction at the bin's largest"
+        " current plus the error (top bin: its lower edge), slowest clock (common practice);"
+        " hard turn-on at the bin's smallest current less the error, fastest clock: at most"
+        " (swing charge) x Vbus x fsw where the swing does not finish (Eoss <= Qoss x V)"
     )
-    for sign in SIGNS:
-        thr = plan.threshold_a[sign]
-        if thr is not None:
-            lines.append(
-                f"  {sign} current: the swing fits the window above about "
-                f"{format_si(thr, 'A')} (before rounding to codes)"
-            )
+    lines.extend(_measurement_lines(plan))
     if plan.inverter is not None:
         inv = plan.inverter
         lines.append(
             f"  inverter, sinusoidal {format_si(inv.peak_current_a, 'A')} peak: mean |i|"
             f" = 2 Ipk / pi = {format_si(inv.mean_abs_current_a, 'A')}; average"
             f" output-voltage error -{format_si(inv.error_positive_v, 'V')} (I > 0),"
-            f" +{format_si(inv.error_negative_v, 'V')} (I < 0); its fundamental"
-            f" {format_si(inv.fundamental_v, 'V')} (4/pi x Vd x t x fsw; Mohan et al."
-            " ch. 8, Jeong & Park 1991)"
+            f" +{format_si(inv.error_negative_v, 'V')} (I < 0) in the top bin; its fundamental"
+            f" {format_si(inv.fundamental_v, 'V')} over the sine, each bin's hard edge where"
+            " |i| is in the bin (Fourier coefficient of the error wave; 4/pi x Vd x t x fsw"
+            " for one dead time; Mohan et al. ch. 8, Jeong & Park 1991)"
         )
         comp = plan.table.bins[-1].compensation
         lines.append(

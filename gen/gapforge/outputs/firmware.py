@@ -12,7 +12,7 @@ from __future__ import annotations
 from gapforge import __version__
 from gapforge.base import caution
 from gapforge.base.errors import GapforgeError
-from gapforge.bench.serial_protocol import MAX_LINE, PROTOCOL
+from gapforge.bench.serial_protocol import HEADER_EVERY, MAX_LINE, PROTOCOL
 from gapforge.outputs.templating import environment
 
 COUNTER_TYPES = {16: "uint16_t", 32: "uint32_t", 64: "uint64_t"}
@@ -64,6 +64,7 @@ def render_capture_helper(counter_bits: int = 32) -> dict[str, str]:
     values = {
         "version": _comment(__version__, "the version"),
         "protocol": PROTOCOL,
+        "header_every": HEADER_EVERY,
         "counter_bits": counter_bits,
         "counter_digits": digits,
         "counter_type": COUNTER_TYPES[counter_bits],

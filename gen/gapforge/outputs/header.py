@@ -18,6 +18,7 @@ Every user text (file names, layout name and summary) goes through `c_text` firs
 from __future__ import annotations
 
 import re
+import textwrap
 from dataclasses import dataclass
 from fractions import Fraction
 
@@ -246,6 +247,12 @@ def _convention_lines(plan: BuildPlan, op: OutputPlan) -> list[str]:
         "below the compare value (0: low side only, N: high side only) and each dead time delaying",
         f"its output's turn-on; outside {p}_DUTY_MIN_COUNTS..{p}_DUTY_MAX_COUNTS one output",
         "never pulses.",
+        *textwrap.wrap(
+            f"Counting: {op.limits.spec.convention}. The duty limits hold for "
+            f"{op.limits.duty_basis}.",
+            92,
+            break_on_hyphens=False,
+        ),
     ]
 
 

@@ -61,6 +61,8 @@ def _pwm(op: OutputPlan) -> dict[str, Any] | None:
         return None
     return {
         "counting": lim.spec.counting,
+        "turn_clocks": lim.spec.turn_clocks,
+        "duty_basis": lim.duty_basis,
         "frequency_hz_exact": _exact(lim.spec.frequency_hz),
         "real_frequency_hz_exact": _exact(lim.real_frequency_hz),
         "compare_counts": lim.counts,

@@ -10,8 +10,9 @@ macros from the primary ones in 64-bit unsigned integers:
   within the picosecond that rounding the tolerance up to whole ppb can move it (the same
   whole-number form as the header's window guards: no product above 2^64);
 - the PWM period (N or 2N), top count (N - 1) and usable duty range: the high side pulses when
-  its on-time, c x (1 or 2) clocks, exceeds its dead time, the low side when (N - c) x (1 or 2)
-  does.
+  its on-time, c x (1 or 2) clocks less the counting convention's short clock, exceeds its dead
+  time (with a current-indexed table: the table's longest entry), the low side when
+  (N - c) x (1 or 2) less its own does.
 It prints one line per failed check and exits 1, or prints "ok" and exits 0.
 """
 
@@ -146,13 +147,43 @@ def _fits(plan: BuildPlan, op: OutputPlan, edge: str) -> bool:
     return fits_u64(n, k, top, ppb) and n * k < U64
 
 
+def _dead_sub_steps(op: OutputPlan) -> dict[str, str]:
+    """Per edge, the dead time the duty limits are computed for, in sub-steps (steps x divider)
+    as a C expression: the fixed word's macros, or with a current-indexed table the longest
+    entry (a literal: the table holds codes, not steps)."""
+    p = op.output.prefix
+    out = {e: f"((uint64_t){p}_{e.upper()}_STEPS * {p}_DIVIDER)" for e in EDGES}
+    if op.adaptive is not None:
+        from gapforge.pipeline.adaptive_limits import table_dead_clocks
+
+        fit = op.fit
+        assert fit.divider is not None
+        longest = table_dead_clocks(op.adaptive)
+        for e in EDGES:
+            steps = fit.edges[e].steps
+            assert steps is not None
+            sub_steps = max(steps * fit.divider, int(longest[e] * op.output.layout.sub_steps))
+            out[e] = f"((uint64_t){sub_steps}u)"
+    return out
+
+
 def _pwm_checks(op: OutputPlan) -> list[str]:
     p = op.output.prefix
+    assert op.limits is not None
     per = f"({p}_PWM_COUNTING_CENTER ? 2u : 1u)"
-    # smallest c whose on-time c x per clocks (x SUB_STEPS sub-steps) exceeds the dead time
-    lo = (f"((uint64_t){p}_TO_HIGH_STEPS * {p}_DIVIDER / ((uint64_t){per} * {p}_SUB_STEPS) + 1u)")
-    hi = (f"((uint64_t){p}_PWM_COMPARE_COUNTS - ((uint64_t){p}_TO_LOW_STEPS * {p}_DIVIDER"
-          f" / ((uint64_t){per} * {p}_SUB_STEPS) + 1u))")
+    sub = f"(uint64_t){p}_SUB_STEPS"
+    # the counting convention (issue 19): the high-side command is per x c - sh clocks, the
+    # low side's per x (N - c) - sl; sh, sl in {-1, 0, 1} (timer.limits.PwmSpec.short)
+    sh, sl = op.limits.spec.short
+    dead = _dead_sub_steps(op)
+    # smallest c whose on-time per x c - sh clocks exceeds the dead time:
+    # floor((D + sh) / per) + 1, in sub-steps
+    lo = f"(({dead['to_high']} + {sh}u * {sub}) / ((uint64_t){per} * {sub}) + 1u)"
+    # largest c whose low-side on-time per x (N - c) - sl exceeds the dead time:
+    # N - (floor((D + sl) / per) + 1) = N - (D + sl + per) / per, kept unsigned (sl + per >= 0)
+    slp = {-1: f"({per} - 1u)", 0: per, 1: f"({per} + 1u)"}[sl]
+    hi = (f"((uint64_t){p}_PWM_COMPARE_COUNTS - ({dead['to_low']} + (uint64_t){slp} * {sub})"
+          f" / ((uint64_t){per} * {sub}))")
     return [
         f"    expect((uint64_t){p}_PWM_PERIOD_COUNTS == (uint64_t){p}_PWM_COMPARE_COUNTS * {per},"
         f' "{p}_PWM_PERIOD_COUNTS is N or 2N");',

@@ -203,6 +203,9 @@ def pwm_json(lim: PwmLimits) -> dict[str, Any]:
         "verdict": verdict_word(lim.verdict),
         "reason": "" if lim.verdict == "ok" else f"{lim.verdict}: {lim.reason}",
         "counting": lim.spec.counting,
+        "turn_clocks": lim.spec.turn_clocks,
+        "convention": lim.spec.convention,
+        "duty_basis": lim.duty_basis,
         "requested_hz": float(lim.spec.frequency_hz),
         "real_hz": float(lim.real_frequency_hz),
         "exact": lim.exact,
@@ -323,9 +326,11 @@ def pwm_text(lim: PwmLimits) -> str:
     lines = [
         f"PWM {format_si(lim.spec.frequency_hz, 'Hz')}, {lim.spec.counting}-aligned: "
         f"{lim.period_counts} clocks per period, compare 0..{lim.counts} "
-        f"({lim.duty_bits:.2f} bits){exact}",
-        f"  usable duty (a pulse on both outputs): {format_percent(lim.duty_min)} .. "
-        f"{format_percent(lim.duty_max)} (compare {lim.duty_min_counts}..{lim.duty_max_counts})",
+        f"({lim.duty_bits:.2f} bits){exact}; {lim.spec.convention}",
+        f"  usable duty (a pulse on both outputs, for {lim.duty_basis}): "
+        f"{format_percent(lim.duty_min)} .. "
+        f"{format_percent(lim.duty_max)} "
+        f"(compare {lim.duty_min_counts}..{lim.duty_max_counts})",
     ]
     per_edge = {
         edge: f"{count_word(x.dead_counts)} = {format_percent(x.share)} of the period"

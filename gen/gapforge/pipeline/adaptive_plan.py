@@ -3,19 +3,25 @@
 For every bin of |I| ([0, c0), [c0, c1), ..., [c_last, no maximum)) and each current sign, the
 edge the load current commutates (gapforge.stage.adaptive) asks for
 
-    stage minimum (the design window's minimum, rounded up) + the bin's worst swing time
+    max(floor, stage minimum (the design window's minimum, rounded up) + the bin's worst swing)
 
 where the worst swing is the one at the bin's smallest |I| (less the declared current error),
-and the other (hard) edge asks for the stage minimum. Both go through `gapforge.timer.fit.fit`
+and the other (hard) edge asks for the floor. The floor of each edge is max(stage minimum, the
+dead-time policy's request): a table never goes below what the fixed word was asked for
+(issue 19). Both go through `gapforge.timer.fit.fit`
 with `safe` rounding at the divider the fixed fit chose, so only the edge fields change between
 bins and every entry's worst case (fastest clock) is at least its request. An entry is `soft`
 when its code also stays inside the window's maximum at the slowest clock; otherwise the swing
 cannot finish inside the window and the bin follows the user's `below_swing` policy (`max`: the
-longest code whose slowest-clock value is inside the maximum; `hard`: the stage minimum).
+longest code whose slowest-clock value is inside the maximum; `hard`: the floor).
 Adjacent bins with the same codes merge, keeping the lower bin's (worst-case) description.
 
-Costs use common-practice formulas (gapforge.stage.adaptive) at the slowest clock (the longest
-dead time), evaluated at each bin's largest current (the top bin: at its lower edge).
+Costs use common-practice formulas (gapforge.stage.adaptive), each at the current in the bin
+where it is worst, counting the current error (the firmware picks a bin by the measured current):
+reverse conduction at the slowest clock (the longest dead time) and the bin's largest current
+plus the error (the top bin, which has no largest: at its lower edge); the hard turn-on at the
+fastest clock (the shortest dead time) and the bin's smallest current less the error (issue 19).
+Every entry is judged against the PWM period by gapforge.pipeline.adaptive_limits.
 """
 
 from __future__ import annotations
@@ -60,11 +66,12 @@ class Entry:
 class SignCosts:
     """Per bin and sign, at `current_a` (W; exact)."""
 
-    current_a: Fraction
+    current_a: Fraction  # where reverse conduction is worst (largest |I| + error)
     fixed_w: Fraction
     adaptive_w: Fraction
     fixed_hard_w: Fraction | None  # upper bound of the hard turn-on when the swing is cut short
     adaptive_hard_w: Fraction | None
+    hard_current_a: Fraction = Fraction(0)  # where the hard turn-on is worst (smallest |I| - error)
 
 
 @dataclass(frozen=True)
@@ -87,9 +94,9 @@ class Inverter:
 
     peak_current_a: Fraction
     mean_abs_current_a: float  # 2 Ipk / pi
-    error_positive_v: Fraction  # Vd x t_dead(to_high) x fsw, the output's loss while I > 0
-    error_negative_v: Fraction  # Vd x t_dead(to_low) x fsw, the output's gain while I < 0
-    fundamental_v: float  # (2 / pi)(A+ + A-), = 4/pi x Vd x t x fsw for equal edges
+    error_positive_v: Fraction  # Vd x t_dead(to_high) x fsw in the top bin, the loss while I > 0
+    error_negative_v: Fraction  # Vd x t_dead(to_low) x fsw in the top bin, the gain while I < 0
+    fundamental_v: float  # the error wave's fundamental integrated over the bins (Fourier)
     loss_fixed_w: float  # reverse conduction averaged over the sine, fixed dead time
     loss_adaptive_w: float  # the same with the table
     band_a: Fraction  # compensation dead band: |I| below it, no compensation
@@ -115,7 +122,10 @@ class AdaptivePlan:
     per: int  # timer clocks per compare count (1 edge-aligned, 2 centre-aligned)
     window: dict[str, Bounds]
     pre_swing_s: dict[str, Fraction]
-    threshold_a: dict[str, Fraction | None]  # sign -> smallest |I| whose swing fits the window
+    # sign -> smallest measured |I| whose swing fits the window (the current error included)
+    threshold_a: dict[str, Fraction | None]
+    floor_s: dict[str, Fraction]  # edge -> max(stage minimum, the policy's request)
+    policy_source: str  # the design's dead-time policy (`[dead_time] source`)
     fixed: FitResult
     table: AdaptiveTable  # the chosen policy
     other: AdaptiveTable | None  # the other policy, for comparison (None where it cannot apply)
@@ -130,6 +140,7 @@ def plan_adaptive(
     window: dict[str, Bounds],
     limits: PwmLimits | None,
     where: str,
+    policy_source: str = "window",
 ) -> AdaptivePlan:
     """The table for one fitted output (`fixed` must be ok). Raises GapforgeError when the
     policy `max` has no window maximum to stay at."""
@@ -141,7 +152,7 @@ def plan_adaptive(
             " 'hard'",
             f"{where}: adaptive.below_swing",
         )
-    per = 1 if limits is None or limits.spec.counting == "edge" else 2
+    per = 1 if limits is None else limits.spec.per
     ctx = _Context(spec, stage, fixed, window, per)
     table = ctx.table(spec.below_swing)
     other_policy = "hard" if spec.below_swing == "max" else "max"
@@ -152,7 +163,8 @@ def plan_adaptive(
     for sign in SIGNS:
         lo, hi = window[COMMUTATED[sign]]
         assert lo is not None
-        thresholds[sign] = None if hi is None else phys.threshold_current(spec.qoss_total, hi - lo)
+        thr = None if hi is None else phys.threshold_current(spec.swing_charge, hi - lo)
+        thresholds[sign] = None if thr is None else thr + spec.current_error
     return AdaptivePlan(
         spec=spec,
         stage=stage,
@@ -162,6 +174,8 @@ def plan_adaptive(
         window=window,
         pre_swing_s={e: phys.pre_swing_s(stage, e) for e in EDGES},
         threshold_a=thresholds,
+        floor_s=dict(ctx.floor),
+        policy_source=policy_source,
         fixed=fixed,
         table=table,
         other=other,
@@ -187,6 +201,10 @@ class _Context:
         self.request0 = fixed.request
         self.divider_code = fixed.divider_code
         self.scale = Fraction(fixed.divider) / (self.layout.sub_steps * self.request0.clock_hz)
+        # the floor per edge: max(stage minimum, the dead-time policy's request)
+        self.floor = {
+            e: max(window[e][0] or Fraction(0), self.request0.requested(e)) for e in EDGES
+        }
 
     # --- one bin, one sign ------------------------------------------------------------------
 
@@ -221,18 +239,19 @@ class _Context:
         bound = floor_fraction(hi * (1 - tol) / self.scale)
         i = bisect.bisect_right(values, bound) - 1
         if i < 0:
-            return lo
-        return max(lo, values[i] * self.scale / (1 + tol))
+            return self.floor[edge]
+        return max(self.floor[edge], values[i] * self.scale / (1 + tol))
 
     def _sign(self, sign: str, low_a: Fraction, policy: str) -> tuple[dict[str, Entry], FitResult]:
         soft_edge = COMMUTATED[sign]
-        lows = {e: self.window[e][0] or Fraction(0) for e in EDGES}
+        lows = dict(self.floor)
+        stage_min = self.window[soft_edge][0] or Fraction(0)
         worst_i = max(Fraction(0), low_a - self.spec.current_error)
-        swing = phys.swing_s(self.spec.qoss_total, worst_i)
+        swing = phys.swing_s(self.spec.swing_charge, worst_i)
         requests = dict(lows)
         soft = False
         if swing is not None:
-            requests[soft_edge] = lows[soft_edge] + swing
+            requests[soft_edge] = max(lows[soft_edge], stage_min + swing)
             result = self._fit(requests)
             soft = self._inside(result)
         if not soft:
@@ -311,7 +330,11 @@ class _Context:
         fsw = self.stage.fsw
         if fsw is None:
             return replace(b, adc_codes=adc)
-        at = b.current_max_a if b.current_max_a is not None else b.current_min_a
+        err = self.spec.current_error
+        # reverse conduction is worst at the largest true current that selects the bin, the
+        # hard turn-on at the smallest (where the swing takes longest)
+        at = b.current_max_a + err if b.current_max_a is not None else b.current_min_a
+        hard_at = max(Fraction(0), b.current_min_a - err)
         costs = {}
         fixed_t = {e: fixed[e].achieved_max_s for e in EDGES}
         fixed_min = {e: fixed[e].achieved_min_s for e in EDGES}
@@ -322,8 +345,9 @@ class _Context:
                 current_a=at,
                 fixed_w=self.loss(sign, at, fixed_t),
                 adaptive_w=self.loss(sign, at, table_t),
-                fixed_hard_w=self.hard(sign, at, fixed_min),
-                adaptive_hard_w=self.hard(sign, at, table_min),
+                fixed_hard_w=self.hard(sign, hard_at, fixed_min),
+                adaptive_hard_w=self.hard(sign, hard_at, table_min),
+                hard_current_a=hard_at,
             )
         return replace(b, costs=costs, adc_codes=adc)
 
@@ -336,11 +360,11 @@ class _Context:
         if self.stage.bus_voltage is None or self.stage.fsw is None:
             return None
         edge = COMMUTATED[sign]
-        swing = phys.exact_swing_s(self.spec.qoss_total, current)
+        swing = phys.exact_swing_s(self.spec.swing_charge, current)
         needed = None if swing is None else phys.pre_swing_s(self.stage, edge) + swing
         if needed is not None and shortest[edge] >= needed:
             return Fraction(0)
-        return phys.hard_turn_on_w(self.spec.qoss_total, self.stage.bus_voltage, self.stage.fsw)
+        return phys.hard_turn_on_w(self.spec.swing_charge, self.stage.bus_voltage, self.stage.fsw)
 
     def notes(self, table: AdaptiveTable) -> list[str]:
         out = []
@@ -388,7 +412,7 @@ class _Context:
             mean_abs_current_a=phys.mean_abs_sine(float(peak)),
             error_positive_v=err_pos,
             error_negative_v=err_neg,
-            fundamental_v=phys.error_fundamental(float(err_pos), float(err_neg)),
+            fundamental_v=error_fundamental_over_bins(table, vd * fsw, peak),
             loss_fixed_w=fixed_sum / samples,
             loss_adaptive_w=adaptive_sum / samples,
             band_a=spec.band,
@@ -401,11 +425,42 @@ def reverse_conduction_w(
     """Vsd x |I| x (reverse conduction per period) x fsw (common practice; k = 2 intervals, the
     soft one shortened by the swing)."""
     assert stage.fsw is not None
-    swing = phys.exact_swing_s(spec.qoss_total, current)
+    swing = phys.exact_swing_s(spec.swing_charge, current)
     conduct = sum(
         (phys.conduction_s(times[e], swing, e == COMMUTATED[sign]) for e in EDGES), Fraction(0)
     )
     return stage.reverse_voltage * abs(current) * conduct * stage.fsw
+
+
+def error_fundamental_over_bins(table: AdaptiveTable, vd_fsw: Fraction, peak: Fraction) -> float:
+    """Fundamental amplitude of the dead-time voltage error over a sinusoidal current of peak
+    `peak`, each bin's hard-edge dead time applied where |I| lies in the bin (issue 19).
+
+    The error wave is e(theta) = -Vd fsw t_to_high(bin(|I|)) while I > 0 and
+    +Vd fsw t_to_low(bin(|I|)) while I < 0 (Mohan, Undeland & Robbins ch. 8; Jeong & Park
+    1991). Its fundamental in step with the current is the Fourier coefficient
+    (1/pi) x integral of |e| |sin theta| over a period; over the angles where Ipk |sin theta|
+    lies in [a, b) (twice per half period) the integral of |sin| is
+    2 (sqrt(1 - (a/Ipk)^2) - sqrt(1 - (b/Ipk)^2)), so
+
+        b1 = (2/pi) x sum over bins and signs of A(bin) x (sqrt(1 - x_lo^2) - sqrt(1 - x_hi^2))
+
+    with x clipped to 1; one dead time for every bin gives (2/pi)(A+ + A-), 4A/pi for A+ = A-
+    (the square wave's fundamental). Floats: pi enters.
+    """
+    total = 0.0
+    ipk = float(peak)
+    for b in table.bins:
+        lo = min(1.0, float(b.current_min_a) / ipk)
+        hi = 1.0 if b.current_max_a is None else min(1.0, float(b.current_max_a) / ipk)
+        if hi <= lo:
+            continue
+        weight = math.sqrt(1 - lo * lo) - math.sqrt(1 - hi * hi)
+        amp = float(vd_fsw) * float(
+            b.entries["positive"]["to_high"].achieved_s + b.entries["negative"]["to_low"].achieved_s
+        )
+        total += amp * weight
+    return 2 * total / math.pi
 
 
 def _bin_of(table: AdaptiveTable, current: Fraction) -> Bin:

@@ -226,9 +226,6 @@ def _plan_output(
                     " lies outside what the reference network proved ("
                     f"{format_range(r.min_s, r.max_s, 's', cut='inward')})"
                 )
-    if limits is not None and limits.verdict != "ok" and verdict == "ok":
-        verdict = limits.verdict
-        reasons.append(limits.reason)
     costs = None
     if design.stage is not None:
         from gapforge.stage.window import stage_costs
@@ -240,13 +237,30 @@ def _plan_output(
         from gapforge.pipeline.adaptive_plan import plan_adaptive
 
         adaptive = plan_adaptive(
-            design.adaptive, design.stage, result, window, limits, str(design.path)
+            design.adaptive, design.stage, result, window, limits, str(design.path),
+            design.source,
         )
         warnings.extend(adaptive.notes)
+    table_reasons: list[str] = []
+    if adaptive is not None and limits is not None:  # issue 19: every entry judged like the word
+        from gapforge.pipeline.adaptive_limits import TABLE_BASIS, judge_table, table_dead_clocks
+        from gapforge.timer.limits import with_table
+
+        table_reasons = judge_table(
+            adaptive, limits, design.gate_driver, design.clock_hz, design.clock_tol
+        )
+        limits = with_table(limits, table_dead_clocks(adaptive), TABLE_BASIS)
+    if limits is not None and limits.verdict != "ok":
+        verdict = limits.verdict if verdict == "ok" else verdict
+        reasons.append(limits.reason)
+    if table_reasons:
+        verdict = "too-long" if verdict == "ok" else verdict
+        reasons.extend(table_reasons)
     driver = _driver(design, result, limits, adaptive)
-    if driver is not None and driver.verdict != "ok" and verdict == "ok":
-        verdict = driver.verdict
-        reasons.append(driver.reason)
+    if driver is not None and driver.verdict != "ok":
+        verdict = driver.verdict if verdict == "ok" else verdict
+        scope = "" if adaptive is None else "over every entry of the current-indexed table: "
+        reasons.append(scope + driver.reason)
     return OutputPlan(
         output, result, limits, judgements, verdict, tuple(reasons), tuple(warnings), costs,
         adaptive, driver,
@@ -261,12 +275,10 @@ def _driver(design: Design, result: FitResult, limits: PwmLimits | None, adaptiv
 
     dead = {e: limits.edges[e].dead_counts for e in EDGES}
     if adaptive is not None:
-        assert result.divider is not None
-        for b in adaptive.table.bins:
-            for entries in b.entries.values():
-                for e in EDGES:
-                    steps = Fraction(entries[e].steps * result.divider, result.layout.sub_steps)
-                    dead[e] = max(dead[e], steps)
+        from gapforge.pipeline.adaptive_limits import table_dead_clocks
+
+        longest = table_dead_clocks(adaptive)
+        dead = {e: max(dead[e], longest[e]) for e in EDGES}
     return driver_limits(limits, design.gate_driver, design.clock_hz, design.clock_tol, dead)
 
 

@@ -2,7 +2,8 @@
 
     format = 1
     [timer]      clock, tolerance, clock_macro
-    [pwm]        frequency, counting = "edge" | "center", counter_bits (optional)
+    [pwm]        frequency, counting = "edge" | "center", counter_bits (optional),
+                 turn_clocks = 1 | 2 (centre-aligned; optional: the worse of the two)
     [dead_time]  value (both edges) or to_high / to_low, rounding, source
     [reference]  the analog RC-diode-Schmitt network (read by gapforge.analog)
     [stage]      the power stage's timing and costs (read by gapforge.stage.window)
@@ -41,7 +42,7 @@ _TOP = frozenset(
     | {"adaptive", "gate_driver"}
 )
 _TIMER = frozenset({"clock", "tolerance", "clock_macro"})
-_PWM = frozenset({"frequency", "counting", "counter_bits"})
+_PWM = frozenset({"frequency", "counting", "counter_bits", "turn_clocks"})
 _DEAD = frozenset({"value", "to_high", "to_low", "rounding", "source"})
 _OUTPUT = frozenset({"target", "prefix", "file", "struct"})
 
@@ -172,8 +173,14 @@ def _read_pwm(top: Table, clock: Fraction | None) -> PwmSpec | None:
     counting = pwm_t.string("counting", "edge", COUNTINGS)
     # optional width of the PWM counter: a period or compare count that does not fit warns
     bits = pwm_t.integer("counter_bits", 0, 2, 64) if pwm_t.has("counter_bits") else None
+    # centre-aligned: clocks at each turning point (2: compare c gives 2c clocks, 1: 2c - 1);
+    # not stated: the worse of the two (timer.limits)
+    turn = pwm_t.integer("turn_clocks", 2, 1, 2) if pwm_t.has("turn_clocks") else None
+    if turn is not None and counting != "center":
+        top.reader.problem("pwm.turn_clocks", "applies to counting = 'center' only")
+        turn = None
     assert freq is not None
-    pwm = PwmSpec(freq, counting, bits)
+    pwm = PwmSpec(freq, counting, bits, turn)
     if clock is not None and not top.reader.problems:
         try:
             compare_counts(clock, pwm)

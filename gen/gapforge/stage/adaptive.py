@@ -16,9 +16,12 @@ Robbins, Power Electronics, 3rd ed., ch. 8 on blanking time):
 - On a soft edge, after the turning-off switch's channel is off, the current charges one output
   capacitance and discharges the other. The node swings in
 
-      t_swing = (Qoss,high + Qoss,low) / |I|
+      t_swing = (Qoss,high + Qoss,low + C_node x Vbus) / |I|
 
-  with Qoss each switch's output charge at the bus voltage. We use the CHARGE (equivalently the
+  with Qoss each switch's output charge at the bus voltage and C_node the node's other
+  capacitance (inductor winding, layout, a snubber; `[stage] c_node`): charge balance Q = C x V,
+  the current moves all of it (Erickson & Maksimovic ch. 20; Mohan et al. ch. 9 on resonant
+  transitions). The switches' Qoss alone understates the swing where the node carries more. We use the CHARGE (equivalently the
   time-related, charge-equivalent capacitance x bus voltage), not the energy-related
   capacitance: the swing time is set by how much charge the current must move. The inductor
   current is taken as constant during the dead time (common practice: the dead time is far
@@ -92,6 +95,8 @@ class AdcScale:
 
         Rounded AWAY from zero current: the firmware enters the bin only once the code says the
         current is at least the edge (the safe side: a bin's codes assume at least its edge).
+        A mid-tread converter outputs a code from half an LSB below it, so it enters a code half
+        an LSB early: `current_error` must include that half LSB (with the sensor's error).
         """
         steps = ceil_fraction(current / self.amps_per_code)
         return self.zero + steps, self.zero - steps
@@ -109,10 +114,18 @@ class AdaptiveSpec:
     adc: AdcScale | None = None
     peak_current: Fraction | None = None
     sign_band: Fraction | None = None
+    c_node: Fraction | None = None  # the node's other capacitance, F ([stage] c_node)
+    node_charge: Fraction = Fraction(0)  # c_node x bus voltage, C
 
     @property
     def qoss_total(self) -> Fraction:
         return self.qoss_high + self.qoss_low
+
+    @property
+    def swing_charge(self) -> Fraction:
+        """The charge the load current moves in a swing: Qoss,high + Qoss,low + C_node x Vbus
+        (charge balance Q = C x V)."""
+        return self.qoss_total + self.node_charge
 
     @property
     def band(self) -> Fraction:
@@ -238,6 +251,7 @@ def read_adaptive(top: Table, stage: StageSpec | None) -> AdaptiveSpec | None:
     currents = _read_currents(table)
     policy = table.string("below_swing", "max", POLICIES)  # required: checked above
     error = table.quantity("current_error", "A", Fraction(0), allow_zero=True)
+    c_node, node_charge = _read_c_node(stage_t, stage)
     spec = AdaptiveSpec(
         currents=tuple(currents) or (Fraction(1),),
         below_swing=policy,
@@ -247,12 +261,49 @@ def read_adaptive(top: Table, stage: StageSpec | None) -> AdaptiveSpec | None:
         adc=_read_adc(table, currents),
         peak_current=table.quantity("peak_current", "A", required=False),
         sign_band=table.quantity("sign_band", "A", required=False, allow_zero=True),
+        c_node=c_node,
+        node_charge=node_charge,
     )
+    _check_band(table, spec)
     if stage is not None and stage.fsw is None and spec.peak_current is not None:
         table.reader.problem(
             table.key_path("peak_current"), "the inverter figures need stage.fsw or [pwm]"
         )
     return spec
+
+
+def _read_c_node(
+    stage_t: Table | None, stage: StageSpec | None
+) -> tuple[Fraction | None, Fraction]:
+    """[stage] c_node (F) and its charge at the bus voltage (Q = C x V), when given."""
+    if stage_t is None or not stage_t.has("c_node"):
+        return None, Fraction(0)
+    c_node = stage_t.quantity("c_node", "F", required=False, allow_zero=True)
+    if c_node is None:
+        return None, Fraction(0)
+    if stage is None or stage.bus_voltage is None:
+        stage_t.reader.problem(
+            stage_t.key_path("c_node"), "c_node needs bus_voltage (its charge is c_node x Vbus)"
+        )
+        return c_node, Fraction(0)
+    return c_node, c_node * stage.bus_voltage
+
+
+def _check_band(table: Table, spec: AdaptiveSpec) -> None:
+    """The compensation band must be at least the current error: a measured |I| inside the
+    error may belong to a current of the other sign, and compensation would then be applied
+    with the wrong sign (doubling the error instead of cancelling it). Refused as bad input:
+    no build can be judged safe with it."""
+    if spec.band >= spec.current_error:
+        return
+    key = "sign_band" if spec.sign_band is not None else "currents"
+    what = "sign_band" if spec.sign_band is not None else "the first bin edge (the default band)"
+    table.reader.problem(
+        table.key_path(key),
+        f"{what} {float(spec.band):.6g} A is below current_error {float(spec.current_error):.6g}"
+        " A: a measured current inside the error may have the other sign, so compensation would"
+        " apply with the wrong sign; make sign_band at least current_error",
+    )
 
 
 def _read_currents(table: Table) -> list[Fraction]:

@@ -81,7 +81,8 @@ SHARED_KEYS = frozenset(
         "bus_voltage",
     }
 )
-STAGE_KEYS = TIMING_KEYS | QOSS_KEYS | SHARED_KEYS | frozenset({"high", "low", "note"})
+# c_node: the switch node's other capacitance (inductor winding, layout), read with qoss
+STAGE_KEYS = TIMING_KEYS | QOSS_KEYS | SHARED_KEYS | frozenset({"high", "low", "note", "c_node"})
 SIDE_KEYS = TIMING_KEYS | QOSS_KEYS
 
 

@@ -8,19 +8,23 @@ Both optional, from a design's `[gate_driver]` section:
     bootstrap_every = 10      # ... at least once every this many PWM periods
 
 Counts as in `limits`: compare c keeps the high-side command on for per x c timer clocks
-(per = 1 edge-aligned, 2 centre-aligned) out of per x N. Each output's pulse is its command minus
+(per = 1 edge-aligned, 2 centre-aligned) out of per x N, less one clock on a centre-aligned
+counter that turns at the top once (or whose convention is not stated: `limits.PwmSpec.short`). Each output's pulse is its command minus
 the dead time before it. Common practice: drivers specify a minimum input pulse width; a
 bootstrap high-side supply recharges only while the low side is on.
 
 A time becomes clocks at the FASTEST clock (t x f_clk x (1 + tol), rounded up): the same count
 then lasts at least t at every clock inside the tolerance. So
 
-    high-side pulse >= min_pulse  <=>  c >= (dead_to_high + P) / per      (rounded up)
-    low-side pulse  >= min_pulse  <=>  c <= N - (dead_to_low + P) / per   (rounded down)
-    bootstrap refresh             <=>  c <= N - (dead_to_low + B) / per   (rounded down) in at
+    high-side pulse >= min_pulse  <=>  c >= (dead_to_high + sh + P) / per      (rounded up)
+    low-side pulse  >= min_pulse  <=>  c <= N - (dead_to_low + sl + P) / per   (rounded down)
+    bootstrap refresh             <=>  c <= N - (dead_to_low + sl + B) / per   (rounded down) in at
                                        least one of every `bootstrap_every` periods
 
-With a current-indexed table the longest dead time of each edge over the table is used.
+with (sh, sl) the clocks by which each command falls short of per x c (`limits.PwmSpec.short`).
+
+With a current-indexed table the longest dead time of each edge over the table is used, and
+every bin is judged on its own as well (gapforge.pipeline.adaptive_limits).
 """
 
 from __future__ import annotations
@@ -28,9 +32,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from fractions import Fraction
 
-from gapforge.base.quantities import ceil_fraction, floor_fraction
+from gapforge.base.quantities import ceil_fraction
 from gapforge.base.schema import Table
-from gapforge.timer.limits import PwmLimits
+from gapforge.timer.limits import PwmLimits, duty_range
 
 DRIVER_KEYS = frozenset({"min_pulse", "bootstrap_on", "bootstrap_every"})
 
@@ -84,23 +88,21 @@ def driver_limits(
     dead_clocks: dict[str, Fraction],
 ) -> DriverLimits:
     """The duty range the driver leaves; `dead_clocks` per edge (the longest in use)."""
-    per = 1 if limits.spec.counting == "edge" else 2
+    spec_pwm = limits.spec
     n = limits.counts
     pulse = _clocks(spec.min_pulse_s, clock_hz, tol)
     boot = _clocks(spec.bootstrap_on_s, clock_hz, tol)
-    dmin = floor_fraction(dead_clocks["to_high"] / per) + 1
-    dmax = ceil_fraction(n - dead_clocks["to_low"] / per) - 1
+    dmin, dmax = duty_range(spec_pwm, n, dead_clocks)
     binds_min = binds_max = "dead time"
     if pulse is not None:
-        by_pulse_min = ceil_fraction((dead_clocks["to_high"] + pulse) / per)
-        by_pulse_max = floor_fraction(n - (dead_clocks["to_low"] + pulse) / per)
+        by_pulse_min, by_pulse_max = duty_range(spec_pwm, n, dead_clocks, max(pulse, 1))
         if by_pulse_min > dmin:
             dmin, binds_min = by_pulse_min, "minimum pulse"
         if by_pulse_max < dmax:
             dmax, binds_max = by_pulse_max, "minimum pulse"
     boot_max = None
     if boot is not None:
-        boot_max = floor_fraction(n - (dead_clocks["to_low"] + boot) / per)
+        _, boot_max = duty_range(spec_pwm, n, dead_clocks, max(boot, 1))
         if spec.bootstrap_every == 1 and boot_max < dmax:
             dmax, binds_max = boot_max, "bootstrap refresh"
     verdict, reason = "ok", ""
