@@ -9,8 +9,8 @@ reference-facts.md "Clock tolerance"). `safe` rounding must keep that shortest g
 from __future__ import annotations
 
 import json
-import re
 import math
+import re
 from dataclasses import replace
 from fractions import Fraction
 from functools import cache

@@ -137,7 +137,7 @@ def decision_section(plan: BuildPlan) -> Section:
 
         _, adaptive, _ = adaptive_parts(outputs)
         figures += [FigureBlock(Markup(svg), caption) for svg, caption in adaptive]
-    paragraphs = (
+    paragraphs: tuple[str, ...] = (
         "Each transition to scale against the window"
         + ("" if plan.design.reference is None
            else "; the old network's dead time over its parts' tolerances, with its worst case")
