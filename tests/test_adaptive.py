@@ -477,9 +477,14 @@ def test_report_has_the_section_with_plot_and_table(tmp_path: Path) -> None:
     html = out.read_text(encoding="utf-8")
     start = html.index('<section id="adaptive">')
     section = html[start : html.index("</section>", start)]
-    assert section.count("<svg") == 1
+    # issue 23: the plot carries a decision, so it sits among the decision plots; the table is
+    # in the (folded) section
+    start = html.index('<section id="decision">')
+    decision = html[start : html.index("</section>", start)]
+    assert section.count("<svg") == 0 and decision.count('<svg xmlns="http://www.w3.org/2000/'
+                                                         'svg" id="adaptive') == 1
     # both policies are drawn, and the table lists the bin codes worked out by hand above
-    assert "below_swing 'max'" in section and "below_swing 'hard'" in section
+    assert "below_swing 'max'" in decision + section and "below_swing 'hard'" in decision + section
     assert "<td>to_low 102</td>" in section and "<td>to_low 119</td>" in section
     assert "every temperature and both current signs" in section
     # no section without [adaptive]
