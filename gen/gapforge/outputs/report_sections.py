@@ -15,13 +15,15 @@ from markupsafe import Markup
 from gapforge.base.display import count, format_percent, format_si
 from gapforge.outputs.figures import (
     analog_figure,
+    staircase_figure,
+    timing_figure,
+    transition_figure,
+)
+from gapforge.outputs.histograms import (
     bin_counts,
     distribution_figure,
     overlap_figure,
     overlap_zoom_figure,
-    staircase_figure,
-    timing_figure,
-    transition_figure,
     value_range,
 )
 from gapforge.outputs.report_data import (
