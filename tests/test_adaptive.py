@@ -154,6 +154,8 @@ def cases(draw):  # type: ignore[no-untyped-def]
         high=high,
         low=low,
         mismatch=draw(st.integers(0, 5)) * NS,
+        isolator_skew=F(0),
+        timer_skew=F(0),
         margin=F(draw(st.integers(10, 15)), 10),
         kind="gan",
         vsd=F(2),
@@ -285,7 +287,7 @@ def test_emitted_arrays_compile_and_match_the_json(design: str, tmp_path: Path) 
     names += [f"{s}_{e}_{k}" for s in ("pos", "neg") for e in EDGES for k in ("code", "min_ps")]
     model = entry["adaptive_model"]
     if model["inverter"] is not None:
-        names += ["comp_pos_counts", "comp_neg_counts"]
+        names += ["compensation_pos_counts", "compensation_neg_counts"]
     if model["adc"] is not None:
         names += ["pos_edge_adc", "neg_edge_adc"]
     body = "\n".join(
@@ -334,7 +336,7 @@ def test_emitted_arrays_compile_and_match_the_json(design: str, tmp_path: Path) 
                 assert 0 <= b[s][e]["achieved_min_s"] * 1e12 - ps < 1.001
     if model["inverter"] is not None:
         for s, short in (("positive", "pos"), ("negative", "neg")):
-            assert got[f"comp_{short}_counts"] == [b["compensation_counts"][s] for b in bins]
+            assert got[f"compensation_{short}_counts"] == [b["compensation_counts"][s] for b in bins]
     if model["adc"] is not None:
         zero = model["adc"]["zero"]
         for s, short in (("positive", "pos"), ("negative", "neg")):

@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from conftest import EXAMPLES, run_cli, run_subprocess
+from conftest import EXAMPLES, SMALL_STAGE, run_cli, run_subprocess
 
 BASE = """# invented test design
 format = 1
@@ -23,6 +23,7 @@ frequency = "500kHz"
 counting = "center"
 [dead_time]
 value = "25ns"
+source = "explicit"
 [[output]]
 target = "split-10bit-tenths"
 prefix = "DT"
@@ -75,7 +76,7 @@ DESIGNS: dict[str, tuple[str | bytes, str]] = {
                  "dead_time.rounding: 'down' is not one of safe, nearest"),
     "unknown-timer-key": (BASE.replace("tolerance =", "tolerence ="),
                           "timer.tolerence: unknown key; did you mean 'tolerance'? (expected one "
-                          "of: clock, clock_macro, tolerance)"),
+                          "of: clock, clock_macro, tolerance) (and 1 more problem)"),
     "unknown-output-key": (BASE.replace('prefix = "DT"', 'prefix = "DT"\nstrukt = true'),
                            "output[0].strukt: unknown key; did you mean 'struct'? (expected one "
                            "of: file, prefix, struct, target)"),
@@ -105,7 +106,7 @@ DESIGNS: dict[str, tuple[str | bytes, str]] = {
                        'file = "dt.h"\n', "output[1].file: file 'dt.h' is written twice"),
     "toml-syntax": (BASE + "[[output]\n",
                     "TOML syntax error: Expected ']]' at the end of an array declaration "
-                    "(at line 15, column 9)"),
+                    "(at line 16, column 9)"),
     "not-utf8": (b"format = 1\n# \xff\xfe\n", "not UTF-8 text (byte 13)"),
     # issue 9, section 3: a bare number meant something else; issue 14: hostile files
     "dead-time-bare": (BASE.replace('"25ns"', '"400"'),
@@ -188,7 +189,7 @@ def test_bad_design_file(case: str, tmp_path: Path) -> None:
     assert _snapshot(tmp_path) == before
 
 
-LAYOUT_ARGS = ["fit", "--clock", "100MHz", "--dead-time", "50ns", "--target"]
+LAYOUT_ARGS = ["fit", "--clock", "100MHz", "--clock-tol", "0ppm", "--dead-time", "50ns", "--target"]
 
 
 @pytest.mark.parametrize(
@@ -221,13 +222,13 @@ def test_bad_layout_file_on_the_command_line(
 @pytest.mark.parametrize(
     ("args", "line"),
     [
-        (["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target", "shared-8bit-linaer"],
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linaer"],
          "gapforge: error: --target: no built-in layout named 'shared-8bit-linaer'; did you mean "
          f"'shared-8bit-linear'? (built-ins: {BUILTIN_LIST}; or give a path to a .toml layout "
          "file)"),
-        (["fit", "--clock", "160MHz", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--target", "shared-8bit-linear"],
          "gapforge: error: fit: give --dead-time, or both --to-high and --to-low"),
-        (["fit", "--clock", "160MHz", "--to-high", "25ns", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--to-high", "25ns", "--target", "shared-8bit-linear"],
          "gapforge: error: fit: give --dead-time, or both --to-high and --to-low"),
         (["targets", "show", "nosuch"],
          "gapforge: error: TARGET: no built-in layout named 'nosuch' (built-ins: "
@@ -247,20 +248,20 @@ def test_bad_arguments_reported_by_gapforge(args: list[str], line: str, tmp_path
 @pytest.mark.parametrize(
     ("args", "option"),
     [
-        (["fit", "--clock", "160MHzz", "--dead-time", "25ns", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "160MHzz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear"],
          "'--clock'"),
-        (["fit", "--clock", "nan", "--dead-time", "25ns", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "nan", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear"],
          "'--clock'"),
-        (["fit", "--clock", "160MHz", "--dead-time", "-5ns", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "-5ns", "--target", "shared-8bit-linear"],
          "'--dead-time'"),
-        (["fit", "--clock", "160MHz", "--clock-tol", "200%", "--dead-time", "25ns",
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--clock-tol", "200%", "--dead-time", "25ns",
           "--target", "shared-8bit-linear"], "'--clock-tol'"),
-        (["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target", "shared-8bit-linear",
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear",
           "--rounding", "up"], "'--rounding'"),
         (["fit", "--dead-time", "25ns", "--target", "shared-8bit-linear"], "'--clock'"),
-        (["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target", "shared-8bit-linear",
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear",
           "--colour"], "--colour"),
-        (["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target", "shared-8bit-linear",
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear",
           "--divider-code", "one"], "'--divider-code'"),
         (["targets", "show", "shared-8bit-linear", "--clock", "fast"], "'--clock'"),
         (["build"], "'DESIGN'"),
@@ -280,9 +281,9 @@ def test_bad_option_values_are_one_line(args: list[str], option: str, tmp_path: 
 @pytest.mark.parametrize(
     ("kind", "args", "where"),
     [
-        ("option", ["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target",
+        ("option", ["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target",
                     "shared-8bit-linear", "--divider-code", "3"], "--divider-code"),
-        ("option", ["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target",
+        ("option", ["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target",
                     "shared-8bit-linear", "--pwm", "200MHz"], "--pwm"),
         ("design", ["build", "d.toml"], "d.toml: pwm.frequency"),
     ],
@@ -368,6 +369,7 @@ TWO_OUTPUTS = """# invented test design
 format = 1
 [timer]
 clock = "100MHz"
+tolerance = "0ppm"
 [dead_time]
 value = "50ns"
 [[output]]
@@ -378,7 +380,7 @@ file = "a.h"
 target = "split-10bit-div1-8"
 prefix = "B"
 file = "b.h"
-"""
+""" + SMALL_STAGE
 
 
 def test_output_path_that_is_a_directory_is_bad_input_and_writes_nothing(tmp_path: Path) -> None:

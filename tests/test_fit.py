@@ -226,7 +226,7 @@ def test_split_layout_fits_each_edge_separately() -> None:
 
 def test_fit_json_from_the_command_line() -> None:
     code, out, _ = run_cli([
-        "fit", "--clock", "160MHz", "--clock-tol", "50ppm", "--dead-time", "25ns",
+        "fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--clock-tol", "50ppm", "--dead-time", "25ns",
         "--target", "split-10bit-tenths", "--pwm", "500kHz", "--counting", "center", "--json",
     ])
     assert code == 0
@@ -251,22 +251,23 @@ def test_fit_json_from_the_command_line() -> None:
 
 def test_unreachable_from_the_command_line_exits_1() -> None:
     code, out, _ = run_cli([
-        "fit", "--clock", "160MHz", "--dead-time", "2us", "--target", "shared-8bit-linear",
+        "fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "2us", "--target", "shared-8bit-linear",
         "--json",
     ])
     # 2 us x 160 MHz = 320 counts > 255
     assert code == 1
     doc = json.loads(out)
-    assert doc["verdict"] == "fail" and doc["reason"] == "unreachable"
+    # issue 19: fit speaks the one vocabulary; the reason says why in words
+    assert doc["verdict"] == "fail" and "above the most the layout can guarantee" in doc["reason"]
     assert doc["register"] is None
     assert doc["edges"]["to_high"]["achieved_s"] is None
     assert doc["edges"]["to_high"]["layout_max_s"] == pytest.approx(255 / 160e6, rel=1e-15)
     code, out, _ = run_cli([
-        "fit", "--clock", "160MHz", "--dead-time", "2us", "--target", "shared-8bit-linear",
+        "fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "2us", "--target", "shared-8bit-linear",
     ])
     assert code == 1
     # 255 / 160 MHz = 1.59375 us exactly; four digits cut toward the safe side (down) show 1.593
-    assert ("unreachable: to_high request 2 us is longer than the layout can guarantee: at most "
+    assert ("fail: to_high request 2 us is longer than the layout can guarantee: at most "
             "1.593 us at the fast clock") in out
     assert "reduced voltage" in out  # the caution is always printed
 

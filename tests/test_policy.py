@@ -1,8 +1,8 @@
 """The window of a design and its dead-time policy (issue 9, section 1).
 
 The scenario is the invented 3-phase SiC inverter of examples/sic-inverter.toml: stage window
-(320 ns x 1.25 =) 400 ns .. (4.8 W / (4 V x 100 A x 10 kHz) =) 1.2 us, worked by hand in the
-example's comments from the common-practice formulas of gapforge.stage.window. The old analog
+(320 ns x 1.25 =) 400 ns .. ((5.12 W - 40 nC x 800 V x 10 kHz recovery) / (4 V x 100 A x 10 kHz)
+=) 1.2 us, worked by hand in the example's comments from the common-practice formulas of gapforge.stage.window. The old analog
 network there was too short: its worst-case range lies below 400 ns.
 """
 

@@ -59,6 +59,10 @@ t_fall = "20ns"
 td_on = "10ns"
 prop_delay = "20ns:45ns"
 mismatch = "5ns"
+isolator_skew = "0ns"
+timer_skew = "0ns"
+kind = "silicon"
+qrr = "0nC"
 current = "10A"
 fsw = "100kHz"
 loss_budget = "2W"
@@ -377,13 +381,17 @@ def test_report_is_byte_identical_on_rerun(design_file: Path, html: str) -> None
 
 def test_absent_inputs_leave_their_sections_out_and_say_so(tmp_path: Path) -> None:
     bare = tmp_path / "bare.toml"
-    head = DESIGN.split("[reference]")[0].replace('source = "window-within-reference"', 'value = "50ns"')
+    head = DESIGN.split("[reference]")[0].replace('source = "window-within-reference"',
+                                                  'value = "50ns"\nsource = "explicit"')
     bare.write_text(head + '[[output]]\ntarget = "shared-8bit-linear"\nprefix = "A"\nfile = "a.h"\n')
     text = render_report(plan_design(load_design(bare)))
     figures = svgs(text)
     assert "Absent: the design has no [reference] section" in text
     assert "Absent: no capture was given" in text
     assert "Absent: the design has neither a [stage] nor a [reference] section" in text
+    # issue 19: without [stage] nobody judged the dead time: the verdict box says so
+    box = text.split("<h2", 1)[0]
+    assert "inconclusive" in box and "not judged against a power stage" in box
     assert not any(k.startswith(("analog-", "mc-", "capture-")) for k in figures)
     assert "timing-0" in figures and "zoom-0-to_low" in figures
 

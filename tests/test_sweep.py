@@ -287,15 +287,23 @@ def test_every_feasible_row_fits_under_worst_case_tolerance(
 # the command
 
 
+def stated_tol(args: list[str]) -> list[str]:
+    """The clock tolerance stated as 0 where a test gives none (issue 19: it is required)."""
+    if "--design" in args or "--clock-tol" in args:
+        return args
+    return [*args, "--clock-tol", "0ppm"]
+
+
 def run(args: list[str]) -> Any:
-    result = CliRunner().invoke(cli, ["sweep", *args])
+    result = CliRunner().invoke(cli, ["sweep", *stated_tol(args)])
     if result.exception is not None and not isinstance(result.exception, SystemExit):
         raise result.exception
     return result
 
 
 STAGE = ["--td-off", "35ns", "--t-fall", "20ns", "--td-on", "10ns", "--prop-delay", "20ns:45ns",
-         "--mismatch", "5ns", "--current", "10A", "--fsw", "20kHz", "--loss-budget", "0.5W"]
+         "--mismatch", "5ns", "--isolator-skew", "0ns", "--timer-skew", "0ns", "--kind", "silicon",
+         "--qrr", "0nC", "--current", "10A", "--fsw", "20kHz", "--loss-budget", "0.5W"]
 
 
 def test_cli_text_from_stage_options() -> None:
@@ -356,13 +364,15 @@ def test_cli_empty_window_from_the_stage_exits_1() -> None:
         (["--clocks", "100MHz", "--window", "90ns:50ns"], "--window"),
         (["--clocks", "100MHz", "--window", "-9ns:50ns"], "--window"),
         (["--clocks", "100MHz", "--window", "90ns", "--td-off", "3ns"], "--td-off"),
-        (["--clocks", "100MHz", "--td-off", "3ns", "--td-on", "9ns"], "--td-on"),
+        (["--clocks", "100MHz", "--td-off", "3ns", "--td-on", "9ns", "--t-fall", "0ns",
+          "--prop-delay", "0ns", "--mismatch", "0ns", "--isolator-skew", "0ns",
+          "--timer-skew", "0ns"], "--td-on"),
         (["--clocks", "100MHz", "--window", "90ns", "--target", "no-such-layout"], "--target"),
         (["--clocks", "100MHz", "--window", "90ns", "--json", "--csv"], "--csv"),
     ],
 )
 def test_cli_bad_input(args: list[str], where: str) -> None:
-    result = CliRunner().invoke(cli, ["sweep", *args])
+    result = CliRunner().invoke(cli, ["sweep", *stated_tol(args)])
     assert isinstance(result.exception, GapforgeError), result.output
     line = result.exception.line()
     assert line.startswith(where) and "\n" not in line
@@ -587,13 +597,13 @@ def test_cli_design_pwm_is_the_default_and_options_override_it() -> None:
     # the same window given directly: 20 MHz edge-aligned is 8 counts; the window minimum
     # 27.6 ns is 4.4 counts, over half a period
     code, out, err = run_cli(["sweep", "--window", "27.6ns:29.687ns", "--clocks", "160MHz",
-                              "--pwm", "20MHz", "--counting", "edge"])
+                              "--clock-tol", "0ppm", "--pwm", "20MHz", "--counting", "edge"])
     assert code == 1 and "% of the PWM period" in out
 
 
 def test_cli_counting_without_a_pwm_is_an_error() -> None:
     result = CliRunner().invoke(cli, ["sweep", "--clocks", "100MHz", "--window", "90ns",
-                                      "--counting", "center"])
+                                      "--clock-tol", "0ppm", "--counting", "center"])
     assert isinstance(result.exception, GapforgeError), result.output
     line = result.exception.line()
     assert line.startswith("--counting") and "--pwm" in line and "\n" not in line
@@ -692,7 +702,7 @@ def test_progress_bar_only_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> Non
 
     monkeypatch.setattr(sweep_cmd, "PROGRESS_POINTS", 1)
     args = ["--clocks", "100MHz,150MHz", "--window", "90ns:300ns", "--target", "split-10bit-div1-8"]
-    piped = CliRunner().invoke(cli, ["sweep", *args])
+    piped = CliRunner().invoke(cli, ["sweep", *stated_tol(args)])
     assert "sweeping" not in piped.stderr
     calls: list[int] = []
     real = sweep_cmd.sweep

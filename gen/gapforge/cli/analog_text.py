@@ -6,12 +6,22 @@ from __future__ import annotations
 from typing import Any
 
 from gapforge.analog.network import EDGES, PAIR_KEYS
-from gapforge.base.display import count, format_range
+from gapforge.base.display import count, format_range, format_si
 from gapforge.base.quantities import format_quantity
 
 
 def _t(value: float) -> str:
     return format_quantity(value, "s", 4)
+
+
+def _lo(value: float) -> str:
+    """A lower limit (a worst-case minimum), cut down: never shown longer than it is."""
+    return format_si(value, "s", toward="down")
+
+
+def _hi(value: float) -> str:
+    """An upper limit (a worst-case maximum), cut up: never shown shorter than it is."""
+    return format_si(value, "s", toward="up")
 
 
 def _pair_text(s: dict[str, Any]) -> str:
@@ -37,8 +47,8 @@ def _suggestion_lines(sg: dict[str, Any]) -> list[str]:
     for s in sg["pairs"]:
         lines.append(
             f"  {_pair_text(s)}  typ {_t(s['typ_s'])}   worst case "
-            f"to_high {format_range(s['to_high']['min_s'], s['to_high']['max_s'], 's', cut='outward')}"
-            f"   to_low {format_range(s['to_low']['min_s'], s['to_low']['max_s'], 's', cut='outward')}"
+            f"to_high {_lo(s['to_high']['min_s'])} .. {_hi(s['to_high']['max_s'])}   to_low "
+            f"{_lo(s['to_low']['min_s'])} .. {_hi(s['to_low']['max_s'])}"
         )
     if not sg["pairs"]:
         lines.append("  none: no candidate is safe" + (" and inside the window"
@@ -110,8 +120,8 @@ def render_text(report: dict[str, Any]) -> str:
         sim = (f"   simulated {_t(e['delay_sim_s'])} ({e['model_vs_sim'] * 100:+.2f} %)"
                if "delay_sim_s" in e else "")
         lines.append(
-            f"  {edge:<8} ({kind:<9}) typ {_t(e['delay_s'])}   range {_t(e['min_s'])} .. "
-            f"{_t(e['max_s'])}{sim}"
+            f"  {edge:<8} ({kind:<9}) typ {_t(e['delay_s'])}   range {_lo(e['min_s'])} .. "
+            f"{_hi(e['max_s'])}{sim}"
         )
     model = report["edges"][EDGES[0]]["model"]
     if model == "rc closed form":
@@ -127,11 +137,11 @@ def render_text(report: dict[str, Any]) -> str:
         r = report[key]
         rss_row = report["rss"][key]
         lines.append(
-            f"  {key:<8} min {_t(r['min_s'])}   typ {_t(r['typ_s'])}   max {_t(r['max_s'])}"
+            f"  {key:<8} min {_lo(r['min_s'])}   typ {_t(r['typ_s'])}   max {_hi(r['max_s'])}"
         )
         lines.append(
             f"  {'':<8} statistical estimate (RSS, typ +/- 3 sigma): "
-            f"{_t(rss_row['low_3sigma_s'])} .. {_t(rss_row['high_3sigma_s'])}"
+            f"{_lo(rss_row['low_3sigma_s'])} .. {_hi(rss_row['high_3sigma_s'])}"
             + ("  [beyond the worst case, see note]" if rss_row["beyond_worst_case"] else "")
         )
         if rss_row["beyond_worst_case"]:
@@ -159,8 +169,8 @@ def render_text(report: dict[str, Any]) -> str:
                 if s["share_below"] is not None else ""
             )
             lines.append(
-                f"  {key:<12} min {_t(s['min_s'])}  0.135 % {_t(s['p0_135_s'])}  50 % "
-                f"{_t(s['p50_s'])}  99.865 % {_t(s['p99_865_s'])}  max {_t(s['max_s'])}{share}"
+                f"  {key:<12} min {_lo(s['min_s'])}  0.135 % {_lo(s['p0_135_s'])}  50 % "
+                f"{_t(s['p50_s'])}  99.865 % {_hi(s['p99_865_s'])}  max {_hi(s['max_s'])}{share}"
             )
     leak = report["leakage"]
     if leak["slow_edge_over_temperature"]:

@@ -48,6 +48,10 @@ _UNPORTABLE = set('"*<>|?:\\') | {chr(c) for c in range(32)} | {chr(127)}
 @click.option("--record", is_flag=True,
               help="Also write <header>.json beside each header: the fitted values as a "
               "versioned JSON record (schema gapforge-dead-time-record).")
+@click.option("--depfile", type=click.Path(dir_okay=False, path_type=Path), default=None,
+              help="Also write a Make/Ninja depfile: every file written depends on the design, "
+              "every layout file and the templates (so a firmware build reruns gapforge when one "
+              "changes).")
 @click.option("--strict", is_flag=True,
               help="Refuse (exit 1, nothing written) when a PWM count does not fit the design's "
               "[pwm] counter_bits, instead of warning.")
@@ -61,6 +65,7 @@ def command(
     details: bool,
     self_test: bool,
     record: bool,
+    depfile: Path | None,
     strict: bool,
     no_diagram: bool,
     ascii_only: bool,
@@ -72,8 +77,14 @@ def command(
     """
     plan = plan_design(load_design(design))
     problems = _strict_problems(plan) if strict else []
-    ok = plan.verdict == "ok" and not problems
+    # an inconclusive design (no [stage]: not judged) is written as asked, and exits 1
+    ok = plan.verdict in ("ok", "inconclusive") and not problems
     texts = _texts(plan, design, out_dir, self_test, record) if ok else {}
+    if depfile is not None and texts:
+        from gapforge.outputs.depfile import depfile_text
+
+        texts[depfile] = depfile_text(plan, sorted(texts))
+    done = 0 if plan.verdict == "ok" else 1
     if check:
         _check(plan, texts, ok, problems, details, no_diagram, ascii_only, as_json)
         return
@@ -88,7 +99,7 @@ def command(
         doc["files"] = {"written": [str(p) for p in outcome.written],
                         "unchanged": [str(p) for p in outcome.unchanged]}
         emit_json(doc)
-        return
+        sys.exit(done)
     _report(plan, problems, no_diagram, ascii_only)
     if not ok:
         click.echo("nothing written: fix the verdict above first", err=True)
@@ -100,6 +111,7 @@ def command(
     for p in outcome.unchanged:
         click.echo(f"unchanged {p}")
     click.echo(CAUTION)
+    sys.exit(done)
 
 
 def _strict_problems(plan: BuildPlan) -> list[str]:
@@ -171,6 +183,8 @@ def _check(
     """Compare without writing; the verdict is ok only when every file is present and current."""
     outcome = compare(texts)
     verdict = "ok" if ok and not outcome.missing and not outcome.stale else "fail"
+    if verdict == "ok" and plan.verdict == "inconclusive":
+        verdict = "inconclusive"  # current files, but nobody judged the dead time (issue 19)
     lists = {"missing": outcome.missing, "stale": outcome.stale, "unchanged": outcome.unchanged}
     if as_json:
         doc: dict[str, Any] = plan_json(plan)
@@ -181,7 +195,8 @@ def _check(
     else:
         counts = ", ".join(f"{len(v)} {k}" for k, v in lists.items())
         if ok:
-            click.echo(f"check {verdict}: {counts}")
+            why = f" ({plan.reasons[0]})" if plan.verdict == "inconclusive" else ""
+            click.echo(f"check {verdict}{why}: {counts}")
         else:
             click.echo("check fail: the design does not build, so no file can be current")
             for line in [*plan_answer(plan), *problems]:

@@ -82,6 +82,7 @@ def command(
     written = write_files({output: text}, parents=parents)
     # the answer first: the verdicts in the one vocabulary, then what was written
     click.echo(f"report: design {verdict_word(plan.verdict)}"
+               + (f" ({plan.reasons[0]})" if plan.verdict == "inconclusive" else "")
                + ("" if measurement is None else f", capture {capture_word(measurement.verdict)}")
                + f" - wrote {', '.join(str(p) for p in written)}")
     warnings = design_warnings(plan)

@@ -23,7 +23,13 @@ from gapforge.base.display import (
 )
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_tolerance
-from gapforge.cli.options import Quantity, Tolerance, json_option, warn_renamed
+from gapforge.cli.options import (
+    Quantity,
+    Tolerance,
+    json_option,
+    require_clock_tol,
+    warn_renamed,
+)
 from gapforge.cli.window_cmd import (
     CAUTION,
     MIN_FORMULA,
@@ -31,7 +37,8 @@ from gapforge.cli.window_cmd import (
     spec_from_options,
     stage_options,
 )
-from gapforge.stage.window import EDGES, parse_span, stage_window
+from gapforge.stage.stage_reader import parse_span
+from gapforge.stage.window import EDGES, stage_window
 from gapforge.timer.layouts import Layout, builtin_names, load_layout
 from gapforge.timer.limits import COUNTINGS, PwmSpec
 from gapforge.timer.sweep import RANKS, Sweep, SweepRow, limits_of, parse_clocks, sweep
@@ -354,7 +361,8 @@ def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | N
     "--clock-tol",
     type=Tolerance(),
     default=None,
-    help="Timer clock tolerance: '50ppm', '2%' (default: the design's, else 0).",
+    help="Timer clock tolerance, required unless --design gives it: '50ppm' (crystal), '2%' "
+    "(RC oscillator), '0ppm' stated for an exact clock.",
 )
 @click.option(
     "--window",
@@ -439,8 +447,6 @@ def command(**values: Any) -> None:
             raise GapforgeError("differs from --pwm (a half bridge switches once per PWM period)",
                                 "--fsw")
         limits = limits_of(stage_window(spec))
-    if values["clock_tol"] is None:
-        values["clock_tol"] = Fraction(0)
     pwm = _pwm_spec(values, design_pwm)
     if values["clock_texts"]:
         clocks = parse_clocks(values["clock_texts"])
@@ -448,6 +454,7 @@ def command(**values: Any) -> None:
         clocks = (design_clock,)
     else:
         raise GapforgeError("required (or give --design FILE to sweep at its clock)", "--clocks")
+    values["clock_tol"] = require_clock_tol(values["clock_tol"])
     names = list(values["targets"])
     if values["builtins"] or not names:
         names = builtin_names() + [n for n in names if n not in builtin_names()]

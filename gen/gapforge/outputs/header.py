@@ -10,6 +10,7 @@ One header is built in named steps, each returning plain rows or lines:
     _edge_rows     steps and picoseconds per edge, and the window
     _pwm_rows      period, top count, compare range
     _checks        #if/#error self-checks, including the window guards recomputed from STEPS
+                   (header_checks: within a C90 preprocessor, or C99 where they need 64 bits)
     _blocks        free-standing C blocks after the checks (clock cross-check, struct); a new
                    output (for example const arrays) adds a block here, the template is unchanged
 Every user text (file names, layout name and summary) goes through `c_text` first.
@@ -31,17 +32,25 @@ from gapforge.base.quantities import (
     picoseconds_floor,
 )
 from gapforge.outputs import c_text
+from gapforge.outputs.c_types import U32_MAX, c_hex, c_uint, least_type
+from gapforge.outputs.header_checks import (
+    HEADER_FORMAT,
+    Check,
+    c99_reasons,
+    check_lines,
+    checks,
+    clock_macro_value,
+    fields_msb_first,
+    language_checks,
+    language_line,
+    window_ps,
+)
 from gapforge.outputs.templating import environment
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.compromise import compromises
-from gapforge.timer.layouts import EDGES, Field, Layout
-
-HEADER_FORMAT = 1
+from gapforge.timer.layouts import EDGES, Layout
 
 CAUTION = caution.LINES
-U64 = 1 << 64
-PS_PER_S = 10**12
-PPB = 10**9
 
 
 @dataclass(frozen=True)
@@ -57,30 +66,7 @@ class Section:
     macros: tuple[Macro, ...]
 
 
-@dataclass(frozen=True)
-class Check:
-    condition: str
-    message: str  # the inside of a C string literal (already escaped)
-
-
 Row = tuple[str, str, str]  # macro name, value, comment
-
-
-def c_uint(value: int) -> str:
-    """An unsigned C literal sized so nothing overflows where int is 16 bits."""
-    if value < 0:
-        raise ValueError("negative value in an unsigned macro")
-    if value <= 0xFFFF:
-        return f"{value}u"
-    if value <= 0xFFFFFFFF:
-        return f"{value}ul"
-    return f"{value}ull"
-
-
-def c_hex(value: int, bits: int) -> str:
-    digits = max(1, bits // 4)
-    text = f"0x{value:0{digits}x}"
-    return text + ("u" if bits <= 16 else "ul")
 
 
 def _ns(value: Fraction) -> str:
@@ -106,28 +92,17 @@ def guard_name(prefix: str) -> str:
     return f"{cleaned}_H"
 
 
-def fields_msb_first(layout: Layout) -> list[Field]:
-    """Register fields in bit order, most significant first (comment and macros alike)."""
-    return sorted(layout.fields, key=lambda f: f.offset, reverse=True)
-
-
 def register_type(layout: Layout) -> str:
-    return {8: "uint8_t", 16: "uint16_t"}.get(layout.register_bits, "uint32_t")
-
-
-def clock_macro_value(plan: BuildPlan) -> int:
-    """The timer clock as a whole number of hertz, rounded up: firmware that recomputes a dead
-    time from the macros then errs short (safe)."""
-    clock = plan.design.clock_hz
-    return -(-clock.numerator // clock.denominator)
+    """The register word's C type: the uint_leastN_t that holds the register's width."""
+    return least_type(layout.register_bits)
 
 
 # ---------------------------------------------------------------------------------------------
 # The comment
 
 
-def _banner(plan: BuildPlan, op: OutputPlan) -> list[str]:
-    lines = [*_provenance_lines(plan, op), "", *_timing_lines(plan, op)]
+def _banner(plan: BuildPlan, op: OutputPlan, language: str) -> list[str]:
+    lines = [*_provenance_lines(plan, op), language, "", *_verdict_lines(op), *_timing_lines(plan, op)]
     lines += _field_lines(op)
     lines += ["", *_write_example(op)]
     lines += ["", *_convention_lines(plan, op)]
@@ -135,6 +110,17 @@ def _banner(plan: BuildPlan, op: OutputPlan) -> list[str]:
     if plan.design.clock_hz.denominator != 1:
         lines.append("Note: the timer clock is not a whole number of hertz; the macro is rounded up.")
     return [f" {c_text.comment(line)}" if line else "" for line in lines]
+
+
+def _verdict_lines(op: OutputPlan) -> list[str]:
+    """An inconclusive output is written because it was asked for, and says so (issue 19)."""
+    if op.verdict == "ok":
+        return []
+    import textwrap
+
+    text = f"VERDICT: {op.verdict} - {'; '.join(op.reasons)}. Written because the design asked"
+    text += " for it; gapforge build exits 1 for it. Judge it against the power stage first."
+    return [*textwrap.wrap(text, 94), ""]
 
 
 def _provenance_lines(plan: BuildPlan, op: OutputPlan) -> list[str]:
@@ -217,7 +203,7 @@ def _write_example(op: OutputPlan) -> list[str]:
         f"    word = ({kind})(word & ~({masks}));",
     ]
     # the code is widened before the shift: int may be 16 bits on the target
-    wide = "uint32_t" if layout.register_bits > 16 else "unsigned"
+    wide = "uint_least32_t" if layout.register_bits > 16 else "unsigned"
     for f in ordered:
         n = f"{p}_{f.name.upper()}"
         lines.append(
@@ -320,18 +306,6 @@ def _edge_rows(plan: BuildPlan, op: OutputPlan) -> list[Row]:
     return rows
 
 
-def window_ps(plan: BuildPlan) -> dict[str, tuple[int, int | None]]:
-    """The window in whole picoseconds, the safe side of each bound (min up, max down)."""
-    if plan.window is None:
-        return {}
-    out: dict[str, tuple[int, int | None]] = {}
-    for e in EDGES:
-        lo, hi = plan.window[e]
-        out[e] = (picoseconds_ceil(lo or Fraction(0)),
-                  picoseconds_floor(hi) if hi is not None else None)
-    return out
-
-
 def _pwm_rows(op: OutputPlan) -> list[Row]:
     lim, p = op.limits, op.output.prefix
     assert lim is not None
@@ -351,141 +325,52 @@ def _pwm_rows(op: OutputPlan) -> list[Row]:
 
 
 # ---------------------------------------------------------------------------------------------
-# The self-checks
-
-
-def _checks(plan: BuildPlan, op: OutputPlan) -> list[Check]:
-    p, layout = op.output.prefix, op.output.layout
-    file = c_text.string_body(op.output.file)
-    checks = [
-        Check(
-            f"defined(GAPFORGE_FORMAT_REQUIRED) && (GAPFORGE_FORMAT_REQUIRED != {p}_FORMAT_VERSION)",
-            f"{file} has gapforge header format {HEADER_FORMAT}: regenerate it",
-        ),
-    ]
-    for f in fields_msb_first(layout):
-        name = f.name.upper()
-        checks.append(Check(f"({p}_{name}_CODE) > ({p}_{name}_MASK >> {p}_{name}_SHIFT)",
-                            f"{p}_{name}_CODE does not fit its field"))
-    checks.append(Check(
-        f"({p}_REGISTER) > {c_hex((1 << layout.register_bits) - 1, layout.register_bits)}",
-        f"{p}_REGISTER does not fit a {layout.register_bits}-bit register",
-    ))
-    for e, (lo_ps, hi_ps) in window_ps(plan).items():
-        checks += _window_guards(plan, op, e, lo_ps, hi_ps)
-    return checks
-
-
-def _window_guards(
-    plan: BuildPlan, op: OutputPlan, edge: str, lo_ps: int, hi_ps: int | None
-) -> list[Check]:
-    """#error when the worst case recomputed from STEPS, DIVIDER, SUB_STEPS, the clock and its
-    tolerance leaves the window, so a hand edit of any of those macros cannot pass silently.
-
-    In whole numbers (N = STEPS x DIVIDER, K = SUB_STEPS x CLOCK, W the window bound in ps,
-    WK = W x K = a x 10^9 + b): the fastest-clock minimum floor(N 10^21 / (K (10^9 + PPB))) >= W
-    exactly when N 10^12 >= WK + a PPB + ceil(b PPB / 10^9); the slowest-clock maximum
-    ceil(N 10^21 / (K (10^9 - PPB))) <= W exactly when N 10^12 <= WK - a PPB - ceil(b PPB / 10^9).
-    Every term stays below 2^64 (checked here; where it would not, the guard compares the
-    ACHIEVED macros instead and says so). PPB is the tolerance rounded up, so the recomputed range
-    can be wider than the exact one by under a picosecond: where that alone would trip a guard, the
-    guard allows that picosecond and says so.
-    """
-    p, E = op.output.prefix, edge.upper()
-    fit = op.fit.edges[edge]
-    assert fit.steps is not None and op.fit.divider is not None
-    n = fit.steps * op.fit.divider
-    k = op.output.layout.sub_steps * clock_macro_value(plan)
-    ppb = picoseconds_ceil(plan.design.clock_tol / 10**3)
-    steps, div = f"{p}_{E}_STEPS", f"{p}_DIVIDER"
-    kk = f"({p}_SUB_STEPS * {p}_TIMER_CLOCK_HZ)"
-    lhs = f"({steps} * {div} * 1000000000000u)"
-    out: list[Check] = []
-    bounds = [("MIN", lo_ps, "below the window minimum", "<")]
-    if hi_ps is not None:
-        bounds.append(("MAX", hi_ps, "above the window maximum", ">"))
-    for side, w, words, op_sign in bounds:
-        macro = f"{p}_WINDOW_{E}_{side}_PS"
-        slack = 0 if _guard_holds(n, k, w, ppb, side) else (1 if side == "MIN" else -1)
-        # an ok output is inside its window exactly; only the ps rounding of PPB can differ
-        assert _guard_holds(n, k, w - slack, ppb, side), (edge, side)
-        wm = macro if slack == 0 else f"({macro} {'-' if slack > 0 else '+'} 1u)"
-        if not fits_u64(n, k, w + (-slack), ppb):
-            achieved = f"{p}_{E}_ACHIEVED_{side}_PS"
-            cond = f"({achieved}) {op_sign} ({macro})"
-            note = " (64-bit recomputation would overflow: compares the ACHIEVED macro)"
-        else:
-            wk = f"({wm} * {kk})"
-            extra = (f"(({wk} / 1000000000u) * {p}_CLOCK_TOL_PPB"
-                     f" + (({wk} % 1000000000u) * {p}_CLOCK_TOL_PPB + 999999999u) / 1000000000u)")
-            rhs = f"({wk} + {extra})" if side == "MIN" else f"({wk} - {extra})"
-            cond = f"{lhs} {op_sign} {rhs}"
-            note = "" if slack == 0 else " (1 ps allowed for the rounded-up tolerance)"
-        out.append(Check(cond, f"{p} {edge}: worst-case dead time {words}{note}"))
-    return out
-
-
-def _guard_terms(n: int, k: int, w: int, ppb: int) -> tuple[int, int, int]:
-    wk = w * k
-    a, b = divmod(wk, PPB)
-    extra = a * ppb + -(-(b * ppb) // PPB)
-    return n * PS_PER_S, wk, extra
-
-
-def _guard_holds(n: int, k: int, w: int, ppb: int, side: str) -> bool:
-    lhs, wk, extra = _guard_terms(n, k, w, ppb)
-    return lhs >= wk + extra if side == "MIN" else lhs <= wk - extra
-
-
-def fits_u64(n: int, k: int, w: int, ppb: int) -> bool:
-    lhs, wk, extra = _guard_terms(n, k, w, ppb)
-    b = wk % PPB
-    return max(lhs, wk + extra, b * ppb + PPB, (wk // PPB) * ppb) < U64
-
-
-# ---------------------------------------------------------------------------------------------
 # Free-standing blocks after the checks
 
 
 def _clock_check_block(plan: BuildPlan, op: OutputPlan) -> list[str]:
-    """The firmware's clock macro against the header's: works when the macro has a cast."""
+    """The firmware's clock macro against the header's: an error on every compiler (issue 22).
+
+    A typedef whose array size turns negative is an error in every C standard and in C++ (a
+    failed `_Static_assert` only warns on some compilers); it accepts a macro with a cast."""
     p, m = op.output.prefix, plan.design.clock_macro
     message = c_text.string_body(
         f"{m} differs from the timer clock {op.output.file} was computed for: rerun gapforge build"
     )
     return [
-        f"/* Clock cross-check, when the firmware defines {m} before including this header.",
-        "   C11 and later: _Static_assert; C89/C99/C++: a typedef whose array size turns negative.",
-        "   Both accept a macro written with a cast, e.g. ((uint32_t)100000000u). For a plain",
-        "   literal, define GAPFORGE_CLOCK_CHECK_PREPROCESSOR to get the #if / #error form. */",
+        f"/* Clock cross-check, when the firmware defines {m} before including this header:",
+        "   a typedef whose array size turns negative, an error on every C and C++ compiler, that",
+        "   also accepts a macro written with a cast, e.g. ((unsigned long)100000000ul). Define",
+        "   GAPFORGE_CLOCK_CHECK_PREPROCESSOR as well to get an #error with the message for a",
+        "   plain literal. */",
         f"#if defined({m})",
         "#if defined(GAPFORGE_CLOCK_CHECK_PREPROCESSOR)",
         f"#if ({m}) != {p}_TIMER_CLOCK_HZ",
         f'#error "{message}"',
         "#endif",
-        "#elif defined(__STDC_VERSION__) && (__STDC_VERSION__ >= 201112L)",
-        f'_Static_assert(({m}) == {p}_TIMER_CLOCK_HZ, "{message}");',
-        "#else",
+        "#endif",
         f"typedef char {p}_clock_differs_rerun_gapforge_build[(({m}) == {p}_TIMER_CLOCK_HZ)"
         " ? 1 : -1];",
-        "#endif",
         f"#endif /* {m} */",
     ]
 
 
 def _struct_block(op: OutputPlan) -> list[str]:
-    p = op.output.prefix
+    p, fit, layout = op.output.prefix, op.fit, op.output.layout
     low = p.lower()
+    ps = [picoseconds_floor(fit.edges[e].achieved_s or Fraction(0)) for e in EDGES]
+    ps_type = least_type(32 if max(ps) <= U32_MAX else 64)  # 64 bits: C99 (said above)
+    divider_bits = max([f.width for f in layout.fields if f.role == "divider"] or [8])
     return [
         "/* Structured form of the same values. */",
         "#include <stdint.h>",
         f"struct {low}_dead_time {{",
-        "    uint32_t register_word;",
-        "    uint16_t divider_code;",
-        "    uint32_t to_high_steps;",
-        "    uint32_t to_low_steps;",
-        "    uint64_t to_high_achieved_ps;",
-        "    uint64_t to_low_achieved_ps;",
+        f"    {register_type(layout)} register_word;",
+        f"    {least_type(divider_bits)} divider_code;",
+        "    uint_least32_t to_high_steps;",
+        "    uint_least32_t to_low_steps;",
+        f"    {ps_type} to_high_achieved_ps;",
+        f"    {ps_type} to_low_achieved_ps;",
         "};",
         f"static const struct {low}_dead_time {low}_dead_time_config = {{",
         f"    {p}_REGISTER, {p}_DIVIDER_CODE, {p}_TO_HIGH_STEPS, {p}_TO_LOW_STEPS,",
@@ -517,31 +402,58 @@ def _blocks(plan: BuildPlan, op: OutputPlan) -> list[list[str]]:
 # ---------------------------------------------------------------------------------------------
 
 
+COUNTS_NOTE = (
+    "counts are unsigned int (16 bits on an 8-bit target): widen them, e.g. (uint_least32_t)N,"
+    " before arithmetic"
+)
+
+
 def header_text(plan: BuildPlan, op: OutputPlan) -> str:
-    """The C header for one output (C89 to C11 and C++). The output's verdict must be ok."""
+    """The C header for one output (C89 to C11 and C++ unless a value needs 64 bits, then C99
+    and C++11, said in the header). The output's verdict must be ok."""
     assert op.fit.ok and op.fit.divider is not None and op.fit.divider_code is not None
+    rows = {
+        "clock": _clock_rows(plan, op),
+        "fields": _field_rows(op),
+        "edges": _edge_rows(plan, op),
+    }
     sections = [
-        _section("Format and clock", _clock_rows(plan, op)),
-        _section("Register fields, most significant first", _field_rows(op)),
-        _section("Dead time per edge (to_high: before the high side turns on)",
-                 _edge_rows(plan, op)),
+        _section("Format and clock", rows["clock"]),
+        _section("Register fields, most significant first", rows["fields"]),
+        _section("Dead time per edge (to_high: before the high side turns on); picoseconds"
+                 " and steps may exceed 16 bits, " + COUNTS_NOTE, rows["edges"]),
     ]
     if op.limits is not None:
-        sections.append(_section("PWM", _pwm_rows(op)))
+        rows["pwm"] = _pwm_rows(op)
+        sections.append(_section(f"PWM; {COUNTS_NOTE}", rows["pwm"]))
     if op.driver is not None:  # issue 12: gate-driver duty limits
         from gapforge.outputs.adaptive_header import driver_rows
 
-        sections.append(_section("Gate driver limits", driver_rows(op.driver, op.output.prefix)))
+        rows["driver"] = driver_rows(op.driver, op.output.prefix)
+        sections.append(_section(f"Gate driver limits; {COUNTS_NOTE}", rows["driver"]))
     adaptive_rows, adaptive_checks, _ = _adaptive_parts(op)
     if adaptive_rows:
+        rows["adaptive"] = adaptive_rows
         sections.append(_section("Dead time by load current", adaptive_rows))
+    reasons = c99_reasons([r for part in rows.values() for r in part])
+    reasons += _struct_c99(op)
+    file = c_text.string_body(op.output.file)
+    items = [*language_checks(file, reasons), *checks(plan, op), *adaptive_checks]
     return environment().get_template("header.h.j2").render(
-        banner=_banner(plan, op),
+        banner=_banner(plan, op, language_line(reasons)),
         guard=guard_name(op.output.prefix),
         sections=sections,
-        checks=[*_checks(plan, op), *adaptive_checks],
+        check_lines=check_lines(items),
         blocks=_blocks(plan, op),
     )
+
+
+def _struct_c99(op: OutputPlan) -> list[str]:
+    """The struct's picosecond fields need 64 bits only where a value does."""
+    if not op.output.struct:
+        return []
+    ps = [picoseconds_floor(op.fit.edges[e].achieved_s or Fraction(0)) for e in EDGES]
+    return ["the struct's achieved_ps"] if max(ps) > U32_MAX else []
 
 
 def render_headers(plan: BuildPlan) -> dict[str, str]:

@@ -18,7 +18,7 @@ from typing import Any
 from gapforge import __version__
 from gapforge.base import caution
 from gapforge.base.quantities import picoseconds_ceil, picoseconds_floor
-from gapforge.outputs.header import clock_macro_value, fields_msb_first
+from gapforge.outputs.header_checks import clock_macro_value, fields_msb_first
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.compromise import compromises
 from gapforge.timer.layouts import EDGES
@@ -73,6 +73,59 @@ def _pwm(op: OutputPlan) -> dict[str, Any] | None:
     }
 
 
+def _gate_driver(op: OutputPlan) -> dict[str, Any] | None:
+    """The gate driver's duty limits (issue 22: --check catches drift in them too)."""
+    d = op.driver
+    if d is None:
+        return None
+    return {
+        "duty_min_counts": d.duty_min_counts,
+        "duty_max_counts": d.duty_max_counts,
+        "binds_min": d.binds_min,
+        "binds_max": d.binds_max,
+        "bootstrap_compare_max": (None if d.bootstrap_compare_max is None
+                                  else max(0, d.bootstrap_compare_max)),
+        "bootstrap_every_periods": d.spec.bootstrap_every,
+    }
+
+
+def _adaptive(op: OutputPlan) -> dict[str, Any] | None:
+    """The current-indexed table, its compensation constants and the selector's bands, as the
+    header holds them (issue 22)."""
+    a = op.adaptive
+    if a is None:
+        return None
+    from gapforge.outputs.selector import model
+
+    m = model(a)
+    bins = []
+    for k, b in enumerate(a.table.bins):
+        entry: dict[str, Any] = {"edge_ma": m.edges_ma[k]}
+        for sign in ("positive", "negative"):
+            digits = max(1, (a.layout.register_bits + 3) // 4)
+            side: dict[str, Any] = {"register": b.registers[sign],
+                                    "register_hex": f"0x{b.registers[sign]:0{digits}x}",
+                                    "compensation_counts": b.compensation[sign]}
+            for e in EDGES:
+                side[f"{e}_code"] = b.entries[sign][e].code
+                side[f"{e}_min_ps"] = picoseconds_floor(b.entries[sign][e].achieved_min_s)
+            if m.adc is not None:
+                side["edge_adc"] = (m.adc.pos_edges if sign == "positive" else m.adc.neg_edges)[k]
+            entry[sign] = side
+        bins.append(entry)
+    return {
+        "policy_below_swing": a.table.policy,
+        "divider_code": a.divider_code,
+        "hysteresis_ma": m.band_ma,
+        "sign_band_ma": m.sign_band_ma,
+        "adc_zero_code": None if m.adc is None else m.adc.zero,
+        "hysteresis_adc_codes": None if m.adc is None else m.adc.band_codes,
+        "sign_band_adc_codes": None if m.adc is None else m.adc.sign_band_codes,
+        "compensation_band_ma": None if a.inverter is None else m.sign_band_ma,
+        "bins": bins,
+    }
+
+
 def record(plan: BuildPlan, op: OutputPlan) -> dict[str, Any]:
     """The record of one fitted output (its verdict must be ok)."""
     fit, layout, design = op.fit, op.output.layout, plan.design
@@ -108,7 +161,10 @@ def record(plan: BuildPlan, op: OutputPlan) -> dict[str, Any]:
         "edges": _edges(plan, op),
         "pwm": _pwm(op),
         "shared": [c.text() for c in compromises(fit)],
+        "gate_driver": _gate_driver(op),
+        "adaptive": _adaptive(op),
         "verdict": op.verdict,
+        "reason": "; ".join(op.reasons) if op.verdict != "ok" else "",
         "caution": caution.TEXT,
     }
 

@@ -22,7 +22,7 @@ from pathlib import PurePosixPath
 
 from gapforge.base.quantities import picoseconds_ceil
 from gapforge.outputs import c_text
-from gapforge.outputs.header import (
+from gapforge.outputs.header_checks import (
     U64,
     clock_macro_value,
     fields_msb_first,

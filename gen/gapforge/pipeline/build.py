@@ -9,7 +9,7 @@ Nothing here reads or writes files (except what load_design read); rendering is 
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from pathlib import Path
 from typing import Any
@@ -22,7 +22,15 @@ from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
 from gapforge.timer.layouts import EDGES, rename_warning
 from gapforge.timer.limits import PwmLimits, counter_problem, pwm_limits
 
-VERDICTS = ("ok", "unreachable", "empty-window", "too-short", "too-long")
+VERDICTS = (
+    "ok", "inconclusive", "unreachable", "empty-window", "too-short", "too-long", "below-request"
+)
+
+# issue 19: a design without [stage] is fitted and written, but nobody judged the dead time
+NOT_JUDGED = (
+    "not judged against a power stage (the design has no [stage] section: the dead time was "
+    "fitted as asked, but nothing proves it long enough)"
+)
 
 Bounds = tuple[Fraction | None, Fraction | None]
 
@@ -105,12 +113,21 @@ def plan_design(design: Design) -> BuildPlan:
     outputs = tuple(
         _plan_output(design, o, request, dw.bounds, dw.reference) for o in design.outputs
     )
+    if design.stage is None:  # fitted, maybe fine, but not proven: inconclusive (issue 19)
+        outputs = tuple(
+            replace(o, verdict="inconclusive", reasons=(NOT_JUDGED,)) if o.verdict == "ok" else o
+            for o in outputs
+        )
     verdict = "ok"
     reasons: list[str] = []
     for o in outputs:  # every failing output's reasons; the verdict is the first failure's
-        if o.verdict != "ok":
-            verdict = o.verdict if verdict == "ok" else verdict
+        if o.verdict not in ("ok", "inconclusive"):
+            verdict = o.verdict if verdict in ("ok", "inconclusive") else verdict
             reasons.extend(f"{o.output.prefix}: {r}" for r in o.reasons)
+        elif o.verdict == "inconclusive" and verdict == "ok":
+            verdict = "inconclusive"
+    if verdict == "inconclusive":
+        reasons.insert(0, NOT_JUDGED)
     return BuildPlan(
         design,
         request,
@@ -204,7 +221,12 @@ def _plan_output(
     renamed = rename_warning(output.target)
     if renamed is not None:
         warnings.append(renamed)
-    warnings.extend(w for w in fit_warnings(result) if not w.startswith("the clock tolerance"))
+    # the clock tolerance is said once for the design; a worst case below the request is a
+    # reason (below), not a warning
+    warnings.extend(
+        w for w in fit_warnings(result)
+        if not w.startswith("the clock tolerance") and "nearest rounding gives" not in w
+    )
     if limits is not None and counter_problem(limits):
         warnings.append(counter_problem(limits))  # refused under `build --strict`
     verdict = "ok"
@@ -217,6 +239,11 @@ def _plan_output(
             if j.verdict != "ok":  # every failing edge's reason; the verdict is the first's
                 verdict = j.verdict if verdict == "ok" else verdict
                 reasons.append(_reason(e, j, window[e], edge.achieved_min_s, edge.achieved_max_s))
+        if edge.achieved_min_s < edge.requested_s and (e not in judgements or
+                                                         judgements[e].verdict == "ok"):
+            # a requested dead time is a minimum, whatever the rounding (issue 19)
+            verdict = "below-request" if verdict == "ok" else verdict
+            reasons.append(below_request_reason(e, edge.achieved_min_s, edge.requested_s))
         if reference is not None:
             r = reference[e]
             if edge.achieved_min_s < r.limit_min_s or edge.achieved_max_s > r.limit_max_s:
@@ -294,6 +321,17 @@ def _reason(edge: str, j: EdgeJudgement, window: Bounds, amin: Fraction, amax: F
     return (
         f"{edge}: worst-case {float(amax) * 1e9:.6g} ns is above the window's maximum "
         f"{float(hi) * 1e9:.6g} ns"
+    )
+
+
+def below_request_reason(edge: str, achieved_min: Fraction, requested: Fraction) -> str:
+    """Why a worst case below the request fails (`fit` and `build` say it alike)."""
+    from gapforge.base.display import format_si
+
+    return (
+        f"{edge}: worst case {format_si(achieved_min, 's', toward='down')} at the fastest clock "
+        f"is below the {format_si(requested, 's', toward='up')} requested (a requested dead "
+        "time is a minimum; 'nearest' rounding can land below it, 'safe' never does)"
     )
 
 

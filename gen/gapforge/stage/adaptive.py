@@ -78,8 +78,12 @@ ADAPTIVE_KEYS = frozenset(
         "adc_bits",
         "peak_current",
         "sign_band",
+        "hysteresis",
     }
 )
+# Bin edges are compared with a C `long` of milliamperes in the generated bin selector (at least
+# 32 bits in every C standard): an edge above this cannot be written (issue 19 item 10).
+EDGE_MA_MAX = (1 << 31) - 1
 
 
 @dataclass(frozen=True)
@@ -116,6 +120,19 @@ class AdaptiveSpec:
     sign_band: Fraction | None = None
     c_node: Fraction | None = None  # the node's other capacitance, F ([stage] c_node)
     node_charge: Fraction = Fraction(0)  # c_node x bus voltage, C
+    hysteresis: Fraction | None = None  # the selector's band as given (None: the default)
+
+    @property
+    def default_hysteresis(self) -> Fraction:
+        """The bin selector's band by default: the current error, plus half an ADC step where
+        the current is read by an ADC (a mid-tread converter changes code half a step early)."""
+        half = self.adc.amps_per_code / 2 if self.adc is not None else Fraction(0)
+        return self.current_error + half
+
+    @property
+    def hysteresis_band(self) -> Fraction:
+        """The band the bin selector uses (the design may only widen the default)."""
+        return self.hysteresis if self.hysteresis is not None else self.default_hysteresis
 
     @property
     def qoss_total(self) -> Fraction:
@@ -263,7 +280,17 @@ def read_adaptive(top: Table, stage: StageSpec | None) -> AdaptiveSpec | None:
         sign_band=table.quantity("sign_band", "A", required=False, allow_zero=True),
         c_node=c_node,
         node_charge=node_charge,
+        hysteresis=table.quantity("hysteresis", "A", required=False, allow_zero=True),
     )
+    for key, band in (("hysteresis", spec.hysteresis_band), ("sign_band", spec.band)):
+        if ceil_fraction(band * 1000) > EDGE_MA_MAX:
+            table.reader.problem(table.key_path(key), f"at most {EDGE_MA_MAX} mA (a C long)")
+    if spec.hysteresis is not None and spec.hysteresis < spec.default_hysteresis:
+        table.reader.problem(
+            table.key_path("hysteresis"),
+            f"the bin selector's band may only be widened: at least current_error plus half an"
+            f" ADC step, {float(spec.default_hysteresis):.6g} A",
+        )
     _check_band(table, spec)
     if stage is not None and stage.fsw is None and spec.peak_current is not None:
         table.reader.problem(
@@ -324,6 +351,14 @@ def _read_currents(table: Table) -> list[Fraction]:
             values.append(parse_quantity(item, "A", f"{where}[{i}]"))
         except GapforgeError as exc:
             table.reader.problem(f"{where}[{i}]", exc.message)
+            return []
+    for i, value in enumerate(values):
+        if ceil_fraction(value * 1000) > EDGE_MA_MAX:
+            table.reader.problem(
+                f"{where}[{i}]",
+                f"a bin edge must fit the header's milliampere type (a C long): at most"
+                f" {EDGE_MA_MAX} mA",
+            )
             return []
     for i in range(1, len(values)):
         if values[i] <= values[i - 1]:
