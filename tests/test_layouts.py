@@ -232,17 +232,23 @@ def test_bad_layout_file_names_file_and_key_path(case: str, tmp_path: Path) -> N
 
 
 def test_all_problems_are_collected_and_counted(tmp_path: Path) -> None:
-    # misspelt 'width' is unknown AND leaves 'width' missing: two problems, one error
+    # misspelt 'width' is unknown AND leaves 'width' missing: one mistake, said once (issue 23);
+    # a second, unrelated mistake is listed beside it with its own hint, on the same line
     path = tmp_path / "two.toml"
     path.write_text(HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidht = 8\n')
     with pytest.raises(GapforgeError) as info:
         load_layout(str(path))
+    assert info.value.line().startswith(
+        f"{path}: field[0].widht: unknown key; did you mean 'width'?")
+    path.write_text(HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidht = 8\n'
+                    'encodng = "linear"\n')
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
     line = info.value.line()
-    # issue 23: every problem listed at once, each with its key path and hint, on one line
-    assert line.startswith(f"{path}: 2 problems: field[0].widht: unknown key; did you mean "
-                           "'width'?")
-    assert line.endswith("field[0].width: required key is missing")
-    assert "\n" not in line
+    assert line.startswith(f"{path}: 2 problems: field[0].encodng: unknown key; did you mean "
+                           "'encoding'?")
+    assert line.endswith("; field[0].widht: unknown key; did you mean 'width'?")
+    assert "\n" not in line and "more problem" not in line
 
 
 def test_many_problems_list_the_first_ten_and_count_the_rest(tmp_path: Path) -> None:
