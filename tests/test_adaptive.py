@@ -116,9 +116,10 @@ def test_silicon_example_by_hand() -> None:
     assert a.pre_swing_s["to_high"] == 230 * NS
     assert a.spec.qoss_total == F(260, 10**9)
     b = a.table.bins
-    # [2 A, 5 A): swing 260 nC / 2 A = 130 ns; request 478 ns; step 6.25 ns; 1 % clock:
-    # code = ceil(478 x 1.01 / 6.25) = ceil(77.25) = 78
-    assert b[1].entries["positive"]["to_low"].code == 78
+    # [2 A, 5 A) judged at its edge minus current_error 0.4 A = 1.6 A: swing 260 nC / 1.6 A =
+    # 162.5 ns (charge balance Q = C V = I t); request 348 + 162.5 = 510.5 ns; step 6.25 ns;
+    # 1 % clock: code = ceil(510.5 x 1.01 / 6.25) = ceil(82.4968) = 83
+    assert b[1].entries["positive"]["to_low"].code == 83
     # below 2 A the policy is 'hard': the stage minimum, ceil(348 x 1.01 / 6.25) = 57
     assert (
         b[0].entries["positive"]["to_low"].code == 57
@@ -515,10 +516,12 @@ def test_gate_driver_limits_by_hand() -> None:
     # refresh in every period binds the maximum (the minimum pulse alone allows 189)
     assert d.duty_max_counts == 185 and d.binds_max == "bootstrap refresh"
     s = plan_design(load_design(EXAMPLES / "adaptive-silicon.toml")).outputs[0].driver
-    # 300 ns -> ceil(48.48) = 49 clocks; longest dead time 78 clocks; N = 4000:
-    # min ceil((78 + 49) / 2) = 64, max floor(4000 - 127 / 2) = 3936; bootstrap 2 us ->
-    # ceil(323.2) = 324 clocks, compare <= floor(4000 - 402 / 2) = 3799 once every 10 periods
-    assert (s.duty_min_counts, s.duty_max_counts, s.bootstrap_compare_max) == (64, 3936, 3799)
+    # 300 ns -> ceil(48.48) = 49 clocks; longest dead time 83 clocks; N = 4000; counting
+    # convention not stated, so the worse one (a high-side pulse of 2c - 1 clocks):
+    # min 2c - 1 - 83 >= 49 -> c >= 66.5 -> 67; max 2 (4000 - c) - 83 >= 49 -> c <= 3934;
+    # bootstrap 2 us -> ceil(323.2) = 324 clocks: 2 (4000 - c) - 83 >= 324 -> c <= 3796
+    # (once every 10 periods)
+    assert (s.duty_min_counts, s.duty_max_counts, s.bootstrap_compare_max) == (67, 3934, 3796)
     assert s.binds_max == "minimum pulse"
 
 

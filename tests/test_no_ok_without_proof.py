@@ -346,3 +346,17 @@ def test_one_voltage_error_figure_per_output() -> None:
     assert code == 0
     figures = re.findall(r"average output-voltage error (-?[\d.]+ m?V)", out)
     assert len(set(figures)) == 1, figures
+
+
+def test_adaptive_current_error_is_required(tmp_path: Path) -> None:
+    """The measured current picks the bin; an exact current is narrower than any sensing chain,
+    so `[adaptive] current_error` is required (exit 2 naming it), never read as 0 A."""
+    text = (EXAMPLES / "adaptive-gan.toml").read_text()
+    lines = [x for x in text.splitlines() if not x.startswith("current_error")]
+    assert len(lines) == len(text.splitlines()) - 1
+    design = tmp_path / "no-error.toml"
+    design.write_text("\n".join(lines) + "\n")
+    code, out, err = run_cli(["build", str(design), "--out", str(tmp_path / "o"), "--parents"])
+    assert code == 2 and out == ""
+    assert "adaptive.current_error" in err and "required" in err and len(err.splitlines()) == 1
+    assert not (tmp_path / "o").exists()

@@ -103,7 +103,8 @@ def capture_word(verdict: str) -> str:
     return {"pass": "ok", "measured": "inconclusive"}.get(verdict, verdict_word(verdict))
 
 
-def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
+def render_report(plan: BuildPlan, capture: Measurement | None = None,
+                  extra: tuple[Section, ...] = ()) -> str:
     """The whole report as HTML text (self-contained: inline CSS and SVG, no scripts).
 
     Read once, quickly, by the engineer who signs it: the first screen holds the verdict, the
@@ -157,11 +158,13 @@ def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
             tuple(input_tables(plan)),
         ),
     ]
-    # a capture follows the verdict it feeds; a missing one is a folded note
+    # a capture follows the verdict it feeds (its analog traces, issue 21, right after it); a
+    # missing one is a folded note
     if capture is None:
         folded.insert(len(folded) - 1, capture_section(plan, capture))
     else:
         opened.append(capture_section(plan, capture))
+    opened += extra  # issue 21: the analog capture's traces (outputs/scope_figure.py)
     design_word = verdict_word(plan.verdict)
     capture_verdict = "-" if capture is None else capture_word(capture.verdict)
     if design_word != "ok" or (capture is not None and capture.failed):
