@@ -118,7 +118,7 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
                 (f"{side}: fall time, max", _t(s.t_fall_max), "s"),
                 (f"{side}: turn-on delay, min", _t(s.td_on_min), "s"),
                 (f"{side}: rise time", _t(s.t_rise), "s"),
-                (f"{side}: driver propagation delay", format_range(s.prop_min, s.prop_max, "s"), "s"),
+                (f"{side}: driver propagation delay", format_range(s.prop_min, s.prop_max, "s", cut="outward"), "s"),
             ]
         st_rows += [
             ("channel mismatch", _t(spec.mismatch), "s"),
