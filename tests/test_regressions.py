@@ -296,3 +296,17 @@ def test_issue23_two_misspelt_keys_are_both_shown_with_their_hints(tmp_path: Pat
     assert "stage.t_fal: unknown key; did you mean 't_fall'?" in err
     assert "more problem" not in err
     assert not (tmp_path / "a.h").exists()
+
+
+def test_fields_are_listed_most_significant_first_everywhere(tmp_path: Path) -> None:
+    """Issue 23 item 7: `targets show` lists fields most significant first, as headers do; the
+    fit text and the report's chosen words list them the same way (the layout file's order, by
+    bit offset: div at 28..29, to_low_count at 16..25, to_high_count at 0..9)."""
+    code, out, _ = run_cli(["fit", "--clock", "170MHz", "--clock-tol", "50ppm", "--dead-time",
+                            "100ns", "--target", "split-10bit-div1-8"])
+    assert code == 0
+    assert "fields: div=0, to_low_count=18, to_high_count=18;" in out
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8"])
+    rows = [x.split()[0] for x in out.splitlines() if x.split()[:1] and x.split()[0] in
+            ("div", "to_low_count", "to_high_count")]
+    assert rows == ["div", "to_low_count", "to_high_count"]

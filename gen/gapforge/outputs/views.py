@@ -19,6 +19,7 @@ from gapforge.base.display import (
     verdict_word,
 )
 from gapforge.base.quantities import format_quantity, format_tolerance
+from gapforge.outputs.header_checks import fields_text
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.fit import FitResult, fit_warnings, step_seconds
 from gapforge.timer.layouts import EDGES, Layout, describe_codes
@@ -285,7 +286,7 @@ def fit_text(result: FitResult, limits: PwmLimits | None, verdict: str) -> str:
     lines.append("")
     if result.ok:
         assert result.register is not None
-        fields = ", ".join(f"{k}={v}" for k, v in result.fields.items())
+        fields = fields_text(result.layout, result.fields)
         lines.append(f"fields: {fields}; register "
                      f"{format_register(result.register, result.layout.register_bits)}")
         lines += [f"warning: {w}" for w in fit_warnings(result)]
