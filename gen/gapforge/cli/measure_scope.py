@@ -133,6 +133,10 @@ def settings_from(scope: dict[str, Any], resolution: Fraction | None) -> ScopeSe
             raise GapforgeError(f"an analog capture (volts) needs a threshold for the {side}-side "
                                 f"gate: give {THRESHOLD_OPTIONS}", "measure")
         refs[side] = Reference(th, None if th is not None else level)
+    if level is not None and all(r.level_percent is None for r in refs.values()):
+        # issue 21: a reference level that no gate uses would be ignored without a word
+        raise GapforgeError("--level applies only to a gate without a threshold, and both gates "
+                            "have one: give --level or the threshold options, not both", "--level")
     hyst = Fraction(0)
     if scope.get("hysteresis") is not None:
         hyst = parse_quantity(scope["hysteresis"], "V", "--hysteresis", allow_zero=True)
