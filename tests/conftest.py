@@ -34,7 +34,7 @@ BUILTINS = (
     "shared-16bit-plus-one",
     "shared-8bit-linear",
     "shared-8bit-segmented",
-    "split-10bit-div4",
+    "split-10bit-div1-8",
     "split-10bit-tenths",
     "split-6bit-div2-reserved",
 )

@@ -362,7 +362,7 @@ def test_prefixes_differing_in_case_get_distinct_include_guards(tmp_path: Path) 
         "# invented test design\n"
         'format = 1\n[timer]\nclock = "100MHz"\n[dead_time]\nvalue = "50ns"\n'
         '[[output]]\ntarget = "shared-8bit-linear"\nprefix = "dt"\nfile = "lower.h"\n'
-        '[[output]]\ntarget = "split-10bit-div4"\nprefix = "DT"\nfile = "upper.h"\n'
+        '[[output]]\ntarget = "split-10bit-div1-8"\nprefix = "DT"\nfile = "upper.h"\n'
     )
     code, _, err = run_cli(["build", str(tmp_path / "d.toml")])
     if code == 2:  # refused as a clash at load time: also a fix
@@ -717,7 +717,7 @@ STAGE_TOML = (
 INVENTED = {
     # name: (clock, tolerance, pwm, counting, dead-time lines, target); every design invented
     "edge-whole-period-tol0": ("100MHz", "0%", "100kHz", "edge", 'value = "150ns"',
-                               "split-10bit-div4"),
+                               "split-10bit-div1-8"),
     "edge-fractional-period-5pct-window": ("100MHz", "5%", "30kHz", "edge",
                                            'source = "window"', "split-10bit-tenths"),
     "center-fractional-period-odd-ppb": ("170MHz", "12.3456789ppm", "48kHz", "center",
@@ -727,7 +727,7 @@ INVENTED = {
                                         "split-10bit-tenths"),
     "edge-short-period-asymmetric-5pct": ("64MHz", "5%", "2.1MHz", "edge",
                                           'to_high = "100ns"\nto_low = "140ns"',
-                                          "split-10bit-div4"),
+                                          "split-10bit-div1-8"),
 }
 
 

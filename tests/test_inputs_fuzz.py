@@ -54,7 +54,7 @@ qrr = "0nC"
 current = "10A"
 loss_budget = "2W"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "DT"
 file = "dt.h"
 """

@@ -81,7 +81,7 @@ def test_non_integer_period_reports_the_real_frequency() -> None:
 @pytest.mark.parametrize("counting", ["edge", "center"])
 def test_lost_duty_is_dead_time_times_real_frequency(counting: str) -> None:
     # outside formula: duty lost per period = t_dead x f_pwm (Mohan et al. ch. 8, from memory)
-    r = fitted("split-10bit-div4", 320 * MHZ, 850 * NS, F(2, 100))
+    r = fitted("split-10bit-div1-8", 320 * MHZ, 850 * NS, F(2, 100))
     lim = pwm_limits(r, PwmSpec(17 * KHZ, counting))
     for e in EDGES:
         achieved = r.edges[e].achieved_s

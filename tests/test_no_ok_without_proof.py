@@ -192,7 +192,7 @@ tolerance = "50ppm"
 value = "60ns"
 source = "explicit"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "NS"
 file = "ns.h"
 """
@@ -236,7 +236,7 @@ def test_without_stage_the_policy_must_be_written_out(tmp_path: Path) -> None:
 
 
 @pytest.mark.parametrize("command", [
-    ["fit", "--clock", "170MHz", "--dead-time", "50ns", "--target", "split-10bit-div4"],
+    ["fit", "--clock", "170MHz", "--dead-time", "50ns", "--target", "split-10bit-div1-8"],
     ["sweep", "--clocks", "170MHz", "--window", "50ns:200ns"],
 ])
 def test_fit_and_sweep_require_the_clock_tolerance(command: list[str]) -> None:
@@ -262,7 +262,7 @@ def test_a_design_requires_the_clock_tolerance(tmp_path: Path) -> None:
 def test_nearest_rounding_below_the_request_fails() -> None:
     # 170 MHz: 47.1 ns is 8.007 clocks; nearest takes 8 = 8 / 170 MHz = 47.0588 ns < 47.1 ns
     args = ["fit", "--clock", "170MHz", "--clock-tol", "0ppm", "--dead-time", "47.1ns",
-            "--target", "split-10bit-div4", "--rounding", "nearest"]
+            "--target", "split-10bit-div1-8", "--rounding", "nearest"]
     code, out, _ = run_cli(args)
     assert code == 1
     first = out.splitlines()[0]
@@ -289,9 +289,9 @@ def test_nearest_rounding_below_the_request_fails_a_build(tmp_path: Path) -> Non
 
 def test_unreachable_speaks_the_one_vocabulary() -> None:
     code, out, _ = run_cli(["fit", "--clock", "170MHz", "--clock-tol", "50ppm", "--dead-time",
-                            "100us", "--target", "split-10bit-div4", "--no-diagram"])
+                            "100us", "--target", "split-10bit-div1-8", "--no-diagram"])
     assert code == 1
-    assert out.startswith("fail: split-10bit-div4 cannot reach the request (both edges:")
+    assert out.startswith("fail: split-10bit-div1-8 cannot reach the request (both edges:")
     assert "unreachable" not in out and "verdict: fail" in out
 
 

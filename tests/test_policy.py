@@ -178,7 +178,7 @@ def test_sweep_design_honours_the_user_layouts_its_outputs_name(tmp_path: Path) 
         '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidth = 8\n'
     )
     (tmp_path / "bench-linear-8.toml").write_text(layout)
-    text = SIC.read_text(encoding="utf-8").replace('"split-10bit-div4"', '"bench-linear-8.toml"')
+    text = SIC.read_text(encoding="utf-8").replace('"split-10bit-div1-8"', '"bench-linear-8.toml"')
     design = tmp_path / "d.toml"
     design.write_text(text, encoding="utf-8")
     code, out, err = run_cli(["sweep", "--design", str(design), "--json"])

@@ -26,7 +26,7 @@ tolerance = "50ppm"
 value = "100ns"
 source = "explicit"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "DT"
 file = "dt.h"
 """
@@ -121,7 +121,7 @@ def test_issue2_fit_json_carries_the_nearest_and_zero_tolerance_warnings(tmp_pat
     assert code == 1, err
     doc = json.loads(out)
     assert doc["verdict"] == "fail" and "below the 20 ns requested" in doc["reason"]
-    assert any("14.881 ns at the fast clock, below the 20 ns requested" in w for w in doc["warnings"])
+    assert any("14.88 ns at the fast clock, below the 20 ns requested" in w for w in doc["warnings"])
     code, out, _ = run_cli(["fit", "--clock", "64MHz", "--clock-tol", "0ppm", "--dead-time", "20ns", "--target",
                             "shared-8bit-linear", "--json"])
     assert code == 0
@@ -212,9 +212,9 @@ def test_issue9_every_caution_names_transitions_temperature_and_load_current() -
     words = "on every transition, over temperature and load current"
     assert words in caution.TEXT
     # `targets show` prints dead-time ranges: it carries the caution too (text and JSON)
-    code, out, _ = run_cli(["targets", "show", "split-10bit-div4", "--clock", "100MHz"])
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8", "--clock", "100MHz"])
     assert code == 0 and words in out
-    code, out, _ = run_cli(["targets", "show", "split-10bit-div4", "--json"])
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8", "--json"])
     assert code == 0 and words in json.loads(out)["caution"]
 
 
@@ -252,3 +252,57 @@ def test_issue_15_junction_coupling_finding_reaches_build_json_and_report(tmp_pa
     html = report.read_text(encoding="utf-8")
     box = html[: html.index("CAUTION")]  # the verdict box stands above the caution
     assert finding in box
+
+
+# invented: a stage whose recovery loss (Qrr x Vbus x fsw = 100 nC x 400 V x 100 kHz = 4 W)
+# is above its 0.1 W loss budget, so no budget is left for reverse conduction
+NO_BUDGET = """\
+# invented test design
+format = 1
+name = "no-budget"
+[timer]
+clock = "160MHz"
+tolerance = "50ppm"
+[dead_time]
+source = "window"
+[stage]
+td_off = "35ns"
+t_fall = "20ns"
+td_on = "10ns"
+prop_delay = "20ns:45ns"
+mismatch = "5ns"
+isolator_skew = "0ns"
+timer_skew = "0ns"
+kind = "silicon"
+current = "10A"
+fsw = "100kHz"
+loss_budget = "0.1W"
+bus_voltage = "400V"
+qrr = "100nC"
+[[output]]
+target = "shared-8bit-linear"
+prefix = "A"
+file = "a.h"
+"""
+
+
+def test_issue23_build_says_no_loss_budget_left_as_window_does(tmp_path: Path) -> None:
+    design = tmp_path / "d.toml"
+    design.write_text(NO_BUDGET)
+    code, out, _ = run_cli(["build", str(design)], cwd=tmp_path)
+    assert code == 1
+    assert "no loss budget left after the recovery loss" in out
+    assert "loss budget's maximum 0 s" not in out
+    code, out, _ = run_cli(["window", "--design", str(design)], cwd=tmp_path)
+    assert "no loss budget left after the recovery loss" in out.splitlines()[0]
+
+
+def test_issue23_two_misspelt_keys_are_both_shown_with_their_hints(tmp_path: Path) -> None:
+    design = tmp_path / "d.toml"
+    design.write_text(NO_BUDGET.replace("td_off", "td_of").replace("t_fall", "t_fal"))
+    code, out, err = run_cli(["build", str(design)], cwd=tmp_path)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert "stage.td_of: unknown key; did you mean 'td_off'?" in err
+    assert "stage.t_fal: unknown key; did you mean 't_fall'?" in err
+    assert "more problem" not in err
+    assert not (tmp_path / "a.h").exists()

@@ -23,7 +23,7 @@ tolerance = "50ppm"
 value = "60ns"
 source = "explicit"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "NS"
 file = "ns.h"
 """
@@ -99,7 +99,7 @@ min_pulse = "1.5us"
 bootstrap_on = "1us"
 bootstrap_every = 1
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "S1"
 file = "s1.h"
 """

@@ -164,7 +164,9 @@ def test_design_file_problems_name_file_and_key(tmp_path: Path) -> None:
     design = tmp_path / "d.toml"
     design.write_text("[stage]\ntd_off = '35ns'\ntd_on = '1ns'\nmargn = 2\n")
     line = one_line_error(["window", "--design", str(design)])
-    assert f"{design}: stage.margn:" in line and "did you mean 'margin'" in line
+    # issue 23: every problem of the file on the one line, each with its key path and hint
+    assert line.startswith(f"gapforge: error: {design}: ") and " problems: " in line
+    assert "stage.margn: unknown key; did you mean 'margin'" in line
 
 
 def test_per_switch_options_give_separate_edges() -> None:

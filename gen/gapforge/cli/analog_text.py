@@ -6,7 +6,7 @@ from __future__ import annotations
 from typing import Any
 
 from gapforge.analog.network import EDGES, PAIR_KEYS
-from gapforge.base.display import format_range, format_si
+from gapforge.base.display import count, format_range, format_si
 from gapforge.base.quantities import format_quantity
 
 
@@ -30,49 +30,80 @@ def _pair_text(s: dict[str, Any]) -> str:
 
 def _suggestion_lines(sg: dict[str, Any]) -> list[str]:
     """The preferred pairs: each with its worst-case dead times; unsafe ones named, not offered."""
-    ranked = ("the farthest end of the worst-case range from the target"
-              if sg["rank"] == "worst-case" else "the typical error")
     floor = (f" and at least --min-dead {_t(sg['min_dead_s'])}"
              if sg["min_dead_s"] is not None else "")
-    lines = [
-        "",
-        f"Preferred pairs for {sg['dead_time']} = {_t(sg['target_s'])} (R from {sg['r_series']}, "
-        f"C from {sg['c_series']}; worst case over all tolerances, positive{floor}; ranked by "
-        f"{ranked}):",
-    ]
+    if sg["window"] is not None:
+        window = format_range(sg["window"]["min_s"], sg["window"]["max_s"], "s")
+        head = (f"Preferred pairs whose worst-case {sg['dead_time']} lies inside {window} "
+                f"(R from {sg['r_series']}, C from {sg['c_series']}; worst case over all "
+                f"tolerances, positive{floor}; best centred first):")
+    else:
+        ranked = ("the farthest end of the worst-case range from the target"
+                  if sg["rank"] == "worst-case" else "the typical error")
+        head = (f"Preferred pairs for {sg['dead_time']} = {_t(sg['target_s'])} (R from "
+                f"{sg['r_series']}, C from {sg['c_series']}; worst case over all tolerances, "
+                f"positive{floor}; ranked by {ranked}):")
+    lines = ["", head]
     for s in sg["pairs"]:
         lines.append(
-            f"  {_pair_text(s)}  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %)   worst case "
+            f"  {_pair_text(s)}  typ {_t(s['typ_s'])}   worst case "
             f"to_high {_lo(s['to_high']['min_s'])} .. {_hi(s['to_high']['max_s'])}   to_low "
             f"{_lo(s['to_low']['min_s'])} .. {_hi(s['to_low']['max_s'])}"
         )
     if not sg["pairs"]:
-        lines.append("  none: every candidate is unsafe (see below)")
+        lines.append("  none: no candidate is safe" + (" and inside the window"
+                                                      if sg["window"] is not None else "")
+                     + " (see below)")
     rejected = sg["rejected"]
     if rejected:
+        why = "outside the window or UNSAFE" if sg["window"] is not None else "UNSAFE"
         lines.append(
-            f"  not proposed, UNSAFE: {len(rejected)} of {sg['candidates']} candidate pairs"
+            f"  not proposed, {why}: {len(rejected)} of {sg['candidates']} candidate pairs"
             + (", the best ranked:" if len(rejected) > 3 else ":")
         )
         for s in rejected[:3]:
-            lines.append(
-                f"    {_pair_text(s)}  typ {_t(s['typ_s'])} ({s['error'] * 100:+.2f} %): "
-                f"{'; '.join(s['unsafe'])}"
-            )
+            lines.append(f"    {_pair_text(s)}  typ {_t(s['typ_s'])}: {'; '.join(s['unsafe'])}")
     return lines
 
 
+def _suggest_answer(sg: dict[str, Any]) -> str:
+    """What --suggest found, in one clause (the first line's answer)."""
+    pairs = sg["pairs"]
+    if sg["window"] is not None:
+        window = format_range(sg["window"]["min_s"], sg["window"]["max_s"], "s")
+        if not pairs:
+            return f"no preferred pair gives a worst-case {sg['dead_time']} inside {window}"
+        best = pairs[0]
+        return (f"{count(len(pairs), 'preferred pair')} give a worst-case {sg['dead_time']} "
+                f"inside {window}, best centred R {format_quantity(best['r_ohm'], 'ohm')} "
+                f"C {format_quantity(best['c_f'], 'F')}")
+    if not pairs:
+        return f"no safe preferred pair near {_t(sg['target_s'])}"
+    return f"{count(len(pairs), 'safe preferred pair')} near {_t(sg['target_s'])}"
+
+
 def answer_line(report: dict[str, Any]) -> str:
-    """The first line: the worst-case dead times and whether the network can overlap."""
+    """The first line: the verdict, what --suggest and --min-dead asked, the worst-case dead
+    times and whether the network can overlap."""
+    answers: list[str] = []
+    if "suggestions" in report:
+        answers.append(_suggest_answer(report["suggestions"]))
+    floor = report.get("min_dead_s")
+    if floor is not None:
+        short = report["below_min_dead"]
+        answers.append(
+            f"worst-case minimum of {' and '.join(short)} below --min-dead {_t(floor)}" if short
+            else f"every worst-case dead time at least --min-dead {_t(floor)}")
     ranges = "; ".join(
         f"{key} {format_range(report[key]['min_s'], report[key]['max_s'], 's', safe=True)}"
         for key in PAIR_KEYS
     )
     if report["can_overlap"]:
-        verdict = "CAN OVERLAP: a worst-case dead time is not positive"
+        overlap = "CAN OVERLAP: a worst-case dead time is not positive"
     else:
-        verdict = "cannot overlap (every worst-case dead time is positive)"
-    return f"analog: worst-case dead time {ranges}; the network {verdict}"
+        overlap = "cannot overlap (every worst-case dead time is positive)"
+    answers += [f"worst-case dead time {ranges}", f"the network {overlap}"]
+    return f"analog: {report['verdict']} - " + "; ".join(answers)
 
 
 def render_text(report: dict[str, Any]) -> str:

@@ -17,6 +17,7 @@ from gapforge.cli.options import (
     emit_json,
     json_option,
     require_clock_tol,
+    warn_renamed,
 )
 from gapforge.outputs.views import fit_json, fit_text
 from gapforge.timer.fit import ROUNDINGS, FitRequest, fit
@@ -101,6 +102,7 @@ def command(
         layout = load_layout(target)
     except GapforgeError as exc:
         raise exc.at("--target") if exc.where is None else exc from None
+    warn_renamed(target)
     if divider_code is not None and not 0 <= divider_code < len(layout.dividers):
         raise GapforgeError(
             f"divider code {divider_code} is not one of 0..{len(layout.dividers) - 1} "

@@ -91,3 +91,12 @@ def diagram_options(f: F) -> F:
 
 def emit_json(doc: Any) -> None:
     click.echo(json.dumps(doc, indent=2, sort_keys=False))
+
+
+def warn_renamed(name: str) -> None:
+    """One line on stderr when a built-in layout is given by its old name (it still loads)."""
+    from gapforge.timer.layouts import rename_warning
+
+    warning = rename_warning(name)
+    if warning is not None:
+        click.echo(f"warning: {warning}", err=True)

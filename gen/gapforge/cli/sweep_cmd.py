@@ -17,12 +17,19 @@ from gapforge.base.display import (
     choose_exponent,
     count,
     format_range,
+    format_register,
     format_si,
     verdict_word,
 )
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_tolerance
-from gapforge.cli.options import Quantity, Tolerance, json_option, require_clock_tol
+from gapforge.cli.options import (
+    Quantity,
+    Tolerance,
+    json_option,
+    require_clock_tol,
+    warn_renamed,
+)
 from gapforge.cli.window_cmd import (
     CAUTION,
     MIN_FORMULA,
@@ -194,7 +201,7 @@ def _row_cells(rank: int, row: SweepRow, exp3: int) -> list[str]:
     lo = min(e.achieved_min_s for e in row.edges.values())
     hi = max(e.achieved_max_s for e in row.edges.values())
     span = format_range(lo, hi, "s", cut='outward')
-    register = "-" if row.register is None else f"0x{row.register:X}"
+    register = "-" if row.register is None else format_register(row.register, row.register_bits)
     return [
         str(rank),
         row.layout,
@@ -222,7 +229,7 @@ def best_line(result: Sweep) -> str:
     codes = both_edges({edge: f"code {row.edges[edge].code}" for edge in EDGES})
     lo = min(e.achieved_min_s for e in row.edges.values())
     hi = max(e.achieved_max_s for e in row.edges.values())
-    register = "" if row.register is None else f", register 0x{row.register:X}"
+    register = "" if row.register is None else f", register {format_register(row.register, row.register_bits)}"
     return (
         f"sweep: best {row.layout} at {format_si(row.clock_hz, 'Hz')} /{row.divider}, "
         f"{'; '.join(codes)}{register}: worst case {format_range(lo, hi, 's', cut='outward')}"
@@ -458,6 +465,7 @@ def command(**values: Any) -> None:
             layout = load_layout(name)
         except GapforgeError as exc:
             raise exc.at("--target") from None
+        warn_renamed(name)
         if layout.name not in seen:
             seen.add(layout.name)
             layouts.append(layout)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from fractions import Fraction
 
+from gapforge.base.display import format_register
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.compromise import compromises
 from gapforge.timer.fit import FitResult
@@ -38,8 +39,7 @@ def seconds(value: Fraction, *, up: bool, digits: int = 4) -> str:
 
 def register_text(result: FitResult) -> str:
     assert result.register is not None
-    digits = max(1, result.layout.register_bits // 4)
-    return f"register 0x{result.register:0{digits}x}"
+    return f"register {format_register(result.register, result.layout.register_bits)}"
 
 
 def worst_case_text(result: FitResult) -> str:

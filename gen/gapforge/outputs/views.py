@@ -13,6 +13,7 @@ from gapforge.base.display import (
     both_edges,
     format_percent,
     format_range,
+    format_register,
     format_si,
     significant,
     verdict_word,
@@ -87,7 +88,7 @@ def layout_json(layout: Layout, clock_hz: Fraction | None = None) -> dict[str, A
                 "encoding": f.encoding if f.role != "divider" else None,
                 "codes": describe_codes(f),
             }
-            for f in layout.fields
+            for f in sorted(layout.fields, key=lambda f: -f.offset)  # most significant first
         ],
     }
     if clock_hz is not None:
@@ -123,7 +124,7 @@ def layout_text(layout: Layout, clock_hz: Fraction | None = None) -> str:
     )
     rows = [
         [f.name, f.role, f"{f.offset}..{f.offset + f.width - 1}", describe_codes(f)]
-        for f in sorted(layout.fields, key=lambda f: f.offset)
+        for f in sorted(layout.fields, key=lambda f: -f.offset)  # most significant first
     ]
     lines.append("")
     lines.append(table(["field", "role", "bits", "codes"], rows))
@@ -186,8 +187,10 @@ def fit_json(result: FitResult, limits: PwmLimits | None) -> dict[str, Any]:
             "step_s": _f(e.step_s),
             "lower_s": _f(e.lower_s),
             "higher_s": _f(e.higher_s),
-            "max_s": float(e.max_s),
-            "max_worst_case_s": float(e.max_min_s),
+            # the longest dead time the layout's field reaches (at the divider in use; when
+            # unreachable, at the largest divider allowed), nominal and at the fast clock
+            "layout_max_s": float(e.max_s),
+            "layout_max_worst_case_s": float(e.max_min_s),
         }
     doc["pwm"] = pwm_json(limits) if limits is not None else None
     doc["warnings"] = fit_warnings(result) if result.ok else []
@@ -283,8 +286,8 @@ def fit_text(result: FitResult, limits: PwmLimits | None, verdict: str) -> str:
     if result.ok:
         assert result.register is not None
         fields = ", ".join(f"{k}={v}" for k, v in result.fields.items())
-        digits = result.layout.register_bits // 4
-        lines.append(f"fields: {fields}; register 0x{result.register:0{digits}x}")
+        lines.append(f"fields: {fields}; register "
+                     f"{format_register(result.register, result.layout.register_bits)}")
         lines += [f"warning: {w}" for w in fit_warnings(result)]
     else:
         for edge in EDGES:

@@ -14,11 +14,12 @@ from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
+from gapforge.base.display import format_range, format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.pipeline.design import Design, Output
 from gapforge.pipeline.policy import DesignWindow, window_of
 from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
-from gapforge.timer.layouts import EDGES
+from gapforge.timer.layouts import EDGES, rename_warning
 from gapforge.timer.limits import PwmLimits, counter_problem, pwm_limits
 
 VERDICTS = (
@@ -211,11 +212,15 @@ def _plan_output(
             edge = result.edges[e]
             if edge.requested_s > edge.max_min_s:
                 reasons.append(
-                    f"{e} request {float(edge.requested_s) * 1e9:.6g} ns is above the layout's "
-                    f"maximum {float(edge.max_min_s) * 1e9:.6g} ns (worst case at the fast clock)"
+                    f"{e} request {format_si(edge.requested_s, 's', toward='up')} is above the "
+                    f"layout's maximum {format_si(edge.max_min_s, 's', toward='down')} (worst "
+                    "case at the fast clock)"
                 )
         return OutputPlan(output, result, None, {}, "unreachable", tuple(reasons), ())
     limits = pwm_limits(result, design.pwm) if design.pwm is not None else None
+    renamed = rename_warning(output.target)
+    if renamed is not None:
+        warnings.append(renamed)
     # the clock tolerance is said once for the design; a worst case below the request is a
     # reason (below), not a warning
     warnings.extend(
@@ -243,9 +248,10 @@ def _plan_output(
             r = reference[e]
             if edge.achieved_min_s < r.limit_min_s or edge.achieved_max_s > r.limit_max_s:
                 warnings.append(
-                    f"{e}: digital range {float(edge.achieved_min_s) * 1e9:.6g}.."
-                    f"{float(edge.achieved_max_s) * 1e9:.6g} ns lies outside what the reference "
-                    f"network proved ({float(r.min_s) * 1e9:.6g}..{float(r.max_s) * 1e9:.6g} ns)"
+                    f"{e}: digital range "
+                    f"{format_range(edge.achieved_min_s, edge.achieved_max_s, 's', cut='outward')}"
+                    " lies outside what the reference network proved ("
+                    f"{format_range(r.min_s, r.max_s, 's', cut='inward')})"
                 )
     costs = None
     if design.stage is not None:

@@ -325,7 +325,7 @@ def stage_window(spec: StageSpec) -> Window:
             Term(
                 "minimum = sum x margin, rounded up to 1 ps",
                 min_s,
-                note=f"exact {format_quantity(with_margin, 's', 12)}",
+                note=f"before rounding: {format_quantity(with_margin, 's')}",
                 counted=False,
             ),
         )
