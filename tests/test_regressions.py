@@ -58,12 +58,22 @@ def test_issue5_measure_design_without_window_fails_gaps_below_the_request(tmp_p
 
 
 def test_issue5_measure_design_without_window_passes_long_enough_gaps(tmp_path: Path) -> None:
-    # the control: 101 ns - 1 ns resolution = 100 ns >= the 100 ns request, so the same design
-    # passes (the fit's worst case is 100.0 ns .. 100.01 ns; there is no maximum)
+    # the control: 101 ns - 1 ns resolution = 100 ns >= the 100 ns request, so the gaps meet
+    # the design (the fit's worst case is 100.0 ns .. 100.01 ns; there is no maximum); without
+    # [stage] nothing proves 100 ns enough, so that is inconclusive (issue 19 item 2), and with a
+    # stage (minimum 14.4 ns) it is ok
     (tmp_path / "d.toml").write_text(DESIGN)
     _capture(tmp_path / "ok.csv", 101)
-    code, out, err = run_cli(["measure", str(tmp_path / "ok.csv"), "--high", "gate_h",
-                              "--low", "gate_l", "--design", str(tmp_path / "d.toml"), "--json"])
+    args = ["measure", str(tmp_path / "ok.csv"), "--high", "gate_h", "--low", "gate_l",
+            "--design", str(tmp_path / "d.toml"), "--json"]
+    code, out, err = run_cli(args)
+    assert code == 1, err + out
+    doc = json.loads(out)
+    assert doc["verdict"] == "inconclusive"
+    assert doc["reasons"] == [next(r for r in doc["reasons"]
+                                   if r.startswith("not judged against a power stage"))]
+    (tmp_path / "d.toml").write_text(DESIGN + SMALL_STAGE)
+    code, out, err = run_cli(args)
     assert code == 0, err + out
     assert json.loads(out)["verdict"] == "ok"
 

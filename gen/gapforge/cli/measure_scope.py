@@ -166,7 +166,7 @@ def logic_capture(files: tuple[Path, ...], scope: dict[str, Any]) -> Path | None
 
 
 def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope: dict[str, Any],
-              *, design: Path | None, limits: tuple[Any, str], current: Fraction | None,
+              *, design: Path | None, limits: tuple[Any, str, str], current: Fraction | None,
               glitch: Fraction, percentiles: tuple[float, ...], bins: int, worst: int,
               resolution: Fraction | None, flags: tuple[bool, bool, bool, bool, bool]) -> None:
     """Read, measure, check the node, print, exit (0 ok, 1 not ok). `limits`: the judged
@@ -196,7 +196,7 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
     cap = read_scope(list(files), high, low, settings)
     result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
                              percentiles=percentiles, bins=bins, worst=worst,
-                             limits_source=limits[1])
+                             limits_source=limits[1], unjudged=limits[2])
     node = None
     if scope.get("node") is not None:
         within = (_percent(scope["soft_within"], "--soft-within")

@@ -516,7 +516,9 @@ def plan_text(plan: BuildPlan) -> str:
             lines.append(driver_text(op.output.prefix, op.driver, op.limits.counts))
     for r in plan.reasons:
         lines.append(f"{plan.verdict}: {r}")
-    lines.append(f"verdict: {plan.verdict}")
+    word = verdict_word(plan.verdict)
+    # one verdict word for every command (issue 19 item 4); the detail stays in brackets
+    lines.append(f"verdict: {word}" + ("" if word == plan.verdict else f" ({plan.verdict})"))
     return "\n".join(lines)
 
 
@@ -570,7 +572,7 @@ def _output_rows(op: OutputPlan) -> list[list[str]]:
                 _t(x.achieved_s),
                 _range(x.achieved_min_s, x.achieved_max_s),
                 margin,
-                op.verdict if e == "to_high" else "",
+                verdict_word(op.verdict) if e == "to_high" else "",
             ]
         )
     return rows
