@@ -369,3 +369,27 @@ def test_sweep_window_line_cuts_the_window_inward() -> None:
     assert code == 0
     window = next(x for x in out.splitlines() if x.startswith("Window"))
     assert "29.68 ns" in window and "29.69" not in window
+
+
+@pytest.mark.parametrize("where", ["cli", "design"])
+def test_one_nonzero_propagation_delay_is_refused(where: str, tmp_path: Path) -> None:
+    """Issue 19 item 1: the driver's spread (max - min propagation delay) is a term of the
+    minimum (common practice: t_dead,min includes t_pd,max - t_pd,min). One value such as
+    '12ns' read as MIN = MAX would make that term 0 without a word; refuse it, naming the key
+    and the datasheet. '0ns' (no driver) and an explicit '12ns:12ns' stay stated inputs."""
+    terms = ["--td-off", "9ns", "--td-on", "6ns", "--t-fall", "3ns", "--mismatch", "0ns",
+             "--isolator-skew", "0ns", "--timer-skew", "0ns"]
+    if where == "cli":
+        code, out, err = run_cli(["window", *terms, "--prop-delay", "12ns"])
+        assert code == 2 and out == "" and "--prop-delay" in err and "driver datasheet" in err
+        for stated in ("0ns", "12ns:12ns"):
+            code, _, err = run_cli(["window", *terms, "--prop-delay", stated])
+            assert code == 0, err
+        return
+    text = (EXAMPLES / "gan-buck.toml").read_text().replace(
+        'prop_delay = "12ns:22ns"', 'prop_delay = "12ns"')
+    design = tmp_path / "one-value.toml"
+    design.write_text(text)
+    code, out, err = run_cli(["build", str(design), "--out", str(tmp_path / "o"), "--parents"])
+    assert code == 2 and "stage.prop_delay" in err and "driver datasheet" in err
+    assert not (tmp_path / "o").exists()

@@ -513,7 +513,9 @@ def _window_limits(text: str) -> dict[str, tuple[Fraction, Fraction | None]]:
     where = "--window"
     lo_text, sep, hi_text = text.partition(":")
     if not sep or not hi_text.strip():
-        lo, _ = parse_span(lo_text, where)
+        from gapforge.base.quantities import parse_quantity
+
+        lo = parse_quantity(lo_text, "s", where, allow_zero=True)
         hi: Fraction | None = None
     else:
         lo, hi = parse_span(text, where)

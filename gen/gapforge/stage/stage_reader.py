@@ -200,17 +200,26 @@ def _read_timing(table: Table, side: Table | None) -> SwitchTiming:
 
 
 def parse_span(text: object, where: str) -> tuple[Fraction, Fraction]:
-    """'MIN:MAX' propagation delays in seconds ('20ns:35ns'); one value means MIN = MAX."""
+    """'MIN:MAX' propagation delays in seconds ('20ns:35ns'). One value is accepted only as
+    0 (no driver in the path): a single non-zero delay would read the driver's spread, a term of
+    the minimum, as 0 without a word (issue 19). 'D:D' states a datasheet with no spread."""
     from gapforge.base.quantities import parse_quantity
 
-    if not isinstance(text, str):
-        value = parse_quantity(text, "s", where, allow_zero=True)
+    parts: list[object] = list(text.split(":")) if isinstance(text, str) else [text]
+    if len(parts) == 1:
+        value = parse_quantity(parts[0], "s", where, allow_zero=True)
+        if value != 0:
+            raise GapforgeError(
+                f"one value {str(parts[0]).strip()!r} hides the driver's spread: give the"
+                " propagation delay range MIN:MAX from the driver datasheet (e.g. '20ns:35ns';"
+                " 'D:D' only where the datasheet gives no spread, 0ns for no driver)",
+                where,
+            )
         return value, value
-    parts = text.split(":")
     if len(parts) > 2:
         raise GapforgeError(f"expected MIN:MAX such as '20ns:35ns', got {text!r}", where)
     low = parse_quantity(parts[0], "s", where, allow_zero=True)
     high = parse_quantity(parts[-1], "s", where, allow_zero=True)
     if low > high:
-        raise GapforgeError(f"MIN {parts[0].strip()!r} is above MAX {parts[-1].strip()!r}", where)
+        raise GapforgeError(f"MIN {str(parts[0]).strip()!r} is above MAX {str(parts[-1]).strip()!r}", where)
     return low, high
