@@ -119,10 +119,10 @@ def test_bad_input_one_line_exit_2(tmp_path: Path, content: bytes | None, args: 
 
 
 def test_design_file(tmp_path: Path) -> None:
-    from gapforge.pipeline.build import measurement_expectations
+    from gapforge.pipeline.expectations import design_expectation
 
     design = ROOT / "examples" / "motor-inverter.toml"
-    expected = measurement_expectations(design)
+    expected = design_expectation(design, "MOTOR_DT", None).per_edge
     path = _vcd(tmp_path / "ok.vcd", 30, 40)
     result = CliRunner().invoke(cli, ["measure", str(path), "--high", "gate_h", "--low", "gate_l",
                                       "--design", str(design), "--output", "MOTOR_DT", "--json"])

@@ -230,7 +230,8 @@ def report_scope(capture: Path, high: str, low: str, scope: dict[str, Any], limi
     if any(scope.get(k) is not None for k in ("node", "bus", "soft_within")):
         raise GapforgeError("the switch-node check is made by `gapforge measure`", "report")
     cap = read_scope([capture], high, low, settings_from(scope, None))
-    result = measure_capture(cap.stream, limits=limits, glitch_width_s=glitch)
+    result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
+                             limits_source=limits[1], unjudged=limits[2])
     return result, (scope_section(cap, result),)
 
 

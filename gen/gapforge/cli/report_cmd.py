@@ -27,6 +27,12 @@ from gapforge.cli.options import Quantity
 @click.option("--glitch", type=Quantity("s", allow_zero=True), default="0", show_default=True,
               help="Pulses shorter than this are glitches: listed, never hidden (a gap ends at "
               "the first on-edge, glitch or not); an on-pulse glitch fails the capture.")
+@click.option("--capture-output", "capture_output", default=None,
+              help="The output (its prefix) the captured firmware runs: the capture is judged "
+              "against its prediction; required when the design has several outputs.")
+@click.option("--current", "current_text", default=None,
+              help="With a load-indexed table: the operating current of the capture (signed, "
+              "e.g. 3.2A); its bin's entry is the prediction.")
 @click.option("--parents", is_flag=True,
               help="Create missing folders of --output (without it a missing folder is an error).")
 @scope_options  # issue 21: an oscilloscope export (volts) as the capture
@@ -39,6 +45,8 @@ def command(
     active_low_high: bool,
     active_low_low: bool,
     glitch: Fraction,
+    capture_output: str | None,
+    current_text: str | None,
     parents: bool,
     **scope: Any,
 ) -> None:
@@ -55,7 +63,6 @@ def command(
     from gapforge.base.display import count, verdict_word
     from gapforge.base.files import write_files
     from gapforge.outputs.report import (
-        capture_limits,
         capture_word,
         design_warnings,
         render_report,
@@ -68,15 +75,20 @@ def command(
     if capture is None and (high is not None or low is not None):
         raise GapforgeError("--high and --low name signals in a capture: give --capture too",
                             "--capture")
+    if capture is None and (capture_output is not None or current_text is not None):
+        raise GapforgeError("--capture-output and --current say what a capture is judged"
+                            " against: give --capture too", "--capture")
     plan = plan_design(load_design(design))
     measurement = None
+    limits: tuple[Any, str, str] = ({}, "", "")
+    if capture is not None:
+        limits = _capture_limits(design, capture_output, current_text)
     extra: tuple[Any, ...] = ()
     if capture is not None and capture.is_file() and high is not None and low is not None:
         from gapforge.cli.measure_scope import report_scope, wants_scope
 
         if wants_scope((capture,), scope):
-            measurement, extra = report_scope(capture, high, low, scope, capture_limits(plan),
-                                              glitch)
+            measurement, extra = report_scope(capture, high, low, scope, limits, glitch)
     if capture is not None and measurement is None:
         if high is None or low is None:
             raise GapforgeError("name both gate signals with --high and --low", "--capture")
@@ -88,7 +100,8 @@ def command(
         # streamed: a VCD is read chunk by chunk (the same measurement as a capture in memory)
         gate = open_capture(capture, high, low, active_low_high=active_low_high,
                             active_low_low=active_low_low)
-        measurement = measure_capture(gate, limits=capture_limits(plan), glitch_width_s=glitch)
+        measurement = measure_capture(gate, limits=limits[0], glitch_width_s=glitch,
+                                      limits_source=limits[1], unjudged=limits[2])
     text = render_report(plan, measurement, extra)
     written = write_files({output: text}, parents=parents)
     # the answer first: the verdicts in the one vocabulary, then what was written
@@ -102,3 +115,19 @@ def command(
     click.echo(caution.SHORT)
     if plan.verdict != "ok" or (measurement is not None and measurement.failed):
         sys.exit(1)
+
+
+def _capture_limits(design: Path, output: str | None,
+                    current_text: str | None) -> tuple[Any, str, str]:
+    """What a capture in the report is judged against: the same rule as `measure --design`
+    (the named output; with a load-indexed table the entry at --current; a design without
+    [stage] proves nothing, so the capture verdict is inconclusive)."""
+    from gapforge.cli.measure_cmd import _current, build_limits
+
+    try:
+        return build_limits(None, design, output, _current(current_text))
+    except GapforgeError as exc:
+        if exc.where == "--output" or "--output" in exc.message:
+            raise GapforgeError(exc.message.replace("--output", "--capture-output"),
+                                "--capture-output") from None
+        raise

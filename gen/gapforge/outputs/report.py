@@ -52,19 +52,11 @@ from gapforge.pipeline.build import BuildPlan
 from gapforge.timer.layouts import EDGES
 
 if TYPE_CHECKING:
-    from gapforge.bench.measure import Limits, Measurement
+    from gapforge.bench.measure import Measurement
 
-__all__ = ["MC_SAMPLES", "MC_SEED", "REPORT_FORMAT", "SIM_BEYOND", "capture_limits", "render_report"]
+__all__ = ["MC_SAMPLES", "MC_SEED", "REPORT_FORMAT", "SIM_BEYOND", "render_report"]
 
 REPORT_FORMAT = 1
-
-
-def capture_limits(plan: BuildPlan) -> dict[str, Limits]:
-    """What a capture is judged against: the window and the first fitted output's range."""
-    from gapforge.bench.measure import Limits
-    from gapforge.pipeline.build import capture_expectations
-
-    return {e: Limits(*x) for e, x in capture_expectations(plan).items()}
 
 
 _EDGE_LINE = re.compile(r"^(to_high|to_low)(?: \([^)]*\))?: (.*)$", re.S)

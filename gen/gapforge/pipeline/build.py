@@ -11,7 +11,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 from fractions import Fraction
-from pathlib import Path
 from typing import Any
 
 from gapforge.base.display import format_range, format_si
@@ -336,32 +335,3 @@ def below_request_reason(edge: str, achieved_min: Fraction, requested: Fraction)
 
 
 Expectation = tuple[Fraction | None, Fraction | None, Fraction | None, Fraction | None]
-
-
-def capture_expectations(plan: BuildPlan) -> dict[str, Expectation]:
-    """What a bench capture is judged against, per edge: (window_min_s, window_max_s,
-    predicted_min_s, predicted_max_s). The window is the design's; without a [stage] window, its
-    minimum is the requested dead time (what the design says the stage needs), so a measured gap
-    shorter than the request fails. The prediction is the first fitted output's achieved range
-    over the clock tolerance.
-    """
-    first = next((op for op in plan.outputs if op.fit.ok), None)
-    out: dict[str, Expectation] = {}
-    for e in EDGES:
-        if plan.window is not None:
-            wmin, wmax = plan.window[e]
-        else:
-            wmin = plan.request.requested(e) if plan.request is not None else None
-            wmax = None
-        pmin = pmax = None
-        if first is not None:
-            pmin, pmax = first.fit.edges[e].achieved_min_s, first.fit.edges[e].achieved_max_s
-        out[e] = (wmin, wmax, pmin, pmax)
-    return out
-
-
-def measurement_expectations(path: Path) -> dict[str, Expectation]:
-    """capture_expectations of a design file (for `measure --design`)."""
-    from gapforge.pipeline.design import load_design
-
-    return capture_expectations(plan_design(load_design(path)))
