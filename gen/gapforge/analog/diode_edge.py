@@ -24,6 +24,7 @@ _REF_K = 300.15  # K, reference temperature of the SPICE junction-potential scal
 _BOLTZMANN = 1.380649e-23
 _CHARGE = 1.602176634e-19
 _BLOCK = 16_384  # samples per block of the charge integral
+_PANEL_ROWS = 1_024  # samples per piece of a quadrature panel (8 nodes each: 64 KiB arrays)
 QUADRATURE_NODES = 8  # Gauss-Legendre nodes per panel; tests hold it to 1e-4 of a fine sum
 # The 8-point Gauss-Legendre rule on [-1, 1] as numpy.polynomial.legendre.leggauss(8) returns it,
 # bit for bit (a test compares them, and with Abramowitz & Stegun table 25.4): every build needs
@@ -389,16 +390,24 @@ def _integrate(
 
     def panel(rows: npt.NDArray[np.intp], a: FloatArray, b: FloatArray, log: bool) -> FloatArray:
         # node-major (nodes x samples): each parameter is one contiguous row that broadcasts
-        # down the nodes, which numpy's loops run fastest; the same arithmetic per element as
-        # samples x nodes, transposed back (contiguous) for the same weighted sum
+        # down the nodes, which numpy's loops run fastest; in pieces of _PANEL_ROWS samples so
+        # the temporaries stay small (in cache, no fresh pages); the same arithmetic per element
+        # as one samples x nodes block, and the integrand transposed back (contiguous, whole)
+        # for the same weighted sum
         half = 0.5 * (b - a)
-        u = (a + half)[None, :] + half[None, :] * nodes[:, None]
-        x = np.exp(u) if log else u
-        p = s.gather(rows, False)
-        i, _d, dp, _q, qp = _state(s, x, p)
-        integrand = (p[4] * dp + qp) / i
-        if log:
-            integrand *= x
+        start = a + half
+        p_all = s.gather(rows, False)
+        integrand = np.empty((nodes.size, rows.size))
+        for k in range(0, rows.size, _PANEL_ROWS):
+            piece = slice(k, k + _PANEL_ROWS)
+            u = start[None, piece] + half[None, piece] * nodes[:, None]
+            x = np.exp(u) if log else u
+            p = tuple(column[piece] for column in p_all)
+            i, _d, dp, _q, qp = _state(s, x, p)
+            part = (p[4] * dp + qp) / i
+            if log:
+                part *= x
+            integrand[:, piece] = part
         total: FloatArray = half * (np.ascontiguousarray(integrand.T) @ weights)
         return total
 
