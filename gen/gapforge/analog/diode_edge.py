@@ -287,15 +287,14 @@ def _reverse(x: FloatArray, s_: FloatArray, v_: FloatArray) -> tuple[FloatArray,
     import numpy as np
 
     small = x <= 3.0 * v_
-    some_small = bool(small.any())
-    all_small = some_small and bool(small.all())
-    e = np.exp(-np.minimum(x, 3.0 * v_) / v_) if some_small else None
-    if all_small:
+    if small.all():
+        e = np.exp(-np.minimum(x, 3.0 * v_) / v_)
         return s_ * (1.0 - e) + GMIN * x, s_ * e / v_ + GMIN
     xc = np.maximum(x, 1e-300)
     a = (3.0 * v_ / (math.e * xc)) ** 3
-    if e is None:
+    if not small.any():
         return s_ * (1.0 - a) + GMIN * x, 3.0 * s_ * a / xc + GMIN
+    e = np.exp(-np.minimum(x, 3.0 * v_) / v_)
     idd = s_ * np.where(small, 1.0 - e, 1.0 - a) + GMIN * x
     gd = np.where(small, s_ * e / v_, 3.0 * s_ * a / xc) + GMIN
     return idd, gd
