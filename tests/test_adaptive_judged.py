@@ -71,7 +71,7 @@ currents = ["0.02A", "0.5A", "2A", "5A"]
 below_swing = "hard"
 current_error = "0.003A"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "SI150"
 file = "si150.h"
 """

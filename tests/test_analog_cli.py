@@ -53,7 +53,7 @@ def test_the_first_line_is_the_answer() -> None:
     data = json.loads(out)
     _, text, _ = run_cli(["analog", *NET])
     first = text.splitlines()[0]
-    assert first.startswith("analog: worst-case dead time to_high ")
+    assert first.startswith("analog: ok - worst-case dead time to_high ")
     assert "cannot overlap" in first and data["can_overlap"] is False
     code, text, _ = run_cli(["analog", *NET, "--bypass", "rising"])
     assert code == 1 and "the network CAN OVERLAP" in text.splitlines()[0]
@@ -146,7 +146,7 @@ def test_readme_suggest_example_offers_only_safe_pairs() -> None:
     assert code == 0
     assert "ranked by the typical error" in text and "worst case to_high" in text
     unsafe = text[text.index("not proposed, UNSAFE"):]
-    assert "R    121 ohm  C   3.9 nF" in unsafe and "-88.051 ns is not positive" in unsafe
+    assert "R    121 ohm  C   3.9 nF" in unsafe and "-88.06 ns is not positive" in unsafe
 
 
 def test_suggest_with_min_dead_and_no_safe_pair_exits_1() -> None:
@@ -276,3 +276,79 @@ def test_rss_is_labelled_a_statistical_estimate_with_a_note_beyond_the_worst_cas
     assert all(data["rss"][k]["beyond_worst_case"] is False for k in ("to_high", "to_low"))
     code, out, _ = run_cli(["analog", *NET, "--distribution", "normal"])
     assert "[beyond the worst case" not in out and "statistical estimate" in out
+
+
+# --- issue 23: the first line answers --min-dead and --suggest; one vocabulary ------------------
+
+
+def test_the_first_line_answers_min_dead_and_the_json_has_a_verdict() -> None:
+    code, out, _ = run_cli(["analog", *NET, "--json"])
+    data = json.loads(out)
+    assert code == 0 and data["verdict"] == "ok" and data["min_dead_s"] is None
+    # 1 us is above every worst-case minimum of this network: the answer is on line one (it
+    # used to say "cannot overlap" and exit 1 forty lines later)
+    code, text, _ = run_cli(["analog", *NET, "--min-dead", "1us"])
+    assert code == 1
+    assert text.splitlines()[0].startswith(
+        "analog: fail - worst-case minimum of to_high and to_low below --min-dead 1 us;")
+    code, out, _ = run_cli(["analog", *NET, "--min-dead", "1us", "--json"])
+    data = json.loads(out)
+    assert data["verdict"] == "fail" and data["below_min_dead"] == ["to_high", "to_low"]
+    assert data["min_dead_s"] == pytest.approx(1e-6)
+    code, text, _ = run_cli(["analog", *NET, "--min-dead", "1ns"])
+    assert code == 0 and "every worst-case dead time at least --min-dead 1 ns" in text
+
+
+def test_a_given_parameter_says_given() -> None:
+    # issue 23: source named a default's provenance even for a value the user gave
+    data = json.loads(run_cli(["analog", *NET, "--json"])[1])
+    assert data["parameters"]["r"] == {"value": "4.7 kohm", "default": False, "source": "given"}
+    assert data["parameters"]["rout"]["default"] is True
+    assert data["parameters"]["rout"]["source"] not in ("", "given")
+
+
+def test_suggest_a_window_lists_pairs_whose_worst_case_fits_best_centred_first() -> None:
+    # issue 23: "which preferred R/C pairs give a worst case inside MIN..MAX". Each proposed
+    # pair's worst case is recomputed here by the model's own corner analysis with the series'
+    # usual tolerances (IEC 60063 usage: E96 1 %, E12 10 %; reference-facts) and must lie
+    # inside the window; the list is ordered by the distance of the range's middle from the
+    # window's middle.
+    from dataclasses import replace
+    from fractions import Fraction
+
+    from gapforge.analog.preferred import series_tolerances
+    from gapforge.analog.tolerance import worst_case
+    from gapforge.pipeline.design import load_design
+
+    design = REPO / "examples" / "gan-buck.toml"
+    code, out, _ = run_cli(["analog", "--design", str(design), "--suggest", "114ns:300ns",
+                            "--json"])
+    data = json.loads(out)
+    sg = data["suggestions"]
+    assert sg["window"] == {"min_s": pytest.approx(114e-9), "max_s": pytest.approx(300e-9)}
+    assert sg["rank"] == "centred" and sg["pairs"]
+    net = load_design(design).reference
+    assert net is not None
+    base = series_tolerances(net, "E96", "E12")
+    middles = []
+    for pair in sg["pairs"]:
+        r = Fraction(pair["r_ohm"]).limit_denominator(1000)
+        c = Fraction(pair["c_f"]).limit_denominator(10**15)
+        rng = worst_case(replace(base, r=r, c=c)).pair["to_high"]
+        assert Fraction(114, 10**9) <= rng.min_s and rng.max_s <= Fraction(300, 10**9)
+        assert pair["to_high"]["min_s"] == pytest.approx(float(rng.min_s), rel=1e-6)
+        middles.append(abs((float(rng.min_s) + float(rng.max_s)) / 2 - 207e-9))
+    assert middles == sorted(middles)
+    # the first line answers the question (and still says the old network can overlap)
+    code, text, _ = run_cli(["analog", "--design", str(design), "--suggest", "114ns:300ns"])
+    assert code == 1  # gan-buck's own network can overlap: a violated limit
+    first = text.splitlines()[0]
+    assert first.startswith(f"analog: fail - {len(sg['pairs'])} preferred pairs give a "
+                            "worst-case to_high inside 114 .. 300 ns, best centred R ")
+    assert "CAN OVERLAP" in first
+
+
+@pytest.mark.parametrize("bad", ["300ns:114ns", "114ns:", "114ns:300", "114ns:300ns:400ns"])
+def test_suggest_a_bad_window_is_one_line_exit_2(bad: str) -> None:
+    code, out, err = run_cli(["analog", *NET, "--suggest", bad])
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1 and "--suggest" in err

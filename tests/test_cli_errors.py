@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from conftest import EXAMPLES, run_cli, run_subprocess
+from conftest import EXAMPLES, SMALL_STAGE, run_cli, run_subprocess
 
 BASE = """# invented test design
 format = 1
@@ -23,6 +23,7 @@ frequency = "500kHz"
 counting = "center"
 [dead_time]
 value = "25ns"
+source = "explicit"
 [[output]]
 target = "split-10bit-tenths"
 prefix = "DT"
@@ -32,7 +33,7 @@ file = "dt.h"
 SENTINEL = "/* an existing header that a failing build must leave alone */\n"
 
 BUILTIN_LIST = (
-    "shared-16bit-plus-one, shared-8bit-linear, shared-8bit-segmented, split-10bit-div4, "
+    "shared-16bit-plus-one, shared-8bit-linear, shared-8bit-segmented, split-10bit-div1-8, "
     "split-10bit-tenths, split-6bit-div2-reserved"
 )
 
@@ -73,6 +74,8 @@ DESIGNS: dict[str, tuple[str | bytes, str]] = {
                             "dead_time.value: give value, or to_high and to_low, not all three"),
     "rounding": (BASE.replace('value = "25ns"', 'value = "25ns"\nrounding = "down"'),
                  "dead_time.rounding: 'down' is not one of safe, nearest"),
+    # issue 23: the missing "tolerance" is the same mistake as the misspelt key that names it:
+    # said once (it was "(and 1 more problem)")
     "unknown-timer-key": (BASE.replace("tolerance =", "tolerence ="),
                           "timer.tolerence: unknown key; did you mean 'tolerance'? (expected one "
                           "of: clock, clock_macro, tolerance)"),
@@ -99,13 +102,13 @@ DESIGNS: dict[str, tuple[str | bytes, str]] = {
     "clock-macro": (BASE.replace('tolerance = "50ppm"', 'tolerance = "50ppm"\n'
                                  'clock_macro = "APP CLOCK"'),
                     "timer.clock_macro: 'APP CLOCK' is not a C identifier"),
-    "duplicate-prefix": (BASE + '[[output]]\ntarget = "split-10bit-div4"\nprefix = "DT"\n'
+    "duplicate-prefix": (BASE + '[[output]]\ntarget = "split-10bit-div1-8"\nprefix = "DT"\n'
                          'file = "dt2.h"\n', "output[1].prefix: prefix 'DT' is used twice (include guards ignore case)"),
-    "duplicate-file": (BASE + '[[output]]\ntarget = "split-10bit-div4"\nprefix = "DT2"\n'
+    "duplicate-file": (BASE + '[[output]]\ntarget = "split-10bit-div1-8"\nprefix = "DT2"\n'
                        'file = "dt.h"\n', "output[1].file: file 'dt.h' is written twice"),
     "toml-syntax": (BASE + "[[output]\n",
                     "TOML syntax error: Expected ']]' at the end of an array declaration "
-                    "(at line 15, column 9)"),
+                    "(at line 16, column 9)"),
     "not-utf8": (b"format = 1\n# \xff\xfe\n", "not UTF-8 text (byte 13)"),
     # issue 9, section 3: a bare number meant something else; issue 14: hostile files
     "dead-time-bare": (BASE.replace('"25ns"', '"400"'),
@@ -188,7 +191,7 @@ def test_bad_design_file(case: str, tmp_path: Path) -> None:
     assert _snapshot(tmp_path) == before
 
 
-LAYOUT_ARGS = ["fit", "--clock", "100MHz", "--dead-time", "50ns", "--target"]
+LAYOUT_ARGS = ["fit", "--clock", "100MHz", "--clock-tol", "0ppm", "--dead-time", "50ns", "--target"]
 
 
 @pytest.mark.parametrize(
@@ -221,13 +224,13 @@ def test_bad_layout_file_on_the_command_line(
 @pytest.mark.parametrize(
     ("args", "line"),
     [
-        (["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target", "shared-8bit-linaer"],
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linaer"],
          "gapforge: error: --target: no built-in layout named 'shared-8bit-linaer'; did you mean "
          f"'shared-8bit-linear'? (built-ins: {BUILTIN_LIST}; or give a path to a .toml layout "
          "file)"),
-        (["fit", "--clock", "160MHz", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--target", "shared-8bit-linear"],
          "gapforge: error: fit: give --dead-time, or both --to-high and --to-low"),
-        (["fit", "--clock", "160MHz", "--to-high", "25ns", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--to-high", "25ns", "--target", "shared-8bit-linear"],
          "gapforge: error: fit: give --dead-time, or both --to-high and --to-low"),
         (["targets", "show", "nosuch"],
          "gapforge: error: TARGET: no built-in layout named 'nosuch' (built-ins: "
@@ -247,20 +250,20 @@ def test_bad_arguments_reported_by_gapforge(args: list[str], line: str, tmp_path
 @pytest.mark.parametrize(
     ("args", "option"),
     [
-        (["fit", "--clock", "160MHzz", "--dead-time", "25ns", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "160MHzz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear"],
          "'--clock'"),
-        (["fit", "--clock", "nan", "--dead-time", "25ns", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "nan", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear"],
          "'--clock'"),
-        (["fit", "--clock", "160MHz", "--dead-time", "-5ns", "--target", "shared-8bit-linear"],
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "-5ns", "--target", "shared-8bit-linear"],
          "'--dead-time'"),
-        (["fit", "--clock", "160MHz", "--clock-tol", "200%", "--dead-time", "25ns",
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--clock-tol", "200%", "--dead-time", "25ns",
           "--target", "shared-8bit-linear"], "'--clock-tol'"),
-        (["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target", "shared-8bit-linear",
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear",
           "--rounding", "up"], "'--rounding'"),
         (["fit", "--dead-time", "25ns", "--target", "shared-8bit-linear"], "'--clock'"),
-        (["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target", "shared-8bit-linear",
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear",
           "--colour"], "--colour"),
-        (["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target", "shared-8bit-linear",
+        (["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target", "shared-8bit-linear",
           "--divider-code", "one"], "'--divider-code'"),
         (["targets", "show", "shared-8bit-linear", "--clock", "fast"], "'--clock'"),
         (["build"], "'DESIGN'"),
@@ -280,9 +283,9 @@ def test_bad_option_values_are_one_line(args: list[str], option: str, tmp_path: 
 @pytest.mark.parametrize(
     ("kind", "args", "where"),
     [
-        ("option", ["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target",
+        ("option", ["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target",
                     "shared-8bit-linear", "--divider-code", "3"], "--divider-code"),
-        ("option", ["fit", "--clock", "160MHz", "--dead-time", "25ns", "--target",
+        ("option", ["fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "25ns", "--target",
                     "shared-8bit-linear", "--pwm", "200MHz"], "--pwm"),
         ("design", ["build", "d.toml"], "d.toml: pwm.frequency"),
     ],
@@ -311,11 +314,11 @@ def test_console_entry_point_error_in_a_fresh_process(tmp_path: Path) -> None:
 
 def test_unreachable_second_output_leaves_every_file_untouched(tmp_path: Path) -> None:
     design = tmp_path / "d.toml"
-    # 3 us at 160 MHz: split-10bit-div4 reaches it (1023 x 8 / 160 MHz = 51 us), but
+    # 3 us at 160 MHz: split-10bit-div1-8 reaches it (1023 x 8 / 160 MHz = 51 us), but
     # shared-8bit-linear tops out at 255 / 160 MHz = 1.59 us
     design.write_text(
         BASE.replace('value = "25ns"', 'value = "3us"').replace(
-            '"split-10bit-tenths"', '"split-10bit-div4"').replace('"500kHz"', '"20kHz"')
+            '"split-10bit-tenths"', '"split-10bit-div1-8"').replace('"500kHz"', '"20kHz"')
         + '[[output]]\ntarget = "shared-8bit-linear"\nprefix = "DT2"\nfile = "dt2.h"\n'
     )
     (tmp_path / "dt.h").write_text(SENTINEL)
@@ -368,6 +371,7 @@ TWO_OUTPUTS = """# invented test design
 format = 1
 [timer]
 clock = "100MHz"
+tolerance = "0ppm"
 [dead_time]
 value = "50ns"
 [[output]]
@@ -375,10 +379,10 @@ target = "shared-8bit-linear"
 prefix = "A"
 file = "a.h"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "B"
 file = "b.h"
-"""
+""" + SMALL_STAGE
 
 
 def test_output_path_that_is_a_directory_is_bad_input_and_writes_nothing(tmp_path: Path) -> None:

@@ -22,6 +22,7 @@ from gapforge.base.display import (
     format_offset,
     format_percent,
     format_range,
+    format_register,
     format_si,
     significant,
     verdict_word,
@@ -90,9 +91,14 @@ def test_counts_agree_with_their_number() -> None:
 
 
 def test_percent_never_rounds_onto_a_bound() -> None:
-    assert format_percent(F(999_996, 10**6)) == "99.9996 %"  # four digits would say 100 %
-    assert format_percent(0.999996) == "99.9996 %"
-    assert format_percent(F(1, 10**9)) == "0.0000001 %"
+    # four digits would say 100 %, which hides the lost duty: "> 99.99 %" (issue 23)
+    assert format_percent(F(999_996, 10**6)) == "> 99.99 %"
+    assert format_percent(0.999996) == "> 99.99 %"
+    # at most three decimals: 1e-7 % is below the 0.001 % floor, said as such (issue 23: no
+    # "0.0000002825 %")
+    assert format_percent(F(1, 10**9)) == "< 0.001 %"
+    assert format_percent(F(1, 10**5)) == "0.001 %"
+    assert format_percent(F(1172, 10**6)) == "0.117 %"  # 0.1172 %: three decimals at most
     assert format_percent(1) == "100 %"
     assert format_percent(F(1, 3)) == "33.33 %"
 
@@ -114,3 +120,26 @@ def test_cut_brackets_the_exact_value(v: Fraction) -> None:
     up = significant(v, toward="up")
     assert F(down) <= v <= F(up)
     assert len(down.replace(".", "").replace("-", "").lstrip("0").rstrip("0")) <= 4
+
+
+def test_every_shown_quantity_pastes_back_as_input() -> None:
+    # issue 23: a long time was shown as "100 Gs", which parse_quantity refuses as a likely typo
+    # (G on a time is mega or more: SPICE reads M as milli). Times, capacitances and charges stay
+    # in the base unit at most; what is shown parses back to the value shown.
+    from gapforge.base.quantities import parse_quantity
+
+    assert format_si(100e9, "s") == "100000000000 s"
+    assert format_si(F(2500), "s") == "2500 s"
+    assert format_si(F(1, 1000), "F") == "1 mF"
+    assert format_si(5e9, "Hz") == "5 GHz"  # hertz keep their prefixes: "5GHz" parses
+    for value, unit in ((100e9, "s"), (F(2500), "s"), (F(123456, 10), "s"), (F(47, 10**12), "F"),
+                        (F(3, 10**9), "C"), (F(160 * 10**6), "Hz")):
+        back = parse_quantity(format_si(value, unit).replace(" ", ""), unit, "test")
+        # four significant digits: within half a unit of the fourth digit (5e-4 relative)
+        assert abs(back - F(value)) <= abs(F(value)) * F(5, 10**4)
+
+
+def test_a_register_word_is_written_one_way() -> None:
+    # issue 23: sweep said 0x308C2, build 0x000308c2; one way: lower case, padded to the width
+    assert format_register(0x308C2, 32) == "0x000308c2"
+    assert format_register(5, 10) == "0x005"  # 10 bits: three hex digits

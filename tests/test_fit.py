@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from dataclasses import replace
 from fractions import Fraction
 from functools import cache
@@ -150,12 +151,13 @@ def test_divider_choice_and_tie_break_on_finer_step() -> None:
     r = fit(lay, request(100 * MHZ, 600 * NS))
     assert (r.divider_code, r.edges["to_high"].code) == (0, 60)
     assert r.edges["to_high"].step_s == 10 * NS
-    # the worst-case maximum is 63 x 2 x 10 ns = 1.26 us
-    assert r.edges["to_high"].max_s == 1260 * NS
+    # the layout's longest at the divider in use (issue 23): 63 x 1 x 10 ns = 630 ns (at the
+    # largest divider it would be 63 x 2 x 10 ns = 1.26 us)
+    assert r.edges["to_high"].max_s == 630 * NS
 
 
 def test_split_10bit_needs_a_coarser_divider_for_long_gaps() -> None:
-    lay = load_layout("split-10bit-div4")
+    lay = load_layout("split-10bit-div1-8")
     # 10 us at 160 MHz = 1600 counts > 1023; /2: 800 counts; 800 x 2 / 160 MHz = 10 us exactly
     r = fit(lay, request(160 * MHZ, 10 * US))
     assert (r.divider, r.edges["to_high"].code, r.edges["to_high"].achieved_s) == (2, 800, 10 * US)
@@ -224,7 +226,7 @@ def test_split_layout_fits_each_edge_separately() -> None:
 
 def test_fit_json_from_the_command_line() -> None:
     code, out, _ = run_cli([
-        "fit", "--clock", "160MHz", "--clock-tol", "50ppm", "--dead-time", "25ns",
+        "fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--clock-tol", "50ppm", "--dead-time", "25ns",
         "--target", "split-10bit-tenths", "--pwm", "500kHz", "--counting", "center", "--json",
     ])
     assert code == 0
@@ -242,27 +244,30 @@ def test_fit_json_from_the_command_line() -> None:
         assert e["achieved_max_s"] == pytest.approx(41 / 1.6e9 / 0.99995, rel=1e-15)
         assert e["error_s"] == pytest.approx(1 / 1.6e9, rel=1e-12)  # 25.625 - 25 ns
         assert e["step_s"] == pytest.approx(1 / 1.6e9, rel=1e-15)
-        assert e["max_s"] == pytest.approx(1023 * 8 / 1.6e9, rel=1e-15)
+        # the layout's longest at the divider in use, /1 (issue 23: it was the largest, /8)
+        assert e["layout_max_s"] == pytest.approx(1023 * 1 / 1.6e9, rel=1e-15)
+        assert e["layout_max_worst_case_s"] == pytest.approx(1023 / 1.6e9 / 1.00005, rel=1e-15)
 
 
 def test_unreachable_from_the_command_line_exits_1() -> None:
     code, out, _ = run_cli([
-        "fit", "--clock", "160MHz", "--dead-time", "2us", "--target", "shared-8bit-linear",
+        "fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "2us", "--target", "shared-8bit-linear",
         "--json",
     ])
     # 2 us x 160 MHz = 320 counts > 255
     assert code == 1
     doc = json.loads(out)
-    assert doc["verdict"] == "fail" and doc["reason"] == "unreachable"
+    # issue 19: fit speaks the one vocabulary; the reason says why in words
+    assert doc["verdict"] == "fail" and "above the most the layout can guarantee" in doc["reason"]
     assert doc["register"] is None
     assert doc["edges"]["to_high"]["achieved_s"] is None
-    assert doc["edges"]["to_high"]["max_s"] == pytest.approx(255 / 160e6, rel=1e-15)
+    assert doc["edges"]["to_high"]["layout_max_s"] == pytest.approx(255 / 160e6, rel=1e-15)
     code, out, _ = run_cli([
-        "fit", "--clock", "160MHz", "--dead-time", "2us", "--target", "shared-8bit-linear",
+        "fit", "--clock", "160MHz", "--clock-tol", "0ppm", "--dead-time", "2us", "--target", "shared-8bit-linear",
     ])
     assert code == 1
     # 255 / 160 MHz = 1.59375 us exactly; four digits cut toward the safe side (down) show 1.593
-    assert ("unreachable: to_high request 2 us is longer than the layout can guarantee: at most "
+    assert ("fail: to_high request 2 us is longer than the layout can guarantee: at most "
             "1.593 us at the fast clock") in out
     assert "reduced voltage" in out  # the caution is always printed
 
@@ -359,7 +364,12 @@ def _check_safe(name: str, clock: Fraction, tol: Fraction, dead: Fraction) -> Fi
         worst_max = _worst_case_max(layout, clock, tol, edge)
         # unreachable exactly when the request exceeds the worst-case maximum
         assert (not candidates) == (dead > worst_max)
-        assert result.edges[edge].max_min_s == worst_max
+        if result.verdict == "unreachable":
+            assert result.edges[edge].max_min_s == worst_max
+        else:  # a fitted result gives the longest at the divider in use (issue 23)
+            assert result.divider is not None
+            assert result.edges[edge].max_min_s == worst_max * result.divider / max(
+                layout.dividers)
         if not candidates:
             assert result.verdict == "unreachable"
             assert result.edges[edge].code is None
@@ -580,3 +590,18 @@ def test_user_layouts_validate_and_fit_like_brute_force(
     value, div, code = min(candidates)
     e = result.edges["to_high"]
     assert (e.achieved_s, result.divider, e.code) == (value, div, code)
+
+
+def test_register_is_written_one_way_and_the_max_column_is_at_the_divider_in_use() -> None:
+    # issue 23: sweep printed 0x308C2 where build printed 0x000308c2; and the fit table's max
+    # column showed the largest divider's reach, not the divider in use.
+    # 25 ns at 1.6 GHz (160 MHz x 10 sub-steps) on split-10bit-tenths: 41 steps at /1, the
+    # field's longest 1023 steps x 625 ps = 639.4 ns at /1 (5.115 us would be /8)
+    code, out, _ = run_cli(["fit", "--clock", "160MHz", "--clock-tol", "50ppm", "--dead-time",
+                            "25ns", "--target", "split-10bit-tenths"])
+    assert code == 0
+    assert "register 0x0000a429" in out  # 32-bit register: eight lower-case hex digits
+    assert "639.4 ns" in out and "5.115 us" not in out
+    code, out, _ = run_cli(["sweep", "--clocks", "160MHz", "--clock-tol", "50ppm", "--window",
+                            "25ns:30ns", "--target", "split-10bit-tenths"])
+    assert re.search(r"0x[0-9a-f]{8}\b", out) and not re.search(r"0x[0-9A-F]*[A-F]", out)

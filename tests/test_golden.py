@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from conftest import EXAMPLES, REPO, TARGETS, run_cli, run_subprocess
+from conftest import EXAMPLES, REPO, SMALL_STAGE, TARGETS, run_cli, run_subprocess
 from gapforge import __version__
 
 HEADERS = {
@@ -138,8 +138,8 @@ def test_user_layout_provenance_is_independent_of_how_the_design_is_named(
     shutil.copy(TARGETS / "shared-8bit-linear.toml", project / "my-layout.toml")
     (project / "d.toml").write_text(
         "# invented test design\n"
-        'format = 1\n[timer]\nclock = "100MHz"\n[dead_time]\nvalue = "50ns"\n'
-        '[[output]]\ntarget = "my-layout.toml"\nprefix = "DT"\nfile = "dt.h"\n'
+        'format = 1\n[timer]\nclock = "100MHz"\ntolerance = "0ppm"\n[dead_time]\nvalue = "50ns"\n'
+        '[[output]]\ntarget = "my-layout.toml"\nprefix = "DT"\nfile = "dt.h"\n' + SMALL_STAGE
     )
     # separate processes, as a user or CI runs it (in one process the layout cache would keep
     # whichever spelling came first)

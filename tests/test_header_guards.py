@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from conftest import BUILTINS, EXAMPLES, run_cli
+from conftest import BUILTINS, EXAMPLES, SMALL_STAGE, run_cli
 
 STRICT = ["-Wall", "-Wextra", "-Wpedantic", "-Werror", "-Wconversion", "-Wsign-conversion",
           "-Wundef"]
@@ -161,7 +161,7 @@ def every_layout(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, list[s
     (out / "d.toml").write_text(
         "# invented test design\nformat = 1\n"
         '[timer]\nclock = "100MHz"\ntolerance = "100ppm"\n[dead_time]\nvalue = "60ns"\n'
-        + outputs
+        + outputs + SMALL_STAGE
     )
     code, _, err = run_cli(["build", str(out / "d.toml")])
     assert code == 0, err

@@ -47,10 +47,14 @@ t_fall = "20ns"
 td_on = "10ns"
 prop_delay = "20ns:45ns"
 mismatch = "5ns"
+isolator_skew = "0ns"
+timer_skew = "0ns"
+kind = "silicon"
+qrr = "0nC"
 current = "10A"
 loss_budget = "2W"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "DT"
 file = "dt.h"
 """
@@ -178,7 +182,7 @@ def test_fuzz_layout_files_through_targets_and_fit(
         code, out, err = _run(["targets", "show", str(layout), "--clock", "100MHz", "--json"],
                               capsys)
         _check(f"layout case {n}", code, out, err, str(layout))
-        code, out, err = _run(["fit", "--clock", "100MHz", "--dead-time", "200ns", "--target",
+        code, out, err = _run(["fit", "--clock", "100MHz", "--clock-tol", "0ppm", "--dead-time", "200ns", "--target",
                                str(layout), "--json"], capsys)
         _check(f"layout case {n} (fit)", code, out, err, str(layout))
         assert _files(tmp_path) == before, f"layout case {n}: a file was written"

@@ -165,8 +165,8 @@ BAD_LAYOUTS: dict[str, tuple[str, str]] = {
         HEAD + "[clock]\ndividers = [1, 2]\n" + BOTH8
         + '[[field]]\nname = "div"\nrole = "divider"\noffset = 8\nwidth = 1\n',
         # the same omission is also reported as "name the divider field here"
-        "clock.divider_field: required when more than one divider is listed "
-        "(and 1 more problem)",
+        "2 problems: clock.divider_field: required when more than one divider is listed; "
+        "clock.divider_field: name the divider field here",
     ),
     "divider-zero": (
         HEAD + '[clock]\ndividers = [1, 0]\ndivider_field = "div"\n' + BOTH8
@@ -232,14 +232,35 @@ def test_bad_layout_file_names_file_and_key_path(case: str, tmp_path: Path) -> N
 
 
 def test_all_problems_are_collected_and_counted(tmp_path: Path) -> None:
-    # misspelt 'width' is unknown AND leaves 'width' missing: two problems, one error
+    # misspelt 'width' is unknown AND leaves 'width' missing: one mistake, said once (issue 23);
+    # a second, unrelated mistake is listed beside it with its own hint, on the same line
     path = tmp_path / "two.toml"
     path.write_text(HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidht = 8\n')
     with pytest.raises(GapforgeError) as info:
         load_layout(str(path))
+    assert info.value.line().startswith(
+        f"{path}: field[0].widht: unknown key; did you mean 'width'?")
+    path.write_text(HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidht = 8\n'
+                    'encodng = "linear"\n')
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
     line = info.value.line()
-    assert line.startswith(f"{path}: field[0].widht: unknown key; did you mean 'width'?")
-    assert line.endswith("(and 1 more problem)")
+    assert line.startswith(f"{path}: 2 problems: field[0].encodng: unknown key; did you mean "
+                           "'encoding'?")
+    assert line.endswith("; field[0].widht: unknown key; did you mean 'width'?")
+    assert "\n" not in line and "more problem" not in line
+
+
+def test_many_problems_list_the_first_ten_and_count_the_rest(tmp_path: Path) -> None:
+    # twelve misspelt keys: ten listed with their hints, "and 2 more problems"
+    path = tmp_path / "many.toml"
+    path.write_text(HEAD + '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidth = 8\n'
+                    + "".join(f"extra{i} = 1\n" for i in range(12)))
+    with pytest.raises(GapforgeError) as info:
+        load_layout(str(path))
+    line = info.value.line()
+    assert line.count("unknown key") == 10 and line.endswith("; and 2 more problems")
+    assert line.startswith(f"{path}: 12 problems: ")
 
 
 def test_toml_syntax_error_keeps_the_line_number(tmp_path: Path) -> None:
@@ -367,3 +388,30 @@ def test_the_largest_allowed_segmented_layout_decodes_by_arithmetic(tmp_path: Pa
     steps, codes = f.table
     assert steps == codes == tuple(range(1 << 16))
     assert f.decode(0xFFFF) == 0xFFFF and f.decode(0x0400) == 0x0400
+
+
+def test_a_renamed_builtin_still_loads_with_a_warning_and_is_listed_by_its_new_name() -> None:
+    # issue 23: "split-10bit-div4" read as divide-by-4 while its divider field selects 1, 2, 4
+    # or 8 (targets/split-10bit-div1-8.toml: dividers = [1, 2, 4, 8]); the old name loads the
+    # same layout with one warning line on stderr; `targets` lists only the new name
+    assert load_layout("split-10bit-div4").name == "split-10bit-div1-8"
+    assert load_layout("split-10bit-div1-8").dividers == (1, 2, 4, 8)
+    assert "split-10bit-div4" not in builtin_names()
+    code, out, _ = run_cli(["targets"])
+    assert code == 0 and "split-10bit-div1-8" in out and "split-10bit-div4" not in out
+    code, out, err = run_cli(["targets", "show", "split-10bit-div4"])
+    assert code == 0 and "split-10bit-div1-8" in out
+    assert err.count("\n") == 1 and "renamed 'split-10bit-div1-8'" in err
+
+
+def test_targets_show_lists_fields_most_significant_first() -> None:
+    # issue 23: as the headers do (DEVELOPERS.md: "Fields ... are listed most significant
+    # first"); split-10bit-div1-8 has div at bits 28..29, to_low_count 16..25, to_high_count 0..9
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8"])
+    assert code == 0
+    names = [line.split()[0] for line in out.splitlines()
+             if line.split() and line.split()[0] in ("div", "to_low_count", "to_high_count")]
+    assert names == ["div", "to_low_count", "to_high_count"]
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8", "--json"])
+    offsets = [f["offset"] for f in json.loads(out)["fields"]]
+    assert offsets == sorted(offsets, reverse=True) == [28, 16, 0]

@@ -479,7 +479,9 @@ def test_answer_first_and_an_overlap_stays_prominent(tmp_path: Path) -> None:
     clean = _vcd(tmp_path / "ok.vcd", 30, 40)
     first = CliRunner().invoke(cli, ["measure", str(clean), "--high", "gate_h", "--low",
                                      "gate_l"]).output.splitlines()[0]
-    assert first == "ok (no window given: overlaps only): shortest gap to_high 30 ns, to_low 40 ns"
+    # issue 19: an ok without a window says what it proved, and what it did not judge
+    assert first == ("ok: no overlap seen; no window given, so the dead time itself was not "
+                     "judged; shortest gap to_high 30 ns, to_low 40 ns")
     doc = json.loads(CliRunner().invoke(cli, ["measure", str(clean), "--high", "gate_h", "--low",
                                               "gate_l", "--json"]).output)
     assert doc["verdict"] == "ok" and doc["window_judged"] is False

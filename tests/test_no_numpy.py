@@ -44,7 +44,7 @@ def _run(args: list[str], preload: tuple[str, ...] = ()) -> dict[str, object]:
 
 @pytest.mark.parametrize(
     "args",
-    [["--help"], ["targets"], ["targets", "--json"], ["targets", "show", "split-10bit-div4"],
+    [["--help"], ["targets"], ["targets", "--json"], ["targets", "show", "split-10bit-div1-8"],
      ["--version"]],
 )
 def test_light_commands_do_not_import_numpy(args: list[str]) -> None:

@@ -1,8 +1,8 @@
 """The window of a design and its dead-time policy (issue 9, section 1).
 
 The scenario is the invented 3-phase SiC inverter of examples/sic-inverter.toml: stage window
-(320 ns x 1.25 =) 400 ns .. (4.8 W / (4 V x 100 A x 10 kHz) =) 1.2 us, worked by hand in the
-example's comments from the common-practice formulas of gapforge.stage.window. The old analog
+(320 ns x 1.25 =) 400 ns .. ((5.12 W - 40 nC x 800 V x 10 kHz recovery) / (4 V x 100 A x 10 kHz)
+=) 1.2 us, worked by hand in the example's comments from the common-practice formulas of gapforge.stage.window. The old analog
 network there was too short: its worst-case range lies below 400 ns.
 """
 
@@ -178,7 +178,7 @@ def test_sweep_design_honours_the_user_layouts_its_outputs_name(tmp_path: Path) 
         '[[field]]\nname = "gap"\nrole = "both"\noffset = 0\nwidth = 8\n'
     )
     (tmp_path / "bench-linear-8.toml").write_text(layout)
-    text = SIC.read_text(encoding="utf-8").replace('"split-10bit-div4"', '"bench-linear-8.toml"')
+    text = SIC.read_text(encoding="utf-8").replace('"split-10bit-div1-8"', '"bench-linear-8.toml"')
     design = tmp_path / "d.toml"
     design.write_text(text, encoding="utf-8")
     code, out, err = run_cli(["sweep", "--design", str(design), "--json"])

@@ -180,7 +180,7 @@ def test_negative_tolerance_is_refused() -> None:
         (F(160_000_000), "Hz", "160 MHz"),
         (F(0), "s", "0 s"),
         (F(-3, 10**9), "s", "-3 ns"),
-        (F(390625, 10**15), "s", "390.62 ps"),  # 5 significant digits by default
+        (F(390625, 10**15), "s", "390.6 ps"),  # 4 significant digits by default (issue 23)
         (F(4700), "ohm", "4.7 kohm"),
         (F(1, 10**16), "s", "0.1 fs"),  # below the smallest prefix stays in fs
         (F(999_999_9, 10**13), "s", "1 us"),  # 999.9999 ns rounds to 1000 ns: prefix steps up

@@ -8,7 +8,14 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from conftest import run_cli
+from conftest import SMALL_STAGE, run_cli
+
+# the terms of the window's minimum a scenario does not care about, stated as 0 ("checked, none";
+# issue 19: no term is assumed)
+STAGE_TERMS = ('t_fall = "0ns"\nprop_delay = "0ns"\nmismatch = "0ns"\nisolator_skew = "0ns"\n'
+               'timer_skew = "0ns"\nqrr = "0nC"\n')
+STAGE_OPTIONS = ["--t-fall", "0ns", "--prop-delay", "0ns", "--mismatch", "0ns",
+                 "--isolator-skew", "0ns", "--timer-skew", "0ns"]
 
 DESIGN = """# invented test design: 100 ns requested, no [stage] window
 format = 1
@@ -17,8 +24,9 @@ clock = "160MHz"
 tolerance = "50ppm"
 [dead_time]
 value = "100ns"
+source = "explicit"
 [[output]]
-target = "split-10bit-div4"
+target = "split-10bit-div1-8"
 prefix = "DT"
 file = "dt.h"
 """
@@ -64,9 +72,9 @@ def test_issue4_stage_switching_frequency_must_be_the_pwm_frequency(tmp_path: Pa
     # a half bridge switches once per PWM period; a stage fsw of 20 kHz beside 100 kHz PWM made
     # the loss-budget maximum five times too long
     design = DESIGN.replace("[dead_time]", '[pwm]\nfrequency = "100kHz"\n[dead_time]').replace(
-        'value = "100ns"',
+        'value = "100ns"\nsource = "explicit"',
         'source = "window"\n[stage]\ntd_off = "40ns"\ntd_on = "10ns"\nvsd = "3V"\n'
-        'current = "10A"\nfsw = "20kHz"\nloss_budget = "2W"',
+        'current = "10A"\nfsw = "20kHz"\nloss_budget = "2W"\n' + STAGE_TERMS,
     )
     (tmp_path / "d.toml").write_text(design)
     code, _, err = run_cli(["build", str(tmp_path / "d.toml")])
@@ -82,9 +90,9 @@ def test_issue4_stage_switching_frequency_defaults_to_the_pwm_frequency(tmp_path
     # without stage.fsw the maximum uses the PWM frequency: 2 W / (3 V x (10 + 10) A x 100 kHz)
     # = 333.333 ns, rounded down to 333.333 ns (1 ps)
     design = DESIGN.replace("[dead_time]", '[pwm]\nfrequency = "100kHz"\n[dead_time]').replace(
-        'value = "100ns"',
+        'value = "100ns"\nsource = "explicit"',
         'source = "window"\n[stage]\ntd_off = "40ns"\ntd_on = "10ns"\nvsd = "3V"\n'
-        'current = "10A"\nloss_budget = "2W"',
+        'current = "10A"\nloss_budget = "2W"\n' + STAGE_TERMS,
     )
     (tmp_path / "d.toml").write_text(design)
     code, out, err = run_cli(["build", str(tmp_path / "d.toml"), "--json"])
@@ -96,20 +104,22 @@ def test_issue4_stage_switching_frequency_defaults_to_the_pwm_frequency(tmp_path
 def test_issue2_fit_json_carries_the_nearest_and_zero_tolerance_warnings(tmp_path: Path) -> None:
     # 20 ns at 64 MHz +/- 5 % with nearest rounding: 20e-9 x 64e6 = 1.28 counts, nearest 1 count
     # = 15.625 ns, at the fast clock 15.625 / 1.05 = 14.881 ns < 20 ns
-    code, out, err = run_cli(["fit", "--clock", "64MHz", "--clock-tol", "5%", "--dead-time",
+    code, out, err = run_cli(["fit", "--clock", "64MHz", "--clock-tol", "0ppm", "--clock-tol", "5%", "--dead-time",
                               "20ns", "--target", "shared-8bit-linear", "--rounding", "nearest",
                               "--json"])
-    assert code == 0, err
-    warnings = json.loads(out)["warnings"]
-    assert any("14.881 ns at the fast clock, below the 20 ns requested" in w for w in warnings)
-    code, out, _ = run_cli(["fit", "--clock", "64MHz", "--dead-time", "20ns", "--target",
+    # issue 19: a requested dead time is a minimum, so a worst case below it fails (exit 1)
+    assert code == 1, err
+    doc = json.loads(out)
+    assert doc["verdict"] == "fail" and "below the 20 ns requested" in doc["reason"]
+    assert any("14.88 ns at the fast clock, below the 20 ns requested" in w for w in doc["warnings"])
+    code, out, _ = run_cli(["fit", "--clock", "64MHz", "--clock-tol", "0ppm", "--dead-time", "20ns", "--target",
                             "shared-8bit-linear", "--json"])
     assert code == 0
     assert any("clock tolerance is 0" in w for w in json.loads(out)["warnings"])
 
 
 def test_issue2_fit_refuses_a_zero_dead_time() -> None:
-    code, _, err = run_cli(["fit", "--clock", "64MHz", "--dead-time", "0", "--target",
+    code, _, err = run_cli(["fit", "--clock", "64MHz", "--clock-tol", "0ppm", "--dead-time", "0", "--target",
                             "shared-8bit-linear"])
     assert code == 2
     assert "--dead-time" in err and "greater than zero" in err
@@ -151,7 +161,8 @@ def test_issue4_sweep_pwm_is_the_switching_frequency() -> None:
     # with stage options, --pwm supplies the switching frequency: the maximum is
     # 1 W / (1 V x (10 + 10) A x 100 kHz) = 500 ns (it would be 2.5 us at a wrong 20 kHz)
     base = ["sweep", "--td-off", "40ns", "--td-on", "10ns", "--vsd", "1V", "--current", "10A",
-            "--loss-budget", "1W", "--clocks", "100MHz", "--json"]
+            "--loss-budget", "1W", "--clocks", "100MHz", "--clock-tol", "0ppm", "--json",
+            *STAGE_OPTIONS, "--qrr", "0nC"]
     code, out, err = run_cli([*base, "--pwm", "100kHz"])
     assert code == 0, err
     assert json.loads(out)["window"]["to_high"]["max_s"] == 500e-9
@@ -170,7 +181,7 @@ def test_issue4_sweep_refuses_a_pwm_other_than_the_designs() -> None:
 def test_issue9_a_byte_order_mark_at_the_start_of_a_design_is_read(tmp_path: Path) -> None:
     # editors on some systems save UTF-8 with a BOM (U+FEFF, the Unicode standard, section 23.8)
     design = tmp_path / "d.toml"
-    design.write_bytes(b"\xef\xbb\xbf" + DESIGN.encode())
+    design.write_bytes(b"\xef\xbb\xbf" + (DESIGN + SMALL_STAGE).encode())
     code, out, err = run_cli(["build", str(design), "--json"])
     assert code == 0, err
     assert json.loads(out)["verdict"] == "ok"
@@ -179,7 +190,7 @@ def test_issue9_a_byte_order_mark_at_the_start_of_a_design_is_read(tmp_path: Pat
 def test_issue9_tolerances_accept_the_plus_minus_forms(tmp_path: Path) -> None:
     for form in ("\u00b150ppm", "+/-50ppm"):
         design = tmp_path / "d.toml"
-        design.write_text(DESIGN.replace('"50ppm"', f'"{form}"'), encoding="utf-8")
+        design.write_text(DESIGN.replace('"50ppm"', f'"{form}"') + SMALL_STAGE, encoding="utf-8")
         code, out, err = run_cli(["build", str(design), "--json"])
         assert code == 0, err
         assert json.loads(out)["clock_tol"] == 50e-6
@@ -191,9 +202,9 @@ def test_issue9_every_caution_names_transitions_temperature_and_load_current() -
     words = "on every transition, over temperature and load current"
     assert words in caution.TEXT
     # `targets show` prints dead-time ranges: it carries the caution too (text and JSON)
-    code, out, _ = run_cli(["targets", "show", "split-10bit-div4", "--clock", "100MHz"])
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8", "--clock", "100MHz"])
     assert code == 0 and words in out
-    code, out, _ = run_cli(["targets", "show", "split-10bit-div4", "--json"])
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8", "--json"])
     assert code == 0 and words in json.loads(out)["caution"]
 
 
@@ -201,7 +212,7 @@ def test_issue9_a_gan_vsd_measured_at_the_gate_off_bias_gets_it_added_once() -> 
     # reverse voltage = vsd + |gate_off| for a vsd read at 0 V gate (common practice for GaN
     # third-quadrant conduction); a vsd measured at -3 V gate already holds the 3 V
     base = ["window", "--td-off", "10ns", "--td-on", "2ns", "--kind", "gan", "--vsd", "5V",
-            "--gate-off", "-3V", "--current", "10A", "--fsw", "100kHz", "--json"]
+            "--gate-off", "-3V", "--current", "10A", "--fsw", "100kHz", "--json", *STAGE_OPTIONS]
     code, out, err = run_cli(base)
     assert code == 0, err
     assert json.loads(out)["costs"]["reverse_voltage_v"] == 8.0
@@ -231,3 +242,57 @@ def test_issue_15_junction_coupling_finding_reaches_build_json_and_report(tmp_pa
     html = report.read_text(encoding="utf-8")
     box = html[: html.index("CAUTION")]  # the verdict box stands above the caution
     assert finding in box
+
+
+# invented: a stage whose recovery loss (Qrr x Vbus x fsw = 100 nC x 400 V x 100 kHz = 4 W)
+# is above its 0.1 W loss budget, so no budget is left for reverse conduction
+NO_BUDGET = """\
+# invented test design
+format = 1
+name = "no-budget"
+[timer]
+clock = "160MHz"
+tolerance = "50ppm"
+[dead_time]
+source = "window"
+[stage]
+td_off = "35ns"
+t_fall = "20ns"
+td_on = "10ns"
+prop_delay = "20ns:45ns"
+mismatch = "5ns"
+isolator_skew = "0ns"
+timer_skew = "0ns"
+kind = "silicon"
+current = "10A"
+fsw = "100kHz"
+loss_budget = "0.1W"
+bus_voltage = "400V"
+qrr = "100nC"
+[[output]]
+target = "shared-8bit-linear"
+prefix = "A"
+file = "a.h"
+"""
+
+
+def test_issue23_build_says_no_loss_budget_left_as_window_does(tmp_path: Path) -> None:
+    design = tmp_path / "d.toml"
+    design.write_text(NO_BUDGET)
+    code, out, _ = run_cli(["build", str(design)], cwd=tmp_path)
+    assert code == 1
+    assert "no loss budget left after the recovery loss" in out
+    assert "loss budget's maximum 0 s" not in out
+    code, out, _ = run_cli(["window", "--design", str(design)], cwd=tmp_path)
+    assert "no loss budget left after the recovery loss" in out.splitlines()[0]
+
+
+def test_issue23_two_misspelt_keys_are_both_shown_with_their_hints(tmp_path: Path) -> None:
+    design = tmp_path / "d.toml"
+    design.write_text(NO_BUDGET.replace("td_off", "td_of").replace("t_fall", "t_fal"))
+    code, out, err = run_cli(["build", str(design)], cwd=tmp_path)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert "stage.td_of: unknown key; did you mean 'td_off'?" in err
+    assert "stage.t_fal: unknown key; did you mean 't_fall'?" in err
+    assert "more problem" not in err
+    assert not (tmp_path / "a.h").exists()

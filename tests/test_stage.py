@@ -17,11 +17,11 @@ from hypothesis import strategies as st
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.schema import Reader
+from gapforge.stage.stage_reader import read_stage
 from gapforge.stage.window import (
     StageSpec,
     SwitchTiming,
     judge,
-    read_stage,
     stage_costs,
     stage_problems,
     stage_window,
@@ -52,6 +52,8 @@ def silicon_inverter(**changes: object) -> StageSpec:
         high=sw,
         low=sw,
         mismatch=5 * NS,
+        isolator_skew=Fraction(0),
+        timer_skew=Fraction(0),
         current_to_high=Fraction(10),
         current_to_low=Fraction(10),
         fsw=Fraction(20_000),
@@ -105,10 +107,11 @@ def test_minimum_per_edge_uses_the_switch_turning_off_and_the_one_turning_on() -
 def test_minimum_rounds_up_to_a_whole_picosecond() -> None:
     sw = SwitchTiming(Fraction(10000005, 10**16), Fraction(0), Fraction(0), Fraction(0),
                       Fraction(0), Fraction(0))  # 1000.0005 ps
-    spec = StageSpec(high=sw, low=sw, margin=Fraction(1))
+    zero = {"mismatch": Fraction(0), "isolator_skew": Fraction(0), "timer_skew": Fraction(0)}
+    spec = StageSpec(high=sw, low=sw, margin=Fraction(1), **zero)
     assert stage_window(spec).edges["to_high"].min_s == 1001 * PS
     # margin 1.2 on 1000.0005 ps = 1200.0006 ps -> 1201 ps
-    assert stage_window(StageSpec(high=sw, low=sw)).edges["to_low"].min_s == 1201 * PS
+    assert stage_window(StageSpec(high=sw, low=sw, **zero)).edges["to_low"].min_s == 1201 * PS
 
 
 # ---------------------------------------------------------------------------------------------
@@ -252,10 +255,30 @@ def test_margin_below_one_is_refused() -> None:
 # ---------------------------------------------------------------------------------------------
 # reading [stage]
 
+# every term of the minimum (issue 19), invented values; a body's own line wins
+EVERY_TERM = {"t_fall": '"20ns"', "prop_delay": '"20ns:45ns"', "mismatch": '"0ns"',
+              "isolator_skew": '"0ns"', "timer_skew": '"0ns"'}
 
-def test_a_missing_key_is_reported_once() -> None:
+
+def with_every_term(body: str) -> str:
+    head, sep, rest = body.partition("\n[")
+    keys = {line.split("=")[0].strip() for line in head.splitlines() if "=" in line}
+    extra = "".join(f"{k} = {v}\n" for k, v in EVERY_TERM.items() if k not in keys)
+    return extra + head + sep + rest
+
+
+def test_every_missing_term_is_reported_once_with_its_source() -> None:
+    # issue 19: no term of the minimum's sum is assumed (common practice: the sum in
+    # reference-facts.md, "Dead-time requirement", has every term)
     _, reader = read('[stage]\ntd_off = "35ns"')
-    assert reader.problems == [("stage.td_on", "required key is missing")]
+    paths = [p for p, _ in reader.problems]
+    assert paths == ["stage.td_on", "stage.t_fall", "stage.prop_delay", "stage.mismatch",
+                     "stage.isolator_skew", "stage.timer_skew"]
+    messages = dict(reader.problems)
+    assert "switch datasheet" in messages["stage.t_fall"]
+    assert "driver datasheet" in messages["stage.prop_delay"]
+    assert "mismatch" in messages["stage.mismatch"] and "driver" in messages["stage.mismatch"]
+    assert "isolator" in messages["stage.isolator_skew"]
 
 
 def test_read_stage_with_per_switch_overrides() -> None:
@@ -267,6 +290,10 @@ def test_read_stage_with_per_switch_overrides() -> None:
         td_on = "10ns"
         prop_delay = "20ns:45ns"
         mismatch = "5ns"
+        isolator_skew = "0ns"
+        timer_skew = "0ns"
+        kind = "silicon"
+        qrr = "0nC"
         current = "10A"
         current_to_low = "-3A"
         fsw = "20kHz"
@@ -297,7 +324,16 @@ def test_read_stage_with_per_switch_overrides() -> None:
         ('td_off = "35ns"\ntd_on = "1ns"\nprop_delay = "9ns:3ns"', "stage.prop_delay", "above MAX"),
         ('td_off = "35ns"\ntd_on = "1ns"\nmargin = 0.8', "stage.margin", "at least 1"),
         ('td_off = "35ns"\ntd_on = "1ns"\nkind = "gallium"', "stage.kind", "not one of"),
-        ('td_off = "35ns"\ntd_on = "1ns"\nloss_budget = "1W"', "stage.fsw", "needs"),
+        ('td_off = "35ns"\ntd_on = "1ns"\nloss_budget = "1W"\ncurrent = "1A"\nkind = "sic"\n'
+         'qrr = "0nC"', "stage.fsw", "needs"),
+        ('td_off = "35ns"\ntd_on = "1ns"\nloss_budget = "1W"\nkind = "sic"\nqrr = "0nC"',
+         "stage.current_to_high", "0 A"),
+        ('td_off = "35ns"\ntd_on = "1ns"\nloss_budget = "1W"\ncurrent = "1A"\nqrr = "0nC"',
+         "stage.kind", "vsd"),
+        ('td_off = "35ns"\ntd_on = "1ns"\nloss_budget = "1W"\ncurrent = "1A"\nkind = "sic"',
+         "stage.qrr", "recovery"),
+        ('td_off = "35ns"\ntd_on = "1ns"\nloss_budget = "1W"\ncurrent = "1A"\nkind = "gan"',
+         "stage.gate_off", "gate-off"),
         ('td_off = "35ns"\ntd_on = "1ns"\nqrr = "10nC"\nfsw = "1kHz"', "stage.bus_voltage",
          "needs"),
         ('td_off = "35ns"\ntd_on = "1ns"\nkind = "gan"\nqrr = "1nC"', "stage.qrr", "GaN"),
@@ -309,7 +345,7 @@ def test_read_stage_with_per_switch_overrides() -> None:
     ],
 )
 def test_read_stage_problems_name_the_key(body: str, path: str, words: str) -> None:
-    _, reader = read("[stage]\n" + body)
+    _, reader = read("[stage]\n" + with_every_term(body))
     assert reader.problems, "expected a problem"
     where, message = reader.problems[0]
     assert where == path
@@ -336,6 +372,7 @@ def specs(draw: st.DrawFn) -> StageSpec:
         high=high,
         low=low,
         mismatch=draw(ns) * NS,
+        isolator_skew=Fraction(0),
         timer_skew=draw(st.integers(251, 400)) * NS,  # > td_on + prop min: every sum > 0
         margin=Fraction(draw(st.integers(100, 300)), 100),
         kind=draw(st.sampled_from(["silicon", "sic"])),

@@ -157,7 +157,7 @@ def layouts(*names: str) -> list[Any]:
 
 def test_worked_example_exact_fit_without_tolerance() -> None:
     limits = {e: (90 * NS, 300 * NS) for e in ("to_high", "to_low")}
-    result = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits, rank="error")
+    result = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], Fraction(0), limits, rank="error")
     best = result.feasible[0]
     # 100 MHz, divider 1: 10 ns steps, 9 counts = 90 ns exactly: error 0, margins 0 and 210 ns
     assert (best.divider, best.edges["to_high"].code) == (1, 9)
@@ -170,13 +170,13 @@ def test_worked_example_exact_fit_without_tolerance() -> None:
     assert by_div[8].edges["to_low"].code == 2
     assert by_div[8].worst_error_s == 70 * NS and by_div[8].worst_margin_s == 70 * NS
     # ranked by margin instead, divider 8 (70 ns from the nearer edge) comes first
-    by_margin = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits, "margin")
+    by_margin = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], Fraction(0), limits, "margin")
     assert by_margin.feasible[0].divider == 8
 
 
 def test_worked_example_with_clock_tolerance() -> None:
     limits = {e: (90 * NS, 300 * NS) for e in ("to_high", "to_low")}
-    result = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(2, 100), limits, "error")
+    result = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], Fraction(2, 100), limits, "error")
     best = result.feasible[0]
     # 90 ns x 1.02 / 10 ns = 9.18 counts -> 10 counts = 100 ns nominal,
     # worst case 100 / 1.02 = 98.039 ns .. 100 / 0.98 = 102.04 ns
@@ -194,7 +194,7 @@ def test_reasons_for_infeasible_points() -> None:
     assert result.infeasible[0].reason.startswith("unreachable: to_high needs 3 us")
     # divider 8 at 100 MHz: 80 ns steps; a 95..99 ns window gets 160 ns: too long
     limits = {e: (95 * NS, 99 * NS) for e in ("to_high", "to_low")}
-    result = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits)
+    result = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], Fraction(0), limits)
     reasons = {r.divider: r.reason for r in result.infeasible}
     assert reasons[8].startswith("too-long: both edges: the shortest safe value 160 ns")
     # 10 ns steps (divider 1) give 100 ns, 20 ns steps 100 ns, 40 ns steps 120 ns: all too long
@@ -216,7 +216,7 @@ def test_every_divider_and_clock_is_a_point() -> None:
 
 def test_empty_window_makes_every_point_infeasible() -> None:
     limits = {"to_high": (90 * NS, 50 * NS), "to_low": (90 * NS, 300 * NS)}
-    result = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits)
+    result = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], Fraction(0), limits)
     assert not result.feasible and len(result.infeasible) == 4
     assert all(r.reason.startswith("empty window on to_high") for r in result.infeasible)
 
@@ -287,15 +287,23 @@ def test_every_feasible_row_fits_under_worst_case_tolerance(
 # the command
 
 
+def stated_tol(args: list[str]) -> list[str]:
+    """The clock tolerance stated as 0 where a test gives none (issue 19: it is required)."""
+    if "--design" in args or "--clock-tol" in args:
+        return args
+    return [*args, "--clock-tol", "0ppm"]
+
+
 def run(args: list[str]) -> Any:
-    result = CliRunner().invoke(cli, ["sweep", *args])
+    result = CliRunner().invoke(cli, ["sweep", *stated_tol(args)])
     if result.exception is not None and not isinstance(result.exception, SystemExit):
         raise result.exception
     return result
 
 
 STAGE = ["--td-off", "35ns", "--t-fall", "20ns", "--td-on", "10ns", "--prop-delay", "20ns:45ns",
-         "--mismatch", "5ns", "--current", "10A", "--fsw", "20kHz", "--loss-budget", "0.5W"]
+         "--mismatch", "5ns", "--isolator-skew", "0ns", "--timer-skew", "0ns", "--kind", "silicon",
+         "--qrr", "0nC", "--current", "10A", "--fsw", "20kHz", "--loss-budget", "0.5W"]
 
 
 def test_cli_text_from_stage_options() -> None:
@@ -313,7 +321,7 @@ def test_cli_text_from_stage_options() -> None:
 
 def test_cli_json_and_csv_hold_every_point() -> None:
     args = ["--clocks", "100MHz,160MHz", "--window", "90ns:300ns", "--target",
-            "split-10bit-div4", "--target", "shared-8bit-linear", "--clock-tol", "50ppm"]
+            "split-10bit-div1-8", "--target", "shared-8bit-linear", "--clock-tol", "50ppm"]
     data = json.loads(run([*args, "--json"]).stdout)
     assert data["points"] == (4 + 1) * 2
     assert data["points"] == len(data["feasible"]) + len(data["infeasible"])
@@ -345,7 +353,7 @@ def test_cli_user_layout_file_and_infeasible_exit_1(tmp_path: Path) -> None:
 
 def test_cli_empty_window_from_the_stage_exits_1() -> None:
     args = [a if a != "0.5W" else "0.01W" for a in STAGE]
-    result = run(["--clocks", "100MHz", *args, "--target", "split-10bit-div4"])
+    result = run(["--clocks", "100MHz", *args, "--target", "split-10bit-div1-8"])
     assert result.exit_code == 1 and "empty window" in result.stdout
 
 
@@ -356,13 +364,15 @@ def test_cli_empty_window_from_the_stage_exits_1() -> None:
         (["--clocks", "100MHz", "--window", "90ns:50ns"], "--window"),
         (["--clocks", "100MHz", "--window", "-9ns:50ns"], "--window"),
         (["--clocks", "100MHz", "--window", "90ns", "--td-off", "3ns"], "--td-off"),
-        (["--clocks", "100MHz", "--td-off", "3ns", "--td-on", "9ns"], "--td-on"),
+        (["--clocks", "100MHz", "--td-off", "3ns", "--td-on", "9ns", "--t-fall", "0ns",
+          "--prop-delay", "0ns", "--mismatch", "0ns", "--isolator-skew", "0ns",
+          "--timer-skew", "0ns"], "--td-on"),
         (["--clocks", "100MHz", "--window", "90ns", "--target", "no-such-layout"], "--target"),
         (["--clocks", "100MHz", "--window", "90ns", "--json", "--csv"], "--csv"),
     ],
 )
 def test_cli_bad_input(args: list[str], where: str) -> None:
-    result = CliRunner().invoke(cli, ["sweep", *args])
+    result = CliRunner().invoke(cli, ["sweep", *stated_tol(args)])
     assert isinstance(result.exception, GapforgeError), result.output
     line = result.exception.line()
     assert line.startswith(where) and "\n" not in line
@@ -462,9 +472,9 @@ def test_worked_example_rows_that_fit_the_window_but_not_the_pwm() -> None:
     # 100 MHz / 4.75 MHz = 21.05 counts -> N = 21 (half a period: 10.5 counts).
     # safe codes for 90 ns: /1 9 x 10 ns = 90 ns (9 counts); /2 5 x 20 ns = 100 ns (10 counts);
     # /4 3 x 40 ns = 120 ns (12 counts); /8 2 x 80 ns = 160 ns (16 counts): all inside 90..300 ns
-    plain = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits)
+    plain = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], Fraction(0), limits)
     assert sorted(r.divider for r in plain.feasible) == [1, 2, 4, 8]
-    result = sweep(layouts("split-10bit-div4"), [100 * MHZ], Fraction(0), limits, pwm=pwm)
+    result = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], Fraction(0), limits, pwm=pwm)
     # /1: 9 counts; a pulse on both outputs needs c > 9 and 21 - c > 9: c = 10 or 11
     assert [r.divider for r in result.feasible] == [1]
     ok = result.feasible[0]
@@ -490,7 +500,7 @@ def test_worked_example_center_aligned_and_too_slow_a_clock() -> None:
     # 100 MHz / (2 x 4 MHz) = 12.5 -> N = 13 (ties up), period 26 counts.
     # /2 (10 counts): 2c > 10 and 2(13 - c) > 10: c = 6, 7; /4 (12 counts): c > 6 and c < 7: none
     # 10 MHz / 8 MHz = 1.25 counts: fewer than the 2 a period needs, on every divider
-    result = sweep(layouts("split-10bit-div4"), [10 * MHZ, 100 * MHZ], Fraction(0), limits,
+    result = sweep(layouts("split-10bit-div1-8"), [10 * MHZ, 100 * MHZ], Fraction(0), limits,
                    pwm=pwm)
     by = {(r.clock_hz, r.divider): r for r in (*result.feasible, *result.infeasible)}
     row = by[(100 * MHZ, 2)]
@@ -546,7 +556,7 @@ def test_every_feasible_row_fits_the_pwm(
 
 
 def test_cli_pwm_options_and_json() -> None:
-    args = ["--clocks", "100MHz", "--window", "90ns:300ns", "--target", "split-10bit-div4"]
+    args = ["--clocks", "100MHz", "--window", "90ns:300ns", "--target", "split-10bit-div1-8"]
     data = json.loads(run([*args, "--pwm", "4.75MHz", "--json"]).stdout)
     assert data["pwm"] == {"frequency_hz": 4_750_000.0, "counting": "edge"}
     assert [r["divider"] for r in data["feasible"]] == [1]
@@ -587,13 +597,13 @@ def test_cli_design_pwm_is_the_default_and_options_override_it() -> None:
     # the same window given directly: 20 MHz edge-aligned is 8 counts; the window minimum
     # 27.6 ns is 4.4 counts, over half a period
     code, out, err = run_cli(["sweep", "--window", "27.6ns:29.687ns", "--clocks", "160MHz",
-                              "--pwm", "20MHz", "--counting", "edge"])
+                              "--clock-tol", "0ppm", "--pwm", "20MHz", "--counting", "edge"])
     assert code == 1 and "% of the PWM period" in out
 
 
 def test_cli_counting_without_a_pwm_is_an_error() -> None:
     result = CliRunner().invoke(cli, ["sweep", "--clocks", "100MHz", "--window", "90ns",
-                                      "--counting", "center"])
+                                      "--clock-tol", "0ppm", "--counting", "center"])
     assert isinstance(result.exception, GapforgeError), result.output
     line = result.exception.line()
     assert line.startswith("--counting") and "--pwm" in line and "\n" not in line
@@ -611,21 +621,21 @@ def test_default_ranking_is_the_least_safe_dead_time() -> None:
     # with more reverse conduction (loss ~ dead time: common practice).
     limits = {e: (400 * NS, 1200 * NS) for e in ("to_high", "to_low")}
     tol = Fraction(2, 100)
-    result = sweep(layouts("split-10bit-div4"), [100 * MHZ], tol, limits)
+    result = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], tol, limits)
     assert result.rank == "loss"
     best = result.feasible[0]
     assert (best.divider, best.edges["to_high"].code) == (1, 41)
     assert best.worst_above_min_s == 410 * NS / Fraction(98, 100) - 400 * NS
-    by_margin = sweep(layouts("split-10bit-div4"), [100 * MHZ], tol, limits, "margin")
+    by_margin = sweep(layouts("split-10bit-div1-8"), [100 * MHZ], tol, limits, "margin")
     assert (by_margin.feasible[0].divider, by_margin.feasible[0].edges["to_high"].achieved_s) == (
         8, 480 * NS)
 
 
 def test_ties_break_by_lowest_clock_then_fewest_bits() -> None:
-    # 400 ns is exact at 100 MHz and at 200 MHz on every divider of split-10bit-div4 (10 ns x 40,
+    # 400 ns is exact at 100 MHz and at 200 MHz on every divider of split-10bit-div1-8 (10 ns x 40,
     # 5 ns x 80, ...): every row ties on loss, so the order is by clock, then divider code.
     limits = {e: (400 * NS, 1200 * NS) for e in ("to_high", "to_low")}
-    result = sweep(layouts("split-10bit-div4", "shared-8bit-linear"), [200 * MHZ, 100 * MHZ],
+    result = sweep(layouts("split-10bit-div1-8", "shared-8bit-linear"), [200 * MHZ, 100 * MHZ],
                    Fraction(0), limits)
     tied = [r for r in result.feasible if r.worst_above_min_s == 0]
     clocks = [r.clock_hz for r in tied]
@@ -691,8 +701,8 @@ def test_progress_bar_only_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> Non
     import gapforge.cli.sweep_cmd as sweep_cmd
 
     monkeypatch.setattr(sweep_cmd, "PROGRESS_POINTS", 1)
-    args = ["--clocks", "100MHz,150MHz", "--window", "90ns:300ns", "--target", "split-10bit-div4"]
-    piped = CliRunner().invoke(cli, ["sweep", *args])
+    args = ["--clocks", "100MHz,150MHz", "--window", "90ns:300ns", "--target", "split-10bit-div1-8"]
+    piped = CliRunner().invoke(cli, ["sweep", *stated_tol(args)])
     assert "sweeping" not in piped.stderr
     calls: list[int] = []
     real = sweep_cmd.sweep
@@ -704,7 +714,7 @@ def test_progress_bar_only_on_a_terminal(monkeypatch: pytest.MonkeyPatch) -> Non
 
     monkeypatch.setattr(sweep_cmd, "sweep", counting)
     monkeypatch.setattr(sweep_cmd.sys.stderr, "isatty", lambda: True, raising=False)
-    layouts_ = [load_layout("split-10bit-div4")]
+    layouts_ = [load_layout("split-10bit-div1-8")]
     limits = {e: (90 * NS, 300 * NS) for e in ("to_high", "to_low")}
     sweep_cmd._run(layouts_, (100 * MHZ, 150 * MHZ), Fraction(0), limits, "loss", None, True)
     assert calls == [1]

@@ -43,8 +43,8 @@ int main(void) {
     expect((uint64_t)SI_AD_WINDOW_TO_LOW_MIN_PS == 0u || within((uint64_t)SI_AD_TO_LOW_STEPS * (uint64_t)SI_AD_DIVIDER, k, (uint64_t)SI_AD_WINDOW_TO_LOW_MIN_PS - 1u, ppb, 1), "SI_AD to_low worst case at or above the window minimum");
     expect((uint64_t)SI_AD_PWM_PERIOD_COUNTS == (uint64_t)SI_AD_PWM_COMPARE_COUNTS * (SI_AD_PWM_COUNTING_CENTER ? 2u : 1u), "SI_AD_PWM_PERIOD_COUNTS is N or 2N");
     expect((uint64_t)SI_AD_PWM_TOP_COUNTS + 1u == (uint64_t)SI_AD_PWM_COMPARE_COUNTS, "SI_AD_PWM_TOP_COUNTS is N - 1");
-    expect(((((uint64_t)78u) + 1u * (uint64_t)SI_AD_SUB_STEPS) / ((uint64_t)(SI_AD_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)SI_AD_SUB_STEPS) + 1u) == (uint64_t)SI_AD_DUTY_MIN_COUNTS, "SI_AD_DUTY_MIN_COUNTS");
-    expect(((uint64_t)SI_AD_PWM_COMPARE_COUNTS - (((uint64_t)78u) + (uint64_t)(SI_AD_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)SI_AD_SUB_STEPS) / ((uint64_t)(SI_AD_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)SI_AD_SUB_STEPS)) == (uint64_t)SI_AD_DUTY_MAX_COUNTS, "SI_AD_DUTY_MAX_COUNTS");
+    expect(((((uint64_t)83u) + 1u * (uint64_t)SI_AD_SUB_STEPS) / ((uint64_t)(SI_AD_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)SI_AD_SUB_STEPS) + 1u) == (uint64_t)SI_AD_DUTY_MIN_COUNTS, "SI_AD_DUTY_MIN_COUNTS");
+    expect(((uint64_t)SI_AD_PWM_COMPARE_COUNTS - (((uint64_t)83u) + (uint64_t)(SI_AD_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)SI_AD_SUB_STEPS) / ((uint64_t)(SI_AD_PWM_COUNTING_CENTER ? 2u : 1u) * (uint64_t)SI_AD_SUB_STEPS)) == (uint64_t)SI_AD_DUTY_MAX_COUNTS, "SI_AD_DUTY_MAX_COUNTS");
     (void)k;
     (void)ppb;
     if (failures == 0) printf("ok\n");

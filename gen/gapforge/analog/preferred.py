@@ -20,8 +20,8 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 
 from gapforge.analog.network import PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
+from gapforge.base.display import format_range, format_si
 from gapforge.base.errors import GapforgeError
-from gapforge.base.quantities import format_quantity
 
 # Mantissas in units of 0.1 (E6, E12, E24) and 0.01 (E48, E96, E192).
 E6: tuple[int, ...] = (10, 15, 22, 33, 47, 68)
@@ -135,11 +135,11 @@ def _unsafe_reasons(
     for key in PAIR_KEYS:
         low = ranges[key].min_s  # rounded down: the safe side of a minimum
         if low <= 0:
-            reasons.append(f"{key} worst-case minimum {format_quantity(low, 's')} is not "
-                           "positive (both outputs on together)")
+            reasons.append(f"{key} worst-case minimum {format_si(low, 's', toward='down')} is "
+                           "not positive (both outputs on together)")
         elif min_dead_s is not None and low < min_dead_s:
-            reasons.append(f"{key} worst-case minimum {format_quantity(low, 's')} is below the "
-                           f"minimum dead time {format_quantity(min_dead_s, 's')}")
+            reasons.append(f"{key} worst-case minimum {format_si(low, 's', toward='down')} is "
+                           f"below the minimum dead time {format_si(min_dead_s, 's')}")
     return tuple(reasons)
 
 
@@ -156,6 +156,43 @@ def _make(
     worst = max(target - lo, hi - target) / target
     return Suggestion(r, c, typ, typ / target - 1.0, ranges, worst,
                       _unsafe_reasons(ranges, min_dead_s))
+
+
+def _candidates(
+    net: ReferenceNetwork,
+    targets: list[float],
+    key: str,
+    r_series: str,
+    c_series: str,
+    r_limits: tuple[Fraction, Fraction],
+    c_limits: tuple[Fraction, Fraction],
+) -> dict[tuple[Fraction, Fraction], None]:
+    """For each capacitor of the series and each target typical dead time, the series resistors
+    either side of the one that gives it (a secant step: the typical dead time is close to affine
+    in R). Raises when no pair within the series limits reaches any target."""
+    from gapforge.analog.tolerance import typical_for_parts
+
+    caps = series_values(c_series, *c_limits)
+    r1, r2 = Fraction(1000), Fraction(100000)
+    t1 = typical_for_parts(net, [(r1, c) for c in caps])[key]
+    t2 = typical_for_parts(net, [(r2, c) for c in caps])[key]
+    candidates: dict[tuple[Fraction, Fraction], None] = {}
+    for target in targets:
+        for c, a, b in zip(caps, t1, t2, strict=True):
+            if not b > a:
+                continue
+            r_est = float(r1) + (target - float(a)) * float(r2 - r1) / float(b - a)
+            if not float(r_limits[0]) / 2 <= r_est <= float(r_limits[1]) * 2:
+                continue
+            for r in nearest(r_series, Fraction(r_est).limit_denominator(10**6)):
+                if r_limits[0] <= r <= r_limits[1]:
+                    candidates[(r, c)] = None
+    if not candidates:
+        raise GapforgeError(
+            "no resistor/capacitor pair within the series limits reaches that dead time",
+            "--suggest",
+        )
+    return candidates
 
 
 def suggest(
@@ -185,7 +222,7 @@ def suggest(
     against a seeded Monte Carlo); a pair the check widens into unsafe is rejected too.
     """
     from gapforge.analog.corners import REFERENCE_CHECK_SAMPLES
-    from gapforge.analog.tolerance import corner_extremes_for_parts, typical_for_parts, worst_case
+    from gapforge.analog.tolerance import corner_extremes_for_parts, worst_case
 
     if key not in PAIR_KEYS:
         raise GapforgeError(f"unknown dead time {key!r}", "--suggest")
@@ -199,25 +236,7 @@ def suggest(
             raise GapforgeError(f"unknown series {name!r}", where)
     net = series_tolerances(net, r_series, c_series)
     target = float(target_s)
-    caps = series_values(c_series, *c_limits)
-    r1, r2 = Fraction(1000), Fraction(100000)
-    t1 = typical_for_parts(net, [(r1, c) for c in caps])[key]
-    t2 = typical_for_parts(net, [(r2, c) for c in caps])[key]
-    candidates: dict[tuple[Fraction, Fraction], None] = {}
-    for c, a, b in zip(caps, t1, t2, strict=True):
-        if not b > a:
-            continue
-        r_est = float(r1) + (target - float(a)) * float(r2 - r1) / float(b - a)
-        if not float(r_limits[0]) / 2 <= r_est <= float(r_limits[1]) * 2:
-            continue
-        for r in nearest(r_series, Fraction(r_est).limit_denominator(10**6)):
-            if r_limits[0] <= r <= r_limits[1]:
-                candidates[(r, c)] = None
-    if not candidates:
-        raise GapforgeError(
-            "no resistor/capacitor pair within the series limits reaches that dead time",
-            "--suggest",
-        )
+    candidates = _candidates(net, [target], key, r_series, c_series, r_limits, c_limits)
     parts = list(candidates)
     extremes = corner_extremes_for_parts(net, parts)
     made = [_make(r, c, ext, key, target, min_dead_s)
@@ -243,3 +262,83 @@ def suggest(
     # the rejected closest to the target first: the ones a typical ranking would have offered
     rejected.sort(key=lambda s: (abs(s.error), s.c))
     return Suggestions(tuple(chosen), tuple(rejected), len(parts), rank)
+
+
+# Typical dead times tried across a window when looking for pairs whose worst case fits in it:
+# the window cut into this many equal parts, each inner point a target (a worst-case range
+# spreads around its typical value, so the pairs that fit have typical values inside).
+WINDOW_TARGETS = 8
+
+
+def _window_unsafe(s: Suggestion, key: str, low: Fraction, high: Fraction) -> Suggestion:
+    """The suggestion, with its wanted dead time's worst-case range outside the window named."""
+    rng = s.ranges[key]
+    if rng.min_s >= low and rng.max_s <= high:
+        return s
+    why = (f"{key} worst-case range {format_range(rng.min_s, rng.max_s, 's', cut='outward')} "
+           f"is not inside {format_range(low, high, 's', cut='inward')}")
+    return replace(s, unsafe=(*s.unsafe, why))
+
+
+def suggest_window(
+    net: ReferenceNetwork,
+    low_s: Fraction,
+    high_s: Fraction,
+    *,
+    key: str = "to_high",
+    r_series: str = "E96",
+    c_series: str = "E12",
+    r_limits: tuple[Fraction, Fraction] = (Fraction(100), Fraction(10**6)),
+    c_limits: tuple[Fraction, Fraction] = (Fraction(10, 10**12), Fraction(100, 10**9)),
+    count: int = 6,
+    min_dead_s: Fraction | None = None,
+) -> Suggestions:
+    """Preferred R/C pairs whose worst-case range of the wanted dead time lies inside
+    low_s .. high_s (and whose other dead time is positive and at least `min_dead_s`), best
+    centred first: the range's middle nearest the window's middle, then the larger margin on
+    its tighter side. Each proposed pair is confirmed like `suggest`'s (corners against a
+    seeded Monte Carlo); a pair the check widens out of the window is rejected too.
+    """
+    from gapforge.analog.corners import REFERENCE_CHECK_SAMPLES
+    from gapforge.analog.tolerance import corner_extremes_for_parts, worst_case
+
+    if key not in PAIR_KEYS:
+        raise GapforgeError(f"unknown dead time {key!r}", "--suggest")
+    if not 0 < low_s < high_s:
+        raise GapforgeError("the window must be MIN:MAX with 0 < MIN < MAX (e.g. 114ns:300ns)",
+                            "--suggest")
+    for name, where in ((r_series, "--series"), (c_series, "--c-series")):
+        if name not in SERIES:
+            raise GapforgeError(f"unknown series {name!r}", where)
+    net = series_tolerances(net, r_series, c_series)
+    lo, hi = float(low_s), float(high_s)
+    middle = (lo + hi) / 2
+    targets = [lo + (hi - lo) * k / WINDOW_TARGETS for k in range(1, WINDOW_TARGETS)]
+    parts = list(_candidates(net, targets, key, r_series, c_series, r_limits, c_limits))
+    extremes = corner_extremes_for_parts(net, parts)
+
+    def judged(r: Fraction, c: Fraction, ext: Mapping[str, tuple[float, float, float]]
+               ) -> Suggestion:
+        return _window_unsafe(_make(r, c, ext, key, middle, min_dead_s), key, low_s, high_s)
+
+    def order(s: Suggestion) -> tuple[float, float, Fraction]:
+        rng = s.ranges[key]
+        centre = abs((float(rng.min_s) + float(rng.max_s)) / 2 - middle) / middle
+        room = min(float(rng.min_s) - lo, hi - float(rng.max_s))
+        return (centre, -room, s.c)
+
+    made = sorted((judged(r, c, ext) for (r, c), ext in zip(parts, extremes, strict=True)),
+                  key=order)
+    chosen: list[Suggestion] = []
+    rejected: list[Suggestion] = []
+    for s in made:
+        if not s.safe:
+            rejected.append(s)
+        elif len(chosen) < count:
+            checked = worst_case(replace(net, r=s.r, c=s.c),
+                                 check_samples=REFERENCE_CHECK_SAMPLES)
+            confirmed = judged(s.r, s.c, checked.floats)
+            (chosen if confirmed.safe else rejected).append(confirmed)
+    chosen.sort(key=order)
+    rejected.sort(key=order)
+    return Suggestions(tuple(chosen), tuple(rejected), len(parts), "centred")

@@ -7,7 +7,12 @@ Rules (issue 10):
   (`format_many([400e-9, 1.2e-6], "s")` -> ["400 ns", "1200 ns"], not "400 ns" beside "1.2 us");
 - a signed difference is said in words: "100 ns below the minimum", never "-100 ns above";
 - counts agree with their number: "1 clock", "2 clocks", "1 sub-step";
-- a share that is not exactly 0 % or 100 % is never shown as one (99.9996 % stays 99.9996 %).
+- a share shows four significant digits and at most three decimals; one that is not exactly
+  0 % or 100 % is never shown as one ("< 0.001 %", "> 99.99 %");
+- every quantity can be pasted back as input: times, capacitances and charges never take a
+  prefix above the base unit (the parser refuses "100 Gs" as a likely typo), so a long time is
+  "100000000000 s";
+- a register word is "0x" and lower-case hex digits, zero-padded to the register's width.
 
 A value that bounds safety may be cut toward its safe side with `toward="down"` (a guaranteed
 minimum) or `toward="up"` (a maximum); the cut is done exactly on Fractions. Everything else rounds
@@ -22,6 +27,9 @@ from decimal import ROUND_CEILING, ROUND_FLOOR, ROUND_HALF_EVEN, Context, Decima
 from fractions import Fraction
 
 DIGITS = 4
+# The smallest share a percentage shows (0.001 %); a smaller non-zero share is "< 0.001 %".
+PERCENT_FLOOR = Fraction(1, 1000)
+PERCENT_FLOOR_TEXT = "0.001"
 
 VERDICT_OK = "ok"
 VERDICT_FAIL = "fail"
@@ -33,6 +41,10 @@ def verdict_word(detail: str) -> str:
     """The one verdict word for a detailed outcome: "ok" stays, "inconclusive" stays, any
     other ("too-short", "too-long", "empty-window", "unreachable", ...) is "fail"."""
     return detail if detail in (VERDICT_OK, VERDICT_INCONCLUSIVE) else VERDICT_FAIL
+
+# Units whose quantities the parser refuses with a prefix above the base unit (mega and above:
+# gapforge.base.quantities BARE_REFUSED): shown in the base unit at most, so they paste back.
+BASE_UNIT_CAP = ("s", "F", "C")
 
 _PREFIX = {-15: "f", -12: "p", -9: "n", -6: "u", -3: "m", 0: "", 3: "k", 6: "M", 9: "G", 12: "T"}
 _ROUNDING = {"nearest": ROUND_HALF_EVEN, "down": ROUND_FLOOR, "up": ROUND_CEILING}
@@ -124,12 +136,15 @@ def format_si(
         return f"0 {_PREFIX[exp3]}{unit}".strip()
     if exponent is None:
         exp3 = choose_exponent([value])
+        if unit in BASE_UNIT_CAP:
+            exp3 = min(exp3, 0)
         # rounding may reach 1000 (999.96 ns -> 1000 ns): step the prefix up
         scaled = Fraction(value) / Fraction(10) ** exp3
-        if abs(Decimal(significant(scaled, digits, toward=toward))) >= 1000 and exp3 < 12:
+        if (abs(Decimal(significant(scaled, digits, toward=toward))) >= 1000 and exp3 < 12
+                and not (unit in BASE_UNIT_CAP and exp3 >= 0)):
             exp3 += 3
     else:
-        exp3 = exponent
+        exp3 = min(exponent, 0) if unit in BASE_UNIT_CAP else exponent
     scaled = Fraction(value) / Fraction(10) ** exp3
     # with a forced prefix, never round away below the last digit a 4-digit number would keep
     text = significant(scaled, digits, toward=toward, min_exp=-digits - 2 if exponent else None)
@@ -166,6 +181,11 @@ def format_range(
     return f"{lo} .. {hi}"
 
 
+def format_register(value: int, bits: int) -> str:
+    """A register word the one way everywhere: "0x000308c2" (lower case, padded to the width)."""
+    return f"0x{value:0{max(1, (bits + 3) // 4)}x}"
+
+
 def format_offset(delta: Number, unit: str, reference: str, *, digits: int = DIGITS) -> str:
     """A signed difference in words: (-100e-9, "s", "the minimum") -> "100 ns below the minimum"."""
     if delta == 0:
@@ -181,18 +201,24 @@ def count(n: int, singular: str, plural: str | None = None) -> str:
 
 
 def format_percent(share: Number, *, digits: int = DIGITS) -> str:
-    """A share of one as a percentage; never rounds onto 0 % or 100 % unless exactly there.
+    """A share of one as a percentage: four significant digits and at most three decimals
+    (0.001 % resolution), never rounded onto 0 % or 100 % unless exactly there.
 
-    0.999996 -> "99.9996 %" (four digits would say 100 %, which hides the lost duty).
+    0.42 % stays "0.42 %"; 0.0000002944 % is "< 0.001 %" (a share nobody can use to more
+    digits); 0.999996 is "> 99.99 %" (four digits would say 100 %, which hides the lost duty).
     """
     pct = Fraction(share) * 100 if not isinstance(share, float) else Fraction(repr(share)) * 100
     if pct in (0, 100):
         return f"{int(pct)} %"
-    for extra in range(0, 12):
-        text = significant(pct, digits + extra)
-        if Decimal(text) not in (Decimal(0), Decimal(100)):
-            return f"{text} %"
-    return f"{significant(pct, digits + 12)} %"
+    sign = "-" if pct < 0 else ""
+    mag = abs(pct)
+    if mag < PERCENT_FLOOR:
+        return f"> -{PERCENT_FLOOR_TEXT} %" if sign else f"< {PERCENT_FLOOR_TEXT} %"
+    text = significant(mag, digits, min_exp=-3)
+    if not sign and Decimal(text) == 100:
+        # below 100 %: cut down to the last digit shown, and say it is below
+        return f"> {significant(mag, digits, toward='down')} %"
+    return f"{sign}{text} %"
 
 
 def both_edges(per_edge: dict[str, str]) -> list[str]:

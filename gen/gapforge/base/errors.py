@@ -29,7 +29,7 @@ def quoted(value: object, limit: int = QUOTE_LIMIT) -> str:
     return f"{text[: limit - 3]}... ({total} characters)"
 
 
-def _cap(text: str, limit: int) -> str:
+def cap(text: str, limit: int = MESSAGE_LIMIT) -> str:
     if len(text) <= limit:
         return text
     keep = limit - 30
@@ -39,18 +39,21 @@ def _cap(text: str, limit: int) -> str:
 class GapforgeError(Exception):
     """A user mistake: bad input, bad file, bad option. Printed as one line, exit code 2."""
 
-    def __init__(self, message: str, where: str | None = None) -> None:
+    def __init__(self, message: str, where: str | None = None, *,
+                 limit: int = MESSAGE_LIMIT) -> None:
         self.message = message
         self.where = where
+        self.limit = limit  # a list of a file's problems may be longer (each capped itself)
         super().__init__(self.line())
 
     def line(self) -> str:
-        text = _cap(" ".join(self.message.split()), MESSAGE_LIMIT)
+        text = cap(" ".join(self.message.split()), self.limit)
         if not self.where:
             return text
-        return f"{_cap(' '.join(self.where.split()), WHERE_LIMIT)}: {text}"
+        return f"{cap(' '.join(self.where.split()), WHERE_LIMIT)}: {text}"
 
     def at(self, where: str) -> GapforgeError:
         """The same error, located under an outer location (file name, option)."""
         inner = self.where
-        return GapforgeError(self.message, f"{where}: {inner}" if inner else where)
+        return GapforgeError(self.message, f"{where}: {inner}" if inner else where,
+                             limit=self.limit)

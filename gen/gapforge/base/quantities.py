@@ -251,18 +251,22 @@ def _trim(x: float, digits: int) -> str:
     return text
 
 
-def format_quantity(value: Fraction | float | int, unit: str, digits: int = 5) -> str:
-    """Engineering notation for display: 6.25e-9 -> '6.25 ns'. Never used for a safety limit."""
+def format_quantity(value: Fraction | float | int, unit: str, digits: int = 4) -> str:
+    """Engineering notation for display: 6.25e-9 -> '6.25 ns'. Never used for a safety limit.
+
+    Four significant digits by default (the one display rule, gapforge.base.display); times,
+    capacitances and charges never take a prefix above the base unit, so the text parses back.
+    """
     x = float(value)
     if not math.isfinite(x):
         return f"{x} {unit}".strip()
     if x == 0:
         return f"0 {unit}".strip()
     exp3 = int(math.floor(math.log10(abs(x)) / 3) * 3)
-    exp3 = max(-15, min(12, exp3))
+    exp3 = max(-15, min(0 if unit in BARE_REFUSED else 12, exp3))
     scaled = x / 10.0**exp3
     # rounding may push 999.995 to 1000: step the prefix up
-    if abs(float(f"{scaled:.{digits}g}")) >= 1000 and exp3 < 12:
+    if abs(float(f"{scaled:.{digits}g}")) >= 1000 and exp3 < (0 if unit in BARE_REFUSED else 12):
         exp3 += 3
         scaled = x / 10.0**exp3
     prefix = dict(_OUT_PREFIXES)[exp3]

@@ -9,13 +9,14 @@ how many more there are. tomllib reports line numbers only for syntax errors; th
 from __future__ import annotations
 
 import difflib
+import re
 import tomllib
 from collections.abc import Iterator
 from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
-from gapforge.base.errors import GapforgeError, quoted
+from gapforge.base.errors import GapforgeError, cap, quoted
 from gapforge.base.quantities import parse_quantity, parse_tolerance
 
 # Designs and layouts are a few kilobytes; the cap keeps a hostile file from costing seconds (the
@@ -75,6 +76,12 @@ def _read_regular(path: Path, limit: int) -> bytes:
     return raw
 
 
+# Problems of one file listed in its error line (at most this many, and within LISTED_CHARS
+# characters so the line stays readable); the rest are counted.
+MAX_LISTED = 10
+LISTED_CHARS = 500
+
+
 class Reader:
     """Collects problems found while reading one file."""
 
@@ -86,13 +93,39 @@ class Reader:
         self.problems.append((path, message))
 
     def finish(self) -> None:
+        """Raise one error naming every problem of the file (up to MAX_LISTED, each with its
+        key path and hint), on one line: "f.toml: 2 problems: a.b: ...; c: ..."."""
         if not self.problems:
             return
-        path, message = self.problems[0]
-        more = len(self.problems) - 1
-        tail = f" (and {more} more problem{'s' if more > 1 else ''})" if more else ""
-        where = f"{self.source}: {path}" if path else self.source
-        raise GapforgeError(message + tail, where)
+        # a key reported missing that a misspelt key's "did you mean" already names is the same
+        # mistake: said once
+        meant = {f"{path.rpartition('.')[0]}.{m.group(1)}".lstrip(".")
+                 for path, message in self.problems
+                 if (m := re.search(r"did you mean '([^']+)'", message))}
+        problems = [(path, message) for path, message in self.problems
+                    if not (path in meant and message.startswith("required"))] or self.problems
+        if len(problems) == 1:
+            path, message = problems[0]
+            raise GapforgeError(message, f"{self.source}: {path}" if path else self.source)
+        listed: list[str] = []
+        shown: set[str] = set()
+        used = 0
+        for path, message in problems[:MAX_LISTED]:
+            # a list of allowed keys is said once, at its first problem
+            allowed = re.search(r" \(expected one of: [^)]*\)", message)
+            if allowed:
+                if allowed.group(0) in shown:
+                    message = message.replace(allowed.group(0), "")
+                shown.add(allowed.group(0))
+            item = cap(f"{path}: {message}" if path else message, 300)
+            if listed and used + len(item) > LISTED_CHARS:
+                break  # the line stays readable: the rest are counted
+            listed.append(item)
+            used += len(item) + 2
+        more = len(problems) - len(listed)
+        tail = f"; and {more} more problem{'s' if more > 1 else ''}" if more else ""
+        raise GapforgeError(f"{len(problems)} problems: " + "; ".join(listed) + tail,
+                            self.source, limit=LISTED_CHARS + 60)
 
     def table(self, data: Any, path: str) -> Table:
         if not isinstance(data, dict):

@@ -75,7 +75,9 @@ def main(argv: list[str] | None = None) -> Any:
         sys.exit(exc.exit_code)
     except click.UsageError as exc:
         where = exc.ctx.command_path if exc.ctx is not None else "gapforge"
-        _fail(f"{where}: {exc.format_message()}", exc.exit_code)
+        # "gapforge: error: gapforge: ..." says the program's name twice: name a subcommand only
+        prefix = "" if where == "gapforge" else f"{where}: "
+        _fail(f"{prefix}{exc.format_message()}", exc.exit_code)
     except click.ClickException as exc:
         _fail(exc.format_message(), exc.exit_code)
     except click.Abort:

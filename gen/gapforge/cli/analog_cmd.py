@@ -31,6 +31,7 @@ from gapforge.analog.parameters import LEVEL_PRESETS, PARAMETERS, network_from_o
 from gapforge.analog.preferred import RANKINGS, SERIES_NAMES
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_quantity, parse_quantity, parse_tolerance
+from gapforge.cli.analog_suggest import suggest_arg, suggest_step
 from gapforge.cli.analog_text import render_text
 from gapforge.cli.options import json_option
 
@@ -87,7 +88,9 @@ def _network_options(f: F) -> F:
               help="Smallest acceptable dead time: report the share of samples below it; exit 1 "
               "when the worst case falls below it.")
 @click.option("--suggest", "suggest_t", default=None,
-              help="Propose preferred-value R/C pairs for this typical dead time.")
+              help="MIN:MAX (e.g. 114ns:300ns): list the preferred-value R/C pairs whose "
+              "worst-case range of the dead time lies inside that window, best centred first. "
+              "A single time: pairs near that typical dead time.")
 @click.option("--suggest-for", type=click.Choice(list(PAIR_KEYS)), default="to_high",
               show_default=True, help="Which dead time --suggest aims at.")
 @click.option("--suggest-rank", type=click.Choice(list(RANKINGS)), default="worst-case",
@@ -159,7 +162,7 @@ def _run(
     below = parse_quantity(min_dead, "s", "--min-dead") if min_dead is not None else None
     warn_share = parse_tolerance(leakage_warn, "--leakage-warn")
     model_share = parse_tolerance(model_warn, "--model-warn")
-    target = parse_quantity(suggest_t, "s", "--suggest") if suggest_t is not None else None
+    target, window = suggest_arg(suggest_t)
     with _progress_bar(samples) as progress:
         report = analyse(
             net,
@@ -173,6 +176,7 @@ def _run(
             warn_share=warn_share,
             model_share=model_share,
             target=target,
+            window=window,
             suggest_for=suggest_for,
             suggest_rank=suggest_rank,
             r_series=series,
@@ -250,6 +254,7 @@ class _Options:
     warn_share: Fraction = DEFAULT_LEAKAGE_SHARE
     model_share: Fraction = Fraction(1, 10)
     target: Fraction | None = None
+    window: tuple[Fraction, Fraction] | None = None
     suggest_for: str = "to_high"
     suggest_rank: str = "worst-case"
     r_series: str = "E96"
@@ -288,10 +293,14 @@ def analyse(net: ReferenceNetwork, **options: Any) -> dict[str, Any]:
         out.data["simulation"] = _simulation(net, opts.warn_share, float(opts.model_share),
                                              out.data["edges"], out.warnings, leakage_warned)
         out.limit_violated = out.limit_violated or out.data["simulation"]["leakage_warning"]
-    if opts.target is not None:
-        _suggest_step(net, opts, out)
+    if opts.target is not None or opts.window is not None:
+        suggest_step(net, opts, out)
     out.data["warnings"] = out.warnings
     out.data["limit_violated"] = out.limit_violated
+    # the one vocabulary (README): a violated limit (overlap, --min-dead, hot leakage, no pair
+    # for --suggest) is "fail"
+    out.data["verdict"] = "fail" if out.limit_violated else "ok"
+    out.data["min_dead_s"] = float(opts.below) if opts.below is not None else None
     return out.data
 
 
@@ -322,7 +331,8 @@ def _edges_step(net: ReferenceNetwork, wc: Any, out: _Report) -> None:
     out.data.update({
         "caution": CAUTION,
         "parameters": {
-            name: {"value": text, "default": is_default, "source": source}
+            name: {"value": text, "default": is_default,
+                   "source": source if is_default else "given"}
             for name, text, is_default, source in describe_parameters(net)
         },
         "edges": edges,
@@ -358,6 +368,8 @@ def _pair_step(net: ReferenceNetwork, wc: Any, opts: _Options, out: _Report) -> 
                 f"--min-dead {format_quantity(opts.below, 's')}"
             )
     out.data["can_overlap"] = any(wc.pair[k].min_s <= 0 for k in PAIR_KEYS)
+    out.data["below_min_dead"] = [k for k in PAIR_KEYS
+                                  if opts.below is not None and wc.pair[k].min_s < opts.below]
 
 
 def _findings_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> bool:
@@ -461,49 +473,6 @@ def _monte_carlo_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> No
             }
             for key, s in mc.stats.items()
         },
-    }
-
-
-def _suggest_step(net: ReferenceNetwork, opts: _Options, out: _Report) -> None:
-    """Preferred R/C pairs for the wanted dead time; none safe is a violated limit."""
-    from gapforge.analog.preferred import suggest
-
-    assert opts.target is not None
-    found = suggest(net, opts.target, key=opts.suggest_for, r_series=opts.r_series,
-                    c_series=opts.c_series, rank=opts.suggest_rank, min_dead_s=opts.below)
-    out.data["suggestions"] = {
-        "target_s": float(opts.target),
-        "dead_time": opts.suggest_for,
-        "r_series": opts.r_series,
-        "c_series": opts.c_series,
-        "rank": found.rank,
-        "min_dead_s": float(opts.below) if opts.below is not None else None,
-        "candidates": found.candidates,
-        "pairs": [_suggestion(s) for s in found.pairs],
-        "rejected": [_suggestion(s) for s in found.rejected],
-    }
-    if not found.pairs:
-        out.limit_violated = True
-        out.warnings.append(
-            f"--suggest: none of the {found.candidates} preferred pairs near "
-            f"{format_quantity(opts.target, 's')} is safe over the tolerances (every one's "
-            "worst-case dead time is not positive"
-            + (" or below --min-dead" if opts.below is not None else "") + ")"
-        )
-
-
-def _suggestion(s: Any) -> dict[str, Any]:
-    """One preferred pair as JSON (a preferred.Suggestion)."""
-    return {
-        "r_ohm": float(s.r),
-        "c_f": float(s.c),
-        "typ_s": s.typ_s,
-        "error": s.error,
-        "worst_error": s.worst_error,
-        "safe": s.safe,
-        "unsafe": list(s.unsafe),
-        **{k: {"min_s": float(v.min_s), "typ_s": float(v.typ_s), "max_s": float(v.max_s)}
-           for k, v in s.ranges.items()},
     }
 
 

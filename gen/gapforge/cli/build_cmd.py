@@ -75,12 +75,14 @@ def command(
     """
     plan = plan_design(load_design(design))
     problems = _strict_problems(plan) if strict else []
-    ok = plan.verdict == "ok" and not problems
+    # an inconclusive design (no [stage]: not judged) is written as asked, and exits 1
+    ok = plan.verdict in ("ok", "inconclusive") and not problems
     texts = _texts(plan, design, out_dir, self_test, record) if ok else {}
     if depfile is not None and texts:
         from gapforge.outputs.depfile import depfile_text
 
         texts[depfile] = depfile_text(plan, sorted(texts))
+    done = 0 if plan.verdict == "ok" else 1
     if check:
         _check(plan, texts, ok, problems, details, no_diagram, ascii_only, as_json)
         return
@@ -97,7 +99,7 @@ def command(
         doc["files"] = {"written": [str(p) for p in outcome.written],
                         "unchanged": [str(p) for p in outcome.unchanged]}
         emit_json(doc)
-        return
+        sys.exit(done)
     _report(plan, problems, no_diagram, ascii_only)
     if not ok:
         click.echo("nothing written: fix the verdict above first", err=True)
@@ -109,6 +111,7 @@ def command(
     for p in outcome.unchanged:
         click.echo(f"unchanged {p}")
     click.echo(CAUTION)
+    sys.exit(done)
 
 
 def _strict_problems(plan: BuildPlan) -> list[str]:
@@ -185,6 +188,8 @@ def _check(
     """Compare without writing; the verdict is ok only when every file is present and current."""
     outcome = compare(texts)
     verdict = "ok" if ok and not outcome.missing and not outcome.stale else "fail"
+    if verdict == "ok" and plan.verdict == "inconclusive":
+        verdict = "inconclusive"  # current files, but nobody judged the dead time (issue 19)
     lists = {"missing": outcome.missing, "stale": outcome.stale, "unchanged": outcome.unchanged}
     if as_json:
         from gapforge.outputs.views import plan_json
@@ -197,7 +202,8 @@ def _check(
     else:
         counts = ", ".join(f"{len(v)} {k}" for k, v in lists.items())
         if ok:
-            click.echo(f"check {verdict}: {counts}")
+            why = f" ({plan.reasons[0]})" if plan.verdict == "inconclusive" else ""
+            click.echo(f"check {verdict}{why}: {counts}")
         else:
             from gapforge.outputs.answer import plan_answer
 

@@ -10,7 +10,15 @@ import click
 from gapforge.base.caution import SHORT as CAUTION
 from gapforge.base.display import verdict_word
 from gapforge.base.errors import GapforgeError
-from gapforge.cli.options import Quantity, clock_options, diagram_options, emit_json, json_option
+from gapforge.cli.options import (
+    Quantity,
+    clock_options,
+    diagram_options,
+    emit_json,
+    json_option,
+    require_clock_tol,
+    warn_renamed,
+)
 from gapforge.outputs.views import fit_json, fit_text
 from gapforge.timer.fit import ROUNDINGS, FitRequest, fit
 from gapforge.timer.layouts import load_layout
@@ -70,7 +78,7 @@ from gapforge.timer.limits import COUNTINGS, PwmSpec, compare_counts, pwm_limits
 @json_option
 def command(
     clock: Fraction,
-    clock_tol: Fraction,
+    clock_tol: Fraction | None,
     dead_time: Fraction | None,
     to_high: Fraction | None,
     to_low: Fraction | None,
@@ -85,6 +93,7 @@ def command(
     as_json: bool,
 ) -> None:
     """Fit a requested dead time onto one target layout's codes, exactly."""
+    tol = require_clock_tol(clock_tol)
     high = to_high if to_high is not None else dead_time
     low = to_low if to_low is not None else dead_time
     if high is None or low is None:
@@ -93,6 +102,7 @@ def command(
         layout = load_layout(target)
     except GapforgeError as exc:
         raise exc.at("--target") if exc.where is None else exc from None
+    warn_renamed(target)
     if divider_code is not None and not 0 <= divider_code < len(layout.dividers):
         raise GapforgeError(
             f"divider code {divider_code} is not one of 0..{len(layout.dividers) - 1} "
@@ -108,24 +118,20 @@ def command(
             compare_counts(clock, spec)
         except GapforgeError as exc:
             raise exc.at("--pwm") from None
-    result = fit(layout, FitRequest(clock, clock_tol, high, low, rounding), divider_code)
+    result = fit(layout, FitRequest(clock, tol, high, low, rounding), divider_code)
     limits = pwm_limits(result, spec) if spec is not None and result.ok else None
-    verdict = (
-        result.verdict
-        if limits is None
-        else (result.verdict if result.verdict != "ok" else limits.verdict)
-    )
+    from gapforge.outputs.answer import fit_answer, fit_verdict
+
+    verdict, reason = fit_verdict(result, limits)
     if as_json:
         doc = fit_json(result, limits)
         doc["verdict"] = verdict_word(verdict)
-        doc["reason"] = "" if verdict == "ok" else verdict
+        doc["reason"] = reason
         emit_json(doc)
     else:
-        from gapforge.outputs.answer import fit_answer
-
-        click.echo(fit_answer(result, verdict))  # the answer first (issue 10)
+        click.echo(fit_answer(result, verdict, reason))  # the answer first (issue 10)
         click.echo("")
-        click.echo(fit_text(result, limits))
+        click.echo(fit_text(result, limits, verdict_word(verdict)))
         if not no_diagram and result.ok:
             from gapforge.outputs.diagram import pair_diagram_for_fit
 

@@ -11,6 +11,7 @@ import click
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import parse_quantity
+from gapforge.cli.measure_scope import logic_capture, run_scope, scope_options, wants_scope
 from gapforge.cli.measure_text import measurement_diagram, measurement_json, measurement_text
 from gapforge.cli.options import Quantity, diagram_options, emit_json, json_option
 
@@ -78,7 +79,7 @@ def _current(text: str | None) -> Fraction | None:
 
 
 @click.command()
-@click.argument("capture", required=False, type=click.Path(path_type=Path, dir_okay=False))
+@click.argument("captures", nargs=-1, type=click.Path(path_type=Path, dir_okay=False))
 @click.option("--high", default=None, help="High-side gate signal: hierarchical name (top.gate_h, "
               "top.bus[3]) or CSV column.")
 @click.option("--low", default=None, help="Low-side gate signal, named like --high.")
@@ -123,15 +124,18 @@ def _current(text: str | None) -> Fraction | None:
               help="Stop the stream when no data arrives for this long.")
 @diagram_options
 @json_option
-def command(capture: Path | None, high: str | None, low: str | None, active_low_high: bool,
+@scope_options  # issue 21: analog (volts) captures, cli/measure_scope.py
+def command(captures: tuple[Path, ...], high: str | None, low: str | None, active_low_high: bool,
             active_low_low: bool, design: Path | None, output_name: str | None,
             current_text: str | None, window: str | None, glitch: Fraction,
             resolution: Fraction | None, timescale_text: str | None, percentiles: str,
             bins: int, worst: int,
             serial_url: str | None, baud: int, max_transitions: int | None,
             duration: Fraction | None, idle_timeout: Fraction,
-            no_diagram: bool, ascii_only: bool, as_json: bool) -> None:
+            no_diagram: bool, ascii_only: bool, as_json: bool, **scope: Any) -> None:
     """Measure every dead time in a capture (VCD or gapforge CSV) or a live serial stream.
+
+    Oscilloscope exports in volts need --threshold (README, "Oscilloscope captures").
 
     Exit 1 on any overlap (both gates on), any possible overlap (one gate x/z while the other
     is on or unknown), or any gap not proven inside the window with the capture's resolution
@@ -142,6 +146,14 @@ def command(capture: Path | None, high: str | None, low: str | None, active_low_
     from gapforge.bench.measure import measure_capture
 
     pcts = _percentiles(percentiles)
+    if serial_url is None and captures and wants_scope(captures, scope):  # issue 21: volts
+        current = _current(current_text)
+        run_scope(captures, high, low, scope, design=design, current=current,
+                  limits=build_limits(window, design, output_name, current), glitch=glitch,
+                  percentiles=pcts, bins=bins, worst=worst, resolution=resolution,
+                  flags=(timescale_text is not None, as_json, no_diagram, ascii_only,
+                         active_low_high or active_low_low))
+    capture = logic_capture(captures, scope)
     timescale = None
     if timescale_text is not None:
         from gapforge.bench.vcd_header import parse_timescale

@@ -35,6 +35,15 @@ def _gap(text: str, value: Fraction | None) -> str:
     return text
 
 
+# what an ok without a window (or design) proves: the capture showed no overlap, nothing more
+NOT_JUDGED = "no overlap seen; no window given, so the dead time itself was not judged"
+
+
+def judged(m: Measurement) -> str:
+    """What the verdict judged (JSON `judged`): the overlaps only, or the window as well."""
+    return "overlaps and window" if m.window_judged else "overlaps only"
+
+
 def answer_line(m: Measurement) -> str:
     """The verdict and the shortest gap of each edge (one prefix for both)."""
     mins = [m.edge(name).min_s for name in EDGE_NAMES]
@@ -44,8 +53,9 @@ def answer_line(m: Measurement) -> str:
     for name, value in zip(EDGE_NAMES, mins, strict=True):
         text = texts.pop(0) if value is not None else ""
         shown.append(f"{name} {_gap(text, value)}")
-    verdict = m.verdict if m.window_judged or m.verdict != "ok" else "ok (no window given: overlaps only)"
-    head = f"{verdict}: "
+    head = f"{m.verdict}: "
+    if not m.window_judged and m.verdict == "ok":  # issue 19: say what the ok proves
+        head += f"{NOT_JUDGED}; "
     if m.overlaps:
         head += f"{count(len(m.overlaps), 'overlap')} (both gates on); "
     return head + "shortest gap " + ", ".join(shown)
@@ -207,6 +217,7 @@ def measurement_json(m: Measurement, stream: SerialResult | None = None) -> dict
     doc: dict[str, Any] = {
         "verdict": m.verdict,
         "window_judged": m.window_judged,
+        "judged": judged(m),
         "source": m.source,
         "tick_s": float(m.tick_s),
         "resolution_s": float(m.resolution_s),

@@ -50,13 +50,30 @@ def json_option(f: F) -> F:
     return click.option("--json", "as_json", is_flag=True, help="Print JSON instead of text.")(f)
 
 
+# Typical clock tolerances (common practice; see the README's "Required inputs"):
+# a crystal is good to tens of ppm, a trimmed on-chip RC oscillator to 1-2 % (more over
+# temperature). The fastest clock gives the shortest dead time, so it is never assumed.
+CLOCK_TOL_HINT = (
+    "the timer clock's tolerance is required (the fastest clock gives the shortest dead time): "
+    "crystal tens of ppm (e.g. 50ppm), internal RC oscillator 1-2 % (more over temperature); "
+    "give 0ppm only for a clock that is exact"
+)
+
+
+def require_clock_tol(value: Fraction | None, where: str = "--clock-tol") -> Fraction:
+    """The stated clock tolerance, or exit 2 naming typical values (issue 19)."""
+    if value is None:
+        raise GapforgeError(CLOCK_TOL_HINT, where)
+    return value
+
+
 def clock_options(f: F) -> F:
     f = click.option(
         "--clock-tol",
         type=Tolerance(),
-        default="0",
-        show_default=True,
-        help="Timer clock tolerance: '50ppm', '2%'.",
+        default=None,
+        help="Timer clock tolerance, required: '50ppm' (crystal), '2%' (RC oscillator), "
+        "'0ppm' stated for an exact clock.",
     )(f)
     f = click.option(
         "--clock", type=Quantity("Hz"), required=True, help="Timer clock frequency, e.g. 160MHz."
@@ -74,3 +91,12 @@ def diagram_options(f: F) -> F:
 
 def emit_json(doc: Any) -> None:
     click.echo(json.dumps(doc, indent=2, sort_keys=False))
+
+
+def warn_renamed(name: str) -> None:
+    """One line on stderr when a built-in layout is given by its old name (it still loads)."""
+    from gapforge.timer.layouts import rename_warning
+
+    warning = rename_warning(name)
+    if warning is not None:
+        click.echo(f"warning: {warning}", err=True)

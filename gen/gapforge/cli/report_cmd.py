@@ -5,10 +5,12 @@ from __future__ import annotations
 import sys
 from fractions import Fraction
 from pathlib import Path
+from typing import Any
 
 import click
 
 from gapforge.base.errors import GapforgeError
+from gapforge.cli.measure_scope import scope_options
 from gapforge.cli.options import Quantity
 
 
@@ -27,6 +29,7 @@ from gapforge.cli.options import Quantity
               "the first on-edge, glitch or not); an on-pulse glitch fails the capture.")
 @click.option("--parents", is_flag=True,
               help="Create missing folders of --output (without it a missing folder is an error).")
+@scope_options  # issue 21: an oscilloscope export (volts) as the capture
 def command(
     design: Path,
     output: Path,
@@ -37,6 +40,7 @@ def command(
     active_low_low: bool,
     glitch: Fraction,
     parents: bool,
+    **scope: Any,
 ) -> None:
     """Write an HTML design report: timing diagrams, the analog reference's node ramps, the
     quantization staircases, Monte Carlo and capture histograms, tables of inputs, results,
@@ -66,7 +70,14 @@ def command(
                             "--capture")
     plan = plan_design(load_design(design))
     measurement = None
-    if capture is not None:
+    extra: tuple[Any, ...] = ()
+    if capture is not None and capture.is_file() and high is not None and low is not None:
+        from gapforge.cli.measure_scope import report_scope, wants_scope
+
+        if wants_scope((capture,), scope):
+            measurement, extra = report_scope(capture, high, low, scope, capture_limits(plan),
+                                              glitch)
+    if capture is not None and measurement is None:
         if high is None or low is None:
             raise GapforgeError("name both gate signals with --high and --low", "--capture")
         if not capture.is_file():
@@ -78,10 +89,11 @@ def command(
         gate = open_capture(capture, high, low, active_low_high=active_low_high,
                             active_low_low=active_low_low)
         measurement = measure_capture(gate, limits=capture_limits(plan), glitch_width_s=glitch)
-    text = render_report(plan, measurement)
+    text = render_report(plan, measurement, extra)
     written = write_files({output: text}, parents=parents)
     # the answer first: the verdicts in the one vocabulary, then what was written
     click.echo(f"report: design {verdict_word(plan.verdict)}"
+               + (f" ({plan.reasons[0]})" if plan.verdict == "inconclusive" else "")
                + ("" if measurement is None else f", capture {capture_word(measurement.verdict)}")
                + f" - wrote {', '.join(str(p) for p in written)}")
     warnings = design_warnings(plan)

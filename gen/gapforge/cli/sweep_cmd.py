@@ -17,12 +17,19 @@ from gapforge.base.display import (
     choose_exponent,
     count,
     format_range,
+    format_register,
     format_si,
     verdict_word,
 )
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import format_tolerance
-from gapforge.cli.options import Quantity, Tolerance, json_option
+from gapforge.cli.options import (
+    Quantity,
+    Tolerance,
+    json_option,
+    require_clock_tol,
+    warn_renamed,
+)
 from gapforge.cli.window_cmd import (
     CAUTION,
     MIN_FORMULA,
@@ -30,7 +37,8 @@ from gapforge.cli.window_cmd import (
     spec_from_options,
     stage_options,
 )
-from gapforge.stage.window import EDGES, parse_span, stage_window
+from gapforge.stage.stage_reader import parse_span
+from gapforge.stage.window import EDGES, stage_window
 from gapforge.timer.layouts import Layout, builtin_names, load_layout
 from gapforge.timer.limits import COUNTINGS, PwmSpec
 from gapforge.timer.sweep import RANKS, Sweep, SweepRow, limits_of, parse_clocks, sweep
@@ -193,7 +201,7 @@ def _row_cells(rank: int, row: SweepRow, exp3: int) -> list[str]:
     lo = min(e.achieved_min_s for e in row.edges.values())
     hi = max(e.achieved_max_s for e in row.edges.values())
     span = format_range(lo, hi, "s", cut='outward')
-    register = "-" if row.register is None else f"0x{row.register:X}"
+    register = "-" if row.register is None else format_register(row.register, row.register_bits)
     return [
         str(rank),
         row.layout,
@@ -221,7 +229,7 @@ def best_line(result: Sweep) -> str:
     codes = both_edges({edge: f"code {row.edges[edge].code}" for edge in EDGES})
     lo = min(e.achieved_min_s for e in row.edges.values())
     hi = max(e.achieved_max_s for e in row.edges.values())
-    register = "" if row.register is None else f", register 0x{row.register:X}"
+    register = "" if row.register is None else f", register {format_register(row.register, row.register_bits)}"
     return (
         f"sweep: best {row.layout} at {format_si(row.clock_hz, 'Hz')} /{row.divider}, "
         f"{'; '.join(codes)}{register}: worst case {format_range(lo, hi, 's', cut='outward')}"
@@ -353,7 +361,8 @@ def _pwm_spec(values: dict[str, Any], design_pwm: PwmSpec | None) -> PwmSpec | N
     "--clock-tol",
     type=Tolerance(),
     default=None,
-    help="Timer clock tolerance: '50ppm', '2%' (default: the design's, else 0).",
+    help="Timer clock tolerance, required unless --design gives it: '50ppm' (crystal), '2%' "
+    "(RC oscillator), '0ppm' stated for an exact clock.",
 )
 @click.option(
     "--window",
@@ -438,8 +447,6 @@ def command(**values: Any) -> None:
             raise GapforgeError("differs from --pwm (a half bridge switches once per PWM period)",
                                 "--fsw")
         limits = limits_of(stage_window(spec))
-    if values["clock_tol"] is None:
-        values["clock_tol"] = Fraction(0)
     pwm = _pwm_spec(values, design_pwm)
     if values["clock_texts"]:
         clocks = parse_clocks(values["clock_texts"])
@@ -447,6 +454,7 @@ def command(**values: Any) -> None:
         clocks = (design_clock,)
     else:
         raise GapforgeError("required (or give --design FILE to sweep at its clock)", "--clocks")
+    values["clock_tol"] = require_clock_tol(values["clock_tol"])
     names = list(values["targets"])
     if values["builtins"] or not names:
         names = builtin_names() + [n for n in names if n not in builtin_names()]
@@ -457,6 +465,7 @@ def command(**values: Any) -> None:
             layout = load_layout(name)
         except GapforgeError as exc:
             raise exc.at("--target") from None
+        warn_renamed(name)
         if layout.name not in seen:
             seen.add(layout.name)
             layouts.append(layout)

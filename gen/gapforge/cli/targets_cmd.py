@@ -10,7 +10,7 @@ import click
 
 from gapforge.base import caution
 from gapforge.base.errors import GapforgeError
-from gapforge.cli.options import Quantity, emit_json, json_option
+from gapforge.cli.options import Quantity, emit_json, json_option, warn_renamed
 from gapforge.outputs.views import layout_json, layout_text, table
 from gapforge.timer.layouts import builtin_names, load_layout
 
@@ -50,6 +50,7 @@ def show(target: str, clock: object, as_json: bool) -> None:
         layout = load_layout(target)
     except GapforgeError as exc:
         raise exc.at("TARGET") if exc.where is None else exc from None
+    warn_renamed(target)
     clk = clock if isinstance(clock, Fraction) else None
     if as_json:
         # the dead-time ranges shown are what the codes give, not what a stage needs

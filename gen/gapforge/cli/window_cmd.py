@@ -29,6 +29,7 @@ from gapforge.base.quantities import parse_quantity, picoseconds_ceil
 from gapforge.base.schema import Reader
 from gapforge.cli.options import json_option
 from gapforge.pipeline.policy import POLICIES, DesignWindow, design_window
+from gapforge.stage.stage_reader import read_stage
 from gapforge.stage.window import (
     EDGES,
     KINDS,
@@ -37,7 +38,6 @@ from gapforge.stage.window import (
     Term,
     Window,
     judge_bounds,
-    read_stage,
     stage_costs,
     stage_window,
 )
@@ -170,14 +170,12 @@ def spec_from_options(values: dict[str, Any], default_fsw: Fraction | None = Non
             raise GapforgeError("give either --design or the stage options, not both", option)
         spec, _dw = design_window_of_file(Path(design))
         return spec
-    for key in ("td_off", "td_on"):
-        both_sides = all(key in given.get(side, {}) for side in ("high", "low"))
-        if given.get(key) is None and not both_sides:
-            raise GapforgeError("required (or give --design FILE)", "--" + key.replace("_", "-"))
     reader = Reader("options")
     spec = read_stage(reader.table(given, ""), default_fsw)
     if reader.problems:
         path, message = reader.problems[0]
+        if message.startswith("required") and not given:
+            message += " (or give --design FILE)"
         parts = path.split(".")
         if parts[0] in ("high", "low") and len(parts) == 2:
             raise GapforgeError(message, f"--{parts[0]} {parts[1]}")
@@ -224,6 +222,7 @@ def _term_json(term: Term) -> dict[str, Any]:
         "value": float(term.value),
         "unit": term.unit or "factor",
         "counted": term.counted,
+        "given": term.given,
         "note": term.note,
     }
 

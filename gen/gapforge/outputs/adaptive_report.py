@@ -31,7 +31,9 @@ Table = tuple[str, tuple[str, ...], tuple[tuple[str, ...], ...], tuple[str, ...]
 
 CHOSEN = Style("#1f4e8c", "", "none", 2.0)
 OTHER = Style("#b35c00", "7 3", "none", 1.8)
-HARD = Style("#55637a", "2 3", "none", 1.5)
+# the hard edge may run within a pixel or two of a window line: its square markers (one per
+# level) keep it visible there (issue 23: a legend entry with no visible line)
+HARD = Style("#55637a", "2 3", "square", 1.5)
 FIXED = Style("#5b2a86", "9 3 2 3", "none", 1.6)
 WINDOW = Style("#2e7d5b", "4 2", "none", 1.2)
 
@@ -81,6 +83,8 @@ def adaptive_figure(plan: AdaptivePlan, prefix: str, ident: str) -> str:
         fig.polyline(step_points(xs, ys, xa, ya), style, f"soft-{t.policy}")
     xs, ys = _steps(plan, plan.table, hard_edge, right)
     fig.polyline(step_points(xs, ys, xa, ya), HARD, "hard")
+    for x0, x1, y in zip(xs, xs[1:], ys, strict=False):
+        fig.marker((xa(x0) + xa(x1)) / 2, ya(y), HARD, "hard-marker", 3.0)
 
     # panel 2: reverse-conduction loss
     yb_start, yb_end = 560.0, 340.0
@@ -104,7 +108,7 @@ def adaptive_figure(plan: AdaptivePlan, prefix: str, ident: str) -> str:
         for t, s in zip(tables, (CHOSEN, OTHER), strict=False)
     ]
     entries += [
-        ("hard edge (to_high)", HARD, "line"),
+        ("hard edge (to_high)", HARD, "line+marker"),
         ("window min / max", WINDOW, "line"),
         ("fixed dead time, same transitions", FIXED, "line"),
     ]

@@ -107,7 +107,9 @@ def model_json(plan: AdaptivePlan) -> dict[str, Any]:
             "amps_per_code": float(spec.adc.amps_per_code),
             "bits": spec.adc.bits,
         },
-        "other_policy": None
+        # the same table under the other below_swing policy, for comparison (issue 23: named for
+        # what it holds, formerly "other_policy")
+        "other_below_swing_table": None
         if other is None
         else {"below_swing": other.policy, "bins": table_json(other)},
         "inverter": None

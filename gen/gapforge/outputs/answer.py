@@ -10,10 +10,12 @@ from __future__ import annotations
 
 from fractions import Fraction
 
+from gapforge.base.display import format_register
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.compromise import compromises
 from gapforge.timer.fit import FitResult
 from gapforge.timer.layouts import EDGES
+from gapforge.timer.limits import PwmLimits
 
 _PREFIXES = ((Fraction(1), "s"), (Fraction(1, 10**3), "ms"), (Fraction(1, 10**6), "us"),
              (Fraction(1, 10**9), "ns"), (Fraction(1, 10**12), "ps"))
@@ -37,8 +39,7 @@ def seconds(value: Fraction, *, up: bool, digits: int = 4) -> str:
 
 def register_text(result: FitResult) -> str:
     assert result.register is not None
-    digits = max(1, result.layout.register_bits // 4)
-    return f"register 0x{result.register:0{digits}x}"
+    return f"register {format_register(result.register, result.layout.register_bits)}"
 
 
 def worst_case_text(result: FitResult) -> str:
@@ -56,18 +57,57 @@ def worst_case_text(result: FitResult) -> str:
     return "worst case " + ", ".join(parts)
 
 
-def fit_answer(result: FitResult, verdict: str) -> str:
-    """One line: the fit's answer."""
-    word = "ok" if verdict == "ok" else "fail"
+def fit_verdict(result: FitResult, limits: PwmLimits | None) -> tuple[str, str]:
+    """(detail, reason) of a fit in the one vocabulary (issue 19): a request beyond the layout
+    ("unreachable"), a worst case below the request whatever the rounding ("below-request": a
+    requested dead time is a minimum), then the PWM limits; ("ok", "") otherwise."""
+    from gapforge.base.display import format_si
+    from gapforge.pipeline.build import below_request_reason
+
     if not result.ok:
-        return f"{word}: {result.layout.name} cannot reach the request ({result.verdict})"
-    return f"{word}: {register_text(result)}, {worst_case_text(result)}"
+        why = [
+            f"{e}: request {format_si(x.requested_s, 's', toward='up')} is above the most the "
+            f"layout can guarantee at the fastest clock "
+            f"({format_si(x.max_min_s, 's', toward='down')})"
+            for e, x in result.edges.items()
+            if x.requested_s > x.max_min_s
+        ]
+        return "unreachable", "; ".join(_both(why)) or "the layout cannot reach the request"
+    below = [
+        below_request_reason(e, x.achieved_min_s, x.requested_s)
+        for e, x in result.edges.items()
+        if x.achieved_min_s is not None and x.achieved_min_s < x.requested_s
+    ]
+    if below:
+        return "below-request", "; ".join(_both(below))
+    if limits is not None and limits.verdict != "ok":
+        return limits.verdict, f"{limits.verdict}: {limits.reason}"
+    return "ok", ""
+
+
+def _both(reasons: list[str]) -> list[str]:
+    """'to_high: X' and 'to_low: X' said once as 'both edges: X'."""
+    if len(reasons) == 2 and reasons[0].split(":", 1)[1] == reasons[1].split(":", 1)[1]:
+        return ["both edges:" + reasons[0].split(":", 1)[1]]
+    return reasons
+
+
+def fit_answer(result: FitResult, verdict: str, reason: str = "") -> str:
+    """One line: the fit's answer, in the one verdict vocabulary (ok / fail)."""
+    word = "ok" if verdict == "ok" else "fail"
+    why = f" ({reason})" if reason else ""
+    if not result.ok:
+        return f"{word}: {result.layout.name} cannot reach the request{why}"
+    return f"{word}: {register_text(result)}, {worst_case_text(result)}{why}"
 
 
 def output_answer(op: OutputPlan) -> str:
     p = op.output.prefix
     if op.verdict == "ok":
         return f"ok: {p} {register_text(op.fit)}, {worst_case_text(op.fit)}"
+    if op.verdict == "inconclusive":  # written, but nobody judged it (issue 19)
+        reasons = "; ".join(op.reasons)
+        return f"inconclusive: {p} {register_text(op.fit)}, {worst_case_text(op.fit)}: {reasons}"
     reasons = "; ".join(op.reasons) or op.verdict
     if op.fit.ok:
         return f"fail: {p} {register_text(op.fit)}, {worst_case_text(op.fit)}: {reasons}"

@@ -4,8 +4,9 @@
     transition_figure    one transition to scale
     analog_figure        the reference's capacitor node against the Schmitt thresholds
     staircase_figure     a layout's quantization staircase around the chosen code
-    distribution_figure  a histogram of dead times with the window and the digital value
-    overlap_figure       where in a capture both gates were on
+
+(The histograms - the reference's Monte Carlo, measured gaps - and the overlap figures are in
+`histograms`.)
 
 `report` gathers the data (from the build plan, the reference network, the capture) and calls
 these; they only place it, with every coordinate computed here in Python and written by `svg`
@@ -17,9 +18,8 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from fractions import Fraction
-from typing import Any
 
-from gapforge.base.display import count, format_range, format_si
+from gapforge.base.display import format_range, format_si
 from gapforge.outputs.svg import (
     INK,
     PALETTE,
@@ -29,7 +29,6 @@ from gapforge.outputs.svg import (
     band_x,
     dimension,
     eng,
-    histogram,
     legend,
     nice_range,
     nice_ticks,
@@ -43,6 +42,7 @@ from gapforge.outputs.svg import (
 
 LEFT, RIGHT = 120.0, 30.0  # the timing figure's margins
 MC_BINS = 40  # histogram bars
+MIN_BAND_PX = 1.0  # a shaded band narrower than a pixel is not drawn (nor listed in a legend)
 
 Window = tuple[Fraction | None, Fraction | None]  # a dead-time window's min and max, if any
 
@@ -98,19 +98,24 @@ def timing_figure(pt: PairTiming, prefix: str, windows: Mapping[str, Window], id
     styles = {"command": Style(INK, "", "none", 1.2), "high": PALETTE["high"], "low": PALETTE["low"]}
     names = {"command": "PWM command", "high": "high-side gate", "low": "low-side gate"}
     # dead-time intervals shaded (both gates off), tolerance bands, window edges
+    drawn_band = drawn_window = False
     for edge, start, dead in (("to_high", on, pt.to_high), ("to_low", off, pt.to_low)):
         end = start + float(dead[0])
         band_x(fig, xa(start), xa(end), rows["high"] - amp - 8, rows["low"] + 8,
                Style(INK, fill="#e9ecf1", opacity=1.0), f"gap-{edge}")
-        band_x(fig, xa(start + float(dead[1])), xa(start + float(dead[2])),
-               rows["high"] - amp - 8, rows["low"] + 8, PALETTE["tolerance"], f"tolerance-{edge}")
+        if wide_enough(xa, start + float(dead[1]), start + float(dead[2])):
+            band_x(fig, xa(start + float(dead[1])), xa(start + float(dead[2])),
+                   rows["high"] - amp - 8, rows["low"] + 8, PALETTE["tolerance"],
+                   f"tolerance-{edge}")
+            drawn_band = True
         lo, hi = windows[edge]
         for bound, name in ((lo, "min"), (hi, "max")):
             if bound is not None:
                 vline(fig, xa(start + float(bound)), rows["command"] - amp - 10, rows["low"] + 14,
                       PALETTE["window"], f"window-{name}-{edge}")
+                drawn_window = True
     for key, y in rows.items():
-        pts = _wave(levels[key], period, xa, y, amp)
+        pts = wave_points(levels[key], period, xa, y, amp)
         fig.polyline(pts, styles[key], f"gate-{key}")
         fig.text(LEFT - 8, y - amp / 2 + 4, names[key], anchor="end", size=11, cls="row-label")
     ticks = nice_ticks(0.0, period, 8)
@@ -119,17 +124,20 @@ def timing_figure(pt: PairTiming, prefix: str, windows: Mapping[str, Window], id
         label = f"{edge} {eng(float(dead[0]), 's')}"
         dimension(fig, xa(start), xa(start + float(dead[0])), rows["command"] - amp - 14, label,
                   PALETTE["high"] if edge == "to_high" else PALETTE["low"], f"dim-{edge}")
-    legend(fig, LEFT, height - 14, [
+    entries = [
         ("high-side gate", PALETTE["high"], "line"),
         ("low-side gate", PALETTE["low"], "line"),
         ("dead time", Style(INK, fill="#e9ecf1"), "bar"),
-        ("clock-tolerance band", PALETTE["tolerance"], "band"),
-        ("window edges", PALETTE["window"], "line"),
-    ])
+    ]
+    if drawn_band:
+        entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
+    if drawn_window:
+        entries.append(("window edges", PALETTE["window"], "line"))
+    legend(fig, LEFT, height - 14, entries)
     return fig.render()
 
 
-def _wave(changes: Sequence[tuple[float, int]], end: float, xa: Axis, y: float,
+def wave_points(changes: Sequence[tuple[float, int]], end: float, xa: Axis, y: float,
           amp: float) -> list[tuple[float, float]]:
     """Pixel points of a logic waveform: (time, level) changes, held until `end`."""
     pts: list[tuple[float, float]] = []
@@ -168,8 +176,10 @@ def transition_figure(
     if lo is not None:
         band_x(fig, xa(float(lo)), xa(float(hi) if hi is not None else x_hi), 60, 200,
                PALETTE["window"], f"window-{edge}")
-    band_x(fig, xa(float(amin)), xa(float(amax)), 60, 200, PALETTE["tolerance"],
-           f"tolerance-{edge}")
+    band = wide_enough(xa, amin, amax)
+    if band:
+        band_x(fig, xa(float(amin)), xa(float(amax)), 60, 200, PALETTE["tolerance"],
+               f"tolerance-{edge}")
     labels = []
     for bound, name, side in ((lo, "min", -1), (hi, "max", +1)):
         if bound is not None:
@@ -180,9 +190,9 @@ def transition_figure(
             labels.append((xa(float(bound)) + side * (half + 4), f"window {name}"))
     place_labels(fig, labels, 70, cls="window-label")
     vline(fig, xa(float(requested)), 56, 204, PALETTE["request"], "request")
-    fig.polyline(_wave([(x_lo, 1), (0.0, 0)], x_hi, xa, rows[off_key], amp), PALETTE[off_key],
+    fig.polyline(wave_points([(x_lo, 1), (0.0, 0)], x_hi, xa, rows[off_key], amp), PALETTE[off_key],
                  f"gate-{off_key}")
-    fig.polyline(_wave([(x_lo, 0), (float(achieved), 1)], x_hi, xa, rows[on_key], amp),
+    fig.polyline(wave_points([(x_lo, 0), (float(achieved), 1)], x_hi, xa, rows[on_key], amp),
                  PALETTE[on_key], f"gate-{on_key}")
     fig.text(66, rows[on_key] - 10, f"{on_key} on", anchor="end", size=10, cls="row-label")
     fig.text(66, rows[off_key] - 10, f"{off_key} off", anchor="end", size=10, cls="row-label")
@@ -192,7 +202,8 @@ def transition_figure(
     entries = [("request", PALETTE["request"], "line")]
     if lo is not None:
         entries.append(("window", PALETTE["window"], "band"))
-    entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
+    if band:
+        entries.append(("clock-tolerance band", PALETTE["tolerance"], "band"))
     legend(fig, 20, height - 18, entries)
     fig.text(xa(x_lo) + 2, 282,
              f"worst case {format_range(amin, amax, 's', cut='outward')}; "
@@ -328,184 +339,30 @@ def staircase_figure(
         fig.rect(xa.start, ya(min(w_hi, y_hi)), xa.end - xa.start,
                  ya(max(w_lo, y_lo)) - ya(min(w_hi, y_hi)), PALETTE["window"].fill, "window",
                  opacity=PALETTE["window"].opacity)
-    y_axis(fig, ya, xa.start, nice_ticks(y_lo, y_hi, 6), "s", "achieved (nominal)",
+    y_axis(fig, ya, xa.start, nice_ticks(y_lo, y_hi, 6), "s", "achieved at nominal clock",
            grid_to=xa.end)
     x_axis(fig, xa, ya.start, nice_ticks(y_lo, y_hi, 6), "s", "requested")
     fig.line(xa(y_lo), ya(y_lo), xa(y_hi), ya(y_hi), Style("#b8bec8", "1 3", "none", 1.0),
              "identity")
     pts = step_points([float(b) for b in sc.breaks_s], y_vals, xa, ya)
     fig.polyline(pts, Style(INK, "", "none", 1.6), "staircase")
-    for v in y_vals:
-        fig.marker(xa.start, ya(v), PALETTE["representable"], "representable", 3.5)
     vline(fig, xa(float(sc.requested_s)), ya.end, ya.start, PALETTE["request"], "request")
     fig.marker(xa(float(sc.requested_s)), ya(float(sc.chosen_s)), PALETTE["chosen"], "chosen", 5)
-    # right of and below the chosen point: the rising staircase runs above it there
-    fig.text(xa(float(sc.requested_s)) + 8, ya(float(sc.chosen_s)) + 16,
-             f"chosen {eng(float(sc.chosen_s), 's')}", size=10, cls="chosen-label")
-    legend(fig, 20, height - 30, [
-        ("representable value", PALETTE["representable"], "marker"),
+    # left of and above the chosen point: the rising staircase and the identity line both run
+    # below it there, and the request line stays right of the label
+    fig.text(xa(float(sc.requested_s)) - 8, ya(float(sc.chosen_s)) - 10,
+             f"chosen {eng(float(sc.chosen_s), 's')}", anchor="end", size=10, cls="chosen-label")
+    entries = [
+        ("achieved (each step a code)", Style(INK, "", "none", 1.6), "line"),
         ("chosen", PALETTE["chosen"], "marker"),
         ("request", PALETTE["request"], "line"),
-        ("window", PALETTE["window"], "band"),
-    ])
-    return fig.render()
-
-
-# ---------------------------------------------------------------------------------------------
-# 4. histograms: the reference's Monte Carlo, measured gaps; overlaps
-
-
-def value_range(values: Any, marks: Sequence[float]) -> tuple[float, float]:
-    """The rounded x range that holds every value and mark (share it between side-by-side plots)."""
-    lo = min(float(values.min()), *marks) if marks else float(values.min())
-    hi = max(float(values.max()), *marks) if marks else float(values.max())
-    return nice_range(lo, hi, 8)
-
-
-def bin_counts(values: Any, x_range: tuple[float, float]) -> list[int]:
-    import numpy as np
-
-    counts, _ = np.histogram(values, bins=MC_BINS, range=x_range)
-    return [int(c) for c in counts]
-
-
-def _bins(
-    values: Any, marks: Sequence[float], x_range: tuple[float, float] | None
-) -> tuple[list[float], list[int]]:
-    import numpy as np
-
-    lo, hi = x_range if x_range is not None else value_range(values, marks)
-    counts, edges = np.histogram(values, bins=MC_BINS, range=(lo, hi))
-    return [float(e) for e in edges], [int(c) for c in counts]
-
-
-def distribution_figure(
-    values: Any,
-    *,
-    edge: str,
-    window: tuple[Fraction | None, Fraction | None],
-    digital: tuple[Fraction, Fraction, Fraction] | None,
-    predicted: tuple[Fraction, Fraction] | None,
-    style: Style,
-    what: str,
-    ident: str,
-    x_range: tuple[float, float] | None = None,
-    count_top: int | None = None,
-) -> str:
-    """A histogram of dead times with the window and the digital value (or the prediction).
-
-    Side-by-side histograms pass one `x_range` and `count_top` so their axes compare.
-    """
-    marks = [float(x) for x in window if x is not None]
-    if digital is not None:
-        marks += [float(digital[1]), float(digital[2])]
-    if predicted is not None:
-        marks += [float(predicted[0]), float(predicted[1])]
-    edges, counts = _bins(values, marks, x_range)
-    top = max(counts) if counts else 1
-    if count_top is not None:
-        top = max(top, count_top)
-    width, height = 480, 340
-    xa = Axis(edges[0], edges[-1], 70.0, width - 20.0)
-    _, c_hi = nice_range(0.0, 1.1 * float(max(top, 1)), 5)
-    ya = Axis(0.0, c_hi, 250.0, 50.0)
-    title = f"{what}: {edge}"
-    fig = Figure(ident, width, height, title, f"Histogram of {what} with the window.")
-    fig.text(70, 22, f"{title} ({len(values)} values)", size=12, cls="figure-title",
-             weight="bold")
-    if digital is not None:
-        band_x(fig, xa(float(digital[1])), xa(float(digital[2])), ya.end, ya.start,
-               PALETTE["tolerance"], "digital-band")
-    if predicted is not None:
-        band_x(fig, xa(float(predicted[0])), xa(float(predicted[1])), ya.end, ya.start,
-               PALETTE["tolerance"], "predicted-band")
-    overlap = edges[0] < 0.0
-    if overlap:  # dead times at or below zero: both outputs on together
-        band_x(fig, xa.start, xa(min(0.0, edges[-1])), ya.end, ya.start, PALETTE["overlap"],
-               "overlap-region", hatched=True)
-    histogram(fig, edges, counts, xa, ya, style, "bar")
-    _overlap_bars(fig, edges, counts, xa, ya)
-    y_axis(fig, ya, xa.start, nice_ticks(0.0, c_hi, 5), "", "count", grid_to=xa.end)
-    x_axis(fig, xa, ya.start, nice_ticks(edges[0], edges[-1], 6), "s", "dead time")
-    labels = []
-    for bound, name in zip(window, ("min", "max"), strict=True):
-        if bound is not None:
-            x = xa(float(bound))
-            vline(fig, x, ya.end - 6, ya.start, PALETTE["window"], f"window-{name}")
-            labels.append((x, f"window {name}"))
-    place_labels(fig, labels, ya.end - 10, cls="window-label", left=xa.start)
-    entries = [(what, style, "bar")]
-    if labels:
-        entries.append(("window", PALETTE["window"], "line"))
-    if overlap:
-        entries.append(("at or below zero: overlap", PALETTE["overlap"], "hatch"))
-    if digital is not None:
-        vline(fig, xa(float(digital[0])), ya.end, ya.start, PALETTE["digital"], "digital")
-        fig.marker(xa(float(digital[0])), ya.end, PALETTE["digital"], "digital-marker")
-        entries += [("digital value", PALETTE["digital"], "line"),
-                    ("clock-tolerance band", PALETTE["tolerance"], "band")]
-    if predicted is not None:
-        entries.append(("predicted range", PALETTE["tolerance"], "band"))
+    ]
+    if los:
+        entries.append(("window", PALETTE["window"], "band"))
     legend(fig, 20, height - 30, entries)
     return fig.render()
 
 
-def _overlap_bars(fig: Figure, edges: Sequence[float], counts: Sequence[int], xa: Axis,
-                  ya: Axis) -> None:
-    """Bars at or below zero dead time (an overlap) redrawn in red, tall enough that a single
-    overlap among many gaps stays visible (5 px at least)."""
-    red = PALETTE["overlap"]
-    base = ya(0)
-    for i, c in enumerate(counts):
-        if c > 0 and edges[i] < 0.0:
-            top = min(ya(c), base - 5.0)
-            fig.rect(xa(edges[i]), top, xa(edges[i + 1]) - xa(edges[i]), base - top, red.fill,
-                     "overlap-bar", stroke=Style(red.colour, width=0.8))
-
-
-def overlap_figure(duration_s: Fraction, overlaps_at_s: Sequence[Fraction], ident: str) -> str:
-    """Where in the capture (`duration_s` long) each overlap (both gates on) happened."""
-    width, height = 980, 130
-    start = 0.0
-    end = float(duration_s) if duration_s > 0 else 1.0
-    times = [float(t) for t in overlaps_at_s]
-    if times:
-        start = min(start, min(times))
-        end = max(end, max(times))
-    x_lo, x_hi = nice_range(start, end, 10)
-    xa = Axis(x_lo, x_hi, 70.0, width - 20.0)
-    fig = Figure(ident, width, height, "Overlaps (both gates on) in the capture",
-                 "Each marker is one shoot-through event at its time stamp.")
-    fig.line(xa.start, 60, xa.end, 60, Style("#b8bec8", width=6.0), "capture-span")
-    for t in times:
-        fig.marker(xa(t), 48, PALETTE["overlap"], "overlap", 6)
-    fig.text(70, 22, count(len(times), "overlap"), size=12, cls="figure-title", weight="bold")
-    x_axis(fig, xa, 75, nice_ticks(x_lo, x_hi, 10), "s", "capture time")
-    return fig.render()
-
-
-def overlap_zoom_figure(at_s: Fraction, duration_s: Fraction, ident: str) -> str:
-    """One measured overlap to scale: the gate still on, the other turning on early, and the
-    interval when both are on, in red."""
-    d = float(duration_s)
-    span = max(d, 1e-12)
-    x_lo, x_hi = nice_range(-1.5 * span, 2.5 * span, 8)
-    width, height = 480, 250
-    xa = Axis(x_lo, x_hi, 90.0, width - 20.0)
-    fig = Figure(ident, width, height, "A measured overlap to scale",
-                 "Both gates on together (shoot-through), from the capture's time stamps.")
-    fig.text(20, 22, f"overlap at {format_si(at_s, 's', digits=9)}: both gates on for "
-             f"{format_si(duration_s, 's')}", size=12, cls="figure-title", weight="bold")
-    rows = {"early": 80.0, "late": 150.0}
-    amp = 30.0
-    fig.rect(xa(0.0), rows["early"] - amp - 8, xa(d) - xa(0.0), rows["late"] - rows["early"] + amp + 16,
-             PALETTE["overlap"].fill, "overlap-interval", opacity=0.35)
-    fig.polyline(_wave([(x_lo, 0), (0.0, 1)], x_hi, xa, rows["early"], amp), PALETTE["overlap"],
-                 "gate-turning-on")
-    fig.polyline(_wave([(x_lo, 1), (d, 0)], x_hi, xa, rows["late"], amp), Style(INK, width=1.5),
-                 "gate-still-on")
-    fig.text(84, rows["early"] - 10, "turning on", anchor="end", size=10, cls="row-label")
-    fig.text(84, rows["late"] - 10, "still on", anchor="end", size=10, cls="row-label")
-    x_axis(fig, xa, 172, nice_ticks(x_lo, x_hi, 8), "s", "time from the overlap's start")
-    legend(fig, 20, height - 14, [("both gates on", PALETTE["overlap"], "band")])
-    return fig.render()
+def wide_enough(xa: Axis, lo: Fraction | float, hi: Fraction | float) -> bool:
+    """A band at least a pixel wide: a narrower one is neither drawn nor listed in a legend."""
+    return abs(xa(float(hi)) - xa(float(lo))) >= MIN_BAND_PX

@@ -102,7 +102,7 @@ def register_type(layout: Layout) -> str:
 
 
 def _banner(plan: BuildPlan, op: OutputPlan, language: str) -> list[str]:
-    lines = [*_provenance_lines(plan, op), language, "", *_timing_lines(plan, op)]
+    lines = [*_provenance_lines(plan, op), language, "", *_verdict_lines(op), *_timing_lines(plan, op)]
     lines += _field_lines(op)
     lines += ["", *_write_example(op)]
     lines += ["", *_convention_lines(plan, op)]
@@ -110,6 +110,17 @@ def _banner(plan: BuildPlan, op: OutputPlan, language: str) -> list[str]:
     if plan.design.clock_hz.denominator != 1:
         lines.append("Note: the timer clock is not a whole number of hertz; the macro is rounded up.")
     return [f" {c_text.comment(line)}" if line else "" for line in lines]
+
+
+def _verdict_lines(op: OutputPlan) -> list[str]:
+    """An inconclusive output is written because it was asked for, and says so (issue 19)."""
+    if op.verdict == "ok":
+        return []
+    import textwrap
+
+    text = f"VERDICT: {op.verdict} - {'; '.join(op.reasons)}. Written because the design asked"
+    text += " for it; gapforge build exits 1 for it. Judge it against the power stage first."
+    return [*textwrap.wrap(text, 94), ""]
 
 
 def _provenance_lines(plan: BuildPlan, op: OutputPlan) -> list[str]:

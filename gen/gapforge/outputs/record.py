@@ -164,6 +164,7 @@ def record(plan: BuildPlan, op: OutputPlan) -> dict[str, Any]:
         "gate_driver": _gate_driver(op),
         "adaptive": _adaptive(op),
         "verdict": op.verdict,
+        "reason": "; ".join(op.reasons) if op.verdict != "ok" else "",
         "caution": caution.TEXT,
     }
 

@@ -8,6 +8,9 @@
 This module gathers the data (the pair's timing, the reference's node ramps, the staircases,
 the Monte Carlo samples), builds the tables and renders the template; `figures` draws.
 
+Length (issue 23): the first screen answers (verdict, chosen words, window, worst case,
+margins, caution), the decision plots follow, the rest is folded in <details> (open in print).
+
 Figures: the complementary pair through one PWM period with both dead times dimensioned, the
 clock-tolerance band shaded and the window edges drawn, plus a to-scale zoom of each transition;
 the analog reference's node ramps against the Schmitt thresholds with the delay marked; the
@@ -34,11 +37,16 @@ from gapforge.outputs.report_sections import (
     adaptive_sections,
     analog_section,
     capture_section,
-    monte_carlo_section,
+    decision_section,
     staircase_section,
     timing_section,
 )
-from gapforge.outputs.report_tables import input_tables, result_tables, window_tables
+from gapforge.outputs.report_tables import (
+    input_tables,
+    result_tables,
+    summary_tables,
+    window_tables,
+)
 from gapforge.outputs.templating import environment
 from gapforge.pipeline.build import BuildPlan
 from gapforge.timer.layouts import EDGES
@@ -95,28 +103,40 @@ def capture_word(verdict: str) -> str:
     return {"pass": "ok", "measured": "inconclusive"}.get(verdict, verdict_word(verdict))
 
 
-def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
+def render_report(plan: BuildPlan, capture: Measurement | None = None,
+                  extra: tuple[Section, ...] = ()) -> str:
     """The whole report as HTML text (self-contained: inline CSS and SVG, no scripts).
 
-    Sections follow the decision: results, the window (what the stage needs, with the old
-    network that bounded it), quantization and timing (what the timer gives), the bench capture
-    (what the hardware did), then every input.
+    Read once, quickly, by the engineer who signs it: the first screen holds the verdict, the
+    chosen words, the window with the worst case and the margins, and the caution; the plots
+    that carry the decision come next, then a given capture (it feeds the capture verdict);
+    everything else is folded (HTML <details>, opened when printed): the full results, the
+    window's breakdown, the analog reference, quantization, timing, load current, a missing
+    capture, every input.
     """
     d = plan.design
     warnings = design_warnings(plan)
     if capture is not None and capture.failed:
         warnings = [*(f"capture: {r}" for r in capture.reasons), *warnings]
-    sections = [
+    summary = Section(
+        "summary",
+        "Window, chosen words and margins",
+        (),
+        (),
+        tuple(summary_tables(plan)),
+    )
+    opened = [decision_section(plan)]
+    folded = [
         Section(
             "results",
-            "Results, margins and verdicts",
+            "Results in full: dead times per edge, PWM limits, costs",
             (f"Design verdict: {verdict_word(plan.verdict)}.",),
             (),
             tuple(result_tables(plan)),
         ),
         Section(
             "window",
-            "Window",
+            "Window and its breakdown",
             (
                 "Absent: the design has neither a [stage] nor a [reference] section, so there is no "
                 "window; margins are not judged.",
@@ -127,11 +147,9 @@ def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
             tuple(window_tables(plan)) if plan.window is not None else (),
         ),
         analog_section(plan),
-        monte_carlo_section(plan),
         staircase_section(plan),
         timing_section(plan),
         *adaptive_sections(plan),
-        capture_section(plan, capture),
         Section(
             "inputs",
             "Inputs",
@@ -140,6 +158,13 @@ def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
             tuple(input_tables(plan)),
         ),
     ]
+    # a capture follows the verdict it feeds (its analog traces, issue 21, right after it); a
+    # missing one is a folded note
+    if capture is None:
+        folded.insert(len(folded) - 1, capture_section(plan, capture))
+    else:
+        opened.append(capture_section(plan, capture))
+    opened += extra  # issue 21: the analog capture's traces (outputs/scope_figure.py)
     design_word = verdict_word(plan.verdict)
     capture_verdict = "-" if capture is None else capture_word(capture.verdict)
     if design_word != "ok" or (capture is not None and capture.failed):
@@ -160,7 +185,9 @@ def render_report(plan: BuildPlan, capture: Measurement | None = None) -> str:
             verdict_class=verdict_class,
             warnings=warnings,
             caution=CAUTION,
-            sections=sections,
-            toc=[(s.ident, s.title) for s in sections],
+            summary=summary,
+            sections=opened,
+            folded=folded,
+            toc=[(s.ident, s.title) for s in (*opened, *folded)],
         )
     )

@@ -5,6 +5,7 @@ the timer gives (quantization, timing), what the analog reference did, what the 
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from fractions import Fraction
 from typing import TYPE_CHECKING, Any
@@ -14,13 +15,15 @@ from markupsafe import Markup
 from gapforge.base.display import count, format_percent, format_si
 from gapforge.outputs.figures import (
     analog_figure,
+    staircase_figure,
+    timing_figure,
+    transition_figure,
+)
+from gapforge.outputs.histograms import (
     bin_counts,
     distribution_figure,
     overlap_figure,
     overlap_zoom_figure,
-    staircase_figure,
-    timing_figure,
-    transition_figure,
     value_range,
 )
 from gapforge.outputs.report_data import (
@@ -44,6 +47,10 @@ if TYPE_CHECKING:
     from gapforge.bench.measure import Measurement
 
 
+# a capture's verdict in the one vocabulary (older words: pass, measured)
+_CAPTURE_WORDS = {"pass": "ok", "measured": "inconclusive"}
+
+
 def _t(value: Fraction | float | None) -> str:
     return "-" if value is None else format_si(value, "s")
 
@@ -52,6 +59,12 @@ def _t(value: Fraction | float | None) -> str:
 class FigureBlock:
     svg: Markup
     caption: str
+
+    @property
+    def kind(self) -> str:
+        """ "wide" for a figure wider than half a page (printed across the page), else "half"."""
+        match = re.search(r'<svg[^>]* width="(\d+)', self.svg)
+        return "wide" if match and int(match.group(1)) > 600 else "half"
 
 
 @dataclass(frozen=True)
@@ -63,27 +76,15 @@ class Section:
     tables: tuple[TableBlock, ...] = ()
 
 
-def timing_section(plan: BuildPlan) -> Section:
+def _fitted(plan: BuildPlan) -> list[tuple[int, Any]]:
+    return [(i, op) for i, op in enumerate(plan.outputs) if op.fit.ok]
+
+
+def transition_figures(plan: BuildPlan) -> list[FigureBlock]:
+    """Each fitted output's transitions to scale: the worst case against the window."""
     figures: list[FigureBlock] = []
-    for i, op in enumerate(plan.outputs):
-        if not op.fit.ok:
-            continue
-        pt = pair_timing(op)
-        period = (
-            "an illustrative period (the design has no [pwm] section)"
-            if pt.assumed_period
-            else f"one PWM period of {_t(pt.period_s)}"
-        )
-        windows = {e: window_of(plan, e) for e in EDGES}
-        figures.append(
-            FigureBlock(
-                Markup(timing_figure(pt, op.output.prefix, windows, f"timing-{i}")),
-                f"{op.output.prefix} ({op.fit.layout.name}): {period} at 50 % "
-                "commanded duty. Grey: both gates off; blue-grey: the spread "
-                "of each turn-on over the clock tolerance; dash-dot: window "
-                "edges.",
-            )
-        )
+    windows = {e: window_of(plan, e) for e in EDGES}
+    for i, op in _fitted(plan):
         for e in EDGES:
             zoom = transition_figure(
                 op.output.prefix,
@@ -96,12 +97,58 @@ def timing_section(plan: BuildPlan) -> Section:
             figures.append(
                 FigureBlock(Markup(zoom), f"{op.output.prefix}: {EDGE_TEXT[e]}, to scale.")
             )
+    return figures
+
+
+def timing_section(plan: BuildPlan) -> Section:
+    """Each output's gates through one PWM period (the transitions to scale are decision plots)."""
+    figures: list[FigureBlock] = []
+    windows = {e: window_of(plan, e) for e in EDGES}
+    for i, op in _fitted(plan):
+        pt = pair_timing(op)
+        period = (
+            "an illustrative period (the design has no [pwm] section)"
+            if pt.assumed_period
+            else f"one PWM period of {_t(pt.period_s)}"
+        )
+        figures.append(
+            FigureBlock(
+                Markup(timing_figure(pt, op.output.prefix, windows, f"timing-{i}")),
+                f"{op.output.prefix} ({op.fit.layout.name}): {period} at 50 % "
+                "commanded duty. Grey: both gates off; blue-grey: the spread "
+                "of each turn-on over the clock tolerance (where wide enough to see); "
+                "dash-dot: window edges.",
+            )
+        )
     paragraphs: tuple[str, ...] = (
-        "Each output's gates through one PWM period, then each transition to scale.",
+        "Each output's gates through one PWM period (each transition to scale is among the "
+        "decision plots above).",
     )
     if not figures:
         paragraphs += ("No output was fitted, so there is no timing to draw.",)
     return Section("timing", "Timing diagrams", paragraphs, tuple(figures))
+
+
+def decision_section(plan: BuildPlan) -> Section:
+    """The plots that carry the decision: each transition to scale against the window, the old
+    network's Monte Carlo against the window and its worst case, dead time by load current."""
+    figures = transition_figures(plan) + monte_carlo_figures(plan)
+    outputs = [(op.output.prefix, op.adaptive) for op in plan.outputs if op.adaptive is not None]
+    if outputs:
+        from gapforge.outputs.adaptive_report import adaptive_parts
+
+        _, adaptive, _ = adaptive_parts(outputs)
+        figures += [FigureBlock(Markup(svg), caption) for svg, caption in adaptive]
+    paragraphs: tuple[str, ...] = (
+        "Each transition to scale against the window"
+        + ("" if plan.design.reference is None
+           else "; the old network's dead time over its parts' tolerances, with its worst case")
+        + ("" if not outputs else "; the dead time by load current")
+        + ". Everything else is folded below.",
+    )
+    if not figures:
+        paragraphs += ("No output was fitted, so there is no decision plot to draw.",)
+    return Section("decision", "Decision plots", paragraphs, tuple(figures))
 
 
 def analog_section(plan: BuildPlan) -> Section:
@@ -205,21 +252,24 @@ def staircase_section(plan: BuildPlan) -> Section:
     return Section("quantization", "Quantization", paragraphs, tuple(figures))
 
 
-def monte_carlo_section(plan: BuildPlan) -> Section:
+def monte_carlo_figures(plan: BuildPlan) -> list[FigureBlock]:
+    """The old network's Monte Carlo per edge: the axis holds the samples, the window, the
+    digital value's band and the worst-case corners; samples outside the window coloured."""
     net = plan.design.reference
     if net is None:
-        return Section(
-            "monte-carlo",
-            "Monte Carlo of the reference",
-            ("Absent: the design has no [reference] section.",),
-        )
+        return []
     samples = reference_samples(net)
     first = next((op for op in plan.outputs if op.fit.ok), None)
+    worst = {
+        e: None if plan.reference is None else (plan.reference[e].min_s, plan.reference[e].max_s)
+        for e in EDGES
+    }
     shared = _shared_axes(
         {e: samples[e] for e in EDGES},
         {
             e: [float(x) for x in window_of(plan, e) if x is not None]
             + ([] if first is None else [float(x) for x in achieved(first, e)[1:]])
+            + [float(x) for x in worst[e] or ()]
             for e in EDGES
         },
     )
@@ -240,23 +290,17 @@ def monte_carlo_section(plan: BuildPlan) -> Section:
                         ident=f"mc-{e}",
                         x_range=shared[0],
                         count_top=shared[1],
+                        worst=worst[e],
                     )
                 ),
                 f"{EDGE_TEXT[e]}: {MC_SAMPLES} seeded samples (seed {MC_SEED}) of the old network, "
-                "every part uniform over its band"
+                "every part uniform over its band; bracket: the worst case over the tolerance "
+                "corners; pink: samples outside the window"
                 + ("; hatched: at or below zero dead time (overlap)" if shared[0][0] < 0 else "")
-                + ("." if first is None else f"; digital value of {first.output.prefix}."),
+                + ("." if first is None else f"; black: the digital value of {first.output.prefix}."),
             )
         )
-    return Section(
-        "monte-carlo",
-        "Monte Carlo of the reference",
-        (
-            "The analog network's dead time over its parts' tolerances, against the "
-            "window and the digital value that replaces it.",
-        ),
-        tuple(figures),
-    )
+    return figures
 
 
 def _capture_marks(m: Measurement, edge: str) -> list[float]:
@@ -363,12 +407,13 @@ def capture_section(plan: BuildPlan, m: Measurement | None) -> Section:
         TableBlock(
             "Overlaps (first 50)",
             ("time", "duration"),
-            tuple((format_si(o.at_s, "s", digits=9), _t(o.duration_s)) for o in m.overlaps[:50]),
+            tuple((_t(o.at_s), _t(o.duration_s)) for o in m.overlaps[:50]),
             (f"{count(len(m.overlaps), 'overlap')} in total." if m.overlaps else "No overlap.",),
         )
     )
     paragraphs = (
-        f"Capture {m.source}: {_t(m.duration_s)} at a tick of {_t(m.tick_s)}; verdict {m.verdict}.",
+        f"Capture {m.source}: {_t(m.duration_s)} at a tick of {_t(m.tick_s)}; verdict "
+        f"{_CAPTURE_WORDS.get(m.verdict, m.verdict)}.",
         *m.reasons,
         *m.notes,
         *m.warnings,
@@ -383,13 +428,13 @@ def adaptive_sections(plan: BuildPlan) -> list[Section]:
         return []
     from gapforge.outputs.adaptive_report import adaptive_parts
 
-    paragraphs, figures, tables = adaptive_parts(outputs)
+    paragraphs, _, tables = adaptive_parts(outputs)
     return [
         Section(
             "adaptive",
-            "Dead time by load current",
-            paragraphs,
-            tuple(FigureBlock(Markup(svg), caption) for svg, caption in figures),
+            "Dead time by load current: the table",
+            (*paragraphs, "The figure is among the decision plots above."),
+            (),
             tuple(TableBlock(t, h, r, n) for t, h, r, n in tables),
         )
     ]

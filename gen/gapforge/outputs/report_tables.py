@@ -14,6 +14,7 @@ from gapforge.base.display import (
     choose_exponent,
     format_percent,
     format_range,
+    format_register,
     format_si,
     verdict_word,
 )
@@ -191,7 +192,6 @@ def window_tables(plan: BuildPlan) -> list[TableBlock]:
                 (
                     t.name,
                     _term_value(t),
-                    "yes" if t.counted else "no",
                     t.note,
                 )
                 for t in terms
@@ -199,7 +199,7 @@ def window_tables(plan: BuildPlan) -> list[TableBlock]:
             tables.append(
                 TableBlock(
                     f"Minimum breakdown, {e} (common practice)",
-                    ("term", "value", "counted", "note"),
+                    ("term", "value", "note"),
                     t_rows,
                 )
             )
@@ -217,7 +217,6 @@ def window_tables(plan: BuildPlan) -> list[TableBlock]:
                         )
                         for t in max_terms
                     ),
-                    (plan.stage.edges["to_high"].max_reason,),
                 )
             )
     return tables
@@ -257,18 +256,25 @@ def _edge_rows(op: OutputPlan) -> list[tuple[str, ...]]:
 
 
 def _margin_rows(plan: BuildPlan, op: OutputPlan) -> list[tuple[str, ...]]:
-    """Per edge: the window, the worst-case margins and the verdict word."""
+    """Per edge: the window, the worst case achieved, the worst-case margins and the verdict."""
     rows: list[tuple[str, ...]] = []
     for e in EDGES:
         j = op.judgements.get(e)
         win = window_of(plan, e)
         lo_text, hi_text = _pair(win[0], win[1])
+        x = op.fit.edges[e]
+        worst = (
+            "-"
+            if x.achieved_min_s is None or x.achieved_max_s is None
+            else format_range(x.achieved_min_s, x.achieved_max_s, "s", cut="outward")
+        )
         rows.append(
             (
                 op.output.prefix,
                 e,
                 lo_text,
-                hi_text,
+                hi_text if win[1] is not None or plan.window is None else "none",
+                worst,
                 "-" if j is None else _t(j.margin_low_s, "down"),
                 "-" if j is None else _t(j.margin_high_s, "down"),
                 verdict_word(op.verdict if j is None else j.verdict),
@@ -301,7 +307,7 @@ def _register_row(op: OutputPlan) -> tuple[str, ...]:
         "-" if fit.divider is None else f"code {fit.divider_code} (/{fit.divider})",
         _t(fit.step_s),
         ", ".join(f"{k}={v}" for k, v in fit.fields.items()) or "-",
-        "-" if fit.register is None else f"0x{fit.register:0{fit.layout.register_bits // 4}x}",
+        "-" if fit.register is None else format_register(fit.register, fit.layout.register_bits),
         verdict_word(op.verdict),
     )
 
@@ -361,28 +367,35 @@ PWM_HEADERS = (
 )
 
 
-def result_tables(plan: BuildPlan) -> list[TableBlock]:
-    """Fitted codes, dead times per edge, margins and verdicts, PWM limits, costs."""
-    edge_rows = [row for op in plan.outputs for row in _edge_rows(op)]
+def summary_tables(plan: BuildPlan) -> list[TableBlock]:
+    """The first screen: the chosen words, then per edge the window, the worst case achieved,
+    the margins and the verdict."""
     margins = [row for op in plan.outputs for row in _margin_rows(plan, op)]
-    pwm = [row for row in (_pwm_row(op) for op in plan.outputs) if row is not None]
-    tables = [
+    return [
         TableBlock(
-            "Fitted codes",
+            "Chosen words",
             ("output", "target layout", "divider", "step", "fields", "register", "verdict"),
             tuple(_register_row(op) for op in plan.outputs),
         ),
-        TableBlock("Dead times per edge", EDGE_HEADERS, tuple(edge_rows)),
         TableBlock(
-            "Margins to the window and verdicts",
-            ("output", "edge", "window min", "window max", "margin low", "margin high", "verdict"),
+            "Window, worst case and margins",
+            ("output", "edge", "window min", "window max", "worst case achieved", "margin low",
+             "margin high", "verdict"),
             tuple(margins),
             (
-                "Margins are worst case: achieved minimum over the clock tolerance minus the "
-                "window minimum, window maximum minus the achieved maximum.",
+                "Worst case over the clock tolerance (cut outward); margins: its minimum minus "
+                "the window minimum, the window maximum minus its maximum (cut down). Window "
+                "minima are shown rounded up, maxima down.",
             ),
         ),
     ]
+
+
+def result_tables(plan: BuildPlan) -> list[TableBlock]:
+    """Dead times per edge, PWM limits, costs (the chosen words and margins are the summary)."""
+    edge_rows = [row for op in plan.outputs for row in _edge_rows(op)]
+    pwm = [row for row in (_pwm_row(op) for op in plan.outputs) if row is not None]
+    tables = [TableBlock("Dead times per edge", EDGE_HEADERS, tuple(edge_rows))]
     if pwm:
         tables.append(TableBlock("PWM limits", PWM_HEADERS, tuple(pwm)))
     costs = _cost_table(plan)

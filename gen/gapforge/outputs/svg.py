@@ -54,6 +54,8 @@ PALETTE: dict[str, Style] = {
     "reference": Style("#1f4e8c", "", "none", 1.0, "#9cc3e6", 1.0),
     "measured": Style("#8a4a00", "", "none", 1.0, "#f0c27a", 1.0),
     "digital": Style(INK, "", "diamond", 2.0, "#8d9bb0", 0.45),
+    "outside": Style("#7a1f5c", "", "none", 1.0, "#d98cbf", 1.0),
+    "worst": Style("#3c4656", "6 2", "none", 1.4),
     "overlap": Style("#b0143c", "", "triangle-down", 2.0, "#b0143c", 1.0),
     "simulated": Style("#1f4e8c", "", "none", 2.0),
     "closed-form": Style("#b35c00", "7 3", "none", 1.5),
@@ -393,7 +395,8 @@ def dimension(
     """A horizontal dimension line from x1 to x2 at row y with arrowheads and a label above.
 
     Narrower than 24 px, the arrows sit outside pointing in (the drafting convention for small
-    dimensions) and the label moves right of the mark.
+    dimensions) and the label moves right of the mark; a label wider than the dimension moves
+    right of it too (never across the extension ticks).
     """
     a, b = min(x1, x2), max(x1, x2)
     head = 6.0
@@ -404,10 +407,10 @@ def dimension(
         fig.line(a, y, b, y, s, cls)
         _arrowhead(fig, a, y, +1, head, style.colour, cls)
         _arrowhead(fig, b, y, -1, head, style.colour, cls)
-        if text_width(label, 11) <= b - a:
+        if text_width(label, 11) <= b - a - 4:
             fig.text((a + b) / 2, y - 6, label, anchor="middle", size=11, cls=cls + "-label")
-        else:  # a label wider than the dimension starts at its left end
-            fig.text(a, y - 6, label, anchor="start", size=11, cls=cls + "-label")
+        else:  # a label wider than the dimension sits right of it, clear of its end ticks
+            fig.text(b + 6, y + 4, label, anchor="start", size=11, cls=cls + "-label")
     else:
         fig.line(a - 3 * head, y, b + 3 * head, y, s, cls)
         _arrowhead(fig, a, y, -1, head, style.colour, cls)

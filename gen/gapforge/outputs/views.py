@@ -13,6 +13,7 @@ from gapforge.base.display import (
     both_edges,
     format_percent,
     format_range,
+    format_register,
     format_si,
     significant,
     verdict_word,
@@ -87,7 +88,7 @@ def layout_json(layout: Layout, clock_hz: Fraction | None = None) -> dict[str, A
                 "encoding": f.encoding if f.role != "divider" else None,
                 "codes": describe_codes(f),
             }
-            for f in layout.fields
+            for f in sorted(layout.fields, key=lambda f: -f.offset)  # most significant first
         ],
     }
     if clock_hz is not None:
@@ -123,7 +124,7 @@ def layout_text(layout: Layout, clock_hz: Fraction | None = None) -> str:
     )
     rows = [
         [f.name, f.role, f"{f.offset}..{f.offset + f.width - 1}", describe_codes(f)]
-        for f in sorted(layout.fields, key=lambda f: f.offset)
+        for f in sorted(layout.fields, key=lambda f: -f.offset)  # most significant first
     ]
     lines.append("")
     lines.append(table(["field", "role", "bits", "codes"], rows))
@@ -186,8 +187,10 @@ def fit_json(result: FitResult, limits: PwmLimits | None) -> dict[str, Any]:
             "step_s": _f(e.step_s),
             "lower_s": _f(e.lower_s),
             "higher_s": _f(e.higher_s),
-            "max_s": float(e.max_s),
-            "max_worst_case_s": float(e.max_min_s),
+            # the longest dead time the layout's field reaches (at the divider in use; when
+            # unreachable, at the largest divider allowed), nominal and at the fast clock
+            "layout_max_s": float(e.max_s),
+            "layout_max_worst_case_s": float(e.max_min_s),
         }
     doc["pwm"] = pwm_json(limits) if limits is not None else None
     doc["warnings"] = fit_warnings(result) if result.ok else []
@@ -227,7 +230,8 @@ def pwm_json(lim: PwmLimits) -> dict[str, Any]:
     }
 
 
-def fit_text(result: FitResult, limits: PwmLimits | None) -> str:
+def fit_text(result: FitResult, limits: PwmLimits | None, verdict: str) -> str:
+    """The fit's details; `verdict` is the word the first line gave (ok / fail)."""
     req = result.request
     layout = result.layout
     lines = [
@@ -282,29 +286,23 @@ def fit_text(result: FitResult, limits: PwmLimits | None) -> str:
     if result.ok:
         assert result.register is not None
         fields = ", ".join(f"{k}={v}" for k, v in result.fields.items())
-        digits = result.layout.register_bits // 4
-        lines.append(f"fields: {fields}; register 0x{result.register:0{digits}x}")
+        lines.append(f"fields: {fields}; register "
+                     f"{format_register(result.register, result.layout.register_bits)}")
         lines += [f"warning: {w}" for w in fit_warnings(result)]
     else:
         for edge in EDGES:
             e = result.edges[edge]
             if e.requested_s > e.max_min_s:
                 lines.append(
-                    f"unreachable: {edge} request {_t(e.requested_s)} is longer than the layout "
+                    f"fail: {edge} request {_up(e.requested_s)} is longer than the layout "
                     f"can guarantee: at most {_down(e.max_min_s)} at the fast clock "
                     f"({_t(e.max_s)} nominal)"
                 )
     if limits is not None:
         lines.append("")
         lines.append(pwm_text(limits))
-    lines.append(
-        f"verdict: {result.verdict if limits is None or not result.ok else _worst(result.verdict, limits.verdict)}"
-    )
+    lines.append(f"verdict: {verdict}")
     return "\n".join(lines)
-
-
-def _worst(a: str, b: str) -> str:
-    return a if a != "ok" else b
 
 
 def count_word(clocks: Fraction) -> str:
@@ -355,8 +353,13 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
         "clock_tol": float(d.clock_tol),
         "source": d.source,
         "verdict": verdict_word(plan.verdict),
-        "reason": "" if plan.verdict == "ok" else plan.verdict,
+        "reason": ""
+        if plan.verdict == "ok"
+        else plan.reasons[0]
+        if plan.verdict == "inconclusive"
+        else plan.verdict,
         "reasons": list(plan.reasons),
+        "stage_terms": stage_terms_json(plan.stage),
         "warnings": list(plan.warnings),
         "requested_s": None
         if plan.request is None
@@ -380,7 +383,11 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
                 "prefix": op.output.prefix,
                 "file": op.output.file,
                 "verdict": verdict_word(op.verdict),
-                "reason": "" if op.verdict == "ok" else op.verdict,
+                "reason": ""
+                if op.verdict == "ok"
+                else op.reasons[0]
+                if op.verdict == "inconclusive"
+                else op.verdict,
                 "reasons": list(op.reasons),
                 "warnings": list(op.warnings),
                 "costs": None if op.costs is None else costs_json(op.costs),
@@ -408,6 +415,37 @@ def plan_json(plan: BuildPlan) -> dict[str, Any]:
     return doc
 
 
+def stage_terms_json(window: Any) -> dict[str, list[dict[str, Any]]] | None:
+    """Each term of the stage window's minimum per edge, and whether it was given (issue 19)."""
+    if window is None:
+        return None
+    return {
+        e: [
+            {"term": t.name, "value": float(t.value), "unit": t.unit or "factor",
+             "counted": t.counted, "given": t.given, "note": t.note}
+            for t in window.edges[e].breakdown
+        ]
+        for e in EDGES
+    }
+
+
+def stage_terms_text(window: Any) -> str:
+    """One line: every counted term was given; which were stated as 0 (checked, none)."""
+    zero = sorted(
+        {t.name.split(",")[0] for e in EDGES for t in window.edges[e].breakdown
+         if t.counted and t.value == 0}
+    )
+    defaulted = sorted(
+        {t.name.split(",")[0] for e in EDGES for t in window.edges[e].breakdown if not t.given}
+    )
+    line = "  stage minimum: every term given"
+    if zero:
+        line += "; given as 0 (checked, none): " + ", ".join(zero)
+    if defaulted:
+        line += "; documented defaults: " + ", ".join(defaulted)
+    return line
+
+
 def plan_text(plan: BuildPlan) -> str:
     d = plan.design
     lines = [
@@ -430,6 +468,8 @@ def plan_text(plan: BuildPlan) -> str:
                 + (format_range(lo, hi, "s", cut="inward") if hi is not None and lo is not None
                    else f"{_up(lo)} .. no maximum")
             )
+    if plan.stage is not None:
+        lines.append(stage_terms_text(plan.stage))
     for w in plan.warnings:
         lines.append(f"warning: {w}")
     if plan.request is not None:
@@ -460,7 +500,7 @@ def plan_text(plan: BuildPlan) -> str:
         for w in op.warnings:
             lines.append(f"warning: {op.output.prefix}: {w}")
         if op.costs is not None:
-            lines.append(f"{op.output.prefix}: " + costs_text(op.costs))
+            lines.append(f"{op.output.prefix}: " + costs_text(op.costs, table_sets_error(op)))
         if op.adaptive is not None:
             from gapforge.outputs.adaptive_view import adaptive_text
 
@@ -479,7 +519,13 @@ def plan_text(plan: BuildPlan) -> str:
     return "\n".join(lines)
 
 
-def costs_text(costs: Any) -> str:
+def table_sets_error(op: OutputPlan) -> bool:
+    """With a load-indexed table and its inverter figure, the table (not the fixed word) sets
+    the output-voltage error: one figure per output, the table's (issue 19)."""
+    return op.adaptive is not None and getattr(op.adaptive, "inverter", None) is not None
+
+
+def costs_text(costs: Any, table_error: bool = False) -> str:
     """One line: what the fitted dead time costs at its longest (slow clock)."""
     parts = [
         f"reverse conduction {format_quantity(costs.reverse_conduction_w, 'W', 4)}",
@@ -489,7 +535,9 @@ def costs_text(costs: Any) -> str:
         parts.append(
             f"switch-node duty change {float(costs.duty_lost) * 100:.4g} % (by the current's sign)"
         )
-    if costs.voltage_error_v is not None:
+    if table_error:
+        parts.append("average output-voltage error: the table's inverter figure below")
+    elif costs.voltage_error_v is not None:
         parts.append(
             f"average output-voltage error {format_quantity(costs.voltage_error_v, 'V', 4)}"
         )

@@ -9,19 +9,28 @@ Nothing here reads or writes files (except what load_design read); rendering is 
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
+from gapforge.base.display import format_range, format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.pipeline.design import Design, Output
 from gapforge.pipeline.policy import DesignWindow, window_of
 from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
-from gapforge.timer.layouts import EDGES
+from gapforge.timer.layouts import EDGES, rename_warning
 from gapforge.timer.limits import PwmLimits, counter_problem, pwm_limits
 
-VERDICTS = ("ok", "unreachable", "empty-window", "too-short", "too-long")
+VERDICTS = (
+    "ok", "inconclusive", "unreachable", "empty-window", "too-short", "too-long", "below-request"
+)
+
+# issue 19: a design without [stage] is fitted and written, but nobody judged the dead time
+NOT_JUDGED = (
+    "not judged against a power stage (the design has no [stage] section: the dead time was "
+    "fitted as asked, but nothing proves it long enough)"
+)
 
 Bounds = tuple[Fraction | None, Fraction | None]
 
@@ -104,12 +113,21 @@ def plan_design(design: Design) -> BuildPlan:
     outputs = tuple(
         _plan_output(design, o, request, dw.bounds, dw.reference) for o in design.outputs
     )
+    if design.stage is None:  # fitted, maybe fine, but not proven: inconclusive (issue 19)
+        outputs = tuple(
+            replace(o, verdict="inconclusive", reasons=(NOT_JUDGED,)) if o.verdict == "ok" else o
+            for o in outputs
+        )
     verdict = "ok"
     reasons: list[str] = []
     for o in outputs:  # every failing output's reasons; the verdict is the first failure's
-        if o.verdict != "ok":
-            verdict = o.verdict if verdict == "ok" else verdict
+        if o.verdict not in ("ok", "inconclusive"):
+            verdict = o.verdict if verdict in ("ok", "inconclusive") else verdict
             reasons.extend(f"{o.output.prefix}: {r}" for r in o.reasons)
+        elif o.verdict == "inconclusive" and verdict == "ok":
+            verdict = "inconclusive"
+    if verdict == "inconclusive":
+        reasons.insert(0, NOT_JUDGED)
     return BuildPlan(
         design,
         request,
@@ -194,12 +212,21 @@ def _plan_output(
             edge = result.edges[e]
             if edge.requested_s > edge.max_min_s:
                 reasons.append(
-                    f"{e} request {float(edge.requested_s) * 1e9:.6g} ns is above the layout's "
-                    f"maximum {float(edge.max_min_s) * 1e9:.6g} ns (worst case at the fast clock)"
+                    f"{e} request {format_si(edge.requested_s, 's', toward='up')} is above the "
+                    f"layout's maximum {format_si(edge.max_min_s, 's', toward='down')} (worst "
+                    "case at the fast clock)"
                 )
         return OutputPlan(output, result, None, {}, "unreachable", tuple(reasons), ())
     limits = pwm_limits(result, design.pwm) if design.pwm is not None else None
-    warnings.extend(w for w in fit_warnings(result) if not w.startswith("the clock tolerance"))
+    renamed = rename_warning(output.target)
+    if renamed is not None:
+        warnings.append(renamed)
+    # the clock tolerance is said once for the design; a worst case below the request is a
+    # reason (below), not a warning
+    warnings.extend(
+        w for w in fit_warnings(result)
+        if not w.startswith("the clock tolerance") and "nearest rounding gives" not in w
+    )
     if limits is not None and counter_problem(limits):
         warnings.append(counter_problem(limits))  # refused under `build --strict`
     verdict = "ok"
@@ -212,13 +239,19 @@ def _plan_output(
             if j.verdict != "ok":  # every failing edge's reason; the verdict is the first's
                 verdict = j.verdict if verdict == "ok" else verdict
                 reasons.append(_reason(e, j, window[e], edge.achieved_min_s, edge.achieved_max_s))
+        if edge.achieved_min_s < edge.requested_s and (e not in judgements or
+                                                         judgements[e].verdict == "ok"):
+            # a requested dead time is a minimum, whatever the rounding (issue 19)
+            verdict = "below-request" if verdict == "ok" else verdict
+            reasons.append(below_request_reason(e, edge.achieved_min_s, edge.requested_s))
         if reference is not None:
             r = reference[e]
             if edge.achieved_min_s < r.limit_min_s or edge.achieved_max_s > r.limit_max_s:
                 warnings.append(
-                    f"{e}: digital range {float(edge.achieved_min_s) * 1e9:.6g}.."
-                    f"{float(edge.achieved_max_s) * 1e9:.6g} ns lies outside what the reference "
-                    f"network proved ({float(r.min_s) * 1e9:.6g}..{float(r.max_s) * 1e9:.6g} ns)"
+                    f"{e}: digital range "
+                    f"{format_range(edge.achieved_min_s, edge.achieved_max_s, 's', cut='outward')}"
+                    " lies outside what the reference network proved ("
+                    f"{format_range(r.min_s, r.max_s, 's', cut='inward')})"
                 )
     costs = None
     if design.stage is not None:
@@ -288,6 +321,17 @@ def _reason(edge: str, j: EdgeJudgement, window: Bounds, amin: Fraction, amax: F
     return (
         f"{edge}: worst-case {float(amax) * 1e9:.6g} ns is above the window's maximum "
         f"{float(hi) * 1e9:.6g} ns"
+    )
+
+
+def below_request_reason(edge: str, achieved_min: Fraction, requested: Fraction) -> str:
+    """Why a worst case below the request fails (`fit` and `build` say it alike)."""
+    from gapforge.base.display import format_si
+
+    return (
+        f"{edge}: worst case {format_si(achieved_min, 's', toward='down')} at the fastest clock "
+        f"is below the {format_si(requested, 's', toward='up')} requested (a requested dead "
+        "time is a minimum; 'nearest' rounding can land below it, 'safe' never does)"
     )
 
 

@@ -11,8 +11,9 @@
 
 `source` names the dead-time policy (gapforge.pipeline.policy, where each is explained):
 "explicit", "window", "reference-typical", "reference-minimum" or "window-within-reference".
-Without a value, the default is "window" when there is a [stage] section, else
-"reference-minimum" when there is a [reference] section.
+With a [stage] section the default is "window" ("explicit" when values are given); without one
+`source` is required (issue 19: nothing judges such a dead time, so the policy is stated) and the
+build's verdict is `inconclusive`. `[timer] tolerance` is required (never assumed exact).
 
 `load_design` reads the file in named steps, one per section (format, timer, pwm, reference,
 stage, adaptive, dead_time, outputs); `load_window_sections` runs only the steps the window of a
@@ -156,6 +157,14 @@ def _read_timer(top: Table) -> tuple[Fraction | None, Fraction, str]:
     timer = top.sub("timer", required=True) or top.reader.table({}, "timer")
     timer.check_keys(_TIMER, {"clock"})
     clock = timer.quantity("clock", "Hz", Fraction(1))
+    if not timer.has("tolerance"):
+        # issue 19: the fastest clock gives the shortest dead time, so it is never assumed exact
+        timer.reader.problem(
+            timer.key_path("tolerance"),
+            "required: the timer clock's tolerance (crystal tens of ppm, e.g. \"50ppm\"; "
+            "internal RC oscillator 1-2 %, more over temperature); \"0ppm\" only for an exact "
+            "clock",
+        )
     tol = timer.tolerance("tolerance", Fraction(0))
     clock_macro = timer.string("clock_macro", "TIMER_CLOCK_HZ")
     if not _MACRO.match(clock_macro):
@@ -204,7 +213,7 @@ def _read_stage(top: Table, pwm: PwmSpec | None) -> Any:
     stage_t = top.sub("stage")
     if stage_t is None:
         return None
-    from gapforge.stage import window as stage_mod
+    from gapforge.stage import stage_reader as stage_mod
 
     # each switch turns on and off once per PWM period: the stage switches at the PWM
     # frequency (the default for stage.fsw), and the loss budget's maximum depends on it
@@ -282,6 +291,14 @@ def _read_dead_time(
         if reference is not None
         else "explicit"
     )
+    if stage is None and not dead_t.has("source"):
+        # issue 19: without a power stage nothing judges the dead time; the policy is stated
+        reader.problem(
+            "dead_time.source",
+            "required without a [stage] section: name the dead-time policy ("
+            + ", ".join(s for s in SOURCES if s != "window")
+            + "); without a power stage the dead time is not judged, only fitted",
+        )
     source = dead_t.string("source", default_source, SOURCES)
     _check_source(top, source, explicit)
     return rounding, explicit, source

@@ -107,7 +107,8 @@ def design_window(stage_spec: Any, network: Any, policy: str) -> DesignWindow:
     bounds = dict(stage_bounds) if stage_bounds is not None else None
     empty: dict[str, str] = {}
     if stage_bounds is not None:
-        empty.update(_stage_empty(stage_bounds))
+        assert stage is not None
+        empty.update(_stage_empty(stage_bounds, {e: stage.edges[e].max_reason for e in EDGES}))
     if policy == "window-within-reference" and reference is not None:
         bounds = {}
         for e in EDGES:
@@ -125,15 +126,19 @@ def design_window(stage_spec: Any, network: Any, policy: str) -> DesignWindow:
     return DesignWindow(policy, stage, stage_bounds, reference, bounds, empty, evidence)
 
 
-def _stage_empty(stage_bounds: dict[str, Bounds]) -> dict[str, str]:
+def _stage_empty(stage_bounds: dict[str, Bounds], reasons: dict[str, str]) -> dict[str, str]:
+    """Why an edge's stage window is empty, in the words `window` uses (the maximum's reason)."""
     out: dict[str, str] = {}
     for e in EDGES:
         lo, hi = stage_bounds[e]
         if lo is not None and hi is not None and lo > hi:
-            out[e] = (
-                f"{e}: the stage window is empty: its minimum {_t(lo)} is above the loss "
-                f"budget's maximum {_t(hi)}"
-            )
+            if hi == 0 and "no loss budget left" in reasons[e]:
+                # issue 23: not "above the loss budget's maximum 0 s"
+                out[e] = (f"{e}: the stage window is empty: {reasons[e]} (the minimum is "
+                          f"{_t(lo)})")
+            else:
+                out[e] = (f"{e}: the stage window is empty: its minimum {_t(lo)} is above the "
+                          f"loss budget's maximum {_t(hi)}")
     return out
 
 

@@ -267,6 +267,15 @@ def read_adaptive(top: Table, stage: StageSpec | None) -> AdaptiveSpec | None:
                 )
     currents = _read_currents(table)
     policy = table.string("below_swing", "max", POLICIES)  # required: checked above
+    # The measured current picks the bin: its worst error is only known from the sensing chain
+    # (sensor, amplifier, half an ADC step, sampling latency and ripple), so it is required.
+    if not table.has("current_error"):
+        table.reader.problem(
+            table.key_path("current_error"),
+            "required: the current measurement's worst error (sensor and amplifier datasheets,"
+            " half an ADC step, the ripple over the sampling latency); each bin is judged at its"
+            " edge minus it; give 0A only for a current known exactly",
+        )
     error = table.quantity("current_error", "A", Fraction(0), allow_zero=True)
     c_node, node_charge = _read_c_node(stage_t, stage)
     spec = AdaptiveSpec(

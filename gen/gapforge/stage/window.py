@@ -35,7 +35,6 @@ from fractions import Fraction
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import ceil_fraction, floor_fraction, format_quantity
-from gapforge.base.schema import Table
 
 EDGES = ("to_high", "to_low")
 SIDES = ("high", "low")
@@ -104,9 +103,11 @@ class StageSpec:
 
     high: SwitchTiming
     low: SwitchTiming
-    mismatch: Fraction = Fraction(0)
-    isolator_skew: Fraction = Fraction(0)
-    timer_skew: Fraction = Fraction(0)
+    # every term of the minimum's sum is stated (issue 19): no zero is assumed for a left-out
+    # mismatch or skew; 0 given means "checked, there is none"
+    mismatch: Fraction
+    isolator_skew: Fraction
+    timer_skew: Fraction
     margin: Fraction = DEFAULT_MARGIN
     kind: str = "silicon"
     vsd: Fraction | None = None
@@ -118,6 +119,9 @@ class StageSpec:
     loss_budget: Fraction | None = None
     qrr: Fraction | None = None
     bus_voltage: Fraction | None = None
+    # keys that took a documented default when read from a file or options ("margin",
+    # "high.t_rise", "vsd", ...): the breakdown and the JSON say which terms were not given
+    defaulted: frozenset[str] = frozenset()
 
     def side(self, name: str) -> SwitchTiming:
         return self.high if name == "high" else self.low
@@ -147,6 +151,7 @@ class Term:
     unit: str = "s"
     note: str = ""
     counted: bool = True
+    given: bool = True  # False: a documented default stood in (never for a counted term)
 
 
 @dataclass(frozen=True)
@@ -253,7 +258,8 @@ def _raw_sum(spec: StageSpec, edge: str) -> Fraction:
 def _min_terms(spec: StageSpec, edge: str) -> list[Term]:
     off_side, on_side = OFF_SIDE[edge], ON_SIDE[edge]
     off, on = spec.side(off_side), spec.side(on_side)
-    return [
+    rise_given = f"{on_side}.t_rise" not in spec.defaulted
+    terms = [
         Term(f"turn-off delay max, {off_side}-side switch", off.td_off_max),
         Term(f"fall time max, {off_side}-side switch", off.t_fall_max),
         Term(f"turn-on delay min, {on_side}-side switch", -on.td_on_min),
@@ -265,13 +271,23 @@ def _min_terms(spec: StageSpec, edge: str) -> list[Term]:
         Term("driver channel-to-channel mismatch", spec.mismatch),
         Term("isolator / level-shifter skew", spec.isolator_skew),
         Term("timer output skew", spec.timer_skew),
+    ]
+    # a counted term is always stated (issue 19); a stated 0 is echoed as such
+    terms = [
+        t if t.value != 0 or t.note else Term(t.name, t.value, note="given as 0: checked, none")
+        for t in terms
+    ]
+    terms.append(
         Term(
             f"rise time, {on_side}-side switch",
             on.t_rise,
-            note="not counted: it only delays the overlap; kept as reserve",
+            note="not counted: it only delays the overlap; kept as reserve"
+            + ("" if rise_given else "; not given"),
             counted=False,
-        ),
-    ]
+            given=rise_given,
+        )
+    )
+    return terms
 
 
 def _check(spec: StageSpec) -> None:
@@ -298,11 +314,18 @@ def stage_window(spec: StageSpec) -> Window:
         breakdown = (
             *terms,
             Term("sum (common practice)", raw, counted=False),
-            Term("margin factor", spec.margin, unit="", counted=False),
+            Term(
+                "margin factor",
+                spec.margin,
+                unit="",
+                note="" if "margin" not in spec.defaulted else "default, common practice",
+                counted=False,
+                given="margin" not in spec.defaulted,
+            ),
             Term(
                 "minimum = sum x margin, rounded up to 1 ps",
                 min_s,
-                note=f"exact {format_quantity(with_margin, 's', 12)}",
+                note=f"before rounding: {format_quantity(with_margin, 's')}",
                 counted=False,
             ),
         )
@@ -329,7 +352,14 @@ def _maximum(spec: StageSpec) -> tuple[Fraction | None, tuple[Term, ...], str]:
     terms: list[Term] = [
         Term("loss budget", spec.loss_budget, unit="W", counted=False),
         Term("recovery loss (does not shrink with dead time)", recovery, unit="W", counted=False),
-        Term("reverse-conduction voltage", vsd, unit="V", counted=False, note=_vsd_note(spec)),
+        Term(
+            "reverse-conduction voltage",
+            vsd,
+            unit="V",
+            counted=False,
+            note=_vsd_note(spec),
+            given=spec.vsd is not None,
+        ),
         Term("|I to_high| + |I to_low|", amps, unit="A", counted=False),
         Term("switching frequency", spec.fsw, unit="Hz", counted=False),
     ]
@@ -479,111 +509,6 @@ def judge_bounds(
     if high is not None and high < 0:
         return "too-long", low, high
     return "ok", low, high
-
-
-# ---------------------------------------------------------------------------------------------
-# reading the [stage] table of a design file
-
-
-def read_stage(table: Table, default_fsw: Fraction | None = None) -> StageSpec:
-    """A StageSpec from a design file's [stage] table. Problems are recorded on the Reader.
-
-    Timing keys at [stage] apply to both switches; [stage.high] / [stage.low] override them for
-    one switch and its driver channel. `current` sets both edges; `current_to_high` /
-    `current_to_low` override it (signed: positive flows out of the switch node).
-    """
-    table.check_keys(STAGE_KEYS)
-    sides: dict[str, Table | None] = {}
-    for side in SIDES:
-        sub = table.sub(side)
-        if sub is not None:
-            sub.check_keys(SIDE_KEYS)
-        sides[side] = sub
-    for key in ("td_off", "td_on"):
-        present = [sub is not None and sub.has(key) for sub in sides.values()]
-        if not table.has(key) and not all(present):
-            missing = next(s for s, here in zip(SIDES, present, strict=True) if not here)
-            target = sides[missing] or table
-            target.reader.problem(target.key_path(key), "required key is missing")
-    timings = {side: _read_timing(table, sides[side]) for side in SIDES}
-
-    def time(key: str) -> Fraction:
-        value = table.quantity(key, "s", Fraction(0), allow_zero=True)
-        return value if value is not None else Fraction(0)
-
-    margin = table.quantity("margin", "", DEFAULT_MARGIN)
-    kind = table.string("kind", "silicon", KINDS)
-    current = table.quantity("current", "A", Fraction(0), allow_zero=True, allow_negative=True)
-    current = current if current is not None else Fraction(0)
-    i_high = table.quantity("current_to_high", "A", current, allow_zero=True, allow_negative=True)
-    i_low = table.quantity("current_to_low", "A", current, allow_zero=True, allow_negative=True)
-    gate_off = table.quantity("gate_off", "V", Fraction(0), allow_zero=True, allow_negative=True)
-    spec = StageSpec(
-        high=timings["high"],
-        low=timings["low"],
-        mismatch=time("mismatch"),
-        isolator_skew=time("isolator_skew"),
-        timer_skew=time("timer_skew"),
-        margin=margin if margin is not None else DEFAULT_MARGIN,
-        kind=kind,
-        vsd=table.quantity("vsd", "V", required=False),
-        gate_off=gate_off if gate_off is not None else Fraction(0),
-        vsd_at_gate_off=table.boolean("vsd_at_gate_off", False),
-        current_to_high=i_high if i_high is not None else current,
-        current_to_low=i_low if i_low is not None else current,
-        fsw=table.quantity("fsw", "Hz", default_fsw, required=False),
-        loss_budget=table.quantity("loss_budget", "W", required=False, allow_zero=True),
-        qrr=table.quantity("qrr", "C", required=False, allow_zero=True),
-        bus_voltage=table.quantity("bus_voltage", "V", required=False),
-    )
-    if not table.reader.problems:
-        for side, key, message in stage_problems(spec):
-            where = table.key_path(key)
-            side_table = sides.get(side)
-            if side_table is not None and side_table.has(key):
-                where = side_table.key_path(key)
-            table.reader.problem(where, message)
-    return spec
-
-
-def _read_timing(table: Table, side: Table | None) -> SwitchTiming:
-    def get(key: str) -> Fraction:
-        source = side if side is not None and side.has(key) else table
-        value = source.quantity(key, "s", Fraction(0), allow_zero=True)
-        return value if value is not None else Fraction(0)
-
-    source = side if side is not None and side.has("prop_delay") else table
-    prop_min, prop_max = Fraction(0), Fraction(0)
-    if source.has("prop_delay"):
-        try:
-            prop_min, prop_max = parse_span(source.raw("prop_delay"), source.key_path("prop_delay"))
-        except GapforgeError as exc:
-            source.reader.problem(source.key_path("prop_delay"), exc.message)
-    return SwitchTiming(
-        td_off_max=get("td_off"),
-        t_fall_max=get("t_fall"),
-        td_on_min=get("td_on"),
-        t_rise=get("t_rise"),
-        prop_min=prop_min,
-        prop_max=prop_max,
-    )
-
-
-def parse_span(text: object, where: str) -> tuple[Fraction, Fraction]:
-    """'MIN:MAX' propagation delays in seconds ('20ns:35ns'); one value means MIN = MAX."""
-    from gapforge.base.quantities import parse_quantity
-
-    if not isinstance(text, str):
-        value = parse_quantity(text, "s", where, allow_zero=True)
-        return value, value
-    parts = text.split(":")
-    if len(parts) > 2:
-        raise GapforgeError(f"expected MIN:MAX such as '20ns:35ns', got {text!r}", where)
-    low = parse_quantity(parts[0], "s", where, allow_zero=True)
-    high = parse_quantity(parts[-1], "s", where, allow_zero=True)
-    if low > high:
-        raise GapforgeError(f"MIN {parts[0].strip()!r} is above MAX {parts[-1].strip()!r}", where)
-    return low, high
 
 
 def _factor(value: Fraction) -> str:

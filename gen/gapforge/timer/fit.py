@@ -18,6 +18,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from fractions import Fraction
 
+from gapforge.base.display import format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import ceil_fraction
 from gapforge.timer.layouts import EDGES, Field, Layout
@@ -182,7 +183,7 @@ def _result(
         achieved = steps * scale
         higher = values[i + 1] * scale if i + 1 < len(values) else None
         lower = values[i - 1] * scale if i > 0 else None
-        top = _edge_max(layout, request, edge, divider_code)
+        top = _edge_max(layout, request, edge, d)  # at the divider in use (issue 23)
         edges[edge] = EdgeFit(
             edge=edge,
             field=f.name,
@@ -272,8 +273,8 @@ def fit_warnings(result: FitResult) -> list[str]:
         if e.below_request_worst_case:
             assert e.achieved_min_s is not None
             out.append(
-                f"{edge}: nearest rounding gives {float(e.achieved_min_s) * 1e9:.6g} ns at the fast "
-                f"clock, below the {float(e.requested_s) * 1e9:.6g} ns requested; use safe rounding "
-                "for a guaranteed minimum"
+                f"{edge}: nearest rounding gives {format_si(e.achieved_min_s, 's', toward='down')}"
+                f" at the fast clock, below the {format_si(e.requested_s, 's')} requested; use "
+                "safe rounding for a guaranteed minimum"
             )
     return out

@@ -192,10 +192,25 @@ def builtin_names() -> list[str]:
     return sorted(p.stem for p in directory.glob("*.toml"))
 
 
+# Built-ins renamed for what they are: the old name still loads, with `rename_warning`, but
+# `targets` lists only the new one.
+RENAMED = {"split-10bit-div4": "split-10bit-div1-8"}
+
+
+def rename_warning(name: str) -> str | None:
+    """The warning for a built-in layout given by its old name, or None."""
+    new = RENAMED.get(name)
+    if new is None:
+        return None
+    return (f"layout '{name}' was renamed '{new}' (its divider field selects 1, 2, 4 or 8, "
+            f"not a divide-by-4): the old name still loads; write '{new}'")
+
+
 def resolve(name_or_path: str) -> Path:
-    """A built-in name or a path to a layout file."""
+    """A built-in name (or a renamed built-in's old name) or a path to a layout file."""
     if name_or_path.endswith(".toml") or "/" in name_or_path or "\\" in name_or_path:
         return Path(name_or_path)
+    name_or_path = RENAMED.get(name_or_path, name_or_path)
     if len(name_or_path) > MAX_NAME or not name_or_path.isprintable():
         raise GapforgeError(
             f"no built-in layout named {quoted(name_or_path)} (names are at most {MAX_NAME} "

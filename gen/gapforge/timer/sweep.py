@@ -77,6 +77,7 @@ class SweepRow:
     pwm: RowPwm | None = None
     worst_above_min_s: Fraction | None = None  # max over edges of achieved_max - window min
     bits: int = 0  # the layout's register-field bits (a tie-break: fewer is simpler)
+    register_bits: int = 32  # the register's width (the hex word is padded to it)
 
 
 @dataclass(frozen=True)
@@ -325,6 +326,7 @@ def _point(
         reason="; ".join(reasons),
         fields=dict(result.fields),
         register=result.register,
+        register_bits=layout.register_bits,
         edges=edges,
         worst_margin_s=min(margins),
         worst_error_s=max(errors),
