@@ -217,3 +217,30 @@ def test_overlong_time_cell_is_one_clean_error(tmp_path: Path) -> None:
     with pytest.raises(GapforgeError, match="longer than") as info:
         load_capture(path, "gh", "gl")
     assert info.value.where == f"{path}:4" and len(info.value.line()) < 200
+
+
+def test_exponent_and_negative_times_are_read_exactly(tmp_path: Path) -> None:
+    # issue 20 item 4 (review rev2): the forms scopes and numpy write ('0E+0', '-998.000E-06')
+    # read as exact decimals; the expected gaps are the decimal differences, by hand
+    path = tmp_path / "exp.csv"
+    path.write_text("time_s,gh,gl\n-998.000E-06,0,1\n-9.979375E-04,0,0\n-997.875e-6,1,0\n"
+                    "0E+0,0,0\n+2.5E-08,0,1\n")
+    m = measure_capture(load_capture(path, "gh", "gl"))
+    assert m.to_high.min_s == Fraction(625, 10**10)  # -997.875 us - (-997.9375 us)
+    assert m.to_low.min_s == Fraction(25, 10**9)  # 25 ns - 0
+
+
+@pytest.mark.parametrize("cell,message", [
+    ("\u0661", "is not a decimal number"),  # an Arabic-Indic digit: not a decimal of this format
+    ("1_0", "is not a decimal number"),
+    ("0E+999999999", "exponent has more than 2 digits"),
+])
+def test_time_cells_outside_ascii_decimals_are_refused(tmp_path: Path, cell: str,
+                                                        message: str) -> None:
+    # issue 20 item 4 (review rev2): only ASCII decimals are times; Python's \d and float()
+    # accept other scripts' digits, which no capture writer emits
+    path = tmp_path / "t.csv"
+    path.write_text(f"time_s,gh,gl\n{cell},0,1\n2E-6,0,0\n3e-06,1,0\n", encoding="utf-8")
+    with pytest.raises(GapforgeError) as info:
+        load_capture(path, "gh", "gl")
+    assert message in info.value.line() and "t.csv:2" in info.value.line()

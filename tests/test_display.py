@@ -63,7 +63,11 @@ def test_safe_side_cut_is_exact() -> None:
 def test_one_prefix_per_line() -> None:
     # 400 ns and 1.2 us in one line: both in ns so they compare (not 400 ns beside 1.2 us)
     assert format_many([400e-9, 1.2e-6], "s") == ["400 ns", "1200 ns"]
-    assert format_range(400e-9, 1.2e-6, "s") == "400 .. 1200 ns"
+    assert format_range(400e-9, 1.2e-6, "s", cut="nearest") == "400 .. 1200 ns"
+    # a range shown without saying its safe side is refused (issue 19 item 13: every limit shown
+    # is cut toward its safe side, so no caller may forget to choose)
+    with pytest.raises(ValueError):
+        format_range(400e-9, 1.2e-6, "s")
     # a window cut inward (minimum up, maximum down), a worst case outward
     assert format_range(F(27_61, 10**11), F(29_687, 10**12), "s", cut="inward") == "27.61 .. 29.68 ns"
     assert format_range(F(27_61, 10**11), F(29_687, 10**12), "s", cut="outward") == (

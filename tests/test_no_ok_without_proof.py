@@ -360,3 +360,12 @@ def test_adaptive_current_error_is_required(tmp_path: Path) -> None:
     assert code == 2 and out == ""
     assert "adaptive.current_error" in err and "required" in err and len(err.splitlines()) == 1
     assert not (tmp_path / "o").exists()
+
+
+def test_sweep_window_line_cuts_the_window_inward() -> None:
+    """Issue 19 item 13: the sweep's window line showed the maximum 29.6875 ns rounded to
+    29.69 ns while its reason line said 29.68 ns; a window's maximum is cut down (its safe side)."""
+    code, out, _ = run_cli(["sweep", "--design", str(EXAMPLES / "gan-buck.toml")])
+    assert code == 0
+    window = next(x for x in out.splitlines() if x.startswith("Window"))
+    assert "29.68 ns" in window and "29.69" not in window

@@ -58,12 +58,22 @@ def test_issue5_measure_design_without_window_fails_gaps_below_the_request(tmp_p
 
 
 def test_issue5_measure_design_without_window_passes_long_enough_gaps(tmp_path: Path) -> None:
-    # the control: 101 ns - 1 ns resolution = 100 ns >= the 100 ns request, so the same design
-    # passes (the fit's worst case is 100.0 ns .. 100.01 ns; there is no maximum)
+    # the control: 101 ns - 1 ns resolution = 100 ns >= the 100 ns request, so the gaps meet
+    # the design (the fit's worst case is 100.0 ns .. 100.01 ns; there is no maximum); without
+    # [stage] nothing proves 100 ns enough, so that is inconclusive (issue 19 item 2), and with a
+    # stage (minimum 14.4 ns) it is ok
     (tmp_path / "d.toml").write_text(DESIGN)
     _capture(tmp_path / "ok.csv", 101)
-    code, out, err = run_cli(["measure", str(tmp_path / "ok.csv"), "--high", "gate_h",
-                              "--low", "gate_l", "--design", str(tmp_path / "d.toml"), "--json"])
+    args = ["measure", str(tmp_path / "ok.csv"), "--high", "gate_h", "--low", "gate_l",
+            "--design", str(tmp_path / "d.toml"), "--json"]
+    code, out, err = run_cli(args)
+    assert code == 1, err + out
+    doc = json.loads(out)
+    assert doc["verdict"] == "inconclusive"
+    assert doc["reasons"] == [next(r for r in doc["reasons"]
+                                   if r.startswith("not judged against a power stage"))]
+    (tmp_path / "d.toml").write_text(DESIGN + SMALL_STAGE)
+    code, out, err = run_cli(args)
     assert code == 0, err + out
     assert json.loads(out)["verdict"] == "ok"
 
@@ -296,3 +306,17 @@ def test_issue23_two_misspelt_keys_are_both_shown_with_their_hints(tmp_path: Pat
     assert "stage.t_fal: unknown key; did you mean 't_fall'?" in err
     assert "more problem" not in err
     assert not (tmp_path / "a.h").exists()
+
+
+def test_fields_are_listed_most_significant_first_everywhere(tmp_path: Path) -> None:
+    """Issue 23 item 7: `targets show` lists fields most significant first, as headers do; the
+    fit text and the report's chosen words list them the same way (the layout file's order, by
+    bit offset: div at 28..29, to_low_count at 16..25, to_high_count at 0..9)."""
+    code, out, _ = run_cli(["fit", "--clock", "170MHz", "--clock-tol", "50ppm", "--dead-time",
+                            "100ns", "--target", "split-10bit-div1-8"])
+    assert code == 0
+    assert "fields: div=0, to_low_count=18, to_high_count=18;" in out
+    code, out, _ = run_cli(["targets", "show", "split-10bit-div1-8"])
+    rows = [x.split()[0] for x in out.splitlines() if x.split()[:1] and x.split()[0] in
+            ("div", "to_low_count", "to_high_count")]
+    assert rows == ["div", "to_low_count", "to_high_count"]

@@ -190,6 +190,15 @@ def test_one_file_per_channel_by_stem(tmp_path: Path) -> None:
     ("0,0,5\n1e-9,5,0\n", ["--threshold", "3V"], "no header row"),
     ("Time,gh,gl\n0,0,5\n1e-9,5,0\n", ["--threshold", "3V", "--node", "gl"], "--node and --bus go together"),
     ("Time,gh,gl\n0,0,5\n1e-9,5,0\n", ["--threshold", "3V", "--level", "150%"], "--level"),
+    # issue 21 (thresholds): a --level no gate uses was silently dropped (review rev2)
+    ("Time,gh,gl\n0,0,5\n1e-9,5,0\n", ["--threshold", "3V", "--level", "50%"],
+     "--level: --level applies only to a gate without a threshold"),
+    # review rev2: float() takes other scripts' digits and '_' where loadtxt does not: the
+    # error must still name the cell, not "these lines"
+    ("Time,gh,gl\n0,0,5\n1e-9,\u0665,0\n", ["--threshold", "3V"], "c.csv:3: column 2:"),
+    ("Time,gh,gl\n0,0,5\n1e-9,5,1_0\n", ["--threshold", "3V"], "c.csv:3: column 3: '1_0'"),
+    ("Time,gh,gl\n0,0,5\n1e-9,5,0\n", ["--threshold-high", "3V", "--threshold-low", "2V",
+                                        "--level", "50%"], "not both"),
 ])
 def test_bad_input_is_one_line_exit_2(text: str, args: list[str], message: str,
                                        tmp_path: Path) -> None:

@@ -163,10 +163,13 @@ def format_range(
     unit: str,
     *,
     digits: int = DIGITS,
-    cut: str = "nearest",
+    cut: str | None = None,
     safe: bool = False,
 ) -> str:
     """ "400 .. 1200 ns": one prefix, the unit written once.
+
+    Every caller states how the range is cut (a range shown without a safe side is refused):
+    "nearest" only for values that bound nothing.
 
     cut="outward" widens a worst-case range (the low end down, the high end up), "inward"
     narrows a window (the minimum up, the maximum down); both exactly. `safe=True` is
@@ -174,6 +177,8 @@ def format_range(
     """
     if safe:
         cut = "outward"
+    if cut is None:
+        raise ValueError("format_range: say how the range is cut (outward, inward or nearest)")
     exp3 = choose_exponent([low, high])
     down, up = {"outward": ("down", "up"), "inward": ("up", "down")}.get(cut, (cut, cut))
     lo = format_si(low, unit, digits=digits, exponent=exp3, toward=down).rsplit(" ", 1)[0]

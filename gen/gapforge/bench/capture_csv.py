@@ -51,7 +51,9 @@ from gapforge.base.quantities import TIME_UNITS
 
 _LEVELS = {"0": 0, "1": 1, "x": 2, "X": 2, "z": 3, "Z": 3}
 # a decimal number with an optional sign and exponent ("0E+0", "-998.000E-06"), read exactly
-_DECIMAL = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d{1,2})?$")
+# ASCII digits only (issue 20 item 4): \d would also take other scripts' digits
+_DECIMAL = re.compile(r"^[+-]?([0-9]+(\.[0-9]*)?|\.[0-9]+)([eE][+-]?[0-9]{1,2})?$")
+_LONG_EXPONENT = re.compile(r"^[+-]?([0-9]+(\.[0-9]*)?|\.[0-9]+)[eE][+-]?[0-9]{3,}$")
 
 
 Signals = dict[str, tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8]]]
@@ -150,6 +152,9 @@ def _exact_times(texts: list[tuple[int, str]], where: str) -> tuple[list[Fractio
             raise GapforgeError(f"time {cell[:24]!r}... is longer than {_MAX_TIME_TEXT} characters",
                                 f"{where}:{number}")
         if not _DECIMAL.match(cell):
+            if _LONG_EXPONENT.match(cell):
+                raise GapforgeError(f"time {cell!r}: the exponent has more than 2 digits (no "
+                                    "capture spans such a range)", f"{where}:{number}")
             raise GapforgeError(f"time {cell!r} is not a decimal number", f"{where}:{number}")
         value = Fraction(Decimal(cell))  # exact: a decimal text is a decimal fraction
         denominator = math.lcm(denominator, value.denominator)

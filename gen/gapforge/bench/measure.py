@@ -85,13 +85,15 @@ def measure_capture(
     worst: int = 5,
     resolution_s: Fraction | None = None,
     limits_source: str = "",
+    unjudged: str = "",
 ) -> Measurement:
     """Measure every dead time, overlap, glitch and missing edge; judge against `limits`.
 
     A CaptureStream (capture.open_capture) is measured chunk by chunk: only the gaps (int32
     where they fit), the overlaps and the worst instances are kept, not the edges.
     `resolution_s` widens the capture's own resolution (a coarser instrument); it is rounded
-    up to whole ticks and never narrows it."""
+    up to whole ticks and never narrows it. `unjudged` (why the limits prove nothing, e.g. a
+    design without a power stage) turns an ok into inconclusive (issue 19 item 2)."""
     stream = capture if isinstance(capture, CaptureStream) else stream_of(capture)
     tick = stream.tick_s
     for p in percentiles:
@@ -112,6 +114,8 @@ def measure_capture(
     )
     judged = _judge_edges(raw, limits, tick, resolution, percentiles, bins)
     found = _findings(raw, stream, has_window)
+    if unjudged:
+        found.inconclusive.insert(0, unjudged)
     reasons = found.fail + judged.reasons
     if found.glitch_fail:
         reasons.append(found.glitch_fail)

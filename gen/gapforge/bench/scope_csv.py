@@ -97,6 +97,10 @@ class Block:
 
 
 def _number(text: str) -> float | None:
+    # Python's float() also takes other scripts' digits and '_' separators, which loadtxt
+    # refuses: such a cell is not a number here either, so the error names it (review rev2)
+    if not text.isascii() or "_" in text:
+        return None
     try:
         value = float(text)
     except ValueError:

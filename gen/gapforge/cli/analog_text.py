@@ -33,7 +33,7 @@ def _suggestion_lines(sg: dict[str, Any]) -> list[str]:
     floor = (f" and at least --min-dead {_t(sg['min_dead_s'])}"
              if sg["min_dead_s"] is not None else "")
     if sg["window"] is not None:
-        window = format_range(sg["window"]["min_s"], sg["window"]["max_s"], "s")
+        window = format_range(sg["window"]["min_s"], sg["window"]["max_s"], "s", cut="nearest")
         head = (f"Preferred pairs whose worst-case {sg['dead_time']} lies inside {window} "
                 f"(R from {sg['r_series']}, C from {sg['c_series']}; worst case over all "
                 f"tolerances, positive{floor}; best centred first):")
@@ -70,7 +70,7 @@ def _suggest_answer(sg: dict[str, Any]) -> str:
     """What --suggest found, in one clause (the first line's answer)."""
     pairs = sg["pairs"]
     if sg["window"] is not None:
-        window = format_range(sg["window"]["min_s"], sg["window"]["max_s"], "s")
+        window = format_range(sg["window"]["min_s"], sg["window"]["max_s"], "s", cut="nearest")
         if not pairs:
             return f"no preferred pair gives a worst-case {sg['dead_time']} inside {window}"
         best = pairs[0]

@@ -41,13 +41,14 @@ def parse_window(text: str) -> tuple[Fraction | None, Fraction | None]:
 def build_limits(
     window: str | None, design: Path | None, output: str | None = None,
     current: Fraction | None = None,
-) -> tuple[dict[str, Limits], str]:
-    """Per-edge limits and what they come from, in words: the design's window and the
-    prediction of one output (its table entry at `current`), then `window` over both edges."""
+) -> tuple[dict[str, Limits], str, str]:
+    """Per-edge limits, what they come from, in words, and why they prove nothing (a design
+    without [stage] and no --window; else ""): the design's window and the prediction of one
+    output (its table entry at `current`), then `window` over both edges."""
     from gapforge.bench.measure import EDGES, Limits
 
     per_edge: dict[str, list[Fraction | None]] = {edge: [None, None, None, None] for edge in EDGES}
-    source = ""
+    source = unjudged = ""
     if design is None and (output is not None or current is not None):
         raise GapforgeError("--output and --current select what a design predicts: give --design",
                             "--output" if output is not None else "--current")
@@ -63,12 +64,14 @@ def build_limits(
             if edge in expected.per_edge:
                 per_edge[edge] = list(expected.per_edge[edge])
         source = f"design {design.name}, {expected.source}"
+        unjudged = expected.unjudged
     if window is not None:
         low, high = parse_window(window)
         for edge in EDGES:
             per_edge[edge][0], per_edge[edge][1] = low, high
         source = f"--window {window}" + (f" (prediction: {source})" if source else "")
-    return {edge: Limits(*values) for edge, values in per_edge.items()}, source
+        unjudged = ""  # a window stated by the user is judged
+    return {edge: Limits(*values) for edge, values in per_edge.items()}, source, unjudged
 
 
 def _current(text: str | None) -> Fraction | None:
@@ -159,7 +162,8 @@ def command(captures: tuple[Path, ...], high: str | None, low: str | None, activ
         from gapforge.bench.vcd_header import parse_timescale
 
         timescale = parse_timescale([timescale_text], "--timescale")
-    limits, limits_source = build_limits(window, design, output_name, _current(current_text))
+    limits, limits_source, unjudged = build_limits(window, design, output_name,
+                                                   _current(current_text))
     stream: SerialResult | None = None
     bar: Any = None
     gate: GateCapture | CaptureStream
@@ -208,7 +212,7 @@ def command(captures: tuple[Path, ...], high: str | None, low: str | None, activ
     try:
         result = measure_capture(gate, limits=limits, glitch_width_s=glitch, percentiles=pcts,
                                  bins=bins, worst=worst, resolution_s=resolution,
-                                 limits_source=limits_source)
+                                 limits_source=limits_source, unjudged=unjudged)
     except GapforgeError as exc:
         if bar is not None:
             bar.render_finish()

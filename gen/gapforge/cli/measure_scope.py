@@ -133,6 +133,10 @@ def settings_from(scope: dict[str, Any], resolution: Fraction | None) -> ScopeSe
             raise GapforgeError(f"an analog capture (volts) needs a threshold for the {side}-side "
                                 f"gate: give {THRESHOLD_OPTIONS}", "measure")
         refs[side] = Reference(th, None if th is not None else level)
+    if level is not None and all(r.level_percent is None for r in refs.values()):
+        # issue 21: a reference level that no gate uses would be ignored without a word
+        raise GapforgeError("--level applies only to a gate without a threshold, and both gates "
+                            "have one: give --level or the threshold options, not both", "--level")
     hyst = Fraction(0)
     if scope.get("hysteresis") is not None:
         hyst = parse_quantity(scope["hysteresis"], "V", "--hysteresis", allow_zero=True)
@@ -162,7 +166,7 @@ def logic_capture(files: tuple[Path, ...], scope: dict[str, Any]) -> Path | None
 
 
 def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope: dict[str, Any],
-              *, design: Path | None, limits: tuple[Any, str], current: Fraction | None,
+              *, design: Path | None, limits: tuple[Any, str, str], current: Fraction | None,
               glitch: Fraction, percentiles: tuple[float, ...], bins: int, worst: int,
               resolution: Fraction | None, flags: tuple[bool, bool, bool, bool, bool]) -> None:
     """Read, measure, check the node, print, exit (0 ok, 1 not ok). `limits`: the judged
@@ -192,7 +196,7 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
     cap = read_scope(list(files), high, low, settings)
     result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
                              percentiles=percentiles, bins=bins, worst=worst,
-                             limits_source=limits[1])
+                             limits_source=limits[1], unjudged=limits[2])
     node = None
     if scope.get("node") is not None:
         within = (_percent(scope["soft_within"], "--soft-within")

@@ -241,7 +241,8 @@ def sweep_text(result: Sweep, top: int | None, formula: bool = True) -> str:
     out: list[str] = [best_line(result), ""]
     window = both_edges(
         {
-            edge: format_range(lo, hi, "s") if hi is not None else f"{format_si(lo, 's')} .. no max"
+            edge: format_range(lo, hi, "s", cut="inward") if hi is not None
+            else f"{format_si(lo, 's', toward='up')} .. no max"
             for edge, (lo, hi) in result.limits.items()
         }
     )

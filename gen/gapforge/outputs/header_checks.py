@@ -11,6 +11,7 @@ C++98 compile with #error naming that value.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 from fractions import Fraction
 
@@ -90,6 +91,13 @@ class Check:
 def fields_msb_first(layout: Layout) -> list[Field]:
     """Register fields in bit order, most significant first (comment and macros alike)."""
     return sorted(layout.fields, key=lambda f: f.offset, reverse=True)
+
+
+def fields_text(layout: Layout, codes: Mapping[str, int]) -> str:
+    """ "div=0, to_high_count=18, ...": field codes in bit order, most significant first, as the
+    headers and `targets show` list them (text answers and the report alike)."""
+    return ", ".join(f"{f.name}={codes[f.name]}" for f in fields_msb_first(layout)
+                     if f.name in codes)
 
 
 

@@ -166,7 +166,7 @@ def render_report(plan: BuildPlan, capture: Measurement | None = None,
         opened.append(capture_section(plan, capture))
     opened += extra  # issue 21: the analog capture's traces (outputs/scope_figure.py)
     design_word = verdict_word(plan.verdict)
-    capture_verdict = "-" if capture is None else capture_word(capture.verdict)
+    capture_verdict = "no capture given" if capture is None else capture_word(capture.verdict)
     if design_word != "ok" or (capture is not None and capture.failed):
         verdict_class = "fail"
     else:

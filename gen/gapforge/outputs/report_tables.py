@@ -19,6 +19,7 @@ from gapforge.base.display import (
     verdict_word,
 )
 from gapforge.base.quantities import format_tolerance
+from gapforge.outputs.header_checks import fields_text
 from gapforge.outputs.report_data import window_of
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.layouts import EDGES
@@ -118,7 +119,7 @@ def input_tables(plan: BuildPlan) -> list[TableBlock]:
                 (f"{side}: fall time, max", _t(s.t_fall_max), "s"),
                 (f"{side}: turn-on delay, min", _t(s.td_on_min), "s"),
                 (f"{side}: rise time", _t(s.t_rise), "s"),
-                (f"{side}: driver propagation delay", format_range(s.prop_min, s.prop_max, "s"), "s"),
+                (f"{side}: driver propagation delay", format_range(s.prop_min, s.prop_max, "s", cut="outward"), "s"),
             ]
         st_rows += [
             ("channel mismatch", _t(spec.mismatch), "s"),
@@ -306,7 +307,7 @@ def _register_row(op: OutputPlan) -> tuple[str, ...]:
         fit.layout.name,
         "-" if fit.divider is None else f"code {fit.divider_code} (/{fit.divider})",
         _t(fit.step_s),
-        ", ".join(f"{k}={v}" for k, v in fit.fields.items()) or "-",
+        fields_text(fit.layout, fit.fields) or "-",
         "-" if fit.register is None else format_register(fit.register, fit.layout.register_bits),
         verdict_word(op.verdict),
     )

@@ -19,6 +19,7 @@ from gapforge.base.display import (
     verdict_word,
 )
 from gapforge.base.quantities import format_quantity, format_tolerance
+from gapforge.outputs.header_checks import fields_text
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.fit import FitResult, fit_warnings, step_seconds
 from gapforge.timer.layouts import EDGES, Layout, describe_codes
@@ -285,7 +286,7 @@ def fit_text(result: FitResult, limits: PwmLimits | None, verdict: str) -> str:
     lines.append("")
     if result.ok:
         assert result.register is not None
-        fields = ", ".join(f"{k}={v}" for k, v in result.fields.items())
+        fields = fields_text(result.layout, result.fields)
         lines.append(f"fields: {fields}; register "
                      f"{format_register(result.register, result.layout.register_bits)}")
         lines += [f"warning: {w}" for w in fit_warnings(result)]
@@ -515,7 +516,9 @@ def plan_text(plan: BuildPlan) -> str:
             lines.append(driver_text(op.output.prefix, op.driver, op.limits.counts))
     for r in plan.reasons:
         lines.append(f"{plan.verdict}: {r}")
-    lines.append(f"verdict: {plan.verdict}")
+    word = verdict_word(plan.verdict)
+    # one verdict word for every command (issue 19 item 4); the detail stays in brackets
+    lines.append(f"verdict: {word}" + ("" if word == plan.verdict else f" ({plan.verdict})"))
     return "\n".join(lines)
 
 
@@ -569,7 +572,7 @@ def _output_rows(op: OutputPlan) -> list[list[str]]:
                 _t(x.achieved_s),
                 _range(x.achieved_min_s, x.achieved_max_s),
                 margin,
-                op.verdict if e == "to_high" else "",
+                verdict_word(op.verdict) if e == "to_high" else "",
             ]
         )
     return rows

@@ -10,7 +10,7 @@ were used, in words.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from fractions import Fraction
 from pathlib import Path
 from typing import Any
@@ -24,6 +24,8 @@ from gapforge.timer.layouts import EDGES
 class CaptureExpectation:
     per_edge: dict[str, Expectation]  # edge -> (window min, window max, predicted min, max)
     source: str  # which output and entry the prediction is from, in words
+    # why a gap inside these limits proves nothing (a design without [stage]: issue 19 item 2)
+    unjudged: str = ""
 
 
 def _window(plan: BuildPlan, edge: str) -> tuple[Fraction | None, Fraction | None]:
@@ -67,6 +69,18 @@ def _amps(value: Fraction) -> str:
 def expectation_for(plan: BuildPlan, output: str | None = None,
                     current_a: Fraction | None = None, where: str = "") -> CaptureExpectation:
     """The window and the prediction of the named output (the table entry at `current_a`)."""
+    exp = _expectation(plan, output, current_a, where)
+    if plan.stage is None:
+        return replace(exp, unjudged=UNJUDGED)
+    return exp
+
+
+UNJUDGED = ("not judged against a power stage (the design has no [stage] section: its requested "
+            "dead time is no proven minimum; give --window from the switches' datasheets)")
+
+
+def _expectation(plan: BuildPlan, output: str | None, current_a: Fraction | None,
+                 where: str) -> CaptureExpectation:
     op = _pick_output(plan, output, where)
     per_edge: dict[str, Expectation] = {}
     windows = {e: _window(plan, e) for e in EDGES}
