@@ -226,3 +226,57 @@ def test_the_accepted_temperature_ends_give_finite_ranges() -> None:
     net = network_from_options({"r": "4.7k", "c": "100p", "temp": "-60:25:200"})
     for rng in reference_dead_times(net).values():
         assert math.isfinite(float(rng.min_s)) and math.isfinite(float(rng.max_s))
+
+
+def test_the_stored_eight_point_rule_is_numpys_and_the_tables() -> None:
+    # The build uses a stored copy of numpy.polynomial.legendre.leggauss(8) (issue 22: no import
+    # of numpy.polynomial on every build). It must be numpy's bit for bit, and the rule itself
+    # that of Abramowitz & Stegun, Handbook of Mathematical Functions, table 25.4 (n = 8).
+    nodes, weights = diode_edge_module.gauss_legendre(8)
+    np_nodes, np_weights = np.polynomial.legendre.leggauss(8)
+    assert nodes.tobytes() == np_nodes.tobytes() and weights.tobytes() == np_weights.tobytes()
+    table = [(0.183434642495649804939476142360, 0.362683783378361982965150449277),
+             (0.525532409916328985817739049189, 0.313706645877887287337962201987),
+             (0.796666477413626739591553936476, 0.222381034453374470544355994426),
+             (0.960289856497536231683560868569, 0.101228536290376259152531354310)]
+    for k, (x, w) in enumerate(table):
+        assert nodes[4 + k] == pytest.approx(x, rel=1e-15) and -nodes[3 - k] == nodes[4 + k]
+        assert weights[4 + k] == pytest.approx(w, rel=1e-15) and weights[3 - k] == weights[4 + k]
+    other = diode_edge_module.gauss_legendre(5)  # any other count: numpy's rule
+    assert np.array_equal(other[0], np.polynomial.legendre.leggauss(5)[0])
+
+
+def _both_laws_reference(x: np.ndarray, s_: np.ndarray, v_: np.ndarray) -> tuple:
+    """The reverse law as np.where over both branches (the form before issue 22's speed-up)."""
+    xc = np.maximum(x, 1e-300)
+    e = np.exp(-np.minimum(x, 3.0 * v_) / v_)
+    a = (3.0 * v_ / (math.e * xc)) ** 3
+    small = x <= 3.0 * v_
+    return (s_ * np.where(small, 1.0 - e, 1.0 - a) + diode_edge_module.GMIN * x,
+            np.where(small, s_ * e / v_, 3.0 * s_ * a / xc) + diode_edge_module.GMIN)
+
+
+def test_each_law_computed_only_where_needed_is_the_same_arithmetic() -> None:
+    # The reverse current and the depletion charge compute a branch only where some sample
+    # needs it (issue 22). Every sample must get exactly (bit for bit) what np.where over both
+    # branches gives: all on one side, all on the other, and mixed.
+    rng = np.random.default_rng(22)
+    v_ = rng.uniform(0.03, 0.06, 64)
+    s_ = 10 ** rng.uniform(-12, -6, 64)
+    for x in (rng.uniform(0.0, 0.05, 64), rng.uniform(0.5, 5.0, 64), rng.uniform(0.0, 1.0, 64)):
+        got = diode_edge_module._reverse(x, s_, v_)
+        want = _both_laws_reference(x, s_, v_)
+        assert all(g.tobytes() == w.tobytes() for g, w in zip(got, want, strict=True))
+    d = parse_diode("IS=4n N=1.9 RS=0.6 CJO=1.5p VJ=0.7 M=0.4", "x")
+    j = junction_arrays(d, rng.uniform(-40.0, 125.0, 64))
+    for vd in (rng.uniform(-5.0, 0.0, 64), rng.uniform(0.5, 0.9, 64), rng.uniform(-1.0, 1.0, 64)):
+        got = diode_edge_module._depletion(vd, j.cj, j.vj, j.fc_v, j.f1, j)
+        below = vd < j.fc_v
+        arg = np.maximum(1.0 - vd / j.vj, 1.0 - j.fc_v / j.vj)
+        s = np.exp(-j.m * np.log(arg))
+        c2 = j.cj / j.f2
+        q = np.where(below, j.vj * j.cj * (1.0 - arg * s) / (1.0 - j.m),
+                     j.cj * j.f1 + c2 * (j.f3 * (vd - j.fc_v)
+                                         + j.m / (2.0 * j.vj) * (vd * vd - j.fc_v * j.fc_v)))
+        c = np.where(below, j.cj * s, c2 * (j.f3 + j.m * vd / j.vj))
+        assert got[0].tobytes() == q.tobytes() and got[1].tobytes() == c.tobytes()

@@ -241,3 +241,27 @@ def test_readme_firmware_example_compiles_against_the_golden_header(tmp_path: Pa
     for line in block.splitlines():
         if line.strip().startswith("word = "):
             assert line.strip() in header  # the same lines as the header comment
+
+
+def test_comment_text_takes_printable_ascii_whole_and_escapes_the_rest() -> None:
+    # issue 22 took printable ASCII (0x20..0x7e) whole instead of character by character; the
+    # result must equal the character-by-character escape for every string, and stay inert in
+    # a C comment (C11 6.4.9: a comment ends only at */; 5.2.1.1 trigraphs; 5.1.1.2 splicing).
+    import random
+
+    from gapforge.outputs.c_text import _visible, comment
+
+    rng = random.Random(22)
+    pools = [range(0x20, 0x7F), range(0, 0x80), range(0x80, 0x11000)]
+    for _ in range(20_000):
+        text = "".join(chr(rng.choice(rng.choice(pools))) for _ in range(rng.randrange(0, 8)))
+        text += rng.choice(["", "*/", "/*", "??/", "\\"])
+        slow = "".join(_visible(ch) for ch in text)
+        while "*/" in slow or "/*" in slow or "??" in slow:
+            slow = slow.replace("*/", "*\\/").replace("/*", "/\\*").replace("??", "?\\?")
+        if slow.endswith("\\"):
+            slow += " "
+        got = comment(text)
+        assert got == slow
+        assert "*/" not in got and "/*" not in got and "??" not in got
+        assert not got.endswith("\\") and all(0x20 <= ord(c) < 0x7F for c in got)

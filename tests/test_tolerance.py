@@ -207,3 +207,18 @@ def test_corners_of_many_pairs_equal_each_pair_on_its_own() -> None:
                 assert many[k][key] == pytest.approx(values, rel=1e-12, abs=1e-21)
             for key, value in tol.typical(alone).items():
                 assert float(typ[key][k]) == pytest.approx(value, rel=1e-12)
+
+
+@pytest.mark.parametrize("bypass", ["rising", "falling", "none"])
+def test_the_worst_case_check_sees_the_monte_carlo_extremes(bypass: str) -> None:
+    # issue 22: the worst case's check takes only the extremes of the seeded draws (no
+    # percentiles); they must be monte_carlo's own min and max for the same seed and count.
+    net = network_from_options({"r": "4.7k", "c": "100p", "bypass": bypass})
+    found = tol.monte_carlo_extremes(net, 3_000, seed=20240601)
+    mc = tol.monte_carlo(net, 3_000, seed=20240601)
+    for key in tol.QUANTITIES:
+        assert found[key] == (mc.stats[key].min, mc.stats[key].max)
+    chunked = tol.monte_carlo_extremes(net, 3_000, seed=20240601, chunk=700)
+    mc_chunked = tol.monte_carlo(net, 3_000, seed=20240601, chunk=700)
+    for key in tol.QUANTITIES:
+        assert chunked[key] == (mc_chunked.stats[key].min, mc_chunked.stats[key].max)

@@ -24,7 +24,21 @@ _REF_K = 300.15  # K, reference temperature of the SPICE junction-potential scal
 _BOLTZMANN = 1.380649e-23
 _CHARGE = 1.602176634e-19
 _BLOCK = 16_384  # samples per block of the charge integral
+_PANEL_ROWS = 1_024  # samples per piece of a quadrature panel (8 nodes each: 64 KiB arrays)
 QUADRATURE_NODES = 8  # Gauss-Legendre nodes per panel; tests hold it to 1e-4 of a fine sum
+# The 8-point Gauss-Legendre rule on [-1, 1] as numpy.polynomial.legendre.leggauss(8) returns it,
+# bit for bit (a test compares them, and with Abramowitz & Stegun table 25.4): every build needs
+# it, and importing numpy.polynomial for it cost more than the rule's use.
+_GAUSS_8 = (
+    tuple(float.fromhex(h) for h in (
+        "-0x1.ebab1cb0acc66p-1", "-0x1.97e4ab249f41ep-1", "-0x1.0d129583284b4p-1",
+        "-0x1.77ac94f3c7344p-3", "0x1.77ac94f3c7344p-3", "0x1.0d129583284b4p-1",
+        "0x1.97e4ab249f41ep-1", "0x1.ebab1cb0acc66p-1")),
+    tuple(float.fromhex(h) for h in (
+        "0x1.9ea1d04ca03aep-4", "0x1.c76fb531d2b94p-3", "0x1.413c50a25560ep-2",
+        "0x1.736360b19933dp-2", "0x1.736360b19933dp-2", "0x1.413c50a25560ep-2",
+        "0x1.c76fb531d2b94p-3", "0x1.9ea1d04ca03aep-4")),
+)
 
 
 @dataclass(frozen=True, eq=False)
@@ -51,9 +65,17 @@ def _depletion(
 
     m = j.m
     below = vd < fc_v
-    arg = np.maximum(1.0 - vd / vj, 1.0 - fc_v / vj)  # > 0: the network check keeps VJ(T) > 0
-    s = np.exp(-m * np.log(arg)) if below.any() else np.ones_like(arg)
     c2 = cj / j.f2
+    # each law computed only where some sample needs it (the same arithmetic per sample as
+    # `np.where` over both): a reverse-biased junction is always below FC * VJ, and a panel of
+    # the forward edge mostly lies wholly on one side
+    if not below.any():
+        return (cj * f1 + c2 * (j.f3 * (vd - fc_v) + m / (2.0 * vj) * (vd * vd - fc_v * fc_v)),
+                c2 * (j.f3 + m * vd / vj))
+    arg = np.maximum(1.0 - vd / vj, 1.0 - fc_v / vj)  # > 0: the network check keeps VJ(T) > 0
+    s = np.exp(-m * np.log(arg))
+    if below.all():
+        return vj * cj * (1.0 - arg * s) / (1.0 - m), cj * s
     q = np.where(
         below,
         vj * cj * (1.0 - arg * s) / (1.0 - m),
@@ -242,7 +264,7 @@ def _state(
     """i, D, D', Q, Q' at x (p: gathered parameters; Q, Q' zero unless `charge`)."""
     import numpy as np
 
-    s_, v_, r_, ro, _c, cj, vj, fc_v, f1 = p
+    s_, v_, r_, ro = p[:4]
     if s.forward:
         e = np.exp(np.minimum(x / v_, 700.0))
         idd = s_ * (e - 1.0) + GMIN * x
@@ -250,17 +272,40 @@ def _state(
         vp = x + s.rs * idd
         vpp = 1.0 + s.rs * gd
     else:  # the SPICE reverse law: exponential to -3 N VT, then a cubic approach to -IS
-        xc = np.maximum(x, 1e-300)
-        e = np.exp(-np.minimum(x, 3.0 * v_) / v_)
-        a = (3.0 * v_ / (math.e * xc)) ** 3
-        small = x <= 3.0 * v_
-        idd = s_ * np.where(small, 1.0 - e, 1.0 - a) + GMIN * x
-        gd = np.where(small, s_ * e / v_, 3.0 * s_ * a / xc) + GMIN
-        vp = x
-        vpp = np.ones_like(x)
+        idd, gd = _reverse(x, s_, v_)
+        i = x / r_ + idd
+        return _finish(s, x, p, charge, i, x + ro * i, 1.0 + ro * (1.0 / r_ + gd))
     i = vp / r_ + idd
     d = vp + ro * i
     dp = vpp + ro * (vpp / r_ + gd)
+    return _finish(s, x, p, charge, i, d, dp)
+
+
+def _reverse(x: FloatArray, s_: FloatArray, v_: FloatArray) -> tuple[FloatArray, FloatArray]:
+    """Reverse current and conductance at x; each law computed only where some sample needs it
+    (the same arithmetic per sample as `np.where` over both laws)."""
+    import numpy as np
+
+    small = x <= 3.0 * v_
+    if small.all():
+        e = np.exp(-np.minimum(x, 3.0 * v_) / v_)
+        return s_ * (1.0 - e) + GMIN * x, s_ * e / v_ + GMIN
+    xc = np.maximum(x, 1e-300)
+    a = (3.0 * v_ / (math.e * xc)) ** 3
+    if not small.any():
+        return s_ * (1.0 - a) + GMIN * x, 3.0 * s_ * a / xc + GMIN
+    e = np.exp(-np.minimum(x, 3.0 * v_) / v_)
+    idd = s_ * np.where(small, 1.0 - e, 1.0 - a) + GMIN * x
+    gd = np.where(small, s_ * e / v_, 3.0 * s_ * a / xc) + GMIN
+    return idd, gd
+
+
+def _finish(
+    s: _Edge, x: FloatArray, p: tuple[FloatArray, ...], charge: bool, i: FloatArray,
+    d: FloatArray, dp: FloatArray,
+) -> tuple[FloatArray, ...]:
+    """`_state`'s result: the junction's charge added when the edge has one and it is asked."""
+    _s, _v, _r, _ro, _c, cj, vj, fc_v, f1 = p
     if not (s.with_charge and charge):
         return i, d, dp, 0.0 * x, 0.0 * x
     q, qp = _depletion(x if s.forward else -x, cj, vj, fc_v, f1, s.j)
@@ -288,22 +333,40 @@ def _solve(s: _Edge, jump: bool, target: FloatArray) -> FloatArray:
     x = np.where(np.isfinite(x), np.minimum(x, hi), hi)
     active = np.arange(s.n)
     for _ in range(100):
-        xa = x[active]
-        p = s.gather_ends(active)
+        # while every sample is in work, the arrays themselves (no gathering, no scattering)
+        every = active.size == s.n
+        xa = x if every else x[active]
+        p = s.ends if every else s.gather_ends(active)
+        goal = target if every else target[active]
         _i, d, dp, q, qp = _state(s, xa, p, jump)
         if jump:
-            f, fp = p[4] * d + q - target[active], p[4] * dp + qp
+            f, fp = p[4] * d + q - goal, p[4] * dp + qp
         else:
-            f, fp = d - target[active], dp
-        lo_a = np.where(f <= 0.0, xa, lo[active])
-        hi_a = np.where(f >= 0.0, xa, hi[active])
+            f, fp = d - goal, dp
+        lo_a = np.where(f <= 0.0, xa, lo if every else lo[active])
+        hi_a = np.where(f >= 0.0, xa, hi if every else hi[active])
         newton = xa - f / fp
         x_new = np.where((newton >= lo_a) & (newton <= hi_a), newton, 0.5 * (lo_a + hi_a))
-        lo[active], hi[active], x[active] = lo_a, hi_a, x_new
-        active = active[np.abs(x_new - xa) > 1e-12 * s.span[active]]
+        if every:
+            lo, hi, x = lo_a, hi_a, x_new
+            moved = np.abs(x_new - xa) > 1e-12 * s.span
+        else:
+            lo[active], hi[active], x[active] = lo_a, hi_a, x_new
+            moved = np.abs(x_new - xa) > 1e-12 * s.span[active]
+        active = active[moved]
         if active.size == 0:
             break
     return x
+
+
+def gauss_legendre(count: int) -> tuple[FloatArray, FloatArray]:
+    """Nodes and weights of the `count`-point Gauss-Legendre rule on [-1, 1] (numpy's)."""
+    import numpy as np
+
+    if count == 8:
+        return np.asarray(_GAUSS_8[0]), np.asarray(_GAUSS_8[1])
+    nodes, weights = np.polynomial.legendre.leggauss(count)
+    return nodes, weights
 
 
 def _integrate(
@@ -322,18 +385,29 @@ def _integrate(
             knee = np.clip(_knee(r_a[live] * sat_a[live], vte[live]), lo_x, hi_x)
     else:
         knee = hi_x
-    nodes, weights = np.polynomial.legendre.leggauss(QUADRATURE_NODES)
+    nodes, weights = gauss_legendre(QUADRATURE_NODES)
 
     def panel(rows: npt.NDArray[np.intp], a: FloatArray, b: FloatArray, log: bool) -> FloatArray:
+        # node-major (nodes x samples): each parameter is one contiguous row that broadcasts
+        # down the nodes, which numpy's loops run fastest; in pieces of _PANEL_ROWS samples so
+        # the temporaries stay small (in cache, no fresh pages); the same arithmetic per element
+        # as one samples x nodes block, and the integrand transposed back (contiguous, whole)
+        # for the same weighted sum
         half = 0.5 * (b - a)
-        u = (a + half)[:, None] + half[:, None] * nodes[None, :]
-        x = np.exp(u) if log else u
-        p = s.gather(rows, True)
-        i, _d, dp, _q, qp = _state(s, x, p)
-        integrand = (p[4] * dp + qp) / i
-        if log:
-            integrand *= x
-        total: FloatArray = half * (integrand @ weights)
+        start = a + half
+        p_all = s.gather(rows, False)
+        integrand = np.empty((nodes.size, rows.size))
+        for k in range(0, rows.size, _PANEL_ROWS):
+            piece = slice(k, k + _PANEL_ROWS)
+            u = start[None, piece] + half[None, piece] * nodes[:, None]
+            x = np.exp(u) if log else u
+            p = tuple(column[piece] for column in p_all)
+            i, _d, dp, _q, qp = _state(s, x, p)
+            part = (p[4] * dp + qp) / i
+            if log:
+                part *= x
+            integrand[:, piece] = part
+        total: FloatArray = half * (np.ascontiguousarray(integrand.T) @ weights)
         return total
 
     result = panel(live, np.log(lo_x), np.log(knee), True)

@@ -20,8 +20,6 @@ from gapforge.base.caution import SHORT as CAUTION
 from gapforge.base.errors import GapforgeError
 from gapforge.base.files import check_output_set, commit, compare, prepare
 from gapforge.cli.options import diagram_options, emit_json, json_option
-from gapforge.outputs.answer import plan_answer
-from gapforge.outputs.views import plan_json, plan_text
 from gapforge.pipeline.build import BuildPlan, plan_design
 from gapforge.pipeline.design import load_design
 from gapforge.timer.limits import counter_problem
@@ -90,6 +88,8 @@ def command(
         return
     prepared = prepare(texts, parents=parents)  # every path and folder checked before output
     if as_json:
+        from gapforge.outputs.views import plan_json
+
         doc = plan_json(plan)
         if not ok:
             doc["strict"] = problems
@@ -156,6 +156,11 @@ def _texts(
 
 
 def _report(plan: BuildPlan, problems: list[str], no_diagram: bool, ascii_only: bool) -> None:
+    # (the report's modules are imported where a report is shown: an up-to-date --check
+    # shows none)
+    from gapforge.outputs.answer import plan_answer
+    from gapforge.outputs.views import plan_text
+
     for line in plan_answer(plan):
         click.echo(line)
     for line in problems:
@@ -187,6 +192,8 @@ def _check(
         verdict = "inconclusive"  # current files, but nobody judged the dead time (issue 19)
     lists = {"missing": outcome.missing, "stale": outcome.stale, "unchanged": outcome.unchanged}
     if as_json:
+        from gapforge.outputs.views import plan_json
+
         doc: dict[str, Any] = plan_json(plan)
         doc["verdict"] = verdict  # the check's: ok only when the design builds and all is current
         doc["check"] = {k: [str(p) for p in v] for k, v in lists.items()}
@@ -198,6 +205,8 @@ def _check(
             why = f" ({plan.reasons[0]})" if plan.verdict == "inconclusive" else ""
             click.echo(f"check {verdict}{why}: {counts}")
         else:
+            from gapforge.outputs.answer import plan_answer
+
             click.echo("check fail: the design does not build, so no file can be current")
             for line in [*plan_answer(plan), *problems]:
                 click.echo(f"  {line}")

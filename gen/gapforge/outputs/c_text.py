@@ -28,7 +28,9 @@ def _visible(ch: str) -> str:
 
 def comment(text: str) -> str:
     """One line safe inside a C block comment, on every standard (C89 trigraphs included)."""
-    out = "".join(_visible(ch) for ch in text)
+    # printable ASCII (0x20..0x7e) is every character `_visible` keeps: most text, taken whole
+    printable = text.isascii() and text.isprintable()
+    out = text if printable else "".join(_visible(ch) for ch in text)
     # a backslash escape above keeps its backslash; make every backslash harmless at a line end
     # and never part of a trigraph: C comments end only at */, so a plain backslash is inert
     # except as the last character of a line (line splicing), which the trailing guard prevents

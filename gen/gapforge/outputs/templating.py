@@ -5,11 +5,17 @@ Templates hold layout only (loops over rows prepared in Python; no arithmetic, n
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import jinja2
 
 
+@lru_cache(maxsize=2)
 def environment(*, html: bool = False) -> jinja2.Environment:
-    """C and text templates keep every newline as written; HTML escapes and trims block lines."""
+    """C and text templates keep every newline as written; HTML escapes and trims block lines.
+
+    One environment per kind for the process: it keeps its compiled templates, so a design
+    with several outputs compiles the header template once (the caller only renders)."""
     return jinja2.Environment(
         loader=jinja2.PackageLoader("gapforge.outputs", "templates"),
         undefined=jinja2.StrictUndefined,

@@ -236,13 +236,27 @@ def _read_stage(top: Table, pwm: PwmSpec | None) -> Any:
 
 def _read_adaptive(top: Table, stage: Any) -> Any:
     """[adaptive]: the current-indexed table (read by gapforge.stage.adaptive)."""
+    if top.sub("adaptive") is None and not _mentions_qoss(top.data.get("stage")):
+        return None  # nothing to read or check (the module is not even imported)
     from gapforge.stage.adaptive import read_adaptive
 
     return read_adaptive(top, stage)
 
 
+def _mentions_qoss(stage: Any) -> bool:
+    """Whether [stage] or [stage.high] / [stage.low] has a qoss (read and checked with
+    [adaptive], even when [adaptive] is absent)."""
+    if not isinstance(stage, dict):
+        return False
+    return "qoss" in stage or any(
+        isinstance(stage.get(side), dict) and "qoss" in stage[side] for side in ("high", "low")
+    )
+
+
 def _read_gate_driver(top: Table, pwm: PwmSpec | None) -> Any:
     """[gate_driver]: minimum pulse and bootstrap refresh (read by gapforge.timer.driver)."""
+    if top.sub("gate_driver") is None:
+        return None  # (the driver module is not even imported: a build starts faster)
     from gapforge.timer.driver import read_gate_driver
 
     gate_driver = read_gate_driver(top)
