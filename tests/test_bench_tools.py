@@ -6,7 +6,7 @@ file and the outside reference it is checked against:
   whole whenever any bit changes, with a `$dumpall` checkpoint every 2.5 us (IEEE 1364-2005
   clause 18: a vector value change writes the whole vector; `$dumpall` writes every value).
   Reference: the delays in the Verilog source, and the scalars against the bus bits.
-- sigrok-cli's demo driver (an open-source logic-analyser tool), exported as VCD and as CSV.
+- an open-source logic-analyser command-line tool's demo driver (the package CI installs), exported as VCD and as CSV.
   Reference: an independent pure-Python decode of the exported samples in this file.
 """
 
@@ -25,7 +25,7 @@ from gapforge.base.errors import GapforgeError
 from gapforge.cli import cli
 
 IVERILOG = shutil.which("iverilog") and shutil.which("vvp")
-SIGROK = shutil.which("sigrok-cli")
+ANALYSER = shutil.which("sigrok-cli")  # the logic-analyser CLI
 
 TESTBENCH = r"""
 `timescale 1ns/1ns
@@ -98,18 +98,18 @@ def test_gates_as_bits_of_a_bus_with_dumpall(simulated: Path) -> None:
         assert scalar[key] == bus[key], key
 
 
-def _sigrok(where: Path, name: str, output: str, *config: str) -> Path:
-    """sigrok-cli's demo driver; channel names as a user types them (with spaces)."""
-    assert SIGROK is not None
+def _analyser_export(where: Path, name: str, output: str, *config: str) -> Path:
+    """the analyser CLI's demo driver; channel names as a user types them (with spaces)."""
+    assert ANALYSER is not None
     path = where / name
-    subprocess.run([SIGROK, "-d", "demo", "--samples", "400", "-C",
+    subprocess.run([ANALYSER, "-d", "demo", "--samples", "400", "-C",
                     "D0=High Side PWM,D1=Low Side", *config, "-O", output, "-o", str(path)],
                    check=True, timeout=60, capture_output=True)
     return path
 
 
 def _decode(path: Path) -> tuple[Fraction, list[tuple[int, int]]]:
-    """Independent decode of sigrok's '#'-commented CSV: the sample period and the rows."""
+    """Independent decode of the analyser tool's '#'-commented CSV: the sample period and the rows."""
     period: Fraction | None = None
     rows: list[tuple[int, int]] = []
     for line in path.read_text().splitlines():
@@ -143,13 +143,13 @@ def _gaps(rows: list[tuple[int, int]]) -> dict[str, list[int]]:
     return gaps
 
 
-@pytest.mark.skipif(SIGROK is None, reason="sigrok-cli not installed")
+@pytest.mark.skipif(ANALYSER is None, reason="the logic-analyser CLI is not installed")
 def test_logic_analyser_vcd_and_csv(tmp_path: Path) -> None:
-    # walking-one pattern at sigrok's default 200 kHz: the high side on for one sample, the low
+    # walking-one pattern at the analyser tool's default 200 kHz: the high side on for one sample, the low
     # side the next (a hand-over with no dead time), then both off until the high side again
     pattern = ("-g", "Logic", "--config", "pattern=walking-one")
-    vcd = _sigrok(tmp_path, "demo.vcd", "vcd", *pattern)
-    csv = _sigrok(tmp_path, "demo.csv", "csv:label=channel:comment=#", *pattern)
+    vcd = _analyser_export(tmp_path, "demo.vcd", "vcd", *pattern)
+    csv = _analyser_export(tmp_path, "demo.csv", "csv:label=channel:comment=#", *pattern)
     text = vcd.read_text()
     assert "at 200 kHz" in text and "$var wire 1 ! High Side PWM $end" in text
     period, rows = _decode(csv)
@@ -182,10 +182,10 @@ def test_logic_analyser_vcd_and_csv(tmp_path: Path) -> None:
     assert docs[0]["verdict"] == "fail"
 
 
-@pytest.mark.skipif(SIGROK is None, reason="sigrok-cli not installed")
+@pytest.mark.skipif(ANALYSER is None, reason="the logic-analyser CLI is not installed")
 def test_logic_analyser_rate_finer_than_the_unit(tmp_path: Path) -> None:
     # 16 MHz samples in a VCD of 100 ps ticks: the resolution is 62.5 ns (625 ticks), not 100 ps
-    vcd = _sigrok(tmp_path, "fast.vcd", "vcd", "--config", "samplerate=16M")
+    vcd = _analyser_export(tmp_path, "fast.vcd", "vcd", "--config", "samplerate=16M")
     assert "at 16 MHz" in vcd.read_text() and "$timescale 100 ps $end" in vcd.read_text()
     code, doc = _measure([str(vcd), "--high", "High Side PWM", "--low", "Low Side"])
     assert isinstance(doc, dict), doc
@@ -199,13 +199,13 @@ def test_logic_analyser_rate_finer_than_the_unit(tmp_path: Path) -> None:
     assert doc["resolution_s"] == pytest.approx(125e-9) and doc["resolution_origin"] == "--resolution"
 
 
-@pytest.mark.skipif(SIGROK is None, reason="sigrok-cli not installed")
+@pytest.mark.skipif(ANALYSER is None, reason="the logic-analyser CLI is not installed")
 def test_logic_analyser_default_csv_and_unknown_names(tmp_path: Path) -> None:
-    csv = _sigrok(tmp_path, "default.csv", "csv")
-    assert csv.read_text().startswith(";")  # what sigrok-cli writes by default
+    csv = _analyser_export(tmp_path, "default.csv", "csv")
+    assert csv.read_text().startswith(";")  # what the analyser CLI writes by default
     code, message = _measure([str(csv), "--high", "High Side PWM", "--low", "Low Side"])
     assert code == 2 and "';' comment lines" in str(message) and "'#'" in str(message)
-    vcd = _sigrok(tmp_path, "names.vcd", "vcd")
+    vcd = _analyser_export(tmp_path, "names.vcd", "vcd")
     code, message = _measure([str(vcd), "--high", "High Side", "--low", "Low Side"])
     # the names the file has, no guess (a close name may be the other gate)
     assert code == 2 and "'libsigrok.High Side PWM'" in str(message)
