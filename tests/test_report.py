@@ -712,3 +712,17 @@ def test_capture_is_judged_like_measure_design(tmp_path: Path) -> None:
     assert result.returncode == 1, result.stderr
     assert "capture inconclusive" in result.stdout
     assert "not judged against a power stage" in (tmp_path / "n.html").read_text()
+
+
+def test_analog_options_with_a_logic_capture_are_refused(tmp_path: Path) -> None:
+    """Issue 21: an option that only an oscilloscope export can use is an error with a logic
+    capture (as in `measure`), never silently ignored; nothing is written."""
+    cap = tmp_path / "logic.csv"
+    cap.write_text("time_ns,signal,level\n0,gh,0\n0,gl,1\n2500,gl,0\n2600,gh,1\n"
+                   "7500,gh,0\n7600,gl,1\n")
+    result = run(["report", str(EXAMPLES / "gan-buck.toml"), "-o", str(tmp_path / "r.html"),
+                  "--capture", str(cap), "--high", "gh", "--low", "gl", "--hysteresis", "0.4V"],
+                 tmp_path)
+    assert result.returncode == 2 and "analog options" in result.stderr
+    assert len(result.stderr.strip().splitlines()) == 1
+    assert not (tmp_path / "r.html").exists()

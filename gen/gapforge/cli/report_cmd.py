@@ -90,6 +90,10 @@ def command(
         if wants_scope((capture,), scope):
             measurement, extra = report_scope(capture, high, low, scope, limits, glitch)
     if capture is not None and measurement is None:
+        from gapforge.cli.measure_scope import SCOPE_KEYS
+
+        if any(scope.get(k) is not None for k in SCOPE_KEYS):
+            raise GapforgeError("analog options apply to oscilloscope exports (volts)", "report")
         if high is None or low is None:
             raise GapforgeError("name both gate signals with --high and --low", "--capture")
         if not capture.is_file():
