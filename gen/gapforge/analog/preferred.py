@@ -195,6 +195,15 @@ def _candidates(
     return candidates
 
 
+def _series_net(net: ReferenceNetwork, r_series: str, c_series: str) -> ReferenceNetwork:
+    """The network with the series' usual tolerances where the user left the default (both
+    series checked first: an unknown one is a usage error naming its option)."""
+    for name, where in ((r_series, "--series"), (c_series, "--c-series")):
+        if name not in SERIES:
+            raise GapforgeError(f"unknown series {name!r}", where)
+    return series_tolerances(net, r_series, c_series)
+
+
 def suggest(
     net: ReferenceNetwork,
     target_s: Fraction,
@@ -231,10 +240,7 @@ def suggest(
                             "--suggest-rank")
     if target_s <= 0:
         raise GapforgeError("the wanted dead time must be greater than zero", "--suggest")
-    for name, where in ((r_series, "--series"), (c_series, "--c-series")):
-        if name not in SERIES:
-            raise GapforgeError(f"unknown series {name!r}", where)
-    net = series_tolerances(net, r_series, c_series)
+    net = _series_net(net, r_series, c_series)
     target = float(target_s)
     candidates = _candidates(net, [target], key, r_series, c_series, r_limits, c_limits)
     parts = list(candidates)
@@ -307,10 +313,7 @@ def suggest_window(
     if not 0 < low_s < high_s:
         raise GapforgeError("the window must be MIN:MAX with 0 < MIN < MAX (e.g. 114ns:300ns)",
                             "--suggest")
-    for name, where in ((r_series, "--series"), (c_series, "--c-series")):
-        if name not in SERIES:
-            raise GapforgeError(f"unknown series {name!r}", where)
-    net = series_tolerances(net, r_series, c_series)
+    net = _series_net(net, r_series, c_series)
     lo, hi = float(low_s), float(high_s)
     middle = (lo + hi) / 2
     targets = [lo + (hi - lo) * k / WINDOW_TARGETS for k in range(1, WINDOW_TARGETS)]

@@ -40,7 +40,7 @@ def parse_window(text: str) -> tuple[Fraction | None, Fraction | None]:
 
 def build_limits(
     window: str | None, design: Path | None, output: str | None = None,
-    current: Fraction | None = None,
+    current: Fraction | None = None, output_option: str = "--output",
 ) -> tuple[dict[str, Limits], str, str]:
     """Per-edge limits, what they come from, in words, and why they prove nothing (a design
     without [stage] and no --window; else ""): the design's window and the prediction of one
@@ -56,7 +56,7 @@ def build_limits(
         from gapforge.pipeline.expectations import design_expectation
 
         try:
-            expected = design_expectation(design, output, current)
+            expected = design_expectation(design, output, current, output_option)
         except GapforgeError as exc:
             raise exc if exc.where and (str(design) in exc.where or exc.where.startswith("--")
                                         ) else exc.at(str(design)) from None

@@ -128,10 +128,5 @@ def _capture_limits(design: Path, output: str | None,
     [stage] proves nothing, so the capture verdict is inconclusive)."""
     from gapforge.cli.measure_cmd import _current, build_limits
 
-    try:
-        return build_limits(None, design, output, _current(current_text))
-    except GapforgeError as exc:
-        if exc.where == "--output" or "--output" in exc.message:
-            raise GapforgeError(exc.message.replace("--output", "--capture-output"),
-                                "--capture-output") from None
-        raise
+    return build_limits(None, design, output, _current(current_text),
+                        output_option="--capture-output")

@@ -35,18 +35,19 @@ def _window(plan: BuildPlan, edge: str) -> tuple[Fraction | None, Fraction | Non
     return (plan.request.requested(edge) if plan.request is not None else None), None
 
 
-def _pick_output(plan: BuildPlan, name: str | None, where: str) -> OutputPlan | None:
+def _pick_output(plan: BuildPlan, name: str | None, where: str,
+                 option: str) -> OutputPlan | None:
     names = [op.output.prefix for op in plan.outputs]
     if name is None:
         if len(plan.outputs) > 1:
             raise GapforgeError(f"the design has {len(names)} outputs ({', '.join(names)}): name "
-                                "the one the capture runs with --output", where)
+                                f"the one the capture runs with {option}", where)
         return plan.outputs[0] if plan.outputs else None
     for op in plan.outputs:
         if op.output.prefix.lower() == name.lower():
             return op
     shown = ", ".join(names) if names else "none (no fitted output)"
-    raise GapforgeError(f"no output {name[:40]!r} in the design; its outputs: {shown}", "--output")
+    raise GapforgeError(f"no output {name[:40]!r} in the design; its outputs: {shown}", option)
 
 
 def _bin_at(adaptive: Any, current_a: Fraction) -> tuple[Any, str]:
@@ -67,9 +68,10 @@ def _amps(value: Fraction) -> str:
 
 
 def expectation_for(plan: BuildPlan, output: str | None = None,
-                    current_a: Fraction | None = None, where: str = "") -> CaptureExpectation:
+                    current_a: Fraction | None = None, where: str = "",
+                    option: str = "--output") -> CaptureExpectation:
     """The window and the prediction of the named output (the table entry at `current_a`)."""
-    exp = _expectation(plan, output, current_a, where)
+    exp = _expectation(plan, output, current_a, where, option)
     if plan.stage is None:
         return replace(exp, unjudged=UNJUDGED)
     return exp
@@ -80,8 +82,8 @@ UNJUDGED = ("not judged against a power stage (the design has no [stage] section
 
 
 def _expectation(plan: BuildPlan, output: str | None, current_a: Fraction | None,
-                 where: str) -> CaptureExpectation:
-    op = _pick_output(plan, output, where)
+                 where: str, option: str) -> CaptureExpectation:
+    op = _pick_output(plan, output, where, option)
     per_edge: dict[str, Expectation] = {}
     windows = {e: _window(plan, e) for e in EDGES}
     if op is None or not op.fit.ok:
@@ -114,8 +116,9 @@ def _expectation(plan: BuildPlan, output: str | None, current_a: Fraction | None
 
 
 def design_expectation(path: Path, output: str | None = None,
-                       current_a: Fraction | None = None) -> CaptureExpectation:
-    """expectation_for of a design file."""
+                       current_a: Fraction | None = None,
+                       option: str = "--output") -> CaptureExpectation:
+    """expectation_for of a design file (`option`: the command's option naming the output)."""
     from gapforge.pipeline.design import load_design
 
-    return expectation_for(plan_design(load_design(path)), output, current_a, str(path))
+    return expectation_for(plan_design(load_design(path)), output, current_a, str(path), option)
