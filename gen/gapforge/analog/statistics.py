@@ -8,13 +8,16 @@ from __future__ import annotations
 import math
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-import numpy.typing as npt
 
 from gapforge.analog.network import PAIR_KEYS
 
-FloatArray = npt.NDArray[np.float64]
+if TYPE_CHECKING:  # numpy.typing only for the checker: a build does not import it
+    import numpy.typing as npt
+
+    FloatArray = npt.NDArray[np.float64]
 QUANTITIES = ("node_rising", "node_falling", "to_high", "to_low")
 PERCENTILES = (0.135, 50.0, 99.865)
 

@@ -21,9 +21,9 @@ import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, replace
 from fractions import Fraction
+from typing import TYPE_CHECKING
 
 import numpy as np
-import numpy.typing as npt
 
 from gapforge.analog.corners import (
     CHANNEL_PARAMS,
@@ -40,7 +40,10 @@ from gapforge.analog.corners import (
 from gapforge.analog.network import EDGES, PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
 from gapforge.analog.statistics import QUANTITIES, Stats, stats_direct, stats_streaming
 
-FloatArray = npt.NDArray[np.float64]
+if TYPE_CHECKING:  # numpy.typing only for the checker: a build does not import it
+    import numpy.typing as npt
+
+    FloatArray = npt.NDArray[np.float64]
 DEFAULT_SAMPLES = 100_000
 CHUNK = 250_000
 _KEEP_ALL_LIMIT = 2_000_000  # up to this many samples the results are kept and sorted directly

@@ -8,7 +8,6 @@ how many more there are. tomllib reports line numbers only for syntax errors; th
 
 from __future__ import annotations
 
-import difflib
 import re
 import tomllib
 from collections.abc import Iterator
@@ -153,6 +152,8 @@ class Table:
     ) -> None:
         for key in sorted(self.data):
             if key not in allowed:
+                import difflib  # only for a mistake: a correct file never pays its import
+
                 hint = difflib.get_close_matches(key, sorted(allowed), n=1)
                 suggestion = f"; did you mean '{hint[0]}'?" if hint else ""
                 choices = ", ".join(sorted(allowed))
@@ -197,6 +198,8 @@ class Table:
             self.reader.problem(self.key_path(key), f"expected a string, got {quoted(value)}")
             return default or ""
         if choices and value not in choices:
+            import difflib  # only for a mistake, as in check_keys
+
             hint = difflib.get_close_matches(value, choices, n=1)
             suggestion = f"; did you mean '{hint[0]}'?" if hint else ""
             self.reader.problem(

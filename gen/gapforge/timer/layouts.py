@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import bisect
 import hashlib
-import importlib.resources
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 from pathlib import Path
@@ -179,9 +178,11 @@ class Layout:
 
 def _builtin_dir() -> Path:
     """targets/ inside an installed wheel, or the repository's top-level targets/."""
-    packaged = importlib.resources.files("gapforge") / "targets"
+    # the package's own folder, as importlib.resources.files("gapforge") gives it for a package
+    # on the file system, without importing importlib.resources on every build
+    packaged = Path(__file__).parent.parent / "targets"
     if packaged.is_dir():
-        return Path(str(packaged))
+        return packaged
     return Path(__file__).resolve().parents[3] / "targets"
 
 
