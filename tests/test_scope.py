@@ -166,6 +166,9 @@ def test_uneven_spacing_is_reported(tmp_path: Path) -> None:
     assert cap.resolution_s == Fraction(1, 10**9)
     wide = _gates(tmp_path / "w.csv", times, [0, 0, 0, 0, 4, 4, 4, 4], [9, 9, 0, 0, 0, 0, 0, 0])
     assert read_scope([wide], "gh", "gl", SETTINGS).resolution_s == Fraction(2, 10**9)
+    # the text says the spacing as it is (never "every 2 ns" for mostly 1 ns samples)
+    _, out, _ = run_cli(["measure", str(path), "--high", "gh", "--low", "gl", "--threshold", "3V"])
+    assert "8 samples at intervals of 1000 .. 2000 ps" in out and "samples every" not in out
 
 
 def test_one_file_per_channel_by_stem(tmp_path: Path) -> None:

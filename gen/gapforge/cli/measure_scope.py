@@ -327,7 +327,7 @@ def analog_lines(cap: ScopeCapture) -> list[str]:
         skew = getattr(cap.settings, f"deskew_{side}_s")
         lines.append(f"  {side} side: {quoted(chan.layout.columns[chan.index].name)} in "
                      f"{chan.layout.path.name}, {how}, deskew {format_si(skew, 's')}, "
-                     f"{e.samples} samples every {format_si(e.max_interval_s, 's')}")
+                     f"{e.samples} samples {_spacing(e.min_interval_s, e.max_interval_s)}")
     basis = "stated" if cap.resolution_stated else "the sample interval around the crossings"
     lines.append(f"  hysteresis {_v(cap.settings.hysteresis_v)}; resolution "
                  f"{format_si(cap.resolution_s, 's')} ({basis}); instants by linear "
@@ -356,3 +356,13 @@ def node_lines(node: NodeResult | None) -> list[str]:
 
 __all__ = ["SCOPE_KEYS", "THRESHOLD_OPTIONS", "logic_capture", "run_scope", "scope_options",
            "wants_scope"]
+
+
+def _spacing(shortest: float, longest: float) -> str:
+    """'every 500 ps', or 'at intervals of 1 .. 2 ns' when the samples are unevenly spaced."""
+    from gapforge.base.display import format_range, format_si
+    from gapforge.bench.scope import UNEVEN
+
+    if longest > UNEVEN * shortest:
+        return f"at intervals of {format_range(shortest, longest, 's', cut='nearest')}"
+    return f"every {format_si(longest, 's')}"
