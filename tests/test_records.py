@@ -72,3 +72,34 @@ def test_a_class_with_its_own_equality_is_refused() -> None:
 
     with pytest.raises(TypeError, match="defines __eq__"):
         record(type("Odd", (), {"__annotations__": {"x": "int"}, "__eq__": eq}))
+
+
+def test_init_as_dataclass() -> None:
+    """Arguments bind as the generated __init__ binds them (Python's own TypeError words),
+    defaults and fresh factory values fill the rest, __post_init__ runs last."""
+    body = {"y": 1.5, "tags": field(default_factory=list)}
+    ours, ref = _pair(body, {"x": "int", "z": "str", "y": "float", "tags": "list[int]"})
+    calls: list[tuple[tuple[object, ...], dict[str, object]]] = [
+        ((1, "a"), {}), ((1,), {"z": "b"}), ((), {"x": 2, "z": "c", "y": 0.0}),
+        ((1, "a", 2.0, [3]), {}), ((1, "a", 2.0, [3], 4), {}), ((), {}), ((1,), {}),
+        ((), {"y": 1.0}), ((1, "a"), {"x": 3}), ((1, "a"), {"w": 3}), ((1, "a"), {"x": 3, "w": 1}),
+    ]
+    for args, kwargs in calls:
+        try:
+            expected = ref(*args, **kwargs)
+        except TypeError as exc:
+            with pytest.raises(TypeError) as got:
+                ours(*args, **kwargs)
+            assert str(got.value) == str(exc)
+            continue
+        assert repr(ours(*args, **kwargs)) == repr(expected)
+    a, b = ours(1, "a"), ours(1, "a")
+    assert a.tags == [] and a.tags is not b.tags  # type: ignore[attr-defined]
+    seen: list[object] = []
+
+    def post_init(self: object) -> None:
+        seen.append(self)
+
+    with_post, _ = _pair({"__post_init__": post_init}, {"x": "int"})
+    made = with_post(4)
+    assert seen == [made]

@@ -42,23 +42,109 @@ def _repr(self: Any) -> str:
     return f"{self.__class__.__qualname__}({inner})"
 
 
+def _missing(names: list[str]) -> str:
+    """Python's own words for missing positional arguments."""
+    if len(names) == 1:
+        return f"missing 1 required positional argument: {names[0]}"
+    listed = (" and ".join(names) if len(names) == 2
+              else ", ".join(names[:-1]) + ", and " + names[-1])
+    return f"missing {len(names)} required positional arguments: {listed}"
+
+
+def _plain_init(cls: type, fields: tuple[dataclasses.Field[Any], ...]) -> Any:
+    """`__init__` for fields that all go to it positionally or by name, without `exec`.
+
+    As the generated one: positional arguments first, then keywords; a default value, or the
+    factory's fresh value, for a field not given; `__post_init__()` last when the class has
+    one; the same TypeError for too many, missing, repeated or unknown arguments."""
+    names = tuple(f.name for f in fields)
+    defaults = {f.name: f.default for f in fields if f.default is not dataclasses.MISSING}
+    factories = {f.name: f.default_factory for f in fields
+                 if f.default_factory is not dataclasses.MISSING}
+    post_init = hasattr(cls, "__post_init__")
+    setter = object.__setattr__
+    count = len(names)
+    required = count - len(defaults) - len(factories)  # defaults follow the required fields
+    takes = (f"from {required + 1} to {count + 1} positional arguments" if required < count
+             else f"{count + 1} positional argument{'s' if count else ''}")
+
+    def __init__(self: Any, *args: Any, **kwargs: Any) -> None:
+        given = len(args)
+        if given > count:
+            raise TypeError(f"{cls.__qualname__}.__init__() takes {takes} but {given + 1} "
+                            f"{'was' if given == 0 else 'were'} given")
+        for name in kwargs:
+            if name not in names:
+                raise TypeError(f"{cls.__qualname__}.__init__() got an unexpected keyword "
+                                f"argument {name!r}")
+            if names.index(name) < given:
+                raise TypeError(f"{cls.__qualname__}.__init__() got multiple values for "
+                                f"argument {name!r}")
+        for name, value in zip(names, args, strict=False):
+            setter(self, name, value)
+        missing = []
+        for name in names[given:]:
+            if name in kwargs:
+                setter(self, name, kwargs[name])
+            elif name in defaults:
+                setter(self, name, defaults[name])
+            elif name in factories:
+                setter(self, name, factories[name]())
+            else:
+                missing.append(repr(name))
+        if missing:
+            raise TypeError(f"{cls.__qualname__}.__init__() {_missing(missing)}")
+        if post_init:
+            self.__post_init__()
+
+    return __init__
+
+
+def _frozen_guards(cls: type, names: tuple[str, ...]) -> tuple[Any, Any]:
+    """`__setattr__` and `__delattr__` as dataclass(frozen=True) makes them, without `exec`."""
+
+    def __setattr__(self: Any, name: str, value: Any) -> None:
+        if type(self) is cls or name in names:
+            raise dataclasses.FrozenInstanceError(f"cannot assign to field {name!r}")
+        super(cls, self).__setattr__(name, value)  # type: ignore[arg-type]
+
+    def __delattr__(self: Any, name: str) -> None:
+        if type(self) is cls or name in names:
+            raise dataclasses.FrozenInstanceError(f"cannot delete field {name!r}")
+        super(cls, self).__delattr__(name)  # type: ignore[arg-type]
+
+    return __setattr__, __delattr__
+
+
 @dataclass_transform(frozen_default=True, field_specifiers=(dataclasses.field,))
 def record(cls: type[T]) -> type[T]:
     """`@dataclass(frozen=True)`, with the shared equality, hash and repr (see the module)."""
-    for name in ("__eq__", "__hash__", "__repr__"):
+    for name in ("__eq__", "__hash__", "__repr__", "__init__", "__setattr__", "__delattr__"):
         if name in cls.__dict__:
             raise TypeError(f"{cls.__qualname__} defines {name}: use @dataclass(frozen=True)")
-    made = dataclasses.dataclass(frozen=True, eq=False, repr=False)(cls)
+    if any(dataclasses.is_dataclass(base) for base in cls.__mro__[1:]):
+        raise TypeError(f"{cls.__qualname__}: a record derives from no dataclass")
+    made = dataclasses.dataclass(init=False, repr=False, eq=False)(cls)
     fields = dataclasses.fields(cast(Any, made))
+    if any(not f.init or f.kw_only for f in fields):
+        raise TypeError(f"{cls.__qualname__}: a record's fields are all plain __init__ "
+                        "arguments (no init=False, no keyword-only)")
+    names = tuple(f.name for f in fields)
+    setattr_, delattr_ = _frozen_guards(made, names)
     shared = {
         "__record_compare__": tuple(f.name for f in fields if f.compare),
         "__record_hash__": tuple(f.name for f in fields
                                  if (f.compare if f.hash is None else f.hash)),
         "__record_repr__": tuple(f.name for f in fields if f.repr),
+        "__init__": _plain_init(made, fields),
+        "__setattr__": setattr_,
+        "__delattr__": delattr_,
         "__eq__": _eq,
         "__hash__": _hash,
         "__repr__": _repr,
     }
     for name, value in shared.items():
+        if callable(value) and name in ("__init__", "__setattr__", "__delattr__"):
+            value.__qualname__ = f"{cls.__qualname__}.{name}"
         setattr(made, name, value)
     return made
