@@ -1,19 +1,25 @@
-"""`record`: a frozen dataclass whose equality, hash and repr are shared functions (issue 22).
+"""`record`: a frozen dataclass built without compiling generated methods (issue 22).
 
 Python 3.11's `dataclass(frozen=True)` compiles six generated methods per class when its module
 is imported (`__init__`, `__repr__`, `__eq__`, `__hash__`, `__setattr__`, `__delattr__`, each
 an `exec` of generated source): about 1 ms a class, and a build imports some fifty of them on
-every make. A `record` lets `dataclass` generate only `__init__` and the two frozen-attribute
-guards; `__eq__`, `__hash__` and `__repr__` are the three functions below, shared by every
-record, each reading the field names the class stored once. They behave as the generated ones
-(Python 3.11's dataclasses.py is the reference; tests/test_records.py compares them):
+every make. A `record` lets `dataclass` collect the fields only; `__eq__`, `__hash__` and
+`__repr__` are the three functions below, shared by every record and reading the field names
+the class stored once, and `__init__`, `__setattr__` and `__delattr__` are closures over the
+class. They behave as the generated ones (Python 3.11's dataclasses.py is the reference;
+tests/test_records.py runs both side by side):
+- `__init__` binds positional then keyword arguments, fills defaults and fresh factory values,
+  calls `__post_init__()`, and raises Python's own TypeError words;
+- assigning or deleting a field raises FrozenInstanceError;
 - equal only to an instance of the very same class whose compared fields (`field(compare=...)`,
   default True) are equal as one tuple; anything else gives NotImplemented;
 - the hash of the tuple of the hashed fields (`field(hash=...)`, default: the compared ones);
 - repr `QualifiedName(name=value!r, ...)` over the repr fields, "..." for a record that
   contains itself.
-`dataclasses.fields`, `replace`, `asdict` and frozen-ness work as for any frozen dataclass; only
-`__dataclass_params__` says eq=False and repr=False (nothing in gapforge reads it).
+`dataclasses.fields`, `replace` and `asdict` work as for any dataclass; `__dataclass_params__`
+says init, repr, eq and frozen False (nothing in gapforge reads it), and `inspect.signature`
+shows `(*args, **kwargs)`. A class that needs more (its own dunder methods, a dataclass base,
+`init=False` or keyword-only fields) is refused here and keeps `@dataclass(frozen=True)`.
 """
 
 from __future__ import annotations
