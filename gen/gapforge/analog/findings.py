@@ -4,7 +4,7 @@ capacitance that couples the step past the threshold, the bypass knee."""
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 from typing import TYPE_CHECKING
 
@@ -24,6 +24,7 @@ from gapforge.base.quantities import (
     format_quantity,
     format_tolerance,
 )
+from gapforge.base.records import record
 
 if TYPE_CHECKING:
     import numpy as np
@@ -72,7 +73,7 @@ def without_junction_capacitance(net: ReferenceNetwork) -> ReferenceNetwork:
     return replace(net, diode=replace(net.diode, cjo=0.0))
 
 
-@dataclass(frozen=True)
+@record
 class CouplingPoint:
     """A slow edge's node delay with and without the diode's junction capacitance."""
 

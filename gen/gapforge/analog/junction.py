@@ -5,9 +5,9 @@ network while reading a design stays light."""
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 from gapforge.analog.network import K_OVER_Q, ZERO_CELSIUS, DiodeModel
+from gapforge.base.records import record
 
 GMIN = 1e-12  # S, across every junction, as circuit simulators do
 _REF_K = 300.15  # K, the reference temperature of the junction-potential scaling
@@ -15,7 +15,7 @@ _BOLTZMANN = 1.380649e-23
 _CHARGE = 1.602176634e-19
 
 
-@dataclass(frozen=True)
+@record
 class Junction:
     """A diode's temperature-adjusted parameters."""
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 from typing import TYPE_CHECKING
 
@@ -17,6 +17,7 @@ from gapforge.base.quantities import (
     picoseconds_floor,
     picoseconds_nearest,
 )
+from gapforge.base.records import record
 
 if TYPE_CHECKING:
     import numpy as np
@@ -58,7 +59,7 @@ DEFAULT_LEAKAGE_SHARE = Fraction(1, 5)
 # Values
 
 
-@dataclass(frozen=True)
+@record
 class Band:
     """min/typ/max of one quantity (exact)."""
 
@@ -78,7 +79,7 @@ class Band:
         return float(self.min), float(self.typ), float(self.max)
 
 
-@dataclass(frozen=True)
+@record
 class Level:
     """A Schmitt threshold: volts, or a fraction of VDD when `relative`."""
 
@@ -94,7 +95,7 @@ class Level:
         return format_quantity(self.value, "V")
 
 
-@dataclass(frozen=True)
+@record
 class LevelBand:
     min: Level
     typ: Level
@@ -104,7 +105,7 @@ class LevelBand:
         return self.min, self.typ, self.max
 
 
-@dataclass(frozen=True)
+@record
 class DiodeModel:
     """SPICE level-1 diode parameters (floats: physics, not limits). `bv` None = no breakdown."""
 
@@ -233,7 +234,7 @@ def parse_diode(text: object, where: str) -> DiodeModel:
     return model
 
 
-@dataclass(frozen=True)
+@record
 class Knee:
     """A diode's knee voltage at one stated temperature: the diode carries as much current as
     the nominal R at `volts`; its IS is solved there and the SPICE law carries it elsewhere."""
@@ -242,7 +243,7 @@ class Knee:
     temp_c: Fraction
 
 
-@dataclass(frozen=True)
+@record
 class ReverseLimit:
     """A datasheet's maximum reverse current at a stated temperature and reverse voltage."""
 
@@ -251,7 +252,7 @@ class ReverseLimit:
     volts: Fraction
 
 
-@dataclass(frozen=True)
+@record
 class ReferenceNetwork:
     """One channel's parts (each channel of the pair draws its own parts from these bands)."""
 
@@ -297,7 +298,7 @@ class ReferenceNetwork:
         return tuple(e for e in EDGES if e != self.bypass)
 
 
-@dataclass(frozen=True)
+@record
 class EdgeRange:
     """A range of a time, in seconds, to 1 ps.
 
@@ -329,7 +330,7 @@ def edge_range(lo: float, typ: float, hi: float) -> EdgeRange:
 
 
 
-@dataclass(frozen=True)
+@record
 class SlowEdgePoint:
     """A slow (resistor) edge's node delay at one temperature, with and without diode leakage."""
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 from typing import TYPE_CHECKING, Any
 
@@ -34,6 +34,7 @@ from gapforge.base.quantities import (
     parse_quantity,
     parse_tolerance,
 )
+from gapforge.base.records import record
 
 if TYPE_CHECKING:
     import numpy as np
@@ -47,7 +48,7 @@ if TYPE_CHECKING:
 # The parameter table shared by the design file and the CLI
 
 
-@dataclass(frozen=True)
+@record
 class Parameter:
     name: str  # design-file key; the CLI option is --name with '_' -> '-'
     kind: str  # band | value | tolerance | tempco | level | choice | diode | flag
@@ -192,7 +193,7 @@ PARAMETERS: tuple[Parameter, ...] = (
 )
 PARAMETER_NAMES = frozenset(p.name for p in PARAMETERS)
 
-@dataclass(frozen=True)
+@record
 class LevelStandard:
     """What a JEDEC interface standard states for a Schmitt input that meets it: the supply
     range, VT+ <= VIH min and VT- >= VIL max. The other ends are the part's own."""

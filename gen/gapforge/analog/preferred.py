@@ -16,12 +16,13 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 
 from gapforge.analog.network import PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
 from gapforge.base.display import format_range, format_si
 from gapforge.base.errors import GapforgeError
+from gapforge.base.records import record
 
 # Mantissas in units of 0.1 (E6, E12, E24) and 0.01 (E48, E96, E192).
 E6: tuple[int, ...] = (10, 15, 22, 33, 47, 68)
@@ -105,7 +106,7 @@ def nearest(series: str, value: Fraction) -> tuple[Fraction, Fraction]:
 RANKINGS = ("worst-case", "typical")
 
 
-@dataclass(frozen=True)
+@record
 class Suggestion:
     r: Fraction
     c: Fraction
@@ -120,7 +121,7 @@ class Suggestion:
         return not self.unsafe
 
 
-@dataclass(frozen=True)
+@record
 class Suggestions:
     pairs: tuple[Suggestion, ...]  # safe pairs, best first (at most `count`)
     rejected: tuple[Suggestion, ...]  # every unsafe pair, smallest typical error first

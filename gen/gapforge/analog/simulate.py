@@ -29,6 +29,7 @@ from gapforge.analog.network import (
     ReferenceNetwork,
     SlowEdgePoint,
 )
+from gapforge.base.records import record
 
 if TYPE_CHECKING:
     import numpy as np
@@ -51,7 +52,7 @@ class SimulationError(RuntimeError):
 
 
 
-@dataclass(frozen=True)
+@record
 class EdgeCircuit:
     """One edge of one channel: an ideal step from v_start to v_final at t = 0."""
 
@@ -70,7 +71,7 @@ class EdgeCircuit:
         return (self.r + self.rout) * self.c_node
 
 
-@dataclass(frozen=True)
+@record
 class EdgeResult:
     delay_s: float  # ideal input step to the node crossing the threshold
     steps: int
@@ -278,7 +279,7 @@ class _Counts:
     newton: int = 0
 
 
-@dataclass(frozen=True)
+@record
 class _Step:
     """One accepted TR-BDF2 step from (t, x) to (t + h, x_new), offered before it is taken."""
 

@@ -7,12 +7,12 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from gapforge.analog.network import PAIR_KEYS
+from gapforge.base.records import record
 
 if TYPE_CHECKING:  # numpy.typing only for the checker: a build does not import it
     import numpy.typing as npt
@@ -22,7 +22,7 @@ QUANTITIES = ("node_rising", "node_falling", "to_high", "to_low")
 PERCENTILES = (0.135, 50.0, 99.865)
 
 
-@dataclass(frozen=True)
+@record
 class Stats:
     min: float
     max: float

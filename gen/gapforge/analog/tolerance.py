@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 from typing import TYPE_CHECKING
 
@@ -39,6 +39,7 @@ from gapforge.analog.corners import (
 )
 from gapforge.analog.network import EDGES, PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
 from gapforge.analog.statistics import QUANTITIES, Stats, stats_direct, stats_streaming
+from gapforge.base.records import record
 
 if TYPE_CHECKING:  # numpy.typing only for the checker: a build does not import it
     import numpy.typing as npt
@@ -97,7 +98,7 @@ def typical_textbook(net: ReferenceNetwork) -> dict[str, float]:
 # Worst case
 
 
-@dataclass(frozen=True)
+@record
 class WorstCase:
     edges: dict[str, EdgeRange]  # node delays (ideal step to threshold), one channel
     channel: dict[str, EdgeRange]  # input edge to output edge, one channel
@@ -273,7 +274,7 @@ def worst_case(
 # Root-sum-square
 
 
-@dataclass(frozen=True)
+@record
 class Contribution:
     name: str  # parameter, prefixed 'high.' / 'low.' for the pair's channel parts
     sensitivity: float  # d quantity / d parameter, SI units
@@ -281,7 +282,7 @@ class Contribution:
     contribution: float  # |sensitivity| * sigma, seconds
 
 
-@dataclass(frozen=True)
+@record
 class RssResult:
     typ: float
     sigma: float
@@ -354,7 +355,7 @@ def _value_band(
 # Monte Carlo
 
 
-@dataclass(frozen=True)
+@record
 class MonteCarloResult:
     samples: int
     seed: int

@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from gapforge.base.errors import GapforgeError
+from gapforge.base.records import record
 
 Texts = Mapping[Path, str | bytes]
 
@@ -106,7 +107,7 @@ def compare(texts: Texts) -> Outcome:
     return outcome
 
 
-@dataclass(frozen=True)
+@record
 class Prepared:
     """A checked write: what to write, which folders to create, what is already current."""
 

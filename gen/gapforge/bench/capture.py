@@ -23,7 +23,7 @@ A logic analyser may sample more coarsely than its file's time unit: `gapforge m
 from __future__ import annotations
 
 from collections.abc import Callable, Iterator
-from dataclasses import dataclass, field
+from dataclasses import field
 from fractions import Fraction
 from pathlib import Path
 
@@ -31,10 +31,11 @@ import numpy as np
 import numpy.typing as npt
 
 from gapforge.base.errors import GapforgeError
+from gapforge.base.records import record
 from gapforge.bench.capture_csv import CsvData, read_csv
 
 
-@dataclass(frozen=True)
+@record
 class GateCapture:
     """Both gate signals, polarity applied (1 = on). Times are int64 ticks of `tick_s` seconds."""
 

@@ -38,7 +38,6 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
 from decimal import Decimal
 from fractions import Fraction
 from pathlib import Path
@@ -48,6 +47,7 @@ import numpy.typing as npt
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import TIME_UNITS
+from gapforge.base.records import record
 
 _LEVELS = {"0": 0, "1": 1, "x": 2, "X": 2, "z": 3, "Z": 3}
 # a decimal number with an optional sign and exponent ("0E+0", "-998.000E-06"), read exactly
@@ -59,7 +59,7 @@ _LONG_EXPONENT = re.compile(r"^[+-]?([0-9]+(\.[0-9]*)?|\.[0-9]+)[eE][+-]?[0-9]{3
 Signals = dict[str, tuple[npt.NDArray[np.int64], npt.NDArray[np.uint8]]]
 
 
-@dataclass(frozen=True)
+@record
 class CsvData:
     """A capture CSV read: the tick, {name: (times, levels)}, the end tick, the resolution."""
 
@@ -162,7 +162,7 @@ def _exact_times(texts: list[tuple[int, str]], where: str) -> tuple[list[Fractio
     return values, denominator
 
 
-@dataclass(frozen=True)
+@record
 class _Ticks:
     """Times as integer ticks that numpy's int64 holds: `tick` (in the file's unit), the ticks,
     the resolution in ticks and what had to change to fit."""

@@ -8,12 +8,14 @@ is compared with a window limit exactly. Floats appear only in statistics and pl
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import field
 from fractions import Fraction
 from typing import Any, overload
 
 import numpy as np
 import numpy.typing as npt
+
+from gapforge.base.records import record
 
 EDGES = ("to_high", "to_low")
 DEFAULT_PERCENTILES = (1.0, 5.0, 50.0, 95.0, 99.0)
@@ -22,7 +24,7 @@ Ints = npt.NDArray[np.int64]
 Floats = npt.NDArray[np.float64]
 
 
-@dataclass(frozen=True)
+@record
 class Limits:
     """Window and prediction for one transition (seconds, exact; None = not given)."""
 
@@ -32,7 +34,7 @@ class Limits:
     predicted_max_s: Fraction | None = None
 
 
-@dataclass(frozen=True)
+@record
 class Instance:
     """One measured gap: when the transition started and how long both gates were off."""
 
@@ -40,13 +42,13 @@ class Instance:
     gap_s: Fraction
 
 
-@dataclass(frozen=True)
+@record
 class Finding:
     at_s: Fraction
     text: str
 
 
-@dataclass(frozen=True)
+@record
 class Overlap:
     """Both gates on: a shoot-through event."""
 
@@ -103,7 +105,7 @@ def no_overlaps(tick: Fraction) -> Overlaps:
     return Overlaps(tick, np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64))
 
 
-@dataclass(frozen=True)
+@record
 class Glitch:
     signal: str  # "high" or "low"
     level: int  # the level of the short pulse (1 = a short on-pulse)
@@ -112,7 +114,7 @@ class Glitch:
     in_dead_time: bool = False  # an on-pulse while the other gate was off
 
 
-@dataclass(frozen=True)
+@record
 class EdgeStats:
     """Every gap of one transition kind (in time order, int32 ticks where they fit, else int64),
     with statistics. Time stamps are kept only for the worst instances."""
@@ -158,7 +160,7 @@ class EdgeStats:
         return self.gaps_ticks.astype(np.float64) * float(self.tick_s)
 
 
-@dataclass(frozen=True)
+@record
 class Measurement:
     source: str
     tick_s: Fraction

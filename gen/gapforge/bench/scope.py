@@ -45,6 +45,7 @@ import numpy as np
 import numpy.typing as npt
 
 from gapforge.base.errors import GapforgeError, quoted
+from gapforge.base.records import record
 from gapforge.bench.capture import CaptureStream, stream_of
 from gapforge.bench.scope_csv import Block, ScopeFile, blocks, read_layout
 
@@ -57,7 +58,7 @@ SIDES = ("high", "low")
 Floats = npt.NDArray[np.float64]
 
 
-@dataclass(frozen=True)
+@record
 class Reference:
     """How one gate's on/off is decided: a threshold in volts, or a percentage reference level
     between the histogram state levels (resolved to volts before the crossings are found)."""
@@ -66,7 +67,7 @@ class Reference:
     level_percent: Fraction | None = None
 
 
-@dataclass(frozen=True)
+@record
 class ScopeSettings:
     high: Reference
     low: Reference
@@ -76,7 +77,7 @@ class ScopeSettings:
     resolution_s: Fraction | None = None  # None: the sample interval
 
 
-@dataclass(frozen=True)
+@record
 class Channel:
     """A channel located: its file layout and its column index."""
 
@@ -105,7 +106,7 @@ class ChannelEdges:
     last_s: float
 
 
-@dataclass(frozen=True)
+@record
 class NodeEdge:
     """The node at each turn-on of one edge (to_high: high side turning on)."""
 
@@ -117,7 +118,7 @@ class NodeEdge:
         return int(np.count_nonzero(~np.isnan(self.shares)))
 
 
-@dataclass(frozen=True)
+@record
 class NodeResult:
     name: str
     bus_v: Fraction
@@ -125,7 +126,7 @@ class NodeResult:
     edges: dict[str, NodeEdge]
 
 
-@dataclass(frozen=True)
+@record
 class ScopeCapture:
     """What the analog reading hands on: the stream for the gap engine and what it used."""
 

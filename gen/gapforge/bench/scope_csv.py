@@ -34,7 +34,6 @@ import io
 import math
 import re
 from collections.abc import Iterator
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -42,6 +41,7 @@ import numpy.typing as npt
 from numpy.lib.stride_tricks import sliding_window_view
 
 from gapforge.base.errors import GapforgeError, quoted
+from gapforge.base.records import record
 
 CHUNK_BYTES = 4 << 20  # bytes of whole lines parsed at once
 _NUMBER_BYTES = b"0123456789.,+-eE\n"  # a block of only these may take the fast path
@@ -55,7 +55,7 @@ _UNIT_IN_NAME = re.compile(r"^(.*?)\s*(?:\(([^()]*)\)|\[([^\[\]]*)\])$")
 Floats = npt.NDArray[np.float64]
 
 
-@dataclass(frozen=True)
+@record
 class Column:
     """One channel column: its name as the header gives it, its unit text and the factor to
     volts (None: not a voltage, e.g. a current probe's A)."""
@@ -66,7 +66,7 @@ class Column:
     raw: str = ""  # the header cell as written ('V(gate_h)', 'CH1 [mV]')
 
 
-@dataclass(frozen=True)
+@record
 class ScopeFile:
     """The layout of one export: columns, units, where the numbers begin."""
 
@@ -82,7 +82,7 @@ class ScopeFile:
         return str(self.path)
 
 
-@dataclass(frozen=True)
+@record
 class Block:
     """Consecutive samples: times in seconds, the asked-for channels in volts (one row per
     sample), and the file line of the first sample (for error messages)."""

@@ -27,7 +27,8 @@ and `serial_stream`.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+
+from gapforge.base.records import record
 
 PROTOCOL = 2
 HEADER_EVERY = 256  # the firmware repeats its header after this many edge and keep-alive lines
@@ -66,14 +67,14 @@ def checked(body: str) -> str:
     return f"{body} *{crc8(body.encode('ascii')):02X}"
 
 
-@dataclass(frozen=True)
+@record
 class Header:
     version: int
     clock_hz: int
     counter_bits: int
 
 
-@dataclass(frozen=True)
+@record
 class Edge:
     side: int  # 0 = high side, 1 = low side
     level: int  # as reported (before any polarity option)
@@ -81,25 +82,25 @@ class Edge:
     seq: int
 
 
-@dataclass(frozen=True)
+@record
 class KeepAlive:
     counter: int
     seq: int
 
 
-@dataclass(frozen=True)
+@record
 class Comment:
     pass
 
 
-@dataclass(frozen=True)
+@record
 class Refused:
     """A header of a protocol this reader does not read (the stream cannot be decoded)."""
 
     reason: str
 
 
-@dataclass(frozen=True)
+@record
 class Bad:
     """An undecodable line: `corrupt` when it parsed but its check did not match."""
 

@@ -35,6 +35,7 @@ from typing import Any
 import numpy as np
 
 from gapforge.base.errors import GapforgeError
+from gapforge.base.records import record
 from gapforge.bench.capture import GateCapture, make_capture
 from gapforge.bench.serial_order import CounterClock, ReorderBuffer, SequenceTracker
 from gapforge.bench.serial_protocol import (
@@ -317,7 +318,7 @@ class LineDecoder:
         return tuple(warnings)
 
 
-@dataclass(frozen=True)
+@record
 class SerialResult:
     capture: GateCapture | None
     status: StreamStatus

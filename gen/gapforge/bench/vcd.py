@@ -35,6 +35,7 @@ import numpy as np
 import numpy.typing as npt
 
 from gapforge.base.errors import GapforgeError
+from gapforge.base.records import record
 from gapforge.bench.vcd_body import PAD, Chunk, State, X, Z, parse_chunk
 from gapforge.bench.vcd_header import Header, Selection, Variable, read_header, select
 
@@ -59,7 +60,7 @@ _T = TypeVar("_T", bound=np.generic)
 CHUNK_BYTES = 1 << 20
 
 
-@dataclass(frozen=True)
+@record
 class SignalChanges:
     """Every change of one selected signal: times in timescale units and values 0/1/X/Z."""
 
@@ -68,7 +69,7 @@ class SignalChanges:
     values: npt.NDArray[np.uint8]
 
 
-@dataclass(frozen=True)
+@record
 class VcdData:
     timescale_s: Fraction
     signals: dict[str, SignalChanges]

@@ -18,6 +18,7 @@ import numpy as np
 import numpy.typing as npt
 
 from gapforge.base.errors import GapforgeError
+from gapforge.base.records import record
 
 X = 2
 Z = 3
@@ -63,7 +64,7 @@ class State:
     offset: int = 0  # file offset of the first byte of the current chunk
 
 
-@dataclass(frozen=True)
+@record
 class Chunk:
     """The decoded part of one chunk: every timestamp and the changes of each wanted key."""
 

@@ -16,18 +16,18 @@ from __future__ import annotations
 
 import re
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
 from fractions import Fraction
 from pathlib import Path
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import TIME_UNITS
+from gapforge.base.records import record
 
 HINT_VARS = 2000  # declarations kept whatever their name, to list when a name is not found
 DEFAULT_TIMESCALE = Fraction(1, 10**9)
 
 
-@dataclass(frozen=True)
+@record
 class Variable:
     """One $var declaration."""
 
@@ -56,7 +56,7 @@ class Variable:
         return f"{self.path}[{self.msb}:{self.lsb}]"
 
 
-@dataclass(frozen=True)
+@record
 class Header:
     timescale_s: Fraction
     variables: tuple[Variable, ...]  # the ones kept (see the module docstring)
@@ -287,7 +287,7 @@ def _bit_index(text: str | None, where: str) -> int | None:
     return int(text)
 
 
-@dataclass(frozen=True)
+@record
 class Selection:
     name: str
     variable: Variable

@@ -16,10 +16,11 @@ with fixed decimals, so the same data gives byte-identical SVG.
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 
 from gapforge.base.display import format_range, format_si
+from gapforge.base.records import record
 from gapforge.outputs.svg import (
     INK,
     PALETTE,
@@ -51,7 +52,7 @@ Window = tuple[Fraction | None, Fraction | None]  # a dead-time window's min and
 # 1. the pair through one PWM period
 
 
-@dataclass(frozen=True)
+@record
 class PairTiming:
     """Times (seconds, exact) of one PWM period at 50 % commanded duty."""
 
@@ -215,7 +216,7 @@ def transition_figure(
 # 2. the analog reference's node ramps
 
 
-@dataclass(frozen=True)
+@record
 class Ramp:
     """The node voltage of one input edge at typical parts."""
 
@@ -301,7 +302,7 @@ def analog_figure(ramp: Ramp, bypassed: bool, ident: str) -> str:
 # 3. quantization staircases
 
 
-@dataclass(frozen=True)
+@record
 class Staircase:
     """Achieved dead time as a function of the request, around the chosen code (exact)."""
 

@@ -20,7 +20,6 @@ from __future__ import annotations
 
 import re
 import textwrap
-from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge import __version__
@@ -31,6 +30,7 @@ from gapforge.base.quantities import (
     picoseconds_ceil,
     picoseconds_floor,
 )
+from gapforge.base.records import record
 from gapforge.outputs import c_text
 from gapforge.outputs.c_types import U32_MAX, c_hex, c_uint, least_type
 from gapforge.outputs.header_checks import (
@@ -53,14 +53,14 @@ from gapforge.timer.layouts import EDGES, Layout
 CAUTION = caution.LINES
 
 
-@dataclass(frozen=True)
+@record
 class Macro:
     name: str
     value: str
     comment: str
 
 
-@dataclass(frozen=True)
+@record
 class Section:
     title: str
     macros: tuple[Macro, ...]

@@ -12,10 +12,10 @@ C++98 compile with #error naming that value.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge.base.quantities import picoseconds_ceil, picoseconds_floor
+from gapforge.base.records import record
 from gapforge.outputs import c_text
 from gapforge.outputs.c_types import C99_NOTE, c_hex, c_uint, needs_c99
 from gapforge.pipeline.build import BuildPlan, OutputPlan
@@ -32,7 +32,7 @@ C99_PREPROCESSOR = (
 )
 
 
-@dataclass(frozen=True)
+@record
 class Group:
     """Checks that run only where `condition` holds, and the ones that run otherwise."""
 
@@ -81,7 +81,7 @@ def language_checks(file: str, reasons: list[str]) -> list[Check | Group]:
     ]
 
 
-@dataclass(frozen=True)
+@record
 class Check:
     condition: str
     message: str  # the inside of a C string literal (already escaped)

@@ -6,13 +6,13 @@ the timer gives (quantization, timing), what the analog reference did, what the 
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
 from fractions import Fraction
 from typing import TYPE_CHECKING, Any
 
 from markupsafe import Markup
 
 from gapforge.base.display import count, format_percent, format_si
+from gapforge.base.records import record
 from gapforge.outputs.figures import (
     analog_figure,
     staircase_figure,
@@ -55,7 +55,7 @@ def _t(value: Fraction | float | None) -> str:
     return "-" if value is None else format_si(value, "s")
 
 
-@dataclass(frozen=True)
+@record
 class FigureBlock:
     svg: Markup
     caption: str
@@ -67,7 +67,7 @@ class FigureBlock:
         return "wide" if match and int(match.group(1)) > 600 else "half"
 
 
-@dataclass(frozen=True)
+@record
 class Section:
     ident: str
     title: str

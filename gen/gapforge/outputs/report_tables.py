@@ -6,7 +6,6 @@ digits, a limit cut toward its safe side, one unit per column (named in the head
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any
 
@@ -19,13 +18,14 @@ from gapforge.base.display import (
     verdict_word,
 )
 from gapforge.base.quantities import format_tolerance
+from gapforge.base.records import record
 from gapforge.outputs.header_checks import fields_text
 from gapforge.outputs.report_data import window_of
 from gapforge.pipeline.build import BuildPlan, OutputPlan
 from gapforge.timer.layouts import EDGES
 
 
-@dataclass(frozen=True)
+@record
 class TableBlock:
     title: str
     headers: tuple[str, ...]

@@ -10,12 +10,12 @@ vertical lines, the gap (or the overlap) dimensioned between them.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 from markupsafe import Markup
 
 from gapforge.base.display import format_si
+from gapforge.base.records import record
 from gapforge.outputs.svg import (
     INK,
     PALETTE,
@@ -38,7 +38,7 @@ if TYPE_CHECKING:
 SIDES = ("high", "low")
 
 
-@dataclass(frozen=True)
+@record
 class Trace:
     times_s: tuple[float, ...]
     volts: tuple[float, ...]
@@ -46,7 +46,7 @@ class Trace:
     hysteresis_v: float
 
 
-@dataclass(frozen=True)
+@record
 class ScopeView:
     """One event to draw: both traces over [start, stop] and the two instants."""
 

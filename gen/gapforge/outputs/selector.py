@@ -24,9 +24,8 @@ floating point, no recursion, no static state (reentrant), C89.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 from gapforge.base.quantities import ceil_fraction
+from gapforge.base.records import record
 from gapforge.outputs.c_types import c_uint
 from gapforge.pipeline.adaptive_plan import AdaptivePlan
 
@@ -34,7 +33,7 @@ NEGATIVE = 0x80
 BIN_MASK = 0x7F
 
 
-@dataclass(frozen=True)
+@record
 class AdcModel:
     zero: int
     pos_edges: tuple[int, ...]
@@ -43,7 +42,7 @@ class AdcModel:
     sign_band_codes: int
 
 
-@dataclass(frozen=True)
+@record
 class SelectorModel:
     edges_ma: tuple[int, ...]
     band_ma: int

@@ -16,11 +16,11 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 from itertools import pairwise
 from xml.sax.saxutils import escape, quoteattr
 
 from gapforge.base.display import format_si
+from gapforge.base.records import record
 
 INK = "#1d2433"  # text, axes, frames
 GRID = "#d5d9e0"
@@ -28,7 +28,7 @@ PAPER = "#ffffff"
 FONT = "DejaVu Sans, Verdana, Arial, sans-serif"
 
 
-@dataclass(frozen=True)
+@record
 class Style:
     """How one series looks: colour, line pattern, marker shape, width, area fill."""
 
@@ -78,7 +78,7 @@ def num(value: float, decimals: int = 2) -> str:
 # scales, ticks, engineering notation
 
 
-@dataclass(frozen=True)
+@record
 class Axis:
     """A linear map from data values (lo..hi) to pixels (start..end)."""
 
@@ -122,7 +122,7 @@ def nice_range(lo: float, hi: float, count: int = 6) -> tuple[float, float]:
     return math.floor(lo / step + 1e-9) * step, math.ceil(hi / step - 1e-9) * step
 
 
-@dataclass(frozen=True)
+@record
 class Units:
     """A common engineering prefix and decimals for the labels of one axis."""
 

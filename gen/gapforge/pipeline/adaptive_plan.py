@@ -28,11 +28,12 @@ from __future__ import annotations
 
 import bisect
 import math
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import floor_fraction
+from gapforge.base.records import record
 from gapforge.stage import adaptive as phys
 from gapforge.stage.adaptive import COMMUTATED, SIGNS, AdaptiveSpec
 from gapforge.stage.window import StageSpec
@@ -43,7 +44,7 @@ from gapforge.timer.limits import PwmLimits
 Bounds = tuple[Fraction | None, Fraction | None]
 
 
-@dataclass(frozen=True)
+@record
 class Entry:
     """One edge, one current sign, one bin. Seconds as exact fractions."""
 
@@ -62,7 +63,7 @@ class Entry:
     swing_needed_s: Fraction | None  # the bin's worst swing on a commutated edge (None: 0 A)
 
 
-@dataclass(frozen=True)
+@record
 class SignCosts:
     """Per bin and sign, at `current_a` (W; exact)."""
 
@@ -74,7 +75,7 @@ class SignCosts:
     hard_current_a: Fraction = Fraction(0)  # where the hard turn-on is worst (smallest |I| - error)
 
 
-@dataclass(frozen=True)
+@record
 class Bin:
     current_min_a: Fraction
     current_max_a: Fraction | None
@@ -88,7 +89,7 @@ class Bin:
         return tuple(self.entries[s][e].code for s in SIGNS for e in EDGES)
 
 
-@dataclass(frozen=True)
+@record
 class Inverter:
     """Sinusoidal current of amplitude peak_current_a (floats where pi enters)."""
 
@@ -102,7 +103,7 @@ class Inverter:
     band_a: Fraction  # compensation dead band: |I| below it, no compensation
 
 
-@dataclass(frozen=True)
+@record
 class AdaptiveTable:
     """One policy's bins. `fixed` is what a firmware without a current measurement would need
     to reach the same transitions: per edge the table's longest entry (over bins and signs),
@@ -113,7 +114,7 @@ class AdaptiveTable:
     fixed: dict[str, Entry]
 
 
-@dataclass(frozen=True)
+@record
 class AdaptivePlan:
     spec: AdaptiveSpec
     stage: StageSpec

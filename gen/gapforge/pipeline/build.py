@@ -9,12 +9,13 @@ Nothing here reads or writes files (except what load_design read); rendering is 
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 from typing import Any
 
 from gapforge.base.display import format_range, format_si
 from gapforge.base.errors import GapforgeError
+from gapforge.base.records import record
 from gapforge.pipeline.design import Design, Output
 from gapforge.pipeline.policy import DesignWindow, window_of
 from gapforge.timer.fit import FitRequest, FitResult, fit, fit_warnings
@@ -34,14 +35,14 @@ NOT_JUDGED = (
 Bounds = tuple[Fraction | None, Fraction | None]
 
 
-@dataclass(frozen=True)
+@record
 class EdgeJudgement:
     verdict: str
     margin_low_s: Fraction | None  # achieved_min - window min (>= 0 when ok)
     margin_high_s: Fraction | None  # window max - achieved_max (>= 0 when ok), None if no max
 
 
-@dataclass(frozen=True)
+@record
 class OutputPlan:
     output: Output
     fit: FitResult
@@ -55,7 +56,7 @@ class OutputPlan:
     driver: Any = None  # timer.driver.DriverLimits, with a [gate_driver] section and [pwm]
 
 
-@dataclass(frozen=True)
+@record
 class BuildPlan:
     design: Design
     request: FitRequest | None

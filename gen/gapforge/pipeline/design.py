@@ -23,13 +23,13 @@ design needs (for `window --design`), so both read those sections with the same 
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
 from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.provenance import content_sha256
+from gapforge.base.records import record
 from gapforge.base.schema import Reader, Table, load_toml
 from gapforge.pipeline.policy import SOURCES
 from gapforge.timer.fit import ROUNDINGS
@@ -50,7 +50,7 @@ _OUTPUT = frozenset({"target", "prefix", "file", "struct"})
 _MACRO = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 
 
-@dataclass(frozen=True)
+@record
 class Output:
     target: str
     layout: Layout
@@ -59,7 +59,7 @@ class Output:
     struct: bool
 
 
-@dataclass(frozen=True)
+@record
 class Design:
     path: Path
     label: str  # the file name as recorded in provenance (no directories)
@@ -117,7 +117,7 @@ def load_design(path: Path) -> Design:
     )
 
 
-@dataclass(frozen=True)
+@record
 class WindowSections:
     """The sections the window of a design is computed from (see gapforge.pipeline.policy)."""
 

@@ -10,17 +10,18 @@ were used, in words.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 from pathlib import Path
 from typing import Any
 
 from gapforge.base.errors import GapforgeError
+from gapforge.base.records import record
 from gapforge.pipeline.build import BuildPlan, Expectation, OutputPlan, plan_design
 from gapforge.timer.layouts import EDGES
 
 
-@dataclass(frozen=True)
+@record
 class CaptureExpectation:
     per_edge: dict[str, Expectation]  # edge -> (window min, window max, predicted min, max)
     source: str  # which output and entry the prediction is from, in words

@@ -19,11 +19,11 @@ down, to 1 ps); an empty intersection names the side that is empty and why.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from fractions import Fraction
 from typing import Any
 
 from gapforge.base.display import format_si
+from gapforge.base.records import record
 from gapforge.timer.layouts import EDGES
 
 Bounds = tuple[Fraction | None, Fraction | None]
@@ -57,7 +57,7 @@ POLICIES: dict[str, tuple[str, str]] = {
 SOURCES = tuple(POLICIES)
 
 
-@dataclass(frozen=True)
+@record
 class DesignWindow:
     """What a design's dead time must fit, and the evidence beside it."""
 

@@ -53,11 +53,11 @@ averages, display).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import ceil_fraction
+from gapforge.base.records import record
 from gapforge.base.schema import Table
 from gapforge.stage.window import OFF_SIDE, ON_SIDE, StageSpec
 
@@ -86,7 +86,7 @@ ADAPTIVE_KEYS = frozenset(
 EDGE_MA_MAX = (1 << 31) - 1
 
 
-@dataclass(frozen=True)
+@record
 class AdcScale:
     """code = zero + I / amps_per_code (code rises with current), codes 0 .. 2**bits - 1."""
 
@@ -106,7 +106,7 @@ class AdcScale:
         return self.zero + steps, self.zero - steps
 
 
-@dataclass(frozen=True)
+@record
 class AdaptiveSpec:
     """The [adaptive] section with the stage's output charges. Amperes, coulombs."""
 

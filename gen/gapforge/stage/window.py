@@ -30,11 +30,11 @@ Exact Fractions throughout; floats only for display.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import ceil_fraction, floor_fraction, format_quantity
+from gapforge.base.records import record
 
 EDGES = ("to_high", "to_low")
 SIDES = ("high", "low")
@@ -85,7 +85,7 @@ STAGE_KEYS = TIMING_KEYS | QOSS_KEYS | SHARED_KEYS | frozenset({"high", "low", "
 SIDE_KEYS = TIMING_KEYS | QOSS_KEYS
 
 
-@dataclass(frozen=True)
+@record
 class SwitchTiming:
     """One switch and its driver channel: worst-case datasheet timing (seconds)."""
 
@@ -97,7 +97,7 @@ class SwitchTiming:
     prop_max: Fraction
 
 
-@dataclass(frozen=True)
+@record
 class StageSpec:
     """Everything the window and the costs are computed from. Seconds, volts, amperes, hertz."""
 
@@ -142,7 +142,7 @@ class StageSpec:
         return base + abs(self.gate_off)
 
 
-@dataclass(frozen=True)
+@record
 class Term:
     """One line of a breakdown: a named contribution in seconds (or a plain factor)."""
 
@@ -154,7 +154,7 @@ class Term:
     given: bool = True  # False: a documented default stood in (never for a counted term)
 
 
-@dataclass(frozen=True)
+@record
 class WindowEdge:
     """The window for one edge: min_s rounded up, max_s rounded down (None: no upper limit)."""
 
@@ -170,7 +170,7 @@ class WindowEdge:
         return self.max_s is not None and self.max_s < self.min_s
 
 
-@dataclass(frozen=True)
+@record
 class Window:
     edges: dict[str, WindowEdge]
     margin: Fraction
@@ -184,7 +184,7 @@ class Window:
         return any(self.edges[edge].empty for edge in EDGES)
 
 
-@dataclass(frozen=True)
+@record
 class EdgeCosts:
     dead_time_s: Fraction
     current_a: Fraction
@@ -194,7 +194,7 @@ class EdgeCosts:
     recovers: bool
 
 
-@dataclass(frozen=True)
+@record
 class Costs:
     """What the chosen dead times cost, per edge and in total (exact)."""
 

@@ -11,14 +11,15 @@ Exact fractions throughout.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from fractions import Fraction
 
+from gapforge.base.records import record
 from gapforge.timer.fit import FitResult, fit
 from gapforge.timer.layouts import EDGES
 
 
-@dataclass(frozen=True)
+@record
 class Compromise:
     edge: str
     other: str

@@ -29,24 +29,24 @@ every bin is judged on its own as well (gapforge.pipeline.adaptive_limits).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge.base.quantities import ceil_fraction
+from gapforge.base.records import record
 from gapforge.base.schema import Table
 from gapforge.timer.limits import PwmLimits, duty_range
 
 DRIVER_KEYS = frozenset({"min_pulse", "bootstrap_on", "bootstrap_every"})
 
 
-@dataclass(frozen=True)
+@record
 class GateDriverSpec:
     min_pulse_s: Fraction | None = None
     bootstrap_on_s: Fraction | None = None
     bootstrap_every: int = 1
 
 
-@dataclass(frozen=True)
+@record
 class DriverLimits:
     spec: GateDriverSpec
     min_pulse_clocks: int | None  # at the fastest clock, rounded up

@@ -15,18 +15,18 @@ two requests.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge.base.display import format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import ceil_fraction
+from gapforge.base.records import record
 from gapforge.timer.layouts import EDGES, Field, Layout
 
 ROUNDINGS = ("safe", "nearest")
 
 
-@dataclass(frozen=True)
+@record
 class FitRequest:
     clock_hz: Fraction
     clock_tol: Fraction
@@ -48,7 +48,7 @@ class FitRequest:
             raise GapforgeError(f"rounding must be one of {', '.join(ROUNDINGS)}", "rounding")
 
 
-@dataclass(frozen=True)
+@record
 class EdgeFit:
     """One edge's result. Seconds as exact fractions; None where the edge is unreachable."""
 
@@ -78,7 +78,7 @@ class EdgeFit:
         return self.achieved_min_s is not None and self.achieved_min_s < self.requested_s
 
 
-@dataclass(frozen=True)
+@record
 class FitResult:
     layout: Layout
     request: FitRequest

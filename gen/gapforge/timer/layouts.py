@@ -19,12 +19,13 @@ from __future__ import annotations
 
 import bisect
 import hashlib
-from dataclasses import dataclass, field, replace
+from dataclasses import field, replace
 from functools import cached_property
 from pathlib import Path
 
 from gapforge.base.errors import GapforgeError, quoted
 from gapforge.base.provenance import content_sha256
+from gapforge.base.records import record
 from gapforge.base.schema import Reader, Table, load_toml
 
 EDGES = ("to_high", "to_low")
@@ -44,7 +45,7 @@ MAX_NAME = 64
 RESERVED_FIELD_NAMES = frozenset({"divider"})
 
 
-@dataclass(frozen=True)
+@record
 class Segment:
     """One range of a segmented code: steps = base + low_bits x multiplier."""
 
@@ -53,7 +54,7 @@ class Segment:
     multiplier: int
 
 
-@dataclass(frozen=True)
+@record
 class Field:
     """One register field: where it sits and, for a dead-time field, how codes become steps."""
 
@@ -126,7 +127,7 @@ class Field:
         return i if i < len(values) else None
 
 
-@dataclass(frozen=True)
+@record
 class Layout:
     """A timer's dead-time unit. Built-in layouts are generic designs of our own."""
 

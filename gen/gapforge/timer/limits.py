@@ -19,11 +19,11 @@ not move with the clock tolerance; only the dead time in seconds does.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import ceil_fraction, floor_fraction
+from gapforge.base.records import record
 from gapforge.timer.fit import FitResult
 from gapforge.timer.layouts import EDGES
 
@@ -31,7 +31,7 @@ COUNTINGS = ("edge", "center")
 TURN_CLOCKS = (1, 2)
 
 
-@dataclass(frozen=True)
+@record
 class PwmSpec:
     frequency_hz: Fraction
     counting: str = "edge"
@@ -84,7 +84,7 @@ class PwmSpec:
         )
 
 
-@dataclass(frozen=True)
+@record
 class EdgeLimits:
     dead_counts: Fraction  # dead time in timer clock periods (exact)
     share: Fraction  # dead time / PWM period
@@ -95,7 +95,7 @@ class EdgeLimits:
     tol_plus_s: Fraction  # achieved_max - achieved (how far a slow clock lengthens it)
 
 
-@dataclass(frozen=True)
+@record
 class PwmLimits:
     spec: PwmSpec
     counts: int  # N: compare range 0..N

@@ -18,12 +18,12 @@ Layouts are loaded by the caller once and passed in; nothing is read or rendered
 from __future__ import annotations
 
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass
 from fractions import Fraction
 
 from gapforge.base.display import both_edges, format_si
 from gapforge.base.errors import GapforgeError
 from gapforge.base.quantities import parse_quantity
+from gapforge.base.records import record
 from gapforge.stage.window import EDGES, Window, WindowEdge, judge
 from gapforge.timer.fit import FitRequest, fit
 from gapforge.timer.layouts import Layout
@@ -36,7 +36,7 @@ MAX_CLOCKS = 100_000
 Limits = Mapping[str, tuple[Fraction, Fraction | None]]
 
 
-@dataclass(frozen=True)
+@record
 class RowEdge:
     code: int
     steps: int
@@ -49,7 +49,7 @@ class RowEdge:
     verdict: str
 
 
-@dataclass(frozen=True)
+@record
 class RowPwm:
     """The PWM limits of a point's fitted dead time (gapforge.timer.limits.PwmLimits, condensed)."""
 
@@ -61,7 +61,7 @@ class RowPwm:
     verdict: str
 
 
-@dataclass(frozen=True)
+@record
 class SweepRow:
     layout: str
     clock_hz: Fraction
@@ -80,7 +80,7 @@ class SweepRow:
     register_bits: int = 32  # the register's width (the hex word is padded to it)
 
 
-@dataclass(frozen=True)
+@record
 class Sweep:
     limits: dict[str, tuple[Fraction, Fraction | None]]
     clock_tol: Fraction
