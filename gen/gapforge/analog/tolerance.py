@@ -54,6 +54,14 @@ _LEVELS = (0.0, 0.5, 1.0)
 # linearly), so these take only their band ends in the corner search. Thresholds, the knee,
 # supply and temperature can act both ways and take min, typ and max.
 MONOTONE_PARAMS = frozenset({"rout", "r", "r_tc", "c", "c_tc", "cin", "cstray"})
+# Of those, the node delay grows with these at every value of the others (more series
+# resistance or more node capacitance slows the edge: in the charge integral a larger R or Rout
+# lowers the current at every node voltage and raises the distance still to go, and a larger
+# capacitance is more charge to move), so the smallest delay of a corner set has them all at
+# their band's low end and the largest at its high end: the corner search evaluates those two
+# points of them instead of all 2^5 (the tempcos act through the sign of T - 25 C and keep both
+# ends). tests/test_tolerance.py holds the result equal to the full grid.
+INCREASING_PARAMS = ("rout", "r", "c", "cin", "cstray")
 _ENDS = (0.0, 1.0)
 
 
@@ -195,22 +203,27 @@ def corner_extremes_for_parts(
     node_lo: dict[str, FloatArray] = {}
     node_hi: dict[str, FloatArray] = {}
     for edge in EDGES:
-        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS}
+        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *INCREASING_PARAMS}
         local_names = [n for n in CHANNEL_PARAMS if n in spread and n not in skip]
         local = _grid(local_names)
-        n_local = len(next(iter(local.values()))) if local else 1
+        half = len(next(iter(local.values()))) if local else 1
+        n_local = 2 * half  # the grid with INCREASING_PARAMS low, then the same with them high
         positions: dict[str, FloatArray] = {}
         for name, arr in shared.items():
             positions[name] = np.repeat(arr, n_local).reshape(n_shared, n_local)
         for name, arr in local.items():
-            positions[name] = np.tile(arr, n_shared).reshape(n_shared, n_local)
+            positions[name] = np.tile(arr, 2 * n_shared).reshape(n_shared, n_local)
+        ends = np.repeat(np.asarray(_ENDS), half)
+        for name in INCREASING_PARAMS:
+            if name in spread:
+                positions[name] = np.tile(ends, n_shared).reshape(n_shared, n_local)
         if not positions:
             positions = {"vdd": np.full((1, 1), 0.5)}
         values = _part_values(net, positions, parts)
         node = channel_edge_delays(net, values, (edge,))["node_" + edge]
         node = np.broadcast_to(node, (count, n_shared, n_local))
-        node_lo[edge] = node.min(axis=2)
-        node_hi[edge] = node.max(axis=2)
+        node_lo[edge] = node[:, :, :half].min(axis=2)
+        node_hi[edge] = node[:, :, half:].max(axis=2)
     typ = typical_for_parts(net, parts)
     inv_lo, _, inv_hi = bands["pair_inverter_delay"]
     fixed_typ = sum(bands[n][1] for n in DELAY_PARAMS)
