@@ -68,7 +68,7 @@ def test_no_validated_network_gives_a_traceback(raw: dict[str, str]) -> None:
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("error")  # no library warning either (issue 14)
-            result = worst_case(net, check_samples=200)
+            result = worst_case(net)
             findings = reference_findings(net, result.pair)
     except GapforgeError:
         return  # e.g. a non-finite delay, refused in one line

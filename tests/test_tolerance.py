@@ -33,25 +33,92 @@ def test_monte_carlo_stays_inside_the_corners_for_the_default_network() -> None:
         assert (s.max - s.min) > 0.5 * (hi - lo)
 
 
-def test_corners_too_narrow_are_widened_by_the_monte_carlo_check(
+def test_corners_too_narrow_are_widened_by_the_finer_grid(
     monkeypatch: pytest.MonkeyPatch,
 ) -> None:
     # ECSS-Q-HB-30-01A / reference-facts: extreme-value corners can miss the true extreme of a
     # non-monotonic response. Simulate a corner search that missed: the check must widen it.
     net = network_from_options({"r": "4.7k", "c": "100p"})
-    real = tol.corner_extremes(net)
+    search = tol.corner_extremes
+    real = search(net)
 
-    def narrow(_net):  # type: ignore[no-untyped-def]
-        out = dict(real)
-        _lo, typ, _hi = out["to_high"]
-        out["to_high"] = (typ - 1e-12, typ, typ + 1e-12)
+    def narrow(net_, both_ways=tol._LEVELS):  # type: ignore[no-untyped-def]
+        out = dict(search(net_, both_ways))
+        if tuple(both_ways) == tol._LEVELS:  # the corners miss; the finer grid does not
+            _lo, typ, _hi = out["to_high"]
+            out["to_high"] = (typ - 1e-12, typ, typ + 1e-12)
         return out
 
     monkeypatch.setattr(tol, "corner_extremes", narrow)
-    wc = tol.worst_case(net, check_samples=5_000)
+    wc = tol.worst_case(net)
     assert "to_high" in wc.widened
     assert wc.floats["to_high"][0] < real["to_high"][1] - 1e-9
+    assert wc.floats["to_high"][0] == pytest.approx(real["to_high"][0], rel=1e-12)
     assert "to_low" not in wc.widened
+
+
+def test_the_finer_grid_finds_an_extreme_between_the_corners(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # A response with its peak inside the supply band (at a quarter of it), not at min, typ or
+    # max: the 3-level corners miss it, the 5-level check lands on it and widens the maximum.
+    net = network_from_options({"r": "4.7k", "c": "100p", "bypass": "none", "vdd": "3:3.3:3.6",
+                               "temp": "25"})
+    plain = tol.worst_case(net)
+    assert plain.widened == ()
+    delays = tol.channel_edge_delays
+    lo_v, _typ_v, hi_v = (float(v) for v in (net.vdd.min, net.vdd.typ, net.vdd.max))
+
+    def bumped(net_, v, edges=("rising", "falling"), **kw):  # type: ignore[no-untyped-def]
+        out = dict(delays(net_, v, edges, **kw))
+        where = (np.asarray(v["vdd"]) - lo_v) / (hi_v - lo_v)  # 0..1 across the band
+        bump = 50e-9 * np.exp(-(((where - 0.25) / 0.05) ** 2))
+        for edge in edges:
+            out["node_" + edge] = out["node_" + edge] + bump
+            out[edge] = out[edge] + bump
+        return out
+
+    monkeypatch.setattr(tol, "channel_edge_delays", bumped)
+    wc = tol.worst_case(net)
+    assert {"node_rising", "node_falling"} <= set(wc.widened)
+    assert wc.floats["node_rising"][2] >= plain.floats["node_rising"][2] + 40e-9
+    assert wc.check_levels == tol.CHECK_LEVELS == 5
+    # the check's points: 5 supply levels (temperature fixed), the thresholds' 5, and the parts
+    # the delay grows with at both ends, for each input edge, and the typical point
+    assert wc.check_points == tol.grid_points(net, tol.check_levels_at(5)) == 1 + 2 * (5 * 5 * 2)
+
+
+def test_the_corner_search_equals_the_full_grid_of_the_monotonic_parts() -> None:
+    # INCREASING_PARAMS take one end per bound; the full grid (every end of every one of them,
+    # the search before the shortcut) must give the same extremes, to the last digits of a
+    # batch summed in another order, on networks of every kind (diode either way or none,
+    # output inverter, bands of supply and temperature, tempcos, strays).
+    import random
+
+    rng = random.Random(22)
+    nets = []
+    while len(nets) < 24:
+        raw = {"r": rng.choice(["100", "4.7k", "22k", "100k"]),
+               "c": rng.choice(["10p", "100p", "1n"]),
+               "r_tol": rng.choice(["0.1%", "1%", "5%"]), "c_tol": rng.choice(["1%", "10%"]),
+               "r_tempco": rng.choice(["0ppm", "100ppm", "300ppm"]),
+               "c_tempco": rng.choice(["0ppm", "30ppm"]),
+               "cstray": rng.choice(["0", "1p:2p:5p"]), "rout": rng.choice(["25", "10:25:60"]),
+               "bypass": rng.choice(["rising", "falling", "none"]),
+               "vdd": rng.choice(["3.3", "3:3.3:3.6", "1.65:1.8:1.95"]),
+               "temp": rng.choice(["25", "-40:25:125"]),
+               "output_inverter": rng.choice(["true", "false"])}
+        nets.append(network_from_options(raw))
+    for net in nets:
+        fast = tol.corner_extremes(net)
+        saved = tol.INCREASING_PARAMS
+        try:
+            tol.INCREASING_PARAMS = ()  # every end of every monotonic parameter
+            full = tol.corner_extremes(net)
+        finally:
+            tol.INCREASING_PARAMS = saved
+        for key, values in full.items():
+            assert fast[key] == pytest.approx(values, rel=1e-14, abs=1e-24), key
 
 
 def test_rss_of_a_resistor_band_matches_the_gum_formula() -> None:
@@ -209,16 +276,3 @@ def test_corners_of_many_pairs_equal_each_pair_on_its_own() -> None:
                 assert float(typ[key][k]) == pytest.approx(value, rel=1e-12)
 
 
-@pytest.mark.parametrize("bypass", ["rising", "falling", "none"])
-def test_the_worst_case_check_sees_the_monte_carlo_extremes(bypass: str) -> None:
-    # issue 22: the worst case's check takes only the extremes of the seeded draws (no
-    # percentiles); they must be monte_carlo's own min and max for the same seed and count.
-    net = network_from_options({"r": "4.7k", "c": "100p", "bypass": bypass})
-    found = tol.monte_carlo_extremes(net, 3_000, seed=20240601)
-    mc = tol.monte_carlo(net, 3_000, seed=20240601)
-    for key in tol.QUANTITIES:
-        assert found[key] == (mc.stats[key].min, mc.stats[key].max)
-    chunked = tol.monte_carlo_extremes(net, 3_000, seed=20240601, chunk=700)
-    mc_chunked = tol.monte_carlo(net, 3_000, seed=20240601, chunk=700)
-    for key in tol.QUANTITIES:
-        assert chunked[key] == (mc_chunked.stats[key].min, mc_chunked.stats[key].max)

@@ -18,10 +18,6 @@ if TYPE_CHECKING:
     FloatArray = npt.NDArray[np.float64]
 
 
-# Monte Carlo samples that check the corners of `reference_dead_times` (used by every build; the
-# charge integral costs about 10 us per sample for both channels, and `analog` checks 20,000).
-REFERENCE_CHECK_SAMPLES = 5_000
-
 # The per-channel random parameters (names used by corners, RSS and Monte Carlo).
 CHANNEL_PARAMS = (
     "rout",

@@ -229,9 +229,8 @@ def suggest(
     from the target (the pair whose whole range hugs the target first), 'typical' by the typical
     error. A tolerance the user left at its default is the series' usual one (E6 20 % .. E192
     0.5 %, `SERIES_TOLERANCE`). The pairs proposed are then checked like `analog.reference_dead_times` (corners
-    against a seeded Monte Carlo); a pair the check widens into unsafe is rejected too.
+    against the finer grid); a pair the check widens into unsafe is rejected too.
     """
-    from gapforge.analog.corners import REFERENCE_CHECK_SAMPLES
     from gapforge.analog.tolerance import corner_extremes_for_parts, worst_case
 
     if key not in PAIR_KEYS:
@@ -262,7 +261,7 @@ def suggest(
             if not s.safe:
                 rejected.append(s)
             continue
-        checked = worst_case(replace(net, r=s.r, c=s.c), check_samples=REFERENCE_CHECK_SAMPLES)
+        checked = worst_case(replace(net, r=s.r, c=s.c))
         confirmed = _make(s.r, s.c, checked.floats, key, target, min_dead_s)
         (chosen if confirmed.safe else rejected).append(confirmed)
     chosen.sort(key=order)
@@ -303,10 +302,9 @@ def suggest_window(
     """Preferred R/C pairs whose worst-case range of the wanted dead time lies inside
     low_s .. high_s (and whose other dead time is positive and at least `min_dead_s`), best
     centred first: the range's middle nearest the window's middle, then the larger margin on
-    its tighter side. Each proposed pair is confirmed like `suggest`'s (corners against a
-    seeded Monte Carlo); a pair the check widens out of the window is rejected too.
+    its tighter side. Each proposed pair is confirmed like `suggest`'s (corners against the
+    finer grid); a pair the check widens out of the window is rejected too.
     """
-    from gapforge.analog.corners import REFERENCE_CHECK_SAMPLES
     from gapforge.analog.tolerance import corner_extremes_for_parts, worst_case
 
     if key not in PAIR_KEYS:
@@ -339,8 +337,7 @@ def suggest_window(
         if not s.safe:
             rejected.append(s)
         elif len(chosen) < count:
-            checked = worst_case(replace(net, r=s.r, c=s.c),
-                                 check_samples=REFERENCE_CHECK_SAMPLES)
+            checked = worst_case(replace(net, r=s.r, c=s.c))
             confirmed = judged(s.r, s.c, checked.floats)
             (chosen if confirmed.safe else rejected).append(confirmed)
     chosen.sort(key=order)

@@ -5,9 +5,13 @@ root-sum-square of sensitivity x standard uncertainty, 4.3.7 for a uniform band'
 JCGM 101:2008 for Monte Carlo propagation):
 
 - worst case: every min/typ/max combination of the parameters that vary (both channels' parts
-  drawn independently, supply, temperature and the pair's inverter shared), then checked against
-  a seeded Monte Carlo: extreme-value corners can miss the extreme of a non-monotonic response,
-  so the range is widened to any Monte Carlo value outside it and the widening is reported;
+  independent, supply, temperature and the pair's inverter shared; the band ends only of the
+  parameters the delay is monotonic in), then checked against the same search on a finer grid
+  (CHECK_LEVELS equal steps of every parameter that can act both ways): extreme-value corners
+  can miss the extreme of a non-monotonic response, so the range is widened to any value of the
+  finer grid outside it and the widening is reported. (A Monte Carlo draw rarely lands where
+  that extreme lies: it needs every monotonic parameter at its end at the same time. The
+  Monte Carlo below is the statistical view, and `analog` flags a sample beyond the worst case.)
 - RSS: central-difference sensitivities at the typical point;
 - Monte Carlo: uniform over each band, or a split normal with the band ends at k sigma; chunked,
   with exact order statistics from a histogram pass so 10M samples need little memory.
@@ -28,7 +32,6 @@ import numpy as np
 from gapforge.analog.corners import (
     CHANNEL_PARAMS,
     DELAY_PARAMS,
-    REFERENCE_CHECK_SAMPLES,
     SHARED_PARAMS,
     channel_edge_delays,
     pair_dead_times,
@@ -63,6 +66,9 @@ MONOTONE_PARAMS = frozenset({"rout", "r", "r_tc", "c", "c_tc", "cin", "cstray"})
 # ends). tests/test_tolerance.py holds the result equal to the full grid.
 INCREASING_PARAMS = ("rout", "r", "c", "cin", "cstray")
 _ENDS = (0.0, 1.0)
+# The worst case's check: the corner search again with this many equal steps of each parameter
+# that can act both ways (quarter steps; see `worst_case`).
+CHECK_LEVELS = 5
 
 
 # --------------------------------------------------------------------------------------------
@@ -112,25 +118,35 @@ class WorstCase:
     channel: dict[str, EdgeRange]  # input edge to output edge, one channel
     pair: dict[str, EdgeRange]  # to_high / to_low
     floats: dict[str, tuple[float, float, float]]  # the same, unrounded, for display
-    widened: tuple[str, ...]  # quantities whose corners the Monte Carlo check widened
-    check_samples: int
+    widened: tuple[str, ...]  # quantities whose corners the finer grid widened
+    check_levels: int  # levels of the finer grid per parameter that can act both ways (0: none)
+    check_points: int  # parameter points of one channel the check evaluated
 
 
-def _grid(names: list[str]) -> dict[str, FloatArray]:
+def check_levels_at(count: int) -> tuple[float, ...]:
+    """Positions 0..1 in `count` equal steps: an odd count holds min, typ and max among them."""
+    if count < 3 or count % 2 == 0:
+        raise ValueError("the check needs an odd number of levels, at least 3")
+    return tuple(k / (count - 1) for k in range(count))
+
+
+def _grid(names: list[str], both_ways: Sequence[float] = _LEVELS) -> dict[str, FloatArray]:
     if not names:
         return {}
-    levels = [np.asarray(_ENDS if n in MONOTONE_PARAMS else _LEVELS) for n in names]
+    levels = [np.asarray(_ENDS if n in MONOTONE_PARAMS else both_ways) for n in names]
     mesh = np.meshgrid(*levels, indexing="ij")
     return {name: m.ravel() for name, m in zip(names, mesh, strict=True)}
 
 
-def corner_extremes(net: ReferenceNetwork) -> dict[str, tuple[float, float, float]]:
-    """min/typ/max over the corners (no Monte Carlo check).
+def corner_extremes(
+    net: ReferenceNetwork, both_ways: Sequence[float] = _LEVELS
+) -> dict[str, tuple[float, float, float]]:
+    """min/typ/max over the corners (no check).
 
-    Every combination of the varying parameters' levels: min/typ/max, or only min/max for the
-    ones the delay grows with (MONOTONE_PARAMS).
+    Every combination of the varying parameters' levels: `both_ways` (min/typ/max unless told)
+    for the ones that can act both ways, only the band ends for the others (MONOTONE_PARAMS).
     """
-    return corner_extremes_for_parts(net, [(net.r, net.c)])[0]
+    return corner_extremes_for_parts(net, [(net.r, net.c)], both_ways)[0]
 
 
 def _part_values(
@@ -185,7 +201,9 @@ def typical_for_parts(
 
 
 def corner_extremes_for_parts(
-    net: ReferenceNetwork, parts: Sequence[tuple[Fraction, Fraction]]
+    net: ReferenceNetwork,
+    parts: Sequence[tuple[Fraction, Fraction]],
+    both_ways: Sequence[float] = _LEVELS,
 ) -> list[dict[str, tuple[float, float, float]]]:
     """`corner_extremes(replace(net, r=r, c=c))` for every (R, C) of `parts`, in one evaluation.
 
@@ -195,7 +213,7 @@ def corner_extremes_for_parts(
     spread = set(spread_parameters(net))  # R and C spread by tolerance, whatever their value
     count = len(parts)
     shared_names: list[str] = [n for n in ("vdd", "temp") if n in spread]
-    shared = _grid(shared_names)
+    shared = _grid(shared_names, both_ways)
     n_shared = len(next(iter(shared.values()))) if shared else 1
     bands = parameter_bands(net)
     fixed_lo = sum(bands[n][0] for n in DELAY_PARAMS)
@@ -205,7 +223,7 @@ def corner_extremes_for_parts(
     for edge in EDGES:
         skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *INCREASING_PARAMS}
         local_names = [n for n in CHANNEL_PARAMS if n in spread and n not in skip]
-        local = _grid(local_names)
+        local = _grid(local_names, both_ways)
         half = len(next(iter(local.values()))) if local else 1
         n_local = 2 * half  # the grid with INCREASING_PARAMS low, then the same with them high
         positions: dict[str, FloatArray] = {}
@@ -251,35 +269,53 @@ def corner_extremes_for_parts(
     return results
 
 
-def worst_case(
-    net: ReferenceNetwork, check_samples: int = 20_000, seed: int = 20240601
-) -> WorstCase:
-    """Corners, checked (and widened if need be) against a seeded Monte Carlo."""
+def grid_points(net: ReferenceNetwork, both_ways: Sequence[float] = _LEVELS) -> int:
+    """How many parameter points of one channel `corner_extremes` evaluates with these levels
+    (both input edges, and the typical point)."""
+    spread = set(spread_parameters(net))
+    shared = math.prod(len(both_ways) for n in ("vdd", "temp") if n in spread)
+    total = 1
+    for edge in EDGES:
+        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *INCREASING_PARAMS}
+        local = math.prod(len(_ENDS if n in MONOTONE_PARAMS else both_ways)
+                          for n in CHANNEL_PARAMS if n in spread and n not in skip)
+        total += shared * local * 2
+    return total
+
+
+def worst_case(net: ReferenceNetwork, check_levels: int = CHECK_LEVELS) -> WorstCase:
+    """Corners, checked (and widened if need be) against a finer grid of the same corners.
+
+    The corners take min, typ and max of every parameter that can act both ways (supply,
+    temperature, the thresholds); extreme-value corners can miss the extreme of a response that
+    is not monotonic in one of them (ECSS-Q-HB-30-01A), so the search is repeated with
+    `check_levels` equal steps of each of those (the ones the delay grows with still at their
+    ends, where their extreme lies) and a quantity the finer grid finds beyond the corners is
+    widened to it and listed. The finer grid holds the corners' own points (an odd count), so
+    the check can only widen.
+    """
+    levels = check_levels and check_levels_at(check_levels)
     extremes = corner_extremes(net)
     widened: list[str] = []
-    if check_samples > 0:
-        found = monte_carlo_extremes(net, check_samples, seed=seed)
-        for key in QUANTITIES:
-            lo, typ, hi = extremes[key]
-            mc_min, mc_max = found[key]
-            slack = 1e-12 * max(abs(lo), abs(hi), 1e-12)
-            new_lo = min(lo, mc_min) if mc_min < lo - slack else lo
-            new_hi = max(hi, mc_max) if mc_max > hi + slack else hi
+    if levels:
+        found = corner_extremes(net, levels)
+        for key, (lo, typ, hi) in list(extremes.items()):
+            f_lo, _f_typ, f_hi = found[key]
+            slack = 1e-12 * max(abs(lo), abs(hi), 1e-12)  # the same point in another batch
+            new_lo = f_lo if f_lo < lo - slack else lo
+            new_hi = f_hi if f_hi > hi + slack else hi
             if (new_lo, new_hi) != (lo, hi):
-                widened.append(key)
                 extremes[key] = (new_lo, typ, new_hi)
-                # the channel ranges carry the same node widening
-                if key.startswith("node_"):
-                    edge = key[5:]
-                    clo, ctyp, chi = extremes[edge]
-                    extremes[edge] = (clo - (lo - new_lo), ctyp, chi + (new_hi - hi))
+                if key in QUANTITIES:
+                    widened.append(key)
     return WorstCase(
         edges={e: edge_range(*extremes["node_" + e]) for e in EDGES},
         channel={e: edge_range(*extremes[e]) for e in EDGES},
         pair={k: edge_range(*extremes[k]) for k in PAIR_KEYS},
         floats=extremes,
         widened=tuple(widened),
-        check_samples=check_samples,
+        check_levels=check_levels,
+        check_points=grid_points(net, levels) if levels else 0,
     )
 
 
@@ -466,33 +502,15 @@ def monte_carlo(
     return MonteCarloResult(samples, seed, distribution, sigma_band, below_s, stats)
 
 
-def monte_carlo_extremes(
-    net: ReferenceNetwork, samples: int, *, seed: int, chunk: int = CHUNK
-) -> dict[str, tuple[float, float]]:
-    """(min, max) per quantity of `monte_carlo`'s uniform draws for the same arguments: the same
-    chunks of the same seeded generators, without the percentiles and the mean that the worst
-    case's check does not use (and so without sorting)."""
-    lows: dict[str, list[float]] = {key: [] for key in QUANTITIES}
-    highs: dict[str, list[float]] = {key: [] for key in QUANTITIES}
-    for i, n in enumerate(_chunk_sizes(samples, chunk)):
-        drawn = _draw(net, n, seed, i, "uniform", 3.0)
-        for key in QUANTITIES:
-            lows[key].append(float(drawn[key].min()))
-            highs[key].append(float(drawn[key].max()))
-    # numpy's min and max, so a value that is not a number shows as it would in `monte_carlo`
-    return {key: (float(np.min(lows[key])), float(np.max(highs[key]))) for key in QUANTITIES}
-
-
 def reference_dead_times(net: ReferenceNetwork) -> dict[str, EdgeRange]:
     """Worst-case dead-time ranges of the complementary pair over all tolerances.
 
     Keys 'to_high' and 'to_low'. Corners over the min/typ/max combinations of both channels'
     independent parts and the shared supply, temperature and pair inverter (band ends only for
-    the resistances and capacitances, which the delay grows with), checked against a seeded
-    Monte Carlo of REFERENCE_CHECK_SAMPLES so a non-monotonic response is not missed (the range
-    is widened if the Monte Carlo finds a value outside it). Min rounded down and max up to
-    1 ps. With a diode the edges come from the charge integral, which bounds the bypassed edge
+    the resistances, capacitances and tempcos, where the delay's extremes lie), checked against
+    the finer grid of `worst_case` so a non-monotonic response is not missed (the range is
+    widened if the finer grid finds a value outside it). Min rounded down and max up to 1 ps. With a diode the edges come from the charge integral, which bounds the bypassed edge
     from above, so the range does not overstate the dead time (see the module docstring).
     """
-    result = worst_case(net, check_samples=REFERENCE_CHECK_SAMPLES)
+    result = worst_case(net)
     return {key: result.pair[key] for key in PAIR_KEYS}

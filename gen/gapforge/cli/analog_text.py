@@ -154,10 +154,11 @@ def render_text(report: dict[str, Any]) -> str:
             " past the band's own ends. The worst case is the bound; RSS is only an estimate "
             "(nothing is clipped)."
         )
-    widened = report["worst_case"]["widened_by_monte_carlo"]
+    check = report["worst_case"]
+    widened = check["widened_by_check"]
     lines.append(
-        "  corners checked against "
-        f"{report['worst_case']['check_samples']} Monte Carlo samples"
+        f"  corners checked against a {check['check_levels']}-level grid "
+        f"({check['check_points']} points a channel)"
         + (f"; widened for {', '.join(widened)} (non-monotonic)" if widened else "; none beyond them")
     )
     if "monte_carlo" in report:
@@ -171,6 +172,7 @@ def render_text(report: dict[str, Any]) -> str:
             lines.append(
                 f"  {key:<12} min {_lo(s['min_s'])}  0.135 % {_lo(s['p0_135_s'])}  50 % "
                 f"{_t(s['p50_s'])}  99.865 % {_hi(s['p99_865_s'])}  max {_hi(s['max_s'])}{share}"
+                + ("  [beyond the worst case, see warnings]" if s["beyond_worst_case"] else "")
             )
     leak = report["leakage"]
     if leak["slow_edge_over_temperature"]:
