@@ -73,6 +73,40 @@ def test_monte_carlo_progress_is_reported_per_chunk_and_never_in_piped_output() 
     assert code == 0 and err == "" and json.loads(out)["monte_carlo"]["samples"] == 1000
 
 
+def test_a_monte_carlo_sample_beyond_the_worst_case_is_a_violated_limit(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # The worst case every build uses is corners checked on a finer grid; the Monte Carlo that
+    # `analog --monte-carlo` draws holds it to account: a sample beyond it means the search
+    # missed an extreme, so the answer is not ok (JCGM 101:2008 draws, ECSS-Q-HB-30-01A
+    # extreme-value analysis). Simulate a worst case that came out too narrow.
+    import dataclasses
+
+    import gapforge.analog.tolerance as tol
+
+    real = tol.worst_case
+
+    def narrow(net, *args, **kw):  # type: ignore[no-untyped-def]
+        wc = real(net, *args, **kw)
+        lo, typ, hi = wc.floats["to_low"]
+        floats = {**wc.floats, "to_low": (lo, typ, typ + 0.1 * (hi - typ))}
+        return dataclasses.replace(wc, floats=floats)
+
+    code, out, _ = run_cli(["analog", *NET, "--monte-carlo", "2000", "--json"])
+    assert code == 0
+    assert not any(r["beyond_worst_case"] for r in json.loads(out)["monte_carlo"]["results"].values())
+    monkeypatch.setattr(tol, "worst_case", narrow)
+    code, out, _ = run_cli(["analog", *NET, "--monte-carlo", "2000", "--json"])
+    data = json.loads(out)
+    assert code == 1 and data["limit_violated"] is True
+    assert data["monte_carlo"]["results"]["to_low"]["beyond_worst_case"] is True
+    assert data["monte_carlo"]["results"]["to_high"]["beyond_worst_case"] is False
+    assert any("to_low: the Monte Carlo reached" in w and "not proven" in w
+               for w in data["warnings"])
+    code, out, _ = run_cli(["analog", *NET, "--monte-carlo", "2000"])
+    assert code == 1 and "[beyond the worst case, see warnings]" in out
+
+
 HOT = ["--r", "47k", "--c", "100p", "--diode", "IS=1e-6 N=1.05 RS=1 CJO=20p VJ=0.4 M=0.5 EG=0.69 XTI=2"]
 
 

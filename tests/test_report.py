@@ -726,3 +726,18 @@ def test_analog_options_with_a_logic_capture_are_refused(tmp_path: Path) -> None
     assert result.returncode == 2 and "analog options" in result.stderr
     assert len(result.stderr.strip().splitlines()) == 1
     assert not (tmp_path / "r.html").exists()
+
+
+def test_the_monte_carlo_caption_warns_of_samples_beyond_the_worst_case() -> None:
+    # The bracket is the worst case a build uses; a seeded sample outside it means the corner
+    # search missed an extreme (ECSS-Q-HB-30-01A), so the caption says the worst case is not
+    # proven. Inside the bracket (ends included) the caption stays quiet.
+    from fractions import Fraction
+
+    from gapforge.outputs.report_sections import _beyond_worst
+
+    bracket = (Fraction(1, 10**9), Fraction(2, 10**9))
+    assert _beyond_worst(np.array([1e-9, 1.5e-9, 2e-9]), bracket) == ""
+    assert _beyond_worst(np.array([1e-9, 2.5e-9]), None) == ""
+    text = _beyond_worst(np.array([0.9e-9, 1.5e-9, 2.1e-9]), bracket)
+    assert text.startswith(" WARNING: 2 samples lie outside") and "not proven" in text

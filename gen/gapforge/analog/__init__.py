@@ -30,7 +30,7 @@ ngspice within 0.01 % without junction capacitance; with it the bypassed edge is
 above (slow by up to tens of % when the junction capacitance is comparable to C) and the resistor
 edge from below (within 1.5 % on the recorded grid: its end points use the circuit's slow
 manifold, see `diode_edge_delay`), so both errors shorten the dead time; tests hold both bounds
-against ngspice on a recorded grid and a seeded random family. It is vectorised like the closed form, so the corners and the Monte Carlo use it
+against ngspice on a recorded grid and a seeded random family. It is vectorised like the closed form, so the corners, their finer-grid check and the Monte Carlo use it
 directly (about 10 us per sample for both edges of both channels: `gapforge build` keeps to
 0.5 s); the transient itself (simulate.py, milliseconds per edge) would not fit there. The
 textbook forms stay available (`channel_edge_delays(textbook=True)`) for display only.

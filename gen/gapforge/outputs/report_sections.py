@@ -180,7 +180,7 @@ def analog_section(plan: BuildPlan) -> Section:
         rows = tuple((e, _t(r.min_s), _t(r.typ_s), _t(r.max_s)) for e, r in plan.reference.items())
         tables.append(
             TableBlock(
-                "Reference dead times (worst-case corners, Monte Carlo checked)",
+                "Reference dead times (worst-case corners, checked on a finer grid)",
                 ("edge", "min", "typ", "max"),
                 rows,
             )
@@ -297,10 +297,24 @@ def monte_carlo_figures(plan: BuildPlan) -> list[FigureBlock]:
                 "every part uniform over its band; bracket: the worst case over the tolerance "
                 "corners; pink: samples outside the window"
                 + ("; hatched: at or below zero dead time (overlap)" if shared[0][0] < 0 else "")
-                + ("." if first is None else f"; black: the digital value of {first.output.prefix}."),
+                + ("." if first is None else f"; black: the digital value of {first.output.prefix}.")
+                + _beyond_worst(samples[e], worst[e]),
             )
         )
     return figures
+
+
+def _beyond_worst(values: Any, worst: tuple[Fraction, Fraction] | None) -> str:
+    """A caption's warning when samples fall outside the worst-case bracket (a response the
+    corner search missed: the worst case is then not proven)."""
+    if worst is None:
+        return ""
+    lo, hi = float(worst[0]), float(worst[1])
+    count = int(((values < lo) | (values > hi)).sum())
+    if count == 0:
+        return ""
+    return (f" WARNING: {count} samples lie outside the worst-case bracket: the corner search "
+            "missed an extreme of this network, so its worst case is not proven.")
 
 
 def _capture_marks(m: Measurement, edge: str) -> list[float]:
