@@ -14,10 +14,12 @@ range's farthest end from the target) or by the typical error.
 
 from __future__ import annotations
 
+import bisect
 import math
 from collections.abc import Mapping
 from dataclasses import replace
 from fractions import Fraction
+from functools import lru_cache
 
 from gapforge.analog.network import PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
 from gapforge.base.display import format_range, format_si
@@ -95,11 +97,29 @@ def series_values(series: str, low: Fraction, high: Fraction) -> list[Fraction]:
     return out
 
 
+@lru_cache(maxsize=256)
+def _decade(series: str, exponent: int) -> tuple[Fraction, ...]:
+    """One decade of a series, ascending (`series_values`' values for that scale)."""
+    mantissas, unit = SERIES[series]
+    scale = Fraction(10) ** exponent
+    return tuple(Fraction(m, unit) * scale for m in mantissas)
+
+
 def nearest(series: str, value: Fraction) -> tuple[Fraction, Fraction]:
-    """The series values just below (or equal) and just above a value."""
-    candidates = series_values(series, value / 20, value * 20)
-    below = max((v for v in candidates if v <= value), default=candidates[0])
-    above = min((v for v in candidates if v >= value), default=candidates[-1])
+    """The series values just below (or equal) and just above a value.
+
+    Among `series_values(series, value / 20, value * 20)`, found by bisection in the decades
+    around the value (each decade made once): `suggest` asks this for every capacitor."""
+    if series not in SERIES:
+        raise GapforgeError(f"unknown series {series!r} (expected one of: {', '.join(SERIES)})")
+    low, high = value / 20, value * 20
+    e = math.floor(math.log10(float(value)))  # decades e-3 .. e+2 hold low .. high, with room
+    ordered = [v for k in range(max(-15, e - 3), e + 3) for v in _decade(series, k)]
+    candidates = ordered[bisect.bisect_left(ordered, low):bisect.bisect_right(ordered, high)]
+    at = bisect.bisect_right(candidates, value)  # candidates[:at] <= value
+    below = candidates[at - 1] if at else candidates[0]
+    at = bisect.bisect_left(candidates, value)  # candidates[at:] >= value
+    above = candidates[at] if at < len(candidates) else candidates[-1]
     return below, above
 
 

@@ -23,7 +23,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import replace
 from fractions import Fraction
 from typing import TYPE_CHECKING
 
@@ -40,7 +39,14 @@ from gapforge.analog.corners import (
     spread_parameters,
     values_at,
 )
-from gapforge.analog.network import EDGES, PAIR_KEYS, EdgeRange, ReferenceNetwork, edge_range
+from gapforge.analog.network import (
+    EDGES,
+    PAIR_KEYS,
+    Band,
+    EdgeRange,
+    ReferenceNetwork,
+    edge_range,
+)
 from gapforge.analog.statistics import QUANTITIES, Stats, stats_direct, stats_streaming
 from gapforge.base.records import record
 
@@ -157,15 +163,15 @@ def _part_values(
     """`values_at` for every (R, C) of `parts` at once: a leading axis, one row per pair.
 
     R and C take each pair's own band (the network's tolerances around the pair's values),
-    computed as `values_at` computes them for `replace(net, r=r, c=c)`, so a row equals that
-    network's values exactly.
+    computed as `values_at` computes them for `replace(net, r=r, c=c)` (`r_band`, `c_band`), so
+    a row equals that network's values exactly.
     """
     values = dict(values_at(net, positions))
     shape = np.broadcast_shapes(*(np.shape(v) for v in values.values()))
     lead = (len(parts),) + (1,) * len(shape)
     for name, bands in (
-        ("r", [replace(net, r=r).r_band().floats() for r, _ in parts]),
-        ("c", [replace(net, c=c).c_band().floats() for _, c in parts]),
+        ("r", [Band(r * (1 - net.r_tol), r, r * (1 + net.r_tol)).floats() for r, _ in parts]),
+        ("c", [Band(c * (1 - net.c_tol), c, c * (1 + net.c_tol)).floats() for _, c in parts]),
     ):
         table = np.asarray(bands, dtype=float)
         lo, typ, hi = (table[:, k].reshape(lead) for k in range(3))
