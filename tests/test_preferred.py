@@ -259,3 +259,25 @@ def test_e6_e48_e192_are_the_iec_60063_series() -> None:
                          118, 120)  # the standard's first row, from memory
     assert series_values("E6", Fraction(1000), Fraction(10000)) == [
         Fraction(v) for v in (1000, 1500, 2200, 3300, 4700, 6800, 10000)]
+
+
+def test_nearest_by_bisection_equals_its_definition() -> None:
+    # `nearest` bisects cached decades; it must give what its definition says: among the series
+    # values within value/20 .. value*20 (IEC 60063 tables), the largest <= value and the
+    # smallest >= value; seeded values over 21 decades and every series value itself.
+    import random
+
+    def defined(series: str, value: Fraction) -> tuple[Fraction, Fraction]:
+        values = series_values(series, value / 20, value * 20)
+        return (max((v for v in values if v <= value), default=values[0]),
+                min((v for v in values if v >= value), default=values[-1]))
+
+    rng = random.Random(60063)
+    for series, (mantissas, unit) in SERIES.items():
+        for _ in range(400):
+            value = Fraction(rng.randint(1, 10**6), 10**rng.randint(0, 12)) * 10**rng.randint(0, 9)
+            assert nearest(series, value) == defined(series, value), (series, value)
+        for exponent in range(-12, 7):
+            for m in mantissas:
+                value = Fraction(m, unit) * Fraction(10) ** exponent
+                assert nearest(series, value) == (value, value)
