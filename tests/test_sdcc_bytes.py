@@ -55,7 +55,7 @@ def _sdcc() -> str:
 # the example headers and their records
 
 
-# One invented design beside the examples: the struct form with edges that differ (every example
+# Two invented designs beside the examples. The first: the struct form with edges that differ (every example
 # with the struct form has equal edges, so a swapped member would pass unseen) and a divider
 # code other than 0 (to_low needs divider 2 on the 10-bit field), edge-aligned.
 ASYMMETRIC = (
@@ -66,16 +66,27 @@ ASYMMETRIC = (
     '[[output]]\ntarget = "split-10bit-tenths"\nprefix = "ASYM"\nfile = "asym_struct.h"\n'
     "struct = true\n" + SMALL_STAGE
 )
+# The second: a 50 ms dead time at 1 MHz, beyond 2^32 ps: the header claims C99 and holds its
+# picoseconds in 64 bits (ull literals, uint_least64_t struct members), read back in 64 bits.
+LONG_C99 = (
+    "# invented test design\nformat = 1\n"
+    '[timer]\nclock = "1MHz"\ntolerance = "1%"\n'
+    '[pwm]\nfrequency = "1Hz"\ncounting = "edge"\n'
+    '[dead_time]\nsource = "explicit"\nvalue = "50ms"\n'
+    '[[output]]\ntarget = "shared-16bit-plus-one"\nprefix = "LONG"\nfile = "long_c99.h"\n'
+    "struct = true\n" + SMALL_STAGE
+)
 
 
 @pytest.fixture(scope="module")
 def built(tmp_path_factory: pytest.TempPathFactory) -> dict[str, tuple[Path, dict[str, Any]]]:
     """Header stem -> (header, record) for every output of every example design and the
-    invented asymmetric one."""
+    two invented ones."""
     out = tmp_path_factory.mktemp("sdccbytes")
     found: dict[str, tuple[Path, dict[str, Any]]] = {}
     (out / "asymmetric.toml").write_text(ASYMMETRIC)
-    for design in [*sorted(EXAMPLES.glob("*.toml")), out / "asymmetric.toml"]:
+    (out / "long.toml").write_text(LONG_C99)
+    for design in [*sorted(EXAMPLES.glob("*.toml")), out / "asymmetric.toml", out / "long.toml"]:
         code, stdout, stderr = run_cli(["build", str(design), "--out", str(out), "--parents",
                                         "--self-test", "--record", "--json"])
         assert code == 0, (design.name, stdout[-2000:], stderr)
@@ -89,7 +100,8 @@ def built(tmp_path_factory: pytest.TempPathFactory) -> dict[str, tuple[Path, dic
 
 # Every example output; a new one must be added here (the test below says so).
 HEADERS = ("adaptive_gan", "adaptive_silicon", "buck_dead_time", "motor_dead_time",
-           "motor_dead_time_alt", "sic_dead_time", "asym_struct")
+           "motor_dead_time_alt", "sic_dead_time", "asym_struct",
+           "long_c99")
 
 
 def test_every_example_header_is_read_back(
@@ -99,6 +111,9 @@ def test_every_example_header_is_read_back(
     _, record = built["asym_struct"]
     assert record["register"]["divider_code"] != 0
     assert record["edges"]["to_high"]["steps"] != record["edges"]["to_low"]["steps"]
+    header, record = built["long_c99"]
+    assert record["edges"]["to_high"]["achieved_ps"] >= 1 << 32
+    assert [h for h in HEADERS if not _claims_c90(built[h][0])] == sorted(C99_ONLY)
 
 
 def _claims_c90(header: Path) -> bool:
@@ -220,16 +235,16 @@ def _declared_types(header_text: str, record: dict[str, Any]) -> dict[str, str]:
 
 
 def _probe_source(header: Path, values: dict[str, int],
-                  objects: list[tuple[str, str, list[int]]]) -> str:
+                  objects: list[tuple[str, str, list[int]]], value_type: str) -> str:
     lines = [
         "/* gapforge test probe (issue 22 follow-up): the header's values in one const object */",
         f'#include "{header}"',
         "struct gapforge_probe {",
         "    unsigned long order;",
-        "    unsigned char long_size;",
+        "    unsigned char value_size;",
         "    unsigned char pointer_size;",
         "    unsigned int probe_size;",
-        f"    unsigned long values[{len(values)}];",
+        f"    {value_type} values[{len(values)}];",
     ]
     if objects:
         lines += [f"    const void *objects[{len(objects)}];",
@@ -238,7 +253,7 @@ def _probe_source(header: Path, values: dict[str, int],
         "    unsigned char end;",
         "};",
         "const struct gapforge_probe gapforge_probe = {",
-        f"    0x{ORDER_MARK:08X}ul, (unsigned char)sizeof(unsigned long),"
+        f"    0x{ORDER_MARK:08X}ul, (unsigned char)sizeof({value_type}),"
         " (unsigned char)sizeof(const void *), (unsigned int)sizeof(struct gapforge_probe),",
         "    {" + ", ".join(values) + "},",
     ]
@@ -294,8 +309,14 @@ def _link(tmp: Path, port: str, std: str, source: str) -> tuple[dict[int, int], 
 # the read back
 
 
+C99_ONLY = {"long_c99"}  # the header claims C99 and later (the test above checks it)
+
+
 def _configurations() -> list[tuple[str, str, str]]:
-    return [(h, port, std) for h in HEADERS for port in PORTS for std in STANDARDS]
+    """Every header x port x standard the header claims (the C89 #error of a C99 header is
+    test_small_targets')."""
+    return [(h, port, std) for h in HEADERS for port in PORTS for std in STANDARDS
+            if h not in C99_ONLY or std not in ("c89", "c95")]
 
 
 @pytest.mark.parametrize(("stem", "port", "std"), _configurations())
@@ -305,13 +326,14 @@ def test_sdcc_image_holds_the_header_values(
 ) -> None:
     _sdcc()
     header, record = built[stem]
-    if std in ("c89", "c95") and not _claims_c90(header):
-        pytest.skip(f"{stem} claims C99 and later")  # the C89 #error is test_small_targets'
+    assert _claims_c90(header) == (stem not in C99_ONLY), stem
     text = header.read_text()
     values = _values(record)
     objects = _objects(record, text)
+    # 64-bit values only where the header claims C99 (C90 has no long long)
+    value_type = "unsigned long" if _claims_c90(header) else "unsigned long long"
     memory, map_text, cdb_text = _link(tmp_path, port, std,
-                                       _probe_source(header, values, objects))
+                                       _probe_source(header, values, objects, value_type))
     probe = _map_address(map_text, "_gapforge_probe")
     symbols = _cdb_symbols(cdb_text)
     assert symbols["gapforge_probe"][0] == probe  # the map and the debug records agree
@@ -323,11 +345,13 @@ def test_sdcc_image_holds_the_header_values(
     # from memory (sdcc manual): mcs51 stores multi-byte ints little-endian, stm8 big-endian;
     # the marker above decided, this only says the two ports differ as expected
     assert little == (port == "mcs51"), (port, mark.hex())
-    long_size, pointer_size = read_bytes(memory, probe + 4, 2)
-    assert long_size == 4  # ISO C90 5.2.4.2.1: unsigned long holds at least 32 bits
+    value_size, pointer_size = read_bytes(memory, probe + 4, 2)
+    # ISO C90 5.2.4.2.1: unsigned long holds at least 32 bits (C99: long long at least 64);
+    # a wider type would only hold the same values
+    assert value_size * 8 >= (32 if value_type == "unsigned long" else 64), value_size
     size = _unsigned(read_bytes(memory, probe + 6, 2), little)
     n, m = len(values), len(objects)
-    expected_size = 8 + long_size * n + (pointer_size + 1) * m + 1
+    expected_size = 8 + value_size * n + (pointer_size + 1) * m + 1
     assert size == expected_size == symbols["gapforge_probe"][1], (size, expected_size)
     assert read_bytes(memory, probe + size - 1, 1)[0] == END_MARK
 
@@ -335,8 +359,8 @@ def test_sdcc_image_holds_the_header_values(
     at = probe + 8
     got: dict[str, int] = {}
     for name in values:
-        got[name] = _unsigned(read_bytes(memory, at, long_size), little)
-        at += long_size
+        got[name] = _unsigned(read_bytes(memory, at, value_size), little)
+        at += value_size
     assert got == values, {k: (got[k], values[k]) for k in values if got[k] != values[k]}
     _recompute(record, {k[len(record["prefix"]) + 1:]: val for k, val in got.items()})
 
@@ -356,7 +380,9 @@ def test_sdcc_image_holds_the_header_values(
             assert total == element * len(expected), (symbol, total, element)
         else:
             assert base <= address and address + element <= base + total, (expr, hex(address))
-        bits = int(re.fullmatch(r"uint_least(\d+)_t", declared[expr])[1])  # type: ignore[index]
+        kind = re.fullmatch(r"uint_least(\d+)_t", declared[expr])
+        assert kind is not None, (expr, declared[expr])
+        bits = int(kind[1])
         assert element * 8 >= bits, (expr, declared[expr], element)
         read = [_unsigned(read_bytes(memory, address + k * element, element), little)
                 for k in range(len(expected))]
@@ -415,7 +441,7 @@ def test_the_probe_covers_every_integer_macro_and_const_object(
     for stem, (header, record) in built.items():
         text = header.read_text()
         p = record["prefix"]
-        defined = set(re.findall(rf"^#define ({p}_\w+) +(?:0x[0-9a-f]+|\d+)u?l?\b", text, re.M))
+        defined = set(re.findall(rf"^#define ({p}_\w+) +(?:0x[0-9a-f]+|\d+)u?l{{0,2}}\b", text, re.M))
         probed = set(_values(record))
         assert defined - {f"{p}_{n}" for n in NOT_IN_RECORD} == probed, (stem, defined ^ probed)
         objects = {expr for _, expr, _ in _objects(record, text)}
