@@ -111,7 +111,7 @@ def test_every_example_header_is_read_back(
     _, record = built["asym_struct"]
     assert record["register"]["divider_code"] != 0
     assert record["edges"]["to_high"]["steps"] != record["edges"]["to_low"]["steps"]
-    header, record = built["long_c99"]
+    _, record = built["long_c99"]
     assert record["edges"]["to_high"]["achieved_ps"] >= 1 << 32
     assert [h for h in HEADERS if not _claims_c90(built[h][0])] == sorted(C99_ONLY)
 
