@@ -202,6 +202,11 @@ def test_one_file_per_channel_by_stem(tmp_path: Path) -> None:
     ("Time,gh,gl\n0,0,5\n1e-9,5,1_0\n", ["--threshold", "3V"], "c.csv:3: column 3: '1_0'"),
     ("Time,gh,gl\n0,0,5\n1e-9,5,0\n", ["--threshold-high", "3V", "--threshold-low", "2V",
                                         "--level", "50%"], "not both"),
+    # a VCD saved under a .csv name, read as a logic capture or with thresholds: said as such
+    ("$date today $end\n$timescale 1ns $end\n$var wire 1 ! gh $end\n", [],
+     "c.csv: a VCD file (it begins with $date) named .csv: rename it .vcd"),
+    ("\ufeff$timescale 1ns $end\n$var wire 1 ! gh $end\n", ["--threshold", "3V"],
+     "c.csv: a VCD file (it begins with $timescale) named .csv"),
     # a decimal-comma locale's export (';' between columns) and a tab-separated one: named
     ("Time;gh;gl\n0;0;5\n1e-9;5;0\n", ["--threshold", "3V"],
      "c.csv:1: columns separated by ';', not commas"),

@@ -186,6 +186,7 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
     limits and what they come from; `flags`: --timescale given, --json, --no-diagram,
     --ascii, an --active-low-* option given."""
     timescale_given, as_json, no_diagram, ascii_only, active_low = flags
+    from gapforge.bench.capture import vcd_named_csv
     from gapforge.bench.measure import measure_capture
     from gapforge.bench.scope import node_shares, read_scope
     from gapforge.cli.measure_text import measurement_json, measurement_text
@@ -204,6 +205,7 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
         if path.suffix.lower() == ".vcd":
             raise GapforgeError("thresholds apply to oscilloscope exports (CSV in volts); a VCD "
                                 "holds logic levels", str(path))
+        vcd_named_csv(path)
     settings = settings_from(scope, resolution)
     bus = _bus(scope, design)
     cap = read_scope(list(files), high, low, settings)
@@ -241,6 +243,9 @@ def report_scope(capture: Path, high: str, low: str, scope: dict[str, Any], limi
 
     if any(scope.get(k) is not None for k in ("node", "bus", "soft_within")):
         raise GapforgeError("the switch-node check is made by `gapforge measure`", "report")
+    from gapforge.bench.capture import vcd_named_csv
+
+    vcd_named_csv(capture)
     cap = read_scope([capture], high, low, settings_from(scope, None))
     result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
                              limits_source=limits[1], unjudged=limits[2])
