@@ -202,6 +202,16 @@ def test_one_file_per_channel_by_stem(tmp_path: Path) -> None:
     ("Time,gh,gl\n0,0,5\n1e-9,5,1_0\n", ["--threshold", "3V"], "c.csv:3: column 3: '1_0'"),
     ("Time,gh,gl\n0,0,5\n1e-9,5,0\n", ["--threshold-high", "3V", "--threshold-low", "2V",
                                         "--level", "50%"], "not both"),
+    # a VCD saved under a .csv name, read as a logic capture or with thresholds: said as such
+    ("$date today $end\n$timescale 1ns $end\n$var wire 1 ! gh $end\n", [],
+     "c.csv: a VCD file (it begins with $date) named .csv: rename it .vcd"),
+    ("\ufeff$timescale 1ns $end\n$var wire 1 ! gh $end\n", ["--threshold", "3V"],
+     "c.csv: a VCD file (it begins with $timescale) named .csv"),
+    # a decimal-comma locale's export (';' between columns) and a tab-separated one: named
+    ("Time;gh;gl\n0;0;5\n1e-9;5;0\n", ["--threshold", "3V"],
+     "c.csv:1: columns separated by ';', not commas"),
+    ("Time\tgh\tgl\n0\t0\t5\n1e-9\t5\t0\n", ["--threshold", "3V"],
+     "c.csv:1: columns separated by tabs, not commas"),
 ])
 def test_bad_input_is_one_line_exit_2(text: str, args: list[str], message: str,
                                        tmp_path: Path) -> None:
@@ -223,18 +233,31 @@ def test_soft_check_against_the_adaptive_table(tmp_path: Path) -> None:
     times = [k * 1e-9 for k in range(200)]
     high = [5.0 if 40 <= k < 100 else 0.0 for k in range(200)]
     low = [5.0 if k < 10 or k >= 130 else 0.0 for k in range(200)]
-    for node_low, hard in ((0.0, 0), (200.0, 1)):  # the node at the low side's turn-on
-        node = [400.0 if 20 <= k < 115 else (node_low if k >= 115 else 0.0) for k in range(200)]
+    for node_low, hard in ((0.0, 0), (24.0, 1)):  # the node at the low side's turn-on
+        node = [48.0 if 20 <= k < 115 else (node_low if k >= 115 else 0.0) for k in range(200)]
         rows = "".join(f"{t:.6e},{h},{lo},{n}\n" for t, h, lo, n in zip(times, high, low, node,
                                                                           strict=True))
         path = _write(tmp_path / "n.csv", "Time,gh,gl,sw\n" + rows)
         code, out, _ = run_cli(["measure", str(path), "--high", "gh", "--low", "gl",
-                                  "--threshold", "2.5V", "--node", "sw", "--bus", "400V",
+                                  "--threshold", "2.5V", "--node", "sw", "--bus", "48V",
                                   "--design", str(design), "--current", "3.2A", "--json"])
         doc = json.loads(out)
         assert doc["node"]["to_low"]["hard"] == hard
         said = [r for r in doc["reasons"] if "calls this edge soft" in r]
         assert bool(said) == bool(hard) and (code == 1 if hard else True)
+        assert doc["node"]["bus_source"] == "--bus"
+        # the design states the bus (bus_voltage = 48 V): --node alone takes it, and says so
+        code2, out2, _ = run_cli(["measure", str(path), "--high", "gh", "--low", "gl",
+                                  "--threshold", "2.5V", "--node", "sw", "--design", str(design),
+                                  "--current", "3.2A", "--json"])
+        doc2 = json.loads(out2)
+        assert code2 == code and doc2["node"]["to_low"] == doc["node"]["to_low"]
+        assert doc2["node"]["bus_v"] == 48.0
+        assert doc2["node"]["bus_source"] == "[stage] bus_voltage of adaptive-gan.toml"
+    # no --bus and no design that states one: one line, exit 2
+    code, out, err = run_cli(["measure", str(path), "--high", "gh", "--low", "gl",
+                              "--threshold", "2.5V", "--node", "sw"])
+    assert code == 2 and "give --bus, or a --design whose [stage] states bus_voltage" in err
 
 
 def test_logic_csv_still_reads_as_logic(tmp_path: Path) -> None:

@@ -365,6 +365,23 @@ def load_capture(
 _FST_START = b"\x00" + (329).to_bytes(8, "big")
 
 
+_VCD_WORDS = (b"$date", b"$version", b"$timescale", b"$scope", b"$var", b"$comment")
+
+
+def vcd_named_csv(path: Path) -> None:
+    """Refuse a VCD saved under a .csv name (read as CSV it would fail on its first line with a
+    message about columns): one line that says what the file is."""
+    try:
+        with path.open("rb") as handle:
+            start = handle.read(256).lstrip(b"\xef\xbb\xbf \t\r\n")
+    except OSError:
+        return  # the reader says why it cannot read the file
+    word = next((w for w in _VCD_WORDS if start.startswith(w)), None)
+    if word is not None:
+        raise GapforgeError(f"a VCD file (it begins with {word.decode()}) named .csv: rename it "
+                            ".vcd", str(path))
+
+
 def _kind(path: Path) -> str:
     try:
         with path.open("rb") as handle:
@@ -378,11 +395,11 @@ def _kind(path: Path) -> str:
     if suffix == ".vcd":
         return "vcd"
     if suffix == ".csv":
+        vcd_named_csv(path)
         return "csv"
     start = head.lstrip()
     # a VCD, or one with another tool's line in front (the VCD reader says what it found)
-    vcd = start.startswith(b"$") or any(
-        word in start for word in (b"$date", b"$version", b"$timescale", b"$scope", b"$var"))
+    vcd = start.startswith(b"$") or any(word in start for word in _VCD_WORDS[:5])
     return "vcd" if vcd else "csv"
 
 

@@ -112,6 +112,8 @@ def _cells(line: str) -> list[str]:
     return [c.strip().strip('"').strip() for c in line.split(",")]
 
 
+# Separators other exports use (a decimal-comma locale writes ';'): named in the error.
+_OTHER_SEPARATORS = ((";", "';'"), ("\t", "tabs"), ("|", "'|'"))
 _OTHER_UNITS = {"a", "ma", "ka", "w", "%", "ohm", "hz"}  # not volts, still units
 
 
@@ -171,8 +173,12 @@ def read_layout(path: Path) -> ScopeFile:
                 raise GapforgeError("no header row: the first line holds numbers; name the "
                                     "columns, e.g. time,gate_h,gate_l", f"{where}:{number}")
             if len(cells) < 2:
-                raise GapforgeError("the header needs a time column and at least one channel",
-                                    f"{where}:{number}")
+                other = next((name for sep, name in _OTHER_SEPARATORS if sep in line), None)
+                raise GapforgeError(
+                    f"columns separated by {other}, not commas: export comma-separated values "
+                    "with a decimal point" if other else
+                    "the header needs a time column and at least one channel",
+                    f"{where}:{number}")
             header = (number, cells)
             offset = end + 1
             continue

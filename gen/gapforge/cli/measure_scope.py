@@ -149,12 +149,25 @@ def settings_from(scope: dict[str, Any], resolution: Fraction | None) -> ScopeSe
                          resolution)
 
 
-def _check_node_options(scope: dict[str, Any], design: Path | None) -> None:
-    if (scope.get("node") is None) != (scope.get("bus") is None):
-        raise GapforgeError("--node and --bus go together", "--node" if scope.get("node") is None
-                            else "--bus")
-    if scope.get("soft_within") is not None and scope.get("node") is None:
-        raise GapforgeError("--soft-within needs --node and --bus", "--soft-within")
+def _bus(scope: dict[str, Any], design: Path | None) -> tuple[Fraction, str] | None:
+    """The bus voltage for --node and where it comes from: --bus, else the design's
+    `[stage] bus_voltage` (None without --node)."""
+    if scope.get("node") is None:
+        if scope.get("bus") is not None:
+            raise GapforgeError("--node and --bus go together: --bus needs --node", "--bus")
+        if scope.get("soft_within") is not None:
+            raise GapforgeError("--soft-within needs --node and --bus", "--soft-within")
+        return None
+    if scope.get("bus") is not None:
+        return parse_quantity(scope["bus"], "V", "--bus"), "--bus"
+    if design is not None:
+        from gapforge.pipeline.design import load_window_sections
+
+        stage = load_window_sections(design).stage
+        if stage is not None and stage.bus_voltage is not None:
+            return stage.bus_voltage, f"[stage] bus_voltage of {design.name}"
+    raise GapforgeError("--node and --bus go together: give --bus, or a --design whose [stage] "
+                        "states bus_voltage", "--node")
 
 
 def logic_capture(files: tuple[Path, ...], scope: dict[str, Any]) -> Path | None:
@@ -175,6 +188,7 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
     limits and what they come from; `flags`: --timescale given, --json, --no-diagram,
     --ascii, an --active-low-* option given."""
     timescale_given, as_json, no_diagram, ascii_only, active_low = flags
+    from gapforge.bench.capture import vcd_named_csv
     from gapforge.bench.measure import measure_capture
     from gapforge.bench.scope import node_shares, read_scope
     from gapforge.cli.measure_text import measurement_json, measurement_text
@@ -193,32 +207,32 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
         if path.suffix.lower() == ".vcd":
             raise GapforgeError("thresholds apply to oscilloscope exports (CSV in volts); a VCD "
                                 "holds logic levels", str(path))
+        vcd_named_csv(path)
     settings = settings_from(scope, resolution)
-    _check_node_options(scope, design)
+    bus = _bus(scope, design)
     cap = read_scope(list(files), high, low, settings)
     result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
                              percentiles=percentiles, bins=bins, worst=worst,
                              limits_source=limits[1], unjudged=limits[2])
     node = None
-    if scope.get("node") is not None:
+    if bus is not None:
         within = (_percent(scope["soft_within"], "--soft-within")
                   if scope.get("soft_within") is not None else Fraction(1, 10))
-        node = node_shares(list(files), scope["node"], parse_quantity(scope["bus"], "V", "--bus"),
-                           within, cap)
+        node = node_shares(list(files), scope["node"], bus[0], within, cap)
     extra = soft_check(design, current, node)
     if extra:
         result = _failed(result, extra)
     if as_json:
         doc = measurement_json(result)
         doc["analog"] = analog_json(cap)
-        doc["node"] = node_json(node, current)
+        doc["node"] = node_json(node, current, bus)
         caution = doc.pop("caution")
         doc["caution"] = caution
         emit_json(doc)
     else:
         text = measurement_text(result, diagram=not no_diagram, ascii_only=ascii_only)
         head, _, tail = text.rpartition("\n")
-        click.echo("\n".join([head, *analog_lines(cap), *node_lines(node), tail]))
+        click.echo("\n".join([head, *analog_lines(cap), *node_lines(node, bus), tail]))
     sys.exit(1 if result.failed else 0)
 
 
@@ -231,6 +245,9 @@ def report_scope(capture: Path, high: str, low: str, scope: dict[str, Any], limi
 
     if any(scope.get(k) is not None for k in ("node", "bus", "soft_within")):
         raise GapforgeError("the switch-node check is made by `gapforge measure`", "report")
+    from gapforge.bench.capture import vcd_named_csv
+
+    vcd_named_csv(capture)
     cap = read_scope([capture], high, low, settings_from(scope, None))
     result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
                              limits_source=limits[1], unjudged=limits[2])
@@ -298,12 +315,14 @@ def analog_json(cap: ScopeCapture) -> dict[str, Any]:
     }
 
 
-def node_json(node: NodeResult | None, current: Fraction | None) -> dict[str, Any] | None:
-    if node is None:
+def node_json(node: NodeResult | None, current: Fraction | None,
+              bus: tuple[Fraction, str] | None) -> dict[str, Any] | None:
+    if node is None or bus is None:
         return None
     import numpy as np
 
     out: dict[str, Any] = {"channel": node.name, "bus_v": float(node.bus_v),
+                           "bus_source": bus[1],
                            "soft_within": float(node.within),
                            "current_a": None if current is None else float(current)}
     for edge, e in node.edges.items():
@@ -337,11 +356,12 @@ def analog_lines(cap: ScopeCapture) -> list[str]:
     return lines
 
 
-def node_lines(node: NodeResult | None) -> list[str]:
-    if node is None:
+def node_lines(node: NodeResult | None, bus: tuple[Fraction, str] | None) -> list[str]:
+    if node is None or bus is None:
         return []
     lines = [f"Switch node {quoted(node.name)} at each turn-on, as a share of the "
-             f"{_v(node.bus_v)} bus (soft within {float(node.within) * 100:g} % of the rail):"]
+             f"{_v(node.bus_v)} bus (from {bus[1]}; soft within {float(node.within) * 100:g} % "
+             "of the rail):"]
     for edge, e in node.edges.items():
         rail = "the bus" if edge == "to_high" else "zero"
         if e.count == 0:
