@@ -360,6 +360,11 @@ def load_capture(
     )
 
 
+# an FST waveform (a simulator's binary trace format) begins with its header block: type 0,
+# then the block length 329 as 8 bytes big-endian (as verilator --trace-fst writes it)
+_FST_START = b"\x00" + (329).to_bytes(8, "big")
+
+
 _VCD_WORDS = (b"$date", b"$version", b"$timescale", b"$scope", b"$var", b"$comment")
 
 
@@ -378,17 +383,21 @@ def vcd_named_csv(path: Path) -> None:
 
 
 def _kind(path: Path) -> str:
+    try:
+        with path.open("rb") as handle:
+            head = handle.read(256)
+    except OSError as exc:
+        raise GapforgeError(f"cannot read: {exc.strerror}", str(path)) from None
+    if head.startswith(_FST_START):
+        raise GapforgeError("an FST waveform (binary), not a VCD: have the simulator write VCD "
+                            "text (e.g. verilator --trace instead of --trace-fst)", str(path))
     suffix = path.suffix.lower()
     if suffix == ".vcd":
         return "vcd"
     if suffix == ".csv":
         vcd_named_csv(path)
         return "csv"
-    try:
-        with path.open("rb") as handle:
-            start = handle.read(256).lstrip()
-    except OSError as exc:
-        raise GapforgeError(f"cannot read: {exc.strerror}", str(path)) from None
+    start = head.lstrip()
     # a VCD, or one with another tool's line in front (the VCD reader says what it found)
     vcd = start.startswith(b"$") or any(word in start for word in _VCD_WORDS[:5])
     return "vcd" if vcd else "csv"

@@ -92,7 +92,9 @@ def stated_rate(text: bytes) -> Fraction | None:
     return rate if rate > 0 else None
 
 
-_REF = re.compile(r"^(?P<name>[^\[]+?)(?:\[(?P<msb>-?\d+)(?::(?P<lsb>-?\d+))?\])?$")
+# the last bracket is the bit range; any before it belong to the name: a simulator writes each
+# element of an unpacked array as its own variable ("leg[1] [1:0]": element 1 of `leg`, bits 1..0)
+_REF = re.compile(r"^(?P<name>[^\[]+?(?:\[-?\d+\])*?)(?:\[(?P<msb>-?\d+)(?::(?P<lsb>-?\d+))?\])?$")
 _SELECT = re.compile(r"^(?P<name>.+?)\s*\[\s*(?P<bit>-?\d+)\s*\]$")
 
 
@@ -101,7 +103,12 @@ def _leaf(name: str) -> str:
     wanted = name.strip()
     match = _SELECT.match(wanted)
     base = match.group("name") if match else wanted
-    return base.rsplit(".", 1)[-1]
+    return _last(base)
+
+
+def _last(name: str) -> str:
+    """The last name component without element indices ("tb.leg[1]" -> "leg")."""
+    return name.rsplit(".", 1)[-1].split("[", 1)[0]
 
 
 _DEFINITIONS_END = re.compile(rb"\$enddefinitions\s+\$end")
@@ -252,7 +259,7 @@ class _Declarations:
         self.read += 1
         if self.leaves is not None and self.read > HINT_VARS:
             ref = b" ".join(args[3:])
-            if ref.split(b"[", 1)[0] not in self.leaves:
+            if ref.split(b"[", 1)[0].rsplit(b".", 1)[-1] not in self.leaves:
                 return  # not asked for: counted only
         text = [a.decode("ascii") for a in args]
         self.variables.append(_parse_var(text, self.scopes, self.where))
@@ -302,6 +309,15 @@ def select(header: Header, name: str, where: str) -> Selection:
     candidates = [v for v in header.variables if v.path == base]
     if not candidates:
         candidates = [v for v in header.variables if v.path.endswith("." + base)]
+    if bit is not None and len({v.path for v in candidates}) == 1:
+        # one name declared bit by bit (an unpacked array of single bits, "leg[0]", "leg[1]"):
+        # the declaration whose range holds the bit
+        candidates = [v for v in candidates if v.bit_position(bit) is not None] or candidates
+    if not candidates and bit is not None:
+        # a name with an element index and no bit ("tb.leg[1]" of "leg[1] [1:0]")
+        candidates = [v for v in header.variables
+                      if v.path == wanted or v.path.endswith("." + wanted)]
+        base, bit = wanted, None
     # several names on one code are one signal; distinct codes are ambiguous
     codes = {v.code for v in candidates}
     if len(codes) > 1:

@@ -89,6 +89,8 @@ def _looks_analog(path: Path) -> bool:
             head = handle.read(1 << 14).decode("utf-8", errors="replace")
     except OSError:
         return False
+    if "\x00" in head:  # binary (an FST waveform, junk): the logic reader says what it is
+        return False
     rows = [r.strip() for r in head.splitlines()[:60]]
     rows = [r for r in rows if r and not r.startswith("#")]
     if len(rows) < 2 or rows[0].startswith(("$", ";")):  # a VCD; a logic analyser's own CSV
