@@ -23,6 +23,7 @@ GMIN = 1e-12  # S across the junction, as circuit simulators (and simulate.py) a
 _REF_K = 300.15  # K, reference temperature of the SPICE junction-potential scaling
 _BOLTZMANN = 1.380649e-23
 _CHARGE = 1.602176634e-19
+RESIDUAL = 1e-6  # the end points' largest residual, relative to the target (Newton: ~1e-15)
 _BLOCK = 16_384  # samples per block of the charge integral
 _PANEL_ROWS = 1_024  # samples per piece of a quadrature panel (8 nodes each: 64 KiB arrays)
 QUADRATURE_NODES = 8  # Gauss-Legendre nodes per panel; tests hold it to 1e-4 of a fine sum
@@ -212,6 +213,7 @@ def _edge_block(
     live = np.flatnonzero(x_1 > x_th)
     if live.size:
         result[live] = _integrate(s, live, x_th[live], x_1[live])
+    result[np.isnan(x_th) | np.isnan(x_1)] = np.nan  # an end point that could not be resolved
     return result
 
 
@@ -356,6 +358,15 @@ def _solve(s: _Edge, jump: bool, target: FloatArray) -> FloatArray:
         active = active[moved]
         if active.size == 0:
             break
+    # the root must hold, not only the step have stopped: where the function rises by more than
+    # the target between two adjacent floats (a reverse conductance of astronomical size: an
+    # unphysical model card, a huge IS at a high temperature), no float is the root and the
+    # edge cannot be resolved; it is then not a number, which the ranges refuse in one line
+    _i, d, _dp, q, _qp = _state(s, x, s.ends, jump)
+    residual = s.ends[4] * d + q - target if jump else d - target
+    unresolved = ~(np.abs(residual) <= RESIDUAL * np.abs(target))
+    if unresolved.any():
+        x = np.where(unresolved, np.nan, x)
     return x
 
 

@@ -317,6 +317,11 @@ class EdgeRange:
 def edge_range(lo: float, typ: float, hi: float) -> EdgeRange:
     """Floats to exact ranges: widened (min down, max up) and narrowed (min up, max down)."""
     for value in (lo, typ, hi):
+        if math.isnan(value):
+            raise GapforgeError("the model cannot resolve an edge of this network at some "
+                                "tolerance corner (the diode's conduction rises by more than the "
+                                "step between two adjacent floats: check its model card's IS and "
+                                "N against the temperature range)", "reference")
         if not math.isfinite(value):
             raise GapforgeError(f"the network gives a non-finite delay ({value})", "reference")
     return EdgeRange(
