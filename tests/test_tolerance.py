@@ -39,17 +39,17 @@ def test_corners_too_narrow_are_widened_by_the_finer_grid(
     # ECSS-Q-HB-30-01A / reference-facts: extreme-value corners can miss the true extreme of a
     # non-monotonic response. Simulate a corner search that missed: the check must widen it.
     net = network_from_options({"r": "4.7k", "c": "100p"})
-    search = tol.corner_extremes
-    real = search(net)
+    search = tol.corners_and_check
+    real = tol.corner_extremes(net)
 
-    def narrow(net_, both_ways=tol._LEVELS):  # type: ignore[no-untyped-def]
-        out = dict(search(net_, both_ways))
-        if tuple(both_ways) == tol._LEVELS:  # the corners miss; the finer grid does not
-            _lo, typ, _hi = out["to_high"]
-            out["to_high"] = (typ - 1e-12, typ, typ + 1e-12)
-        return out
+    def narrow(net_, check):  # type: ignore[no-untyped-def]
+        corners, finer = search(net_, check)
+        corners = dict(corners)  # the corners miss; the finer grid does not
+        _lo, typ, _hi = corners["to_high"]
+        corners["to_high"] = (typ - 1e-12, typ, typ + 1e-12)
+        return corners, finer
 
-    monkeypatch.setattr(tol, "corner_extremes", narrow)
+    monkeypatch.setattr(tol, "corners_and_check", narrow)
     wc = tol.worst_case(net)
     assert "to_high" in wc.widened
     assert wc.floats["to_high"][0] < real["to_high"][1] - 1e-9
@@ -276,3 +276,18 @@ def test_corners_of_many_pairs_equal_each_pair_on_its_own() -> None:
                 assert float(typ[key][k]) == pytest.approx(value, rel=1e-12)
 
 
+
+
+def test_the_corners_are_the_finer_grids_own_points() -> None:
+    # worst_case evaluates the finer grid once and reads the corners off its min/typ/max
+    # points: they must be the corner search's own result (to the last digits of a batch
+    # summed in another order), and the finer grid can only widen them.
+    for raw in ({"r": "4.7k", "c": "100p"},
+                {"r": "470", "c": "47p", "bypass": "rising", "output_inverter": "true",
+                 "vdd": "3:3.3:3.6", "r_tempco": "100ppm", "cstray": "1p:2p:5p"}):
+        net = network_from_options(raw)
+        corners, finer = tol.corners_and_check(net, tol.check_levels_at(5))
+        alone = tol.corner_extremes(net)
+        for key, values in alone.items():
+            assert corners[key] == pytest.approx(values, rel=1e-14, abs=1e-24), key
+            assert finer[key][0] <= corners[key][0] and finer[key][2] >= corners[key][2]
