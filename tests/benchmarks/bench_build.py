@@ -6,8 +6,8 @@ any Python tool using those libraries pays before doing anything):
 - an up-to-date `build --check --self-test --record` of each shipped example (goal: at most
   1.5x the floor);
 - a full `build --self-test --record` of each example into an empty folder (goal: at most 2x).
-Each figure is the median of seven runs after one warm-up run (bytecode cached, as installed).
-The runs are interleaved (a floor run before each example's full build and check, seven times
+Each figure is the median of eleven runs after one warm-up run (bytecode cached, as installed).
+The runs are interleaved (a floor run before each example's full build and check, eleven times
 over; the floor is the median of all its runs), so a change in the machine's load during the run
 moves the floor and the commands alike.
 Exit status 1 when a goal is missed.
@@ -27,7 +27,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[2]
 PY = sys.executable
 ENV = {k: v for k, v in os.environ.items() if k != "PYTHONDONTWRITEBYTECODE"}
-REPEAT = 7
+REPEAT = 11
 
 
 def _run(cmd: list[str]) -> float:

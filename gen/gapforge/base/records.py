@@ -25,6 +25,7 @@ shows `(*args, **kwargs)`. A class that needs more (its own dunder methods, a da
 from __future__ import annotations
 
 import dataclasses
+import inspect
 import reprlib
 from typing import Any, TypeVar, cast, dataclass_transform
 
@@ -130,6 +131,8 @@ def record(cls: type[T]) -> type[T]:
             raise TypeError(f"{cls.__qualname__} defines {name}: use @dataclass(frozen=True)")
     if any(dataclasses.is_dataclass(base) for base in cls.__mro__[1:]):
         raise TypeError(f"{cls.__qualname__}: a record derives from no dataclass")
+    if not cls.__doc__:  # dataclass would call inspect.signature for one: the class's fields
+        cls.__doc__ = f"{cls.__name__}({', '.join(inspect.get_annotations(cls))})"
     made = dataclasses.dataclass(init=False, repr=False, eq=False)(cls)
     fields = dataclasses.fields(cast(Any, made))
     if any(not f.init or f.kw_only for f in fields):
