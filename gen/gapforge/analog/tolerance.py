@@ -58,19 +58,25 @@ DEFAULT_SAMPLES = 100_000
 CHUNK = 250_000
 _KEEP_ALL_LIMIT = 2_000_000  # up to this many samples the results are kept and sorted directly
 _LEVELS = (0.0, 0.5, 1.0)
-# The node delay grows with every resistance and capacitance of the channel (at each node
-# voltage less current flows, or more charge must move; the tempcos act through R and C
-# linearly), so these take only their band ends in the corner search. Thresholds, the knee,
+# These take only their band ends in the corner search: the node delay is monotonic in each
+# at every value of the others (Rout, C and the strays; R without a diode across it; the
+# tempcos act through R and C linearly, with the sign of T - 25 C). Thresholds, the knee,
 # supply and temperature can act both ways and take min, typ and max.
 MONOTONE_PARAMS = frozenset({"rout", "r", "r_tc", "c", "c_tc", "cin", "cstray"})
-# Of those, the node delay grows with these at every value of the others (more series
-# resistance or more node capacitance slows the edge: in the charge integral a larger R or Rout
-# lowers the current at every node voltage and raises the distance still to go, and a larger
-# capacitance is more charge to move), so the smallest delay of a corner set has them all at
-# their band's low end and the largest at its high end: the corner search evaluates those two
-# points of them instead of all 2^5 (the tempcos act through the sign of T - 25 C and keep both
-# ends). tests/test_tolerance.py holds the result equal to the full grid.
+# Of those, the node delay grows with these (more node capacitance is more charge to move; in
+# the charge integral a larger Rout lowers the current at every node voltage and raises the
+# distance still to go, and so does a larger R without a diode), so the smallest delay of a
+# corner set has them all at their band's low end and the largest at its high end: the corner
+# search evaluates those two points of them instead of all 2^5 (the tempcos keep both ends).
+# tests/test_tolerance.py holds the result equal to the full grid.
 INCREASING_PARAMS = ("rout", "r", "c", "cin", "cstray")
+# Except R where a diode is across it: the junction's charge and leakage currents make the node
+# delay fall as R grows in places (review of issue 22, seeded sweeps: the resistor edge where
+# the junction's coupled step nearly reaches the threshold, by tens of % per % of R; the
+# bypassed edge with a junction capacitance comparable to C, whose maximum one end per bound
+# put 0.4 % (16 ps) short, on the side that shortens the minimum dead time). There R takes
+# both ends for each bound; Rout and the capacitances were monotonic in every sweep.
+BOTH_ENDS_WITH_DIODE = ("r",)
 _ENDS = (0.0, 1.0)
 # The worst case's check: the corner search again with this many equal steps of each parameter
 # that can act both ways (quarter steps; see `worst_case`).
@@ -136,10 +142,19 @@ def check_levels_at(count: int) -> tuple[float, ...]:
     return tuple(k / (count - 1) for k in range(count))
 
 
-def _grid(names: list[str], both_ways: Sequence[float] = _LEVELS) -> dict[str, FloatArray]:
+def _monotone(net: ReferenceNetwork) -> tuple[frozenset[str], tuple[str, ...]]:
+    """(the parameters searched at their band ends only, those of them taken at one end per
+    bound) for this network: R takes both ends for each bound where a diode is across it."""
+    if net.bypass == "none":
+        return MONOTONE_PARAMS, INCREASING_PARAMS
+    return MONOTONE_PARAMS, tuple(n for n in INCREASING_PARAMS if n not in BOTH_ENDS_WITH_DIODE)
+
+
+def _grid(names: list[str], both_ways: Sequence[float] = _LEVELS,
+          monotone: frozenset[str] = MONOTONE_PARAMS) -> dict[str, FloatArray]:
     if not names:
         return {}
-    levels = [np.asarray(_ENDS if n in MONOTONE_PARAMS else both_ways) for n in names]
+    levels = [np.asarray(_ENDS if n in monotone else both_ways) for n in names]
     mesh = np.meshgrid(*levels, indexing="ij")
     return {name: m.ravel() for name, m in zip(names, mesh, strict=True)}
 
@@ -247,6 +262,7 @@ def _node_grids(
     net: ReferenceNetwork, parts: Sequence[tuple[Fraction, Fraction]], both_ways: Sequence[float]
 ) -> dict[str, _Grid]:
     spread = set(spread_parameters(net))  # R and C spread by tolerance, whatever their value
+    monotone, increasing = _monotone(net)
     count = len(parts)
     shared_names: list[str] = [n for n in ("vdd", "temp") if n in spread]
     shared = _grid(shared_names, both_ways)
@@ -255,9 +271,9 @@ def _node_grids(
                     else np.zeros((1, 0)))
     grids: dict[str, _Grid] = {}
     for edge in EDGES:
-        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *INCREASING_PARAMS}
+        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *increasing}
         local_names = [n for n in CHANNEL_PARAMS if n in spread and n not in skip]
-        local = _grid(local_names, both_ways)
+        local = _grid(local_names, both_ways, monotone)
         half = len(next(iter(local.values()))) if local else 1
         n_local = 2 * half  # the grid with INCREASING_PARAMS low, then the same with them high
         positions: dict[str, FloatArray] = {}
@@ -266,7 +282,7 @@ def _node_grids(
         for name, arr in local.items():
             positions[name] = np.tile(arr, 2 * n_shared).reshape(n_shared, n_local)
         ends = np.repeat(np.asarray(_ENDS), half)
-        for name in INCREASING_PARAMS:
+        for name in increasing:
             if name in spread:
                 positions[name] = np.tile(ends, n_shared).reshape(n_shared, n_local)
         if not positions:
@@ -332,11 +348,12 @@ def grid_points(net: ReferenceNetwork, both_ways: Sequence[float] = _LEVELS) -> 
     """How many parameter points of one channel `corner_extremes` evaluates with these levels
     (both input edges, and the typical point)."""
     spread = set(spread_parameters(net))
+    monotone, increasing = _monotone(net)
     shared = math.prod(len(both_ways) for n in ("vdd", "temp") if n in spread)
     total = 1
     for edge in EDGES:
-        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *INCREASING_PARAMS}
-        local = math.prod(len(_ENDS if n in MONOTONE_PARAMS else both_ways)
+        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *increasing}
+        local = math.prod(len(_ENDS if n in monotone else both_ways)
                           for n in CHANNEL_PARAMS if n in spread and n not in skip)
         total += shared * local * 2
     return total
