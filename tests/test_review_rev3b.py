@@ -14,8 +14,8 @@ import json
 from pathlib import Path
 
 import pytest
-from conftest import EXAMPLES, run_cli
 
+from conftest import EXAMPLES, run_cli
 from gapforge.base.errors import GapforgeError
 from gapforge.bench.vcd import read_header, read_vcd
 
@@ -67,7 +67,7 @@ def test_one_index_on_a_vector_is_an_element_not_a_bit(tmp_path: Path) -> None:
         ("tb.leg[3]", 2, None, None)]
     _refused(["measure", str(path), "--high", "tb.leg[3]", "--low", "tb.leg[3][0]"],
              "is 2 bits wide", tmp_path)
-    code, gaps = _gaps(path, "tb.leg[3][1]", "tb.leg[3][0]")
+    _, gaps = _gaps(path, "tb.leg[3][1]", "tb.leg[3][0]")
     assert gaps == {"to_high": [3e-11, 3e-11], "to_low": [4e-11]}, gaps
 
 
