@@ -224,11 +224,11 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
                                 "holds logic levels", str(path))
         vcd_named_csv(path)
     settings = settings_from(scope, resolution)
-    if scope.get("node") is not None and scope["node"] in (high, low):
+    bus = _bus(scope, design)
+    if bus is not None and scope["node"] in (high, low):
         # review rev3b: a gate read as the switch node counted "hard" turn-ons of nothing
         raise GapforgeError(f"--node {quoted(scope['node'])} is a gate channel (--high/--low): "
                             "name the switch-node probe's channel", "--node")
-    bus = _bus(scope, design)
     cap = read_scope(list(files), high, low, settings)
     result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
                              percentiles=percentiles, bins=bins, worst=worst,
