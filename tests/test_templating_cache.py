@@ -66,3 +66,48 @@ def test_the_package_environments_cache_beside_the_templates() -> None:
     assert c_cache.directory == html_cache.directory
     assert Path(c_cache.directory).parent.name == "templates"
     assert c_cache.pattern != html_cache.pattern
+
+
+def test_other_options_never_take_the_compiled_code(tmp_path: Path) -> None:
+    # review rev3b: Jinja2's own check is the template's source and Python's version; code
+    # compiled with trim_blocks off was taken by an environment with it on ("\n[1]\n\n"
+    # instead of "[1]\n", Jinja2's documented trim_blocks: the newline after a block tag is
+    # removed). The package's cache file names carry a fingerprint of the options.
+    from gapforge.outputs.templating import fingerprint
+
+    source = {"t.j2": "{% for x in xs %}\n[{{ x }}]\n{% endfor %}\n"}
+
+    def render(trim: bool, pattern: str) -> str:
+        env = jinja2.Environment(loader=jinja2.DictLoader(source), trim_blocks=trim,
+                                 keep_trailing_newline=True,
+                                 bytecode_cache=_CompiledTemplates(str(tmp_path), pattern))
+        return env.get_template("t.j2").render(xs=[1])
+
+    assert render(False, "shared_%s") == "\n[1]\n\n"
+    assert render(True, "shared_%s") == "\n[1]\n\n"  # the stale code Jinja2 alone would take
+    patterns = {trim: f"p_{fingerprint({'trim_blocks': trim})}_%s" for trim in (False, True)}
+    assert patterns[False] != patterns[True]
+    assert render(False, patterns[False]) == "\n[1]\n\n"
+    assert render(True, patterns[True]) == "[1]\n"
+    c_pattern = environment().bytecode_cache.pattern  # type: ignore[union-attr]
+    html_pattern = environment(html=True).bytecode_cache.pattern  # type: ignore[union-attr]
+    assert jinja2.__version__ not in c_pattern and len(c_pattern.split("_")[-2]) == 12
+    assert c_pattern.split("_")[-2] != html_pattern.split("_")[-2]
+
+
+def test_a_well_formed_file_without_code_compiles_afresh(tmp_path: Path) -> None:
+    # the file's header (magic, checksum) intact, a marshalled integer in place of the code:
+    # it used to reach `exec` and fail the render
+    import marshal
+    import pickle
+
+    from jinja2.bccache import bc_magic
+
+    folder = tmp_path / "__pycache__"
+    _env(folder).get_template("t.j2")
+    (cached,) = folder.iterdir()
+    data = cached.read_bytes()
+    assert data.startswith(bc_magic)
+    header = len(bc_magic) + len(pickle.dumps(pickle.loads(data[len(bc_magic):]), 2))  # as Jinja2 writes it
+    cached.write_bytes(data[:header] + marshal.dumps(42))
+    assert _env(folder).get_template("t.j2").render(xs=[6]) == "[6]\n"

@@ -19,7 +19,7 @@ tests/test_records.py runs both side by side):
 `dataclasses.fields`, `replace` and `asdict` work as for any dataclass; `__dataclass_params__`
 says init, repr, eq and frozen False (nothing in gapforge reads it), and `inspect.signature`
 shows `(*args, **kwargs)`. A class that needs more (its own dunder methods, a dataclass base,
-`init=False` or keyword-only fields) is refused here and keeps `@dataclass(frozen=True)`.
+`init=False`, keyword-only or InitVar fields) is refused here and keeps `@dataclass(frozen=True)`.
 """
 
 from __future__ import annotations
@@ -135,6 +135,10 @@ def record(cls: type[T]) -> type[T]:
         cls.__doc__ = f"{cls.__name__}({', '.join(inspect.get_annotations(cls))})"
     made = dataclasses.dataclass(init=False, repr=False, eq=False)(cls)
     fields = dataclasses.fields(cast(Any, made))
+    pseudo = cast(Any, made).__dataclass_fields__.values()
+    if any(repr(getattr(f, "_field_type", None)) == "_FIELD_INITVAR" for f in pseudo):
+        # review rev3b: an InitVar was accepted here and its class failed at construction
+        raise TypeError(f"{cls.__qualname__}: a record has no InitVar pseudo-fields")
     if any(not f.init or f.kw_only for f in fields):
         raise TypeError(f"{cls.__qualname__}: a record's fields are all plain __init__ "
                         "arguments (no init=False, no keyword-only)")

@@ -378,8 +378,9 @@ def vcd_named_csv(path: Path) -> None:
         return  # the reader says why it cannot read the file
     word = next((w for w in _VCD_WORDS if start.startswith(w)), None)
     if word is not None:
-        raise GapforgeError(f"a VCD file (it begins with {word.decode()}) named .csv: rename it "
-                            ".vcd", str(path))
+        named = path.suffix or "without a suffix"  # review rev3b: a .txt was said to be .csv
+        raise GapforgeError(f"a VCD file (it begins with {word.decode()}) named {named}: rename "
+                            "it .vcd", str(path))
 
 
 def _kind(path: Path) -> str:
@@ -397,10 +398,14 @@ def _kind(path: Path) -> str:
     if suffix == ".csv":
         vcd_named_csv(path)
         return "csv"
-    start = head.lstrip()
-    # a VCD, or one with another tool's line in front (the VCD reader says what it found)
-    vcd = start.startswith(b"$") or any(word in start for word in _VCD_WORDS[:5])
-    return "vcd" if vcd else "csv"
+    return "vcd" if looks_like_vcd(head) else "csv"
+
+
+def looks_like_vcd(head: bytes) -> bool:
+    """The first bytes of a VCD, or of one with another tool's line (or a byte order mark) in
+    front: the VCD reader then says what it found."""
+    start = head.lstrip(b"\xef\xbb\xbf \t\r\n")
+    return start.startswith(b"$") or any(word in start for word in _VCD_WORDS[:5])
 
 
 __all__ = ["CaptureStream", "CsvData", "Events", "GateCapture", "UnorderedTimes", "invert",

@@ -146,6 +146,8 @@ def read_header(path: Path, names: Sequence[str] | None = None) -> Header:
     could select (every variable when `names` is None)."""
     where = str(path)
     head, body_offset = _header_bytes(path, where)
+    if head.startswith(b"\xef\xbb\xbf"):  # a UTF-8 byte order mark (an editor's save): blank
+        head = b"   " + head[3:]
     if not head.isascii():
         bad = next(i for i, b in enumerate(head) if b > 127)
         line = head[:bad].count(b"\n") + 1
@@ -258,8 +260,10 @@ class _Declarations:
     def _var(self, args: list[bytes]) -> None:
         self.read += 1
         if self.leaves is not None and self.read > HINT_VARS:
-            ref = b" ".join(args[3:])
-            if ref.split(b"[", 1)[0].rsplit(b".", 1)[-1] not in self.leaves:
+            # the leaf as `_parse_var` reads it: a range written apart ("leg [1:0]") is no
+            # part of the name (review rev3b: such a wanted variable was dropped here)
+            ref = b" ".join(args[3:]).split(b"[", 1)[0].rstrip()
+            if ref.rsplit(b".", 1)[-1] not in self.leaves:
                 return  # not asked for: counted only
         text = [a.decode("ascii") for a in args]
         self.variables.append(_parse_var(text, self.scopes, self.where))
@@ -275,15 +279,33 @@ def _parse_var(args: list[str], scopes: list[str], where: str) -> Variable:
         raise GapforgeError(f"$var {shown!r}: size must be a positive integer", where)
     # the reference as written: a logic analyser writes a channel name with spaces as typed
     # ("High Side PWM"); a range written apart ("data [7:0]") joins its name
-    ref = re.sub(r"\s+\[", "[", " ".join(args[3:]))
+    # and an index written with spaces inside ("[ 1 : 0 ]") is read as "[1:0]"
+    ref = _INDEX.sub(_tight, re.sub(r"\s+\[", "[", " ".join(args[3:])))
     match = _REF.match(ref)
     if not match:
         shown = " ".join(args)[:60]
         raise GapforgeError(f"$var {shown!r}: cannot read the reference", where)
+    size = int(size_text)
+    name = match.group("name")
     msb = _bit_index(match.group("msb"), where)
     lsb = _bit_index(match.group("lsb"), where) if match.group("lsb") is not None else msb
-    name = ".".join([*scopes, match.group("name")])
-    return Variable(name, var_type, int(size_text), code, msb, lsb)
+    if match.group("lsb") is None and msb is not None and size > 1:
+        # one index on a vector ("leg[3]", 2 bits): element 3 of an array, its bits
+        # size-1..0 (review rev3b: it was read as bit 3, the value's rightmost digit)
+        name, msb, lsb = f"{name}[{msb}]", None, None
+    if msb is not None and lsb is not None and abs(msb - lsb) + 1 != size:
+        shown = " ".join(args)[:60]
+        raise GapforgeError(f"$var {shown!r}: size {size} but the range holds "
+                            f"{abs(msb - lsb) + 1} bits", where)
+    return Variable(".".join([*scopes, name]), var_type, size, code, msb, lsb)
+
+
+_INDEX = re.compile(r"\[\s*(-?\d+)\s*(?::\s*(-?\d+)\s*)?\]")
+
+
+def _tight(match: re.Match[str]) -> str:
+    lsb = match.group(2)
+    return f"[{match.group(1)}]" if lsb is None else f"[{match.group(1)}:{lsb}]"
 
 
 def _bit_index(text: str | None, where: str) -> int | None:

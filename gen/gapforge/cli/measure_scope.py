@@ -82,15 +82,20 @@ _LOGIC = {"0", "1", "x", "X", "z", "Z"}
 
 def _looks_analog(path: Path) -> bool:
     """A units row, or a level cell that is a number other than 0/1 (a logic CSV has none)."""
+    from gapforge.bench.capture import looks_like_vcd
+
     if path.suffix.lower() == ".vcd" or not path.is_file():
         return False
     try:
         with path.open("rb") as handle:
-            head = handle.read(1 << 14).decode("utf-8", errors="replace")
+            raw = handle.read(1 << 14)
     except OSError:
         return False
-    if "\x00" in head:  # binary (an FST waveform, junk): the logic reader says what it is
+    # binary (an FST waveform, junk) or a VCD under another name, with a byte order mark or a
+    # line in front (review rev3b: once taken for volts): the logic reader says what it is
+    if b"\x00" in raw or (path.suffix.lower() != ".csv" and looks_like_vcd(raw[:256])):
         return False
+    head = raw.decode("utf-8", errors="replace")
     rows = [r.strip() for r in head.splitlines()[:60]]
     rows = [r for r in rows if r and not r.startswith("#")]
     if len(rows) < 2 or rows[0].startswith(("$", ";")):  # a VCD; a logic analyser's own CSV
@@ -158,16 +163,26 @@ def _bus(scope: dict[str, Any], design: Path | None) -> tuple[Fraction, str] | N
         if scope.get("soft_within") is not None:
             raise GapforgeError("--soft-within needs --node and --bus", "--soft-within")
         return None
-    if scope.get("bus") is not None:
-        return parse_quantity(scope["bus"], "V", "--bus"), "--bus"
+    stated = None  # the design's bus, and why there is none
+    why = ""
     if design is not None:
         from gapforge.pipeline.design import load_window_sections
 
         stage = load_window_sections(design).stage
-        if stage is not None and stage.bus_voltage is not None:
-            return stage.bus_voltage, f"[stage] bus_voltage of {design.name}"
+        stated = None if stage is None else stage.bus_voltage
+        why = (f" ({design.name} has no [stage])" if stage is None else
+               f" ({design.name}'s [stage] states no bus_voltage)" if stated is None else "")
+    if scope.get("bus") is not None:
+        # --bus wins; a design that states another bus is named beside it (review rev3b)
+        bus = parse_quantity(scope["bus"], "V", "--bus")
+        if stated is not None and stated != bus and design is not None:
+            return bus, (f"--bus, not the {_v(stated)} [stage] bus_voltage of "
+                         f"{design.name}")
+        return bus, "--bus"
+    if stated is not None and design is not None:
+        return stated, f"[stage] bus_voltage of {design.name}"
     raise GapforgeError("--node and --bus go together: give --bus, or a --design whose [stage] "
-                        "states bus_voltage", "--node")
+                        f"states bus_voltage{why}", "--node")
 
 
 def logic_capture(files: tuple[Path, ...], scope: dict[str, Any]) -> Path | None:
@@ -210,6 +225,10 @@ def run_scope(files: tuple[Path, ...], high: str | None, low: str | None, scope:
         vcd_named_csv(path)
     settings = settings_from(scope, resolution)
     bus = _bus(scope, design)
+    if bus is not None and scope["node"] in (high, low):
+        # review rev3b: a gate read as the switch node counted "hard" turn-ons of nothing
+        raise GapforgeError(f"--node {quoted(scope['node'])} is a gate channel (--high/--low): "
+                            "name the switch-node probe's channel", "--node")
     cap = read_scope(list(files), high, low, settings)
     result = measure_capture(cap.stream, limits=limits[0], glitch_width_s=glitch,
                              percentiles=percentiles, bins=bins, worst=worst,
