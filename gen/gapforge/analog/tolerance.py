@@ -258,6 +258,13 @@ class _Grid:
     local: FloatArray  # (half, names): positions of the local parameters
 
 
+def _local_names(edge: str, spread: set[str], increasing: tuple[str, ...]) -> list[str]:
+    """The channel parameters one input edge's grid spans: the other edge's threshold, the
+    additive delays and the ones taken at one end per bound stay out."""
+    skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *increasing}
+    return [n for n in CHANNEL_PARAMS if n in spread and n not in skip]
+
+
 def _node_grids(
     net: ReferenceNetwork, parts: Sequence[tuple[Fraction, Fraction]], both_ways: Sequence[float]
 ) -> dict[str, _Grid]:
@@ -271,8 +278,7 @@ def _node_grids(
                     else np.zeros((1, 0)))
     grids: dict[str, _Grid] = {}
     for edge in EDGES:
-        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *increasing}
-        local_names = [n for n in CHANNEL_PARAMS if n in spread and n not in skip]
+        local_names = _local_names(edge, spread, increasing)
         local = _grid(local_names, both_ways, monotone)
         half = len(next(iter(local.values()))) if local else 1
         n_local = 2 * half  # the grid with INCREASING_PARAMS low, then the same with them high
@@ -352,9 +358,8 @@ def grid_points(net: ReferenceNetwork, both_ways: Sequence[float] = _LEVELS) -> 
     shared = math.prod(len(both_ways) for n in ("vdd", "temp") if n in spread)
     total = 1
     for edge in EDGES:
-        skip = {"vt_minus" if edge == "rising" else "vt_plus", *DELAY_PARAMS, *increasing}
         local = math.prod(len(_ENDS if n in monotone else both_ways)
-                          for n in CHANNEL_PARAMS if n in spread and n not in skip)
+                          for n in _local_names(edge, spread, increasing))
         total += shared * local * 2
     return total
 
